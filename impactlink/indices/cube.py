@@ -1,0 +1,141 @@
+"""The in-memory container for index values: one (weeks, counties) array per (index, scale).
+
+Every later stage reads index values through :class:`IndexCube`, never through a wide
+table, so hundreds of candidates (index x scale x lag) never sit in memory at once.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+__all__ = ["IndexCube"]
+
+
+@dataclass(frozen=True)
+class IndexCube:
+    """Index values on a regular weekly grid.
+
+    Parameters
+    ----------
+    weeks : pandas.DatetimeIndex
+        Mondays of ISO 8601 weeks, strictly increasing, 7 days apart (no gaps: a week
+        with no data is a row of NaN, not a missing row).
+    county_ids : tuple of str
+        Column labels of every array, in order.
+    arrays : dict
+        ``{(index_name, scale_weeks): ndarray of shape (len(weeks), len(county_ids))}``,
+        float64, NaN where undefined (spin-up of an accumulation, missing input).
+        Index names are lower-case snake_case (``"spi"``, ``"spei"``, ``"eddi"``,
+        ``"soil_moisture"``, ``"streamflow"``). Standardized indices are on the normal
+        scale (negative = dry). ``scale_weeks`` is 0 for an indicator used as supplied.
+    provenance : dict
+        Method, parameters and calibration period per index, for the manifest.
+    """
+
+    weeks: pd.DatetimeIndex
+    county_ids: tuple[str, ...]
+    arrays: dict[tuple[str, int], np.ndarray]
+    provenance: dict = field(default_factory=dict)
+
+    def __post_init__(self) -> None:
+        shape = (len(self.weeks), len(self.county_ids))
+        for key, arr in self.arrays.items():
+            if arr.shape != shape:
+                raise ValueError(
+                    f"IndexCube array {key} has shape {arr.shape}; expected {shape} "
+                    "(weeks, counties)"
+                )
+
+    # ------------------------------------------------------------------ access
+    @property
+    def keys(self) -> list[tuple[str, int]]:
+        """All (index, scale_weeks) pairs, sorted."""
+        return sorted(self.arrays)
+
+    @property
+    def index_names(self) -> list[str]:
+        return sorted({k[0] for k in self.arrays})
+
+    def get(self, index: str, scale_weeks: int) -> np.ndarray:
+        """The (weeks, counties) array of one index at one scale."""
+        try:
+            return self.arrays[(index, int(scale_weeks))]
+        except KeyError:
+            raise KeyError(
+                f"no index {index!r} at scale {scale_weeks} weeks; available: {self.keys}"
+            ) from None
+
+    def week_position(self, dates: pd.Series | pd.DatetimeIndex | np.ndarray) -> np.ndarray:
+        """Row position of the ISO week that contains each date (-1 if outside the grid)."""
+        d = pd.DatetimeIndex(pd.to_datetime(dates)).normalize()
+        monday = d - pd.to_timedelta(d.dayofweek, unit="D")
+        pos = ((monday - self.weeks[0]).days // 7).to_numpy()
+        pos = np.where((pos >= 0) & (pos < len(self.weeks)), pos, -1)
+        return pos.astype(np.int64)
+
+    def county_position(self, county_ids) -> np.ndarray:
+        """Column position of each county id (-1 if unknown)."""
+        lookup = {c: i for i, c in enumerate(self.county_ids)}
+        return np.array([lookup.get(str(c), -1) for c in county_ids], dtype=np.int64)
+
+    def values_at(
+        self,
+        index: str,
+        scale_weeks: int,
+        week_pos: np.ndarray,
+        county_pos: np.ndarray,
+        *,
+        lag_weeks: int = 0,
+    ) -> np.ndarray:
+        """Index value ``lag_weeks`` before each (week, county) position; NaN off the grid."""
+        arr = self.get(index, scale_weeks)
+        wp = np.asarray(week_pos, dtype=np.int64) - int(lag_weeks)
+        cp = np.asarray(county_pos, dtype=np.int64)
+        ok = (wp >= 0) & (wp < arr.shape[0]) & (cp >= 0)
+        out = np.full(wp.shape, np.nan)
+        out[ok] = arr[wp[ok], cp[ok]]
+        return out
+
+    # ------------------------------------------------------------------ tidy
+    def to_frame(self, *, keys: list[tuple[str, int]] | None = None) -> pd.DataFrame:
+        """Long tidy frame: county_id, week, index, scale_weeks, value."""
+        parts = []
+        nw, nc = len(self.weeks), len(self.county_ids)
+        week_col = np.repeat(self.weeks.values, nc)
+        county_col = np.tile(np.asarray(self.county_ids, dtype=object), nw)
+        for key in keys or self.keys:
+            parts.append(
+                pd.DataFrame(
+                    {
+                        "county_id": county_col,
+                        "week": week_col,
+                        "index": key[0],
+                        "scale_weeks": np.int16(key[1]),
+                        "value": self.arrays[key].ravel(),
+                    }
+                )
+            )
+        out = pd.concat(parts, ignore_index=True)
+        out["index"] = out["index"].astype("category")
+        out["county_id"] = out["county_id"].astype("string")
+        return out
+
+    @classmethod
+    def from_frame(cls, frame: pd.DataFrame, *, provenance: dict | None = None) -> "IndexCube":
+        """Inverse of :meth:`to_frame` (columns county_id, week, index, scale_weeks, value)."""
+        weeks_all = pd.DatetimeIndex(pd.to_datetime(frame["week"]))
+        start, end = weeks_all.min(), weeks_all.max()
+        weeks = pd.date_range(start, end, freq="7D")
+        counties = tuple(sorted(frame["county_id"].astype(str).unique()))
+        cpos = {c: i for i, c in enumerate(counties)}
+        arrays = {}
+        for (idx, scale), g in frame.groupby(["index", "scale_weeks"], observed=True):
+            arr = np.full((len(weeks), len(counties)), np.nan)
+            wp = ((pd.DatetimeIndex(pd.to_datetime(g["week"])) - start).days // 7).to_numpy()
+            cp = g["county_id"].astype(str).map(cpos).to_numpy()
+            arr[wp, cp] = g["value"].to_numpy(dtype=float)
+            arrays[(str(idx), int(scale))] = arr
+        return cls(weeks=weeks, county_ids=counties, arrays=arrays, provenance=provenance or {})
