@@ -1,0 +1,432 @@
+"""The project file (TOML): where the data are, and every setting with its documented default.
+
+A project file is read once, validated, and turned into a frozen :class:`Project`. Unknown
+keys are errors (a typo must not silently fall back to a default). Relative paths are
+resolved against the folder holding the project file.
+"""
+
+from __future__ import annotations
+
+import tomllib
+from dataclasses import asdict, dataclass, field, fields
+from pathlib import Path
+from typing import Any
+
+__all__ = [
+    "ProjectError",
+    "Project",
+    "Calibration",
+    "IndexSettings",
+    "AuditLadder",
+    "ImpactSpec",
+    "LinkSettings",
+    "ModelSettings",
+    "SkillSettings",
+    "TriggerSettings",
+    "load_project",
+    "project_from_dict",
+    "render_project_file",
+    "IMPACT_SOURCES",
+]
+
+IMPACT_SOURCES = ("yields", "prices", "notices", "field_reports")
+
+
+class ProjectError(ValueError):
+    """The project file is missing, unreadable, or holds an impossible setting."""
+
+
+@dataclass(frozen=True)
+class Calibration:
+    """Period over which index distributions are fitted.
+
+    The default 1991-2020 follows 30-year climate normals (common practice); when the record
+    does not cover it, the full record is used; fewer than ``min_years`` years is an error.
+    """
+
+    start_year: int = 1991
+    end_year: int = 2020
+    min_years: int = 20
+
+
+@dataclass(frozen=True)
+class IndexSettings:
+    scales_weeks: tuple[int, ...] = (4, 8, 13, 26, 39, 52, 104)
+    indices: tuple[str, ...] = ("spi", "spei", "eddi")
+    pet_method: str = "hargreaves"  # "hargreaves" | "thornthwaite" | "supplied"
+    min_valid_days: int = 6
+    indicators: tuple[str, ...] = ()  # supplied indicators to standardize; () = all found
+
+
+@dataclass(frozen=True)
+class AuditLadder:
+    """A ladder of thresholds on one index, with our stage names, for the threshold audit."""
+
+    name: str = "spi_ladder"
+    index: str = "spi"
+    scale_weeks: int = 13
+    kind: str = "value"  # "value" | "percentile"
+    thresholds: tuple[float, ...] = (-1.0, -1.5, -2.0)
+    # Default: the SPI dryness classes of McKee et al. (1993), as in the WMO SPI User Guide (2012).
+    stages: tuple[str, ...] = ("moderately_dry", "severely_dry", "extremely_dry")
+    early: tuple[int, int] | None = (1981, 2002)
+    late: tuple[int, int] | None = (2003, 2025)
+    n_boot: int = 500
+
+
+@dataclass(frozen=True)
+class ImpactSpec:
+    """One impact to model: a name, the source table and source-specific options.
+
+    Options by source (all optional, defaults in the linking stage):
+
+    - ``yields``: crop, practice, trend ("linear" | "quadratic" | "lowess"), robust,
+      class_pct (shortfall class edges in percent), binary_pct, season_week, window_weeks,
+      window_stat ("value" | "min" | "mean").
+    - ``prices``: commodity, base_years, baseline_years, class_pct, season options as above.
+    - ``notices``: ladder, stage_names (issuer -> {stage name -> level}), open_end_cap_weeks,
+      drought_causes, episodic.
+    - ``field_reports``: sector, min_severity.
+    """
+
+    name: str
+    source: str
+    options: dict[str, Any] = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class LinkSettings:
+    lags_weeks: tuple[int, ...] = (0, 2, 4, 8, 13, 26)
+    equal_area_crs: str = "EPSG:5070"
+
+
+@dataclass(frozen=True)
+class ModelSettings:
+    link: str = "logit"  # "logit" | "probit" for ordinal models
+    pooling: str = "all"  # "all" | "region" | "county"
+    seasonal: bool = False
+    traits: tuple[str, ...] = ()
+    curve_ci: float = 0.90
+
+
+@dataclass(frozen=True)
+class SkillSettings:
+    cv: str = "leave_one_year_out"  # | "blocked_k_fold" | "leave_one_region_out"
+    k_folds: int = 5
+    n_boot: int = 200
+    ci: float = 0.90
+    n_bins: int = 200
+    pairs: bool = True
+    challenger: bool = True
+
+
+@dataclass(frozen=True)
+class TriggerSettings:
+    entry_weeks: int = 2
+    exit_weeks: int = 4
+
+
+@dataclass(frozen=True)
+class Project:
+    """A validated project."""
+
+    name: str
+    path: Path | None
+    data_dir: Path
+    output_dir: Path
+    tables: dict[str, Path]
+    seed: int = 0
+    jobs: int = 1
+    calibration: Calibration = field(default_factory=Calibration)
+    indices: IndexSettings = field(default_factory=IndexSettings)
+    audit: tuple[AuditLadder, ...] = (AuditLadder(),)
+    impacts: tuple[ImpactSpec, ...] = ()
+    link: LinkSettings = field(default_factory=LinkSettings)
+    models: ModelSettings = field(default_factory=ModelSettings)
+    skill: SkillSettings = field(default_factory=SkillSettings)
+    triggers: TriggerSettings = field(default_factory=TriggerSettings)
+
+    def settings_dict(self) -> dict[str, Any]:
+        """Plain settings for the manifest (paths as strings)."""
+        d = asdict(self)
+        d["path"] = str(self.path) if self.path else None
+        d["data_dir"] = str(self.data_dir)
+        d["output_dir"] = str(self.output_dir)
+        d["tables"] = {k: str(v) for k, v in self.tables.items()}
+        return d
+
+
+# --------------------------------------------------------------------------- loading
+def load_project(path: str | Path, *, output_dir: str | Path | None = None) -> Project:
+    """Read and validate a project file.
+
+    Parameters
+    ----------
+    path : str or Path
+        The TOML project file.
+    output_dir : str or Path, optional
+        Overrides ``[project] output_dir``.
+
+    Raises
+    ------
+    ProjectError
+        Missing or unreadable file, unknown keys, impossible values.
+    """
+    path = Path(path)
+    if path.is_dir():
+        path = path / "impactlink.toml"
+    if not path.exists():
+        raise ProjectError(
+            f"project file {path} does not exist; create one with `impactlink init FOLDER`"
+        )
+    try:
+        raw = tomllib.loads(path.read_text(encoding="utf-8"))
+    except tomllib.TOMLDecodeError as exc:
+        raise ProjectError(f"project file {path} is not valid TOML: {exc}") from None
+    return project_from_dict(raw, base=path.parent, path=path, output_dir=output_dir)
+
+
+def project_from_dict(
+    raw: dict[str, Any],
+    *,
+    base: str | Path = ".",
+    path: Path | None = None,
+    output_dir: str | Path | None = None,
+) -> Project:
+    """Build a :class:`Project` from the parsed TOML mapping (see :func:`load_project`)."""
+    where = str(path) if path else "project settings"
+    raw = dict(raw)
+    known = {
+        "project", "tables", "calibration", "indices", "audit", "impacts",
+        "link", "models", "skill", "triggers",
+    }
+    _no_unknown(raw, known, where, "top level")
+    base = Path(base)
+    proj = dict(raw.get("project", {}))
+    _no_unknown(proj, {"name", "data_dir", "output_dir", "seed", "jobs"}, where, "[project]")
+    data_dir = (base / proj.get("data_dir", ".")).resolve()
+    out = Path(output_dir) if output_dir else (base / proj.get("output_dir", "impactlink_output"))
+    tables = _tables(raw.get("tables", {}), data_dir, where)
+
+    audit_raw = raw.get("audit", [{}])
+    if isinstance(audit_raw, dict):
+        audit_raw = [audit_raw]
+    audit = tuple(_section(AuditLadder, a, where, "[[audit]]") for a in audit_raw)
+    for lad in audit:
+        if len(lad.thresholds) != len(lad.stages):
+            raise ProjectError(
+                f"{where}: [[audit]] {lad.name!r} has {len(lad.thresholds)} thresholds but "
+                f"{len(lad.stages)} stage names; give one name per threshold"
+            )
+        if lad.kind not in ("value", "percentile"):
+            raise ProjectError(f"{where}: [[audit]] kind must be 'value' or 'percentile', got {lad.kind!r}")
+
+    impacts = []
+    for name, spec in raw.get("impacts", {}).items():
+        spec = dict(spec)
+        source = spec.pop("source", None)
+        if source not in IMPACT_SOURCES:
+            raise ProjectError(
+                f"{where}: [impacts.{name}] source must be one of {IMPACT_SOURCES}, got {source!r}"
+            )
+        impacts.append(ImpactSpec(name=name, source=source, options=spec))
+
+    project = Project(
+        name=str(proj.get("name", "impactlink project")),
+        path=path,
+        data_dir=data_dir,
+        output_dir=out.resolve(),
+        tables=tables,
+        seed=int(proj.get("seed", 0)),
+        jobs=int(proj.get("jobs", 1)),
+        calibration=_section(Calibration, raw.get("calibration", {}), where, "[calibration]"),
+        indices=_section(IndexSettings, raw.get("indices", {}), where, "[indices]"),
+        audit=audit,
+        impacts=tuple(impacts),
+        link=_section(LinkSettings, raw.get("link", {}), where, "[link]"),
+        models=_section(ModelSettings, raw.get("models", {}), where, "[models]"),
+        skill=_section(SkillSettings, raw.get("skill", {}), where, "[skill]"),
+        triggers=_section(TriggerSettings, raw.get("triggers", {}), where, "[triggers]"),
+    )
+    _check_choices(project, where)
+    return project
+
+
+def _check_choices(p: Project, where: str) -> None:
+    checks = [
+        ("[indices] pet_method", p.indices.pet_method, ("hargreaves", "thornthwaite", "supplied")),
+        ("[models] link", p.models.link, ("logit", "probit")),
+        ("[models] pooling", p.models.pooling, ("all", "region", "county")),
+        ("[skill] cv", p.skill.cv, ("leave_one_year_out", "blocked_k_fold", "leave_one_region_out")),
+    ]
+    for label, value, allowed in checks:
+        if value not in allowed:
+            raise ProjectError(f"{where}: {label} must be one of {allowed}, got {value!r}")
+    if p.calibration.end_year < p.calibration.start_year:
+        raise ProjectError(
+            f"{where}: [calibration] end_year {p.calibration.end_year} is before "
+            f"start_year {p.calibration.start_year}"
+        )
+    if any(s <= 0 for s in p.indices.scales_weeks):
+        raise ProjectError(f"{where}: [indices] scales_weeks must be positive, got {p.indices.scales_weeks}")
+    if any(lag < 0 for lag in p.link.lags_weeks):
+        raise ProjectError(f"{where}: [link] lags_weeks must be >= 0, got {p.link.lags_weeks}")
+
+
+def _tables(raw: dict[str, Any], data_dir: Path, where: str) -> dict[str, Path]:
+    from impactlink.schema import TABLES
+
+    unknown = set(raw) - set(TABLES)
+    if unknown:
+        raise ProjectError(
+            f"{where}: [tables] has unknown table(s) {sorted(unknown)}; known: {sorted(TABLES)}"
+        )
+    return {k: (data_dir / v).resolve() for k, v in raw.items()}
+
+
+def _no_unknown(d: dict, allowed: set[str], where: str, section: str) -> None:
+    unknown = set(d) - allowed
+    if unknown:
+        raise ProjectError(
+            f"{where}: {section} has unknown key(s) {sorted(unknown)}; allowed: {sorted(allowed)}"
+        )
+
+
+def _section(cls, d: dict[str, Any], where: str, section: str):
+    names = {f.name for f in fields(cls)}
+    _no_unknown(d, names, where, section)
+    kwargs = {}
+    for f in fields(cls):
+        if f.name in d:
+            v = d[f.name]
+            kwargs[f.name] = tuple(v) if isinstance(v, list) else v
+    try:
+        return cls(**kwargs)
+    except TypeError as exc:  # pragma: no cover - defensive
+        raise ProjectError(f"{where}: {section}: {exc}") from None
+
+
+# --------------------------------------------------------------------------- writing
+def render_project_file(
+    tables: dict[str, str],
+    *,
+    name: str = "my drought project",
+    output_dir: str = "impactlink_output",
+    impacts: dict[str, dict[str, Any]] | None = None,
+) -> str:
+    """A commented project file with every setting at its documented default.
+
+    Parameters
+    ----------
+    tables : dict
+        Contract table name -> file name relative to the project file's folder.
+    impacts : dict, optional
+        Impact name -> options (must include ``source``). Default: one impact per impact
+        table found, with default options.
+    """
+    c, i, a, lk, m, s, t = (
+        Calibration(), IndexSettings(), AuditLadder(), LinkSettings(),
+        ModelSettings(), SkillSettings(), TriggerSettings(),
+    )
+    if impacts is None:
+        impacts = {}
+        if "yields" in tables:
+            impacts["crop_shortfall"] = {"source": "yields"}
+        if "prices" in tables:
+            impacts["price_spike"] = {"source": "prices"}
+        if "notices" in tables or "notice_snapshots" in tables:
+            impacts["restrictions"] = {"source": "notices"}
+        if "field_reports" in tables:
+            impacts["field_reports"] = {"source": "field_reports"}
+    lines = [
+        "# impactlink project file. Paths are relative to this file's folder.",
+        "# Every setting below is at its documented default; edit what you need.",
+        "",
+        "[project]",
+        f"name = {_toml(name)}",
+        'data_dir = "."',
+        f"output_dir = {_toml(output_dir)}",
+        "seed = 0            # seed for every random step (bootstrap, folds)",
+        "jobs = 1            # worker processes for independent work",
+        "",
+        "[tables]            # contract table -> file",
+    ]
+    lines += [f"{k} = {_toml(v)}" for k, v in sorted(tables.items())]
+    lines += [
+        "",
+        "[calibration]       # period for fitting index distributions (30-year normals)",
+        f"start_year = {c.start_year}",
+        f"end_year = {c.end_year}",
+        f"min_years = {c.min_years}      # a shorter record is an error",
+        "",
+        "[indices]",
+        f"scales_weeks = {_toml(list(i.scales_weeks))}",
+        f"indices = {_toml(list(i.indices))}",
+        f"pet_method = {_toml(i.pet_method)}   # hargreaves | thornthwaite | supplied",
+        f"min_valid_days = {i.min_valid_days}       # fewer valid days makes the week missing",
+        "indicators = []          # supplied indicators to standardize; empty = all found",
+        "",
+        "[[audit]]           # a ladder of thresholds to audit, with your stage names",
+        f"name = {_toml(a.name)}",
+        f"index = {_toml(a.index)}",
+        f"scale_weeks = {a.scale_weeks}",
+        f"kind = {_toml(a.kind)}        # value | percentile",
+        f"thresholds = {_toml(list(a.thresholds))}",
+        f"stages = {_toml(list(a.stages))}",
+        f"early = {_toml(list(a.early))}",
+        f"late = {_toml(list(a.late))}",
+        f"n_boot = {a.n_boot}",
+        "",
+    ]
+    for iname, opts in impacts.items():
+        lines.append(f"[impacts.{iname}]")
+        for k, v in opts.items():
+            if not isinstance(v, dict):
+                lines.append(f"{k} = {_toml(v)}")
+        for k, v in opts.items():
+            if isinstance(v, dict):
+                lines.append(f"[impacts.{iname}.{k}]")
+                for kk, vv in v.items():
+                    lines.append(f"{_toml(kk)} = {_toml(vv)}")
+        lines.append("")
+    lines += [
+        "[link]",
+        f"lags_weeks = {_toml(list(lk.lags_weeks))}",
+        f"equal_area_crs = {_toml(lk.equal_area_crs)}",
+        "",
+        "[models]",
+        f"link = {_toml(m.link)}            # logit | probit (ordinal models)",
+        f"pooling = {_toml(m.pooling)}           # all | region | county (partial pooling)",
+        f"seasonal = {_toml(m.seasonal)}",
+        "traits = []",
+        f"curve_ci = {m.curve_ci}",
+        "",
+        "[skill]",
+        f"cv = {_toml(s.cv)}   # leave_one_year_out | blocked_k_fold | leave_one_region_out",
+        f"k_folds = {s.k_folds}",
+        f"n_boot = {s.n_boot}",
+        f"ci = {s.ci}",
+        f"n_bins = {s.n_bins}",
+        f"pairs = {_toml(s.pairs)}",
+        f"challenger = {_toml(s.challenger)}",
+        "",
+        "[triggers]",
+        f"entry_weeks = {t.entry_weeks}",
+        f"exit_weeks = {t.exit_weeks}",
+        "",
+    ]
+    return "\n".join(lines)
+
+
+def _toml(v: Any) -> str:
+    if isinstance(v, bool):
+        return "true" if v else "false"
+    if isinstance(v, (int, float)):
+        return repr(v)
+    if isinstance(v, str):
+        return '"' + v.replace("\\", "\\\\").replace('"', '\\"') + '"'
+    if isinstance(v, (list, tuple)):
+        return "[" + ", ".join(_toml(x) for x in v) + "]"
+    if isinstance(v, dict):
+        return "{ " + ", ".join(f"{_toml(k)} = {_toml(x)}" for k, x in v.items()) + " }"
+    raise TypeError(f"cannot write {type(v).__name__} to TOML")
