@@ -1,0 +1,148 @@
+"""The ``impactlink`` command line. It wires stages together and holds no science.
+
+Heavy libraries are imported inside the commands that need them, so ``impactlink --help``
+stays instant.
+"""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from pathlib import Path
+
+STAGE_COMMANDS = {
+    "indices": "compute drought indices at every time scale (writes indices.parquet)",
+    "audit": "audit threshold ladders county by county (writes audit.csv)",
+    "link": "turn impact records into targets with aligned index features (writes panel.parquet)",
+    "rank": "fit impact models and rank index x time scale x lag out of sample (writes skill.csv)",
+    "outlook": "chance of each impact now and at each lag ahead (writes outlook.csv)",
+    "triggers": "replay, tune and audit trigger thresholds (writes triggers.csv)",
+    "contrast": "explain county differences from county traits (writes contrast.csv)",
+    "run": "run every stage and write the report",
+}
+
+
+def build_parser() -> argparse.ArgumentParser:
+    p = argparse.ArgumentParser(
+        prog="impactlink",
+        description=(
+            "Link drought indices to drought impacts: impact models, out-of-sample skill, "
+            "trigger audits and a self-contained report. Results show statistical association, "
+            "not causation; decisions rest with the responsible authorities."
+        ),
+    )
+    p.add_argument("--version", action="store_true", help="print the version and exit")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND")
+
+    s = sub.add_parser("scenario", help="generate the fictional demonstration scenario")
+    s.add_argument("--seed", type=int, default=20261202, help="random seed (default 20261202)")
+    s.add_argument("--out", required=True, help="folder to write the scenario tables into")
+
+    s = sub.add_parser("init", help="write a commented project file for the tables in a folder")
+    s.add_argument("folder", help="folder holding counties, climate, notices, ... files")
+    s.add_argument("--force", action="store_true", help="overwrite an existing impactlink.toml")
+
+    s = sub.add_parser("check", help="read and validate every input table; print a summary")
+    s.add_argument("project", help="project file (TOML) or a folder holding impactlink.toml")
+    s.add_argument("--out", help="also write rejected_rows.csv and manifest.json here")
+
+    for name, helptext in STAGE_COMMANDS.items():
+        s = sub.add_parser(name, help=helptext)
+        s.add_argument("project", help="project file (TOML) or a folder holding impactlink.toml")
+        _run_options(s)
+
+    s = sub.add_parser("report", help="rebuild report.html from an existing run folder")
+    s.add_argument("run_dir", help="a folder written by `impactlink run`")
+
+    s = sub.add_parser("demo", help="run everything on the fictional scenario into reports/demo")
+    s.add_argument("--out", help="output folder (default reports/demo)")
+    s.add_argument("--jobs", type=int, default=1, help="worker processes (default 1)")
+    s.add_argument("--quiet", action="store_true", help="no progress lines")
+    return p
+
+
+def _run_options(s: argparse.ArgumentParser) -> None:
+    s.add_argument("--out", help="output folder (default: the project's output_dir)")
+    s.add_argument("--jobs", type=int, default=None, help="worker processes for independent work")
+    s.add_argument(
+        "--dask", metavar="ADDRESS", default=None,
+        help="run model grids on a Dask scheduler at ADDRESS ('local' starts a local cluster)",
+    )
+    s.add_argument("--quiet", action="store_true", help="no progress lines")
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if args.version:
+        from impactlink import __version__
+
+        print(__version__)
+        return 0
+    if not args.command:
+        parser.print_help()
+        return 0
+    try:
+        return _dispatch(args)
+    except KeyboardInterrupt:  # pragma: no cover
+        print("interrupted", file=sys.stderr)
+        return 130
+    except Exception as exc:  # user-facing errors: one clear line, no traceback
+        from impactlink.errors import USER_ERRORS
+
+        if isinstance(exc, USER_ERRORS):
+            print(f"impactlink: error: {exc}", file=sys.stderr)
+            return 2
+        raise
+
+
+def _dispatch(args: argparse.Namespace) -> int:
+    cmd = args.command
+    if cmd == "scenario":
+        from impactlink.scenario import generate
+
+        paths = generate(args.out, seed=args.seed)
+        for name, path in paths.items():
+            print(f"{name}: {path}")
+        return 0
+    if cmd == "init":
+        from impactlink.pipeline import init_project
+
+        path = init_project(args.folder, force=args.force)
+        print(f"wrote {path}")
+        print(f"next: impactlink check {path}  then  impactlink run {path}")
+        return 0
+    if cmd == "check":
+        from impactlink.pipeline import check_project
+
+        ok = check_project(args.project, out=args.out)
+        return 0 if ok else 1
+    if cmd == "report":
+        from impactlink.report import build_report
+
+        path = build_report(args.run_dir)
+        print(f"report: {path}")
+        return 0
+    if cmd == "demo":
+        from impactlink.pipeline import run_demo
+
+        path = run_demo(out=args.out, jobs=args.jobs, quiet=args.quiet)
+        print(f"report: {path}")
+        return 0
+    from impactlink.pipeline import run_project
+
+    result = run_project(
+        args.project,
+        until=cmd,
+        out=args.out,
+        jobs=args.jobs,
+        dask_address=args.dask,
+        quiet=args.quiet,
+    )
+    for path in result.written:
+        print(f"wrote {path}")
+    return 0
+
+
+if __name__ == "__main__":  # pragma: no cover
+    sys.exit(main())
