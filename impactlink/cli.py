@@ -8,7 +8,6 @@ from __future__ import annotations
 
 import argparse
 import sys
-from pathlib import Path
 
 STAGE_COMMANDS = {
     "indices": "compute drought indices at every time scale (writes indices.parquet)",

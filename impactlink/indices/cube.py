@@ -124,7 +124,7 @@ class IndexCube:
         return out
 
     @classmethod
-    def from_frame(cls, frame: pd.DataFrame, *, provenance: dict | None = None) -> "IndexCube":
+    def from_frame(cls, frame: pd.DataFrame, *, provenance: dict | None = None) -> IndexCube:
         """Inverse of :meth:`to_frame` (columns county_id, week, index, scale_weeks, value)."""
         weeks_all = pd.DatetimeIndex(pd.to_datetime(frame["week"]))
         start, end = weeks_all.min(), weeks_all.max()
