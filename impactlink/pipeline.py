@@ -73,9 +73,9 @@ def init_project(folder: str | Path, *, force: bool = False) -> Path:
 def check_project(path: str | Path, *, out: str | Path | None = None) -> bool:
     """Read and validate every table; print a per-table summary. False if rows were rejected
     from a required table or a fatal problem occurred (the fatal error is raised)."""
+    project = load_project(path)
     from impactlink.inputs import read_inputs, summary_frame
 
-    project = load_project(path)
     bundle = read_inputs(project)
     summary = summary_frame(bundle)
     with pd.option_context("display.width", 160, "display.max_columns", 20):
