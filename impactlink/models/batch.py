@@ -144,8 +144,9 @@ def fit_logistic_batch(
         H = np.einsum("bnp,bn,bnq->bpq", Xa, wa * mu * (1 - mu), Xa)
         H[:, np.arange(p), np.arange(p)] += pa + 1e-12
         step = _solve(H, grad)
-        new, new_obj = _halve(lambda bb: _logit_objective(Xa, ya, wa, bb, pa), ba, step,
-                              obj[active])
+        new, new_obj = _halve(
+            lambda bb, Xa=Xa, ya=ya, wa=wa, pa=pa: _logit_objective(Xa, ya, wa, bb, pa),
+            ba, step, obj[active])
         beta[active] = new
         obj[active] = new_obj
         converged[np.flatnonzero(active)] = np.abs(step).max(1) < tol
