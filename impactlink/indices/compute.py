@@ -1,0 +1,492 @@
+"""The ``indices`` stage entry point: tidy climate rows -> :class:`IndexCube`."""
+
+from __future__ import annotations
+
+import warnings
+from collections.abc import Callable, Sequence
+from typing import Literal
+
+import numpy as np
+import pandas as pd
+
+from .cube import IndexCube
+from .errors import IndexCalibrationWarning, IndexInputError, IndexInputWarning
+from .pet import (
+    daylight_hours,
+    extraterrestrial_radiation,
+    hargreaves_samani,
+    thornthwaite,
+    thornthwaite_heat_index,
+)
+from .standardize import (
+    DEFAULT_CLIP,
+    standardize_empirical,
+    standardize_gamma,
+    standardize_gev,
+    standardize_loglogistic,
+)
+from .timegrid import (
+    accumulate,
+    build_grid,
+    calibration_mask,
+    detect_cadence,
+    grid_values,
+    grid_years,
+    period_of_year,
+)
+
+__all__ = ["compute_indices", "standardized_indices", "DEFAULT_SCALES_WEEKS",
+           "DEFAULT_SCALES_MONTHS"]
+
+DEFAULT_SCALES_WEEKS = (4, 8, 13, 26, 39, 52, 104)
+DEFAULT_SCALES_MONTHS = (1, 2, 3, 6, 9, 12, 24)
+KNOWN_INDICES = ("spi", "spei", "eddi")
+
+
+def compute_indices(
+    climate: pd.DataFrame,
+    *,
+    latitude_deg: pd.Series,
+    indicators: pd.DataFrame | None = None,
+    scales_weeks: Sequence[int] = DEFAULT_SCALES_WEEKS,
+    scales_months: Sequence[int] = DEFAULT_SCALES_MONTHS,
+    indices: Sequence[str] = KNOWN_INDICES,
+    pet_method: Literal["hargreaves", "thornthwaite"] = "hargreaves",
+    use_supplied_pet: bool = True,
+    calibration: tuple[int, int] = (1991, 2020),
+    min_calibration_years: int = 20,
+    min_valid_days: int = 6,
+    spi_estimator: Literal["mle", "thom"] = "mle",
+    spi_zero_handling: Literal["center_of_mass", "mixture"] = "center_of_mass",
+    spei_distribution: Literal["log-logistic", "gev"] = "log-logistic",
+    eddi_sign: Literal["dry_negative", "dry_positive"] = "dry_negative",
+    indicator_scales: Sequence[int] = (0,),
+    clip: float = DEFAULT_CLIP,
+    progress: Callable[[str], None] | None = None,
+) -> IndexCube:
+    """Compute SPI, SPEI, EDDI and standardized indicators for every county and scale.
+
+    Parameters
+    ----------
+    climate : pandas.DataFrame
+        Columns ``county_id`` (str), ``date``, ``precip_mm`` and optionally ``tmin_c``,
+        ``tmax_c``, ``tmean_c``, ``pet_mm``. Rows are daily, weekly or monthly (detected
+        from the spacing of dates). Missing values are NaN, never sentinels.
+    latitude_deg : pandas.Series
+        county_id -> latitude [degrees north]; needed for computed PET.
+    indicators : pandas.DataFrame, optional
+        Columns ``county_id``, ``date``, ``indicator``, ``value``. Each indicator is
+        averaged to the grid (weekly or monthly mean) and standardized non-parametrically
+        (Gringorten plotting positions by period of year), stored under its own name.
+    scales_weeks : sequence of int
+        Accumulation scales [weeks] for daily or weekly input.
+    scales_months : sequence of int
+        Accumulation scales [months] used instead when the input is monthly (the cube
+        then has a monthly cadence; its ``weeks`` axis holds month starts and
+        ``provenance["cadence"] == "monthly"``).
+    indices : sequence of {"spi", "spei", "eddi"}
+    pet_method : {"hargreaves", "thornthwaite"}
+        PET when it is computed: Hargreaves-Samani (needs ``tmin_c``, ``tmax_c``) or
+        Thornthwaite (needs ``tmean_c``, or ``tmin_c`` and ``tmax_c``).
+    use_supplied_pet : bool
+        When ``climate`` has a ``pet_mm`` column with values, use it instead of computing.
+    calibration : (int, int)
+        First and last calibration year (inclusive). When the record does not cover it,
+        the full record is used and :class:`IndexCalibrationWarning` is issued.
+    min_calibration_years : int
+        Fewer calibration years is an :class:`IndexInputError`.
+    min_valid_days : int
+        Daily input: a week with fewer valid days is missing (NaN), never zero. Weekly
+        totals from 6 of 7 days are scaled by 7/6.
+    spi_estimator, spi_zero_handling
+        See :func:`impactlink.indices.standardize.standardize_gamma`.
+    spei_distribution : {"log-logistic", "gev"}
+        Log-logistic by unbiased PWMs (default) or GEV by L-moments.
+    eddi_sign : {"dry_negative", "dry_positive"}
+        ``"dry_negative"`` (default) stores EDDI with the cube's convention (negative =
+        dry, i.e. high evaporative demand), which is the negative of published EDDI;
+        ``"dry_positive"`` keeps the sign of Hobbins et al. (2016).
+    indicator_scales : sequence of int
+        Scales for supplied indicators: 0 = as supplied; N > 0 = mean over the trailing N
+        steps before standardizing.
+    clip : float
+        All standardized values are clipped to ``[-clip, clip]``.
+    progress : callable, optional
+        Called with a short line of text at each step.
+
+    Returns
+    -------
+    IndexCube
+        Arrays ``(index, scale)`` of shape (weeks, counties). ``provenance`` holds, per
+        index, the method, estimator, zero handling, calibration period and clip range.
+
+    Raises
+    ------
+    IndexInputError
+        Missing columns, negative precipitation, duplicate rows, too short a record, no
+        latitude for a county.
+    """
+    say = progress or (lambda _msg: None)
+    indices = tuple(indices)
+    unknown = [i for i in indices if i not in KNOWN_INDICES]
+    if unknown:
+        raise IndexInputError(f"indices: unknown {unknown}; expected a subset of {KNOWN_INDICES}")
+    clim = _check_climate(climate)
+    cadence = detect_cadence(clim.loc[clim["county_id"] == clim["county_id"].iloc[0], "date"])
+    grid, tpos, cpos = build_grid(clim["county_id"], clim["date"], cadence)
+    say(f"indices: {len(clim)} {cadence} rows -> {grid.shape[0]} {grid.step} steps x "
+        f"{grid.shape[1]} counties")
+    scales = tuple(int(s) for s in (scales_months if grid.step == "monthly" else scales_weeks))
+    if not scales or min(scales) < 1:
+        raise IndexInputError(f"scales: {scales}; expected positive integers")
+
+    precip = _precip_grid(clim, grid, tpos, cpos, min_valid_days)
+    needs_pet = any(i in indices for i in ("spei", "eddi"))
+    pet, pet_info = (None, {"method": "none"})
+    if needs_pet:
+        pet, pet_info = _pet_grid(clim, grid, tpos, cpos, latitude_deg, pet_method,
+                                  use_supplied_pet, min_valid_days)
+        if pet is None:
+            warnings.warn(
+                "climate: no pet_mm and no temperature columns (tmin_c/tmax_c/tmean_c); SPEI "
+                "and EDDI are skipped. Supply temperatures or pet_mm to compute them.",
+                IndexInputWarning, stacklevel=2,
+            )
+            indices = tuple(i for i in indices if i == "spi")
+    say(f"indices: PET {pet_info['method']}")
+    cal, cal_note = _resolve_calibration(precip, grid, calibration, min_calibration_years)
+    arrays, provenance = standardized_indices(
+        precip, pet, grid.times, step=grid.step, scales=scales, indices=indices,
+        calibration=cal, spi_estimator=spi_estimator, spi_zero_handling=spi_zero_handling,
+        spei_distribution=spei_distribution, eddi_sign=eddi_sign, clip=clip, progress=say,
+    )
+    for name in provenance:
+        provenance[name]["calibration_note"] = cal_note
+        if name in ("spei", "eddi"):
+            provenance[name]["pet"] = pet_info
+    if indicators is not None and len(indicators):
+        ind_arrays, ind_prov = _indicator_arrays(indicators, grid, cal, indicator_scales, clip, say)
+        arrays.update(ind_arrays)
+        provenance.update(ind_prov)
+    provenance["cadence"] = grid.step
+    provenance["input_cadence"] = cadence
+    provenance["scale_unit"] = "months" if grid.step == "monthly" else "weeks"
+    provenance["calibration"] = list(cal)
+    return IndexCube(weeks=grid.times, county_ids=grid.county_ids, arrays=arrays,
+                     provenance=provenance)
+
+
+def standardized_indices(
+    precip: np.ndarray | None,
+    pet: np.ndarray | None,
+    times: pd.DatetimeIndex,
+    *,
+    step: Literal["weekly", "monthly"] = "weekly",
+    scales: Sequence[int] = DEFAULT_SCALES_WEEKS,
+    indices: Sequence[str] = KNOWN_INDICES,
+    calibration: tuple[int, int] = (1991, 2020),
+    spi_estimator: Literal["mle", "thom"] = "mle",
+    spi_zero_handling: Literal["center_of_mass", "mixture"] = "center_of_mass",
+    spei_distribution: Literal["log-logistic", "gev"] = "log-logistic",
+    eddi_sign: Literal["dry_negative", "dry_positive"] = "dry_negative",
+    clip: float = DEFAULT_CLIP,
+    progress: Callable[[str], None] | None = None,
+) -> tuple[dict[tuple[str, int], np.ndarray], dict]:
+    """Array-level core of :func:`compute_indices` on a regular grid.
+
+    Parameters
+    ----------
+    precip, pet : ndarray, shape (T, C)
+        Precipitation and PET totals per step [mm]; NaN = missing.
+    times : pandas.DatetimeIndex, length T
+        ISO-week Mondays (``step="weekly"``) or month starts (``step="monthly"``).
+
+    Returns
+    -------
+    arrays : dict
+        ``{(index, scale): ndarray (T, C)}``.
+    provenance : dict
+        Per index: method, estimator, zero handling, calibration, clip range.
+    """
+    say = progress or (lambda _msg: None)
+    period, n_periods = period_of_year(times, step)
+    years = grid_years(times, step)
+    calib = calibration_mask(years, calibration)
+    arrays: dict[tuple[str, int], np.ndarray] = {}
+    prov: dict = {}
+    unit = "months" if step == "monthly" else "weeks"
+    common = {"calibration": list(calibration), "clip": [-clip, clip],
+              "grouping": ("calendar month" if step == "monthly" else
+                           "ISO week of year, week 53 pooled with week 52"),
+              "scales": list(scales), "scale_unit": unit}
+    if "spi" in indices:
+        prov["spi"] = {**common, "method": "SPI, gamma with a point mass at zero (McKee et al. "
+                       "1993; Guttman 1999)", "distribution": "gamma",
+                       "estimator": ("maximum likelihood (Newton from Thom 1958)"
+                                     if spi_estimator == "mle" else "Thom (1958) approximation"),
+                       "zero_handling": (
+                           "H(x)=q+(1-q)G(x); zeros scored at q/2, centre of the zero mass "
+                           "(Stagge et al. 2015)" if spi_zero_handling == "center_of_mass"
+                           else "H(x)=q+(1-q)G(x); zeros scored at q")}
+    if "spei" in indices:
+        prov["spei"] = {**common, "method": "SPEI on accumulated P - PET (Vicente-Serrano et al. "
+                        "2010)", "distribution": spei_distribution,
+                        "estimator": ("unbiased probability-weighted moments (Begueria et al. "
+                                      "2014)" if spei_distribution == "log-logistic"
+                                      else "L-moments (Hosking et al. 1985)"),
+                        "zero_handling": "not applicable"}
+    if "eddi" in indices:
+        prov["eddi"] = {**common, "method": "EDDI, non-parametric on accumulated PET (Hobbins et "
+                        "al. 2016)", "distribution": "empirical",
+                        "estimator": "Tukey plotting positions by period of year",
+                        "zero_handling": "ties share their mid-rank",
+                        "sign": ("negative = high evaporative demand (dry); the negative of "
+                                 "published EDDI" if eddi_sign == "dry_negative"
+                                 else "positive = high evaporative demand (dry), as published")}
+    balance = precip - pet if ("spei" in indices and pet is not None) else None
+    for s in scales:
+        if "spi" in indices:
+            say(f"indices: SPI {s} {unit}")
+            acc = accumulate(precip, s, nonnegative=True)
+            arrays[("spi", s)] = standardize_gamma(
+                acc, period, calib, n_periods=n_periods, estimator=spi_estimator,
+                zero_handling=spi_zero_handling, clip=clip)
+            del acc
+        if "spei" in indices:
+            say(f"indices: SPEI {s} {unit}")
+            acc = accumulate(balance, s)
+            fn = standardize_loglogistic if spei_distribution == "log-logistic" else standardize_gev
+            arrays[("spei", s)] = fn(acc, period, calib, n_periods=n_periods, clip=clip)
+            del acc
+        if "eddi" in indices:
+            say(f"indices: EDDI {s} {unit}")
+            acc = accumulate(pet, s, nonnegative=True)
+            z = standardize_empirical(acc, period, calib, n_periods=n_periods,
+                                      plotting_position="tukey", clip=clip)
+            arrays[("eddi", s)] = -z if eddi_sign == "dry_negative" else z
+            del acc
+    return arrays, prov
+
+
+# --------------------------------------------------------------------------- private steps
+_REQUIRED = ("county_id", "date", "precip_mm")
+_NUMERIC = ("precip_mm", "tmin_c", "tmax_c", "tmean_c", "pet_mm")
+
+
+def _check_climate(climate: pd.DataFrame) -> pd.DataFrame:
+    if not isinstance(climate, pd.DataFrame):
+        raise IndexInputError(f"climate: got {type(climate).__name__}; expected a DataFrame")
+    missing = [c for c in _REQUIRED if c not in climate.columns]
+    if missing:
+        raise IndexInputError(
+            f"climate: missing column(s) {missing}; found {list(climate.columns)}. The climate "
+            "table needs county_id, date, precip_mm (optional tmin_c, tmax_c, tmean_c, pet_mm)."
+        )
+    if len(climate) == 0:
+        raise IndexInputError("climate: the table has no rows")
+    cols = [c for c in ("county_id", "date", *_NUMERIC) if c in climate.columns]
+    out = climate[cols].copy()
+    out["county_id"] = out["county_id"].astype(str)
+    try:
+        out["date"] = pd.to_datetime(out["date"])
+    except (ValueError, TypeError) as exc:
+        raise IndexInputError(f"climate: column 'date' could not be read as dates ({exc})") from None
+    for c in _NUMERIC:
+        if c in out.columns:
+            out[c] = pd.to_numeric(out[c], errors="coerce").astype(float)
+    p = out["precip_mm"].to_numpy()
+    if np.any(p < 0):
+        bad = int(np.sum(p < 0))
+        raise IndexInputError(
+            f"climate: {bad} negative precip_mm value(s) (min {np.nanmin(p)}); precipitation "
+            "must be >= 0 and missing values empty (NaN), not sentinels such as -999"
+        )
+    return out
+
+
+def _precip_grid(clim, grid, tpos, cpos, min_valid_days):
+    vals = clim["precip_mm"].to_numpy(dtype=float)
+    if grid.cadence == "daily":
+        arr, _ = grid_values(vals, tpos, cpos, grid.shape, how="sum",
+                             min_count=min_valid_days, scale_to=7.0)
+        return arr
+    arr, cnt = grid_values(vals, tpos, cpos, grid.shape, how="sum")
+    _check_unique(tpos, cpos, grid)
+    return arr
+
+
+def _check_unique(tpos, cpos, grid):
+    flat = tpos * grid.shape[1] + cpos
+    counts = np.bincount(flat, minlength=grid.shape[0] * grid.shape[1])
+    if counts.max(initial=0) > 1:
+        k = int(np.argmax(counts))
+        t, c = divmod(k, grid.shape[1])
+        raise IndexInputError(
+            f"climate: {int(np.sum(counts > 1))} {grid.step} step(s) have more than one "
+            f"{grid.cadence} row, e.g. county {grid.county_ids[c]!r} at "
+            f"{grid.times[t].date()} ({int(counts[k])} rows). Remove duplicate rows."
+        )
+
+
+def _latitudes(latitude_deg, county_ids):
+    if latitude_deg is None:
+        raise IndexInputError("latitude_deg: required to compute PET (county_id -> degrees)")
+    lat = pd.Series(latitude_deg)
+    lat.index = lat.index.astype(str)
+    lat = lat[~lat.index.duplicated()]
+    missing = [c for c in county_ids if c not in lat.index]
+    if missing:
+        raise IndexInputError(
+            f"latitude_deg: no latitude for {len(missing)} county id(s), e.g. {missing[:3]}; "
+            "every county in the climate table needs a latitude in degrees"
+        )
+    out = lat.reindex(list(county_ids)).to_numpy(dtype=float)
+    if np.any(~np.isfinite(out)) or np.any(np.abs(out) > 90):
+        raise IndexInputError(
+            f"latitude_deg: values must be finite degrees in [-90, 90]; found range "
+            f"[{np.nanmin(out)}, {np.nanmax(out)}]"
+        )
+    return out
+
+
+def _day_table(lat, fn):
+    """(367, C) table of a solar quantity for day of year 0..366 (row 0 unused)."""
+    doy = np.arange(367, dtype=float)[:, None]
+    return fn(np.maximum(doy, 1.0), lat[None, :])
+
+
+def _period_day_mean(table, grid):
+    """Mean of a (367, C) day-of-year table over the days of each grid step -> (T, C)."""
+    t = grid.times
+    if grid.step == "weekly":
+        ndays = np.full(len(t), 7)
+    else:
+        ndays = t.days_in_month.to_numpy()
+    total = np.zeros((len(t), table.shape[1]))
+    for k in range(int(ndays.max())):  # loop over days within a step (<= 31), not counties
+        day = t + pd.Timedelta(days=k)
+        use = (k < ndays)[:, None]
+        total += np.where(use, table[day.day_of_year.to_numpy()], 0.0)
+    return total / ndays[:, None], ndays
+
+
+def _pet_grid(clim, grid, tpos, cpos, latitude_deg, pet_method, use_supplied_pet, min_valid_days):
+    has = {c: (c in clim.columns and clim[c].notna().any()) for c in _NUMERIC}
+    if use_supplied_pet and has["pet_mm"]:
+        vals = clim["pet_mm"].to_numpy(dtype=float)
+        if np.any(vals < 0):
+            raise IndexInputError("climate: negative pet_mm values; PET must be >= 0 [mm]")
+        if grid.cadence == "daily":
+            arr, _ = grid_values(vals, tpos, cpos, grid.shape, how="sum",
+                                 min_count=min_valid_days, scale_to=7.0)
+        else:
+            arr, _ = grid_values(vals, tpos, cpos, grid.shape, how="sum")
+        return arr, {"method": "supplied pet_mm"}
+    if not (has["tmin_c"] and has["tmax_c"]) and not has["tmean_c"]:
+        return None, {"method": "none"}
+    lat = _latitudes(latitude_deg, grid.county_ids)
+    if pet_method == "hargreaves":
+        if not (has["tmin_c"] and has["tmax_c"]):
+            raise IndexInputError(
+                "pet_method='hargreaves' needs tmin_c and tmax_c in the climate table; only "
+                "tmean_c was found. Use pet_method='thornthwaite' or supply pet_mm."
+            )
+        if grid.cadence == "daily":
+            d = pd.DatetimeIndex(clim["date"])
+            ra = extraterrestrial_radiation(d.day_of_year.to_numpy(), lat[cpos])
+            daily = hargreaves_samani(clim["tmin_c"].to_numpy(float), clim["tmax_c"].to_numpy(float), ra)
+            arr, _ = grid_values(daily, tpos, cpos, grid.shape, how="sum",
+                                 min_count=min_valid_days, scale_to=7.0)
+        else:
+            tmin, _ = grid_values(clim["tmin_c"].to_numpy(float), tpos, cpos, grid.shape, how="mean")
+            tmax, _ = grid_values(clim["tmax_c"].to_numpy(float), tpos, cpos, grid.shape, how="mean")
+            ra_mean, ndays = _period_day_mean(_day_table(lat, extraterrestrial_radiation), grid)
+            arr = hargreaves_samani(tmin, tmax, ra_mean) * ndays[:, None]
+        return arr, {"method": "Hargreaves-Samani (1985), FAO-56 eq. 52; Ra from FAO-56 eq. 21"}
+    if pet_method == "thornthwaite":
+        if has["tmean_c"]:
+            tmean, _ = grid_values(clim["tmean_c"].to_numpy(float), tpos, cpos, grid.shape,
+                                   how="mean")
+        else:
+            tm = (clim["tmin_c"].to_numpy(float) + clim["tmax_c"].to_numpy(float)) / 2.0
+            tmean, _ = grid_values(tm, tpos, cpos, grid.shape, how="mean")
+        month = (grid.times + pd.Timedelta(days=3)).month.to_numpy() if grid.step == "weekly" \
+            else grid.times.month.to_numpy()
+        monthly = np.vstack([np.nanmean(np.where((month == m)[:, None], tmean, np.nan), axis=0)
+                             for m in range(1, 13)])  # 12 calendar months, vectorised over counties
+        heat, expo = thornthwaite_heat_index(monthly)
+        n_mean, ndays = _period_day_mean(_day_table(lat, daylight_hours), grid)
+        arr = thornthwaite(tmean, heat[None, :], expo[None, :], n_mean, ndays[:, None])
+        return arr, {"method": "Thornthwaite (1948); day length from FAO-56 eq. 34; heat index "
+                               "from the full-record monthly mean temperatures"}
+    raise IndexInputError(
+        f"pet_method={pet_method!r}; expected 'hargreaves' or 'thornthwaite'"
+    )
+
+
+def _resolve_calibration(precip, grid, calibration, min_years):
+    if len(calibration) != 2 or int(calibration[0]) > int(calibration[1]):
+        raise IndexInputError(f"calibration: {calibration!r}; expected (first_year, last_year)")
+    years = grid_years(grid.times, grid.step)
+    has_data = np.any(~np.isnan(precip), axis=1)
+    yrs = np.unique(years[has_data])
+    if yrs.size == 0:
+        raise IndexInputError("climate: precip_mm has no valid value")
+    c0, c1 = int(calibration[0]), int(calibration[1])
+    if c0 >= yrs.min() and c1 <= yrs.max():
+        cal, note = (c0, c1), f"calibration {c0}-{c1} as requested"
+    else:
+        cal = (int(yrs.min()), int(yrs.max()))
+        note = (f"record {cal[0]}-{cal[1]} does not cover the requested calibration {c0}-{c1}; "
+                "the full record is used")
+        warnings.warn(f"calibration: {note}", IndexCalibrationWarning, stacklevel=3)
+    n_years = int(np.sum((yrs >= cal[0]) & (yrs <= cal[1])))
+    if n_years < min_years:
+        raise IndexInputError(
+            f"calibration: only {n_years} year(s) with data in {cal[0]}-{cal[1]}; at least "
+            f"{min_years} are needed (min_calibration_years). Supply a longer climate record "
+            "or lower min_calibration_years (fits on short records are unreliable)."
+        )
+    return cal, note
+
+
+def _indicator_arrays(indicators, grid, cal, scales, clip, say):
+    missing = [c for c in ("county_id", "date", "indicator", "value") if c not in indicators.columns]
+    if missing:
+        raise IndexInputError(
+            f"indicators: missing column(s) {missing}; expected county_id, date, indicator, value"
+        )
+    ind = indicators[["county_id", "date", "indicator", "value"]].copy()
+    ind["county_id"] = ind["county_id"].astype(str)
+    ind["date"] = pd.to_datetime(ind["date"])
+    ind["value"] = pd.to_numeric(ind["value"], errors="coerce").astype(float)
+    cmap = {c: i for i, c in enumerate(grid.county_ids)}
+    d = pd.DatetimeIndex(ind["date"]).normalize()
+    if grid.step == "weekly":
+        mon = d - pd.to_timedelta(d.dayofweek, unit="D")
+        tpos = ((mon - grid.times[0]).days // 7).to_numpy()
+    else:
+        tpos = ((d.year - grid.times[0].year) * 12 + d.month - grid.times[0].month).to_numpy()
+    cpos = ind["county_id"].map(cmap).to_numpy(dtype=float)
+    keep = (tpos >= 0) & (tpos < grid.shape[0]) & ~np.isnan(cpos)
+    period, n_periods = period_of_year(grid.times, grid.step)
+    calib = calibration_mask(grid_years(grid.times, grid.step), cal)
+    arrays, prov = {}, {}
+    for name, rows in ind[keep].groupby("indicator").indices.items():  # loop over indicators
+        key = str(name).strip().lower().replace(" ", "_")
+        sub_t = tpos[keep][rows].astype(np.int64)
+        sub_c = cpos[keep][rows].astype(np.int64)
+        vals = ind["value"].to_numpy()[keep][rows]
+        base, _ = grid_values(vals, sub_t, sub_c, grid.shape, how="mean")
+        for s in scales:
+            say(f"indices: indicator {key} scale {s}")
+            x = base if int(s) == 0 else accumulate(base, int(s), how="mean")
+            arrays[(key, int(s))] = standardize_empirical(
+                x, period, calib, n_periods=n_periods, plotting_position="gringorten", clip=clip)
+        prov[key] = {"method": "non-parametric standardization of a supplied indicator",
+                     "distribution": "empirical", "estimator": "Gringorten (1963) plotting "
+                     "positions by period of year, mapped to the normal scale",
+                     "zero_handling": "ties share their mid-rank", "calibration": list(cal),
+                     "clip": [-clip, clip], "scales": [int(s) for s in scales],
+                     "scale_meaning": "0 = step mean as supplied; N = mean over trailing N steps"}
+    return arrays, prov

@@ -1,0 +1,180 @@
+"""From tidy climate rows to regular (time, county) arrays, and accumulations over scales."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Literal
+
+import numpy as np
+import pandas as pd
+
+from .errors import IndexInputError
+
+__all__ = ["Grid", "detect_cadence", "build_grid", "grid_values", "period_of_year",
+           "accumulate", "calibration_mask"]
+
+Cadence = Literal["daily", "weekly", "monthly"]
+
+
+@dataclass(frozen=True)
+class Grid:
+    """A regular time axis (ISO-week Mondays or month starts) and the county axis.
+
+    ``cadence`` is the cadence of the *input rows*; ``step`` is the cadence of the grid
+    (``"weekly"`` for daily or weekly rows, ``"monthly"`` for monthly rows).
+    """
+
+    times: pd.DatetimeIndex
+    county_ids: tuple[str, ...]
+    cadence: Cadence
+    step: Literal["weekly", "monthly"]
+
+    @property
+    def shape(self) -> tuple[int, int]:
+        return (len(self.times), len(self.county_ids))
+
+
+def detect_cadence(dates: pd.Series) -> Cadence:
+    """Cadence of climate rows from the median spacing of one county's distinct dates."""
+    d = pd.DatetimeIndex(pd.to_datetime(dates)).unique().sort_values()
+    if len(d) < 3:
+        raise IndexInputError(
+            f"climate: only {len(d)} distinct dates; expected a daily, weekly or monthly "
+            "series of several years per county"
+        )
+    secs = d.values.astype("datetime64[s]").astype(np.int64)
+    gap = float(np.median(np.diff(secs)) / 86_400.0)
+    if gap <= 1.5:
+        return "daily"
+    if 6.0 <= gap <= 8.0:
+        return "weekly"
+    if 27.0 <= gap <= 32.0:
+        return "monthly"
+    raise IndexInputError(
+        f"climate: median spacing of dates is {gap:.1f} days; expected about 1 (daily), "
+        "7 (weekly) or 30 (monthly) days. Resample the series to one of these cadences."
+    )
+
+
+def _monday(d: pd.DatetimeIndex) -> pd.DatetimeIndex:
+    d = d.normalize()
+    return d - pd.to_timedelta(d.dayofweek, unit="D")
+
+
+def build_grid(county: pd.Series, dates: pd.Series, cadence: Cadence) -> tuple[Grid, np.ndarray, np.ndarray]:
+    """Grid covering all rows, and each row's (time position, county position).
+
+    Daily and weekly rows go to the ISO week that contains them (labelled by its Monday);
+    monthly rows to their calendar month (labelled by its first day).
+    """
+    d = pd.DatetimeIndex(pd.to_datetime(dates))
+    codes, uniques = pd.factorize(county.astype(str), sort=True)
+    county_ids = tuple(str(u) for u in uniques)
+    if cadence == "monthly":
+        mi = (d.year * 12 + d.month - 1).to_numpy()
+        m0, m1 = int(mi.min()), int(mi.max())
+        times = pd.date_range(
+            pd.Timestamp(year=m0 // 12, month=m0 % 12 + 1, day=1),
+            pd.Timestamp(year=m1 // 12, month=m1 % 12 + 1, day=1),
+            freq="MS",
+        )
+        tpos = mi - m0
+        step = "monthly"
+    else:
+        mon = _monday(d)
+        start = mon.min()
+        tpos = ((mon - start).days // 7).to_numpy()
+        times = pd.date_range(start, mon.max(), freq="7D")
+        step = "weekly"
+    return Grid(pd.DatetimeIndex(times), county_ids, cadence, step), tpos.astype(np.int64), codes
+
+
+def grid_values(values: np.ndarray, tpos: np.ndarray, cpos: np.ndarray, shape, *,
+                how: Literal["sum", "mean"], min_count: int = 1, scale_to: float | None = None):
+    """Aggregate row values into a (time, county) array.
+
+    Parameters
+    ----------
+    values : ndarray, shape (rows,)
+        NaN = missing row value.
+    tpos, cpos : ndarray of int
+        Positions of each row on the grid.
+    how : {"sum", "mean"}
+        ``"mean"``: mean of the valid values. ``"sum"``: total; when ``scale_to`` is given
+        the total is the mean of valid values times ``scale_to`` (e.g. 7 days per week), so
+        a week with one missing day is not biased low.
+    min_count : int
+        Cells with fewer valid values are NaN (missing, never zero).
+    """
+    nt, nc = shape
+    flat = tpos * nc + cpos
+    ok = ~np.isnan(values)
+    cnt = np.bincount(flat[ok], minlength=nt * nc).reshape(nt, nc)
+    tot = np.bincount(flat[ok], weights=values[ok], minlength=nt * nc).reshape(nt, nc)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        if how == "mean" or scale_to is not None:
+            out = tot / cnt
+            if scale_to is not None:
+                out = out * scale_to
+        else:
+            out = tot
+    out = np.where(cnt >= max(min_count, 1), out, np.nan)
+    return out, cnt
+
+
+def period_of_year(times: pd.DatetimeIndex, step: str) -> tuple[np.ndarray, int]:
+    """Period of the year (0-based) of each grid time and the number of periods.
+
+    Weekly: ISO week number 1-53 minus one, with week 53 pooled into week 52 (index 51).
+    Monthly: calendar month minus one.
+    """
+    if step == "monthly":
+        return (times.month - 1).to_numpy().astype(np.int64), 12
+    wk = times.isocalendar().week.to_numpy().astype(np.int64)
+    return np.minimum(wk, 52) - 1, 52
+
+
+def grid_years(times: pd.DatetimeIndex, step: str) -> np.ndarray:
+    """Year of each grid time (ISO year for weeks, calendar year for months)."""
+    if step == "monthly":
+        return times.year.to_numpy().astype(np.int64)
+    return times.isocalendar().year.to_numpy().astype(np.int64)
+
+
+def calibration_mask(years: np.ndarray, calibration: tuple[int, int]) -> np.ndarray:
+    return (years >= calibration[0]) & (years <= calibration[1])
+
+
+def accumulate(x: np.ndarray, scale: int, *, nonnegative: bool = False, how: str = "sum") -> np.ndarray:
+    """Trailing sums (or means) over ``scale`` steps by cumulative sums, shape (T, C).
+
+    The value at row t covers rows ``t - scale + 1 .. t``; it is NaN during spin-up and
+    whenever any row of the window is missing. With ``nonnegative=True`` (precipitation,
+    PET) a window without any positive value is exactly 0 and rounding never produces a
+    negative total, so zero-precipitation windows stay exact zeros.
+    """
+    x = np.asarray(x, dtype=float)
+    if scale <= 1:
+        return x.copy()
+    nt = x.shape[0]
+    miss = np.isnan(x)
+    filled = np.where(miss, 0.0, x)
+    cs = np.zeros((nt + 1,) + x.shape[1:])
+    np.cumsum(filled, axis=0, out=cs[1:])
+    out = np.full(x.shape, np.nan)
+    out[scale - 1:] = cs[scale:] - cs[:-scale]
+    cm = np.zeros((nt + 1,) + x.shape[1:], dtype=np.int32)
+    np.cumsum(miss, axis=0, out=cm[1:])
+    nmiss = np.zeros(x.shape, dtype=np.int32)
+    nmiss[: scale - 1] = 1
+    nmiss[scale - 1:] = cm[scale:] - cm[:-scale]
+    out[nmiss > 0] = np.nan
+    if nonnegative:
+        cp = np.zeros((nt + 1,) + x.shape[1:], dtype=np.int32)
+        np.cumsum(filled > 0, axis=0, out=cp[1:])
+        npos = np.zeros(x.shape, dtype=np.int32)
+        npos[scale - 1:] = cp[scale:] - cp[:-scale]
+        out = np.where(npos == 0, np.where(np.isnan(out), np.nan, 0.0), np.maximum(out, 0.0))
+    if how == "mean":
+        out = out / scale
+    return out
