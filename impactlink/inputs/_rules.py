@@ -1,0 +1,268 @@
+"""Vectorised coercion and row rules for one table.
+
+A :class:`TableCheck` holds the raw frame of one file, a boolean "still usable" flag per row
+and the rejected-row records. Every rule is a whole-column numpy/pandas operation: no Python
+loop runs over rows, so a million-row climate table is checked in seconds.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from impactlink.inputs._errors import REASONS
+from impactlink.schema import SENTINELS
+
+#: Text that means "missing" in a numeric or date cell (compared in lower case). A blank
+#: cell is the contract's missing value; these common spellings are accepted as blank too.
+NA_SPELLINGS = ("na", "n/a", "nan", "null", "none", "nat", "#n/a")
+
+#: Plain words for the quantity in a ``negative ...`` reason.
+QUANTITY = {
+    "precip_mm": "precipitation",
+    "pet_mm": "evapotranspiration",
+    "yield": "yield",
+    "price": "price",
+    "price_index": "price index",
+    "population_served": "population served",
+}
+
+REJECTED_COLUMNS = ["table", "file", "row", "column", "value", "reason"]
+
+
+class TableCheck:
+    """Raw frame of one file + per-row usable flags + rejected-row records.
+
+    Parameters
+    ----------
+    table : str
+        Contract table name.
+    file : str
+        File path as shown to the user.
+    frame : DataFrame
+        The raw frame; row ``i`` (0-based) is data row ``i + 1`` of the file (header excluded).
+    """
+
+    def __init__(self, table: str, file: str, frame: pd.DataFrame) -> None:
+        self.table = table
+        self.file = file
+        self.frame = frame.reset_index(drop=True)
+        self.n = len(self.frame)
+        self.rows = np.arange(1, self.n + 1, dtype=np.int64)
+        self.alive = np.ones(self.n, dtype=bool)
+        self.clean: dict[str, pd.Series] = {}
+        self._rejects: list[pd.DataFrame] = []
+
+    # ---------------------------------------------------------------- recording
+    def reject(
+        self,
+        mask: Any,
+        column: str,
+        values: Any,
+        reason: str | np.ndarray,
+        *,
+        only_alive: bool = True,
+    ) -> None:
+        """Record the rows in ``mask`` as rejected and mark them unusable.
+
+        ``only_alive=False`` is used by the cell-by-cell coercion, so a row with several bad
+        cells lists each of them; later rules only look at rows that are still usable.
+        """
+        mask = np.asarray(mask, dtype=bool)
+        if only_alive:
+            mask = mask & self.alive
+        if not mask.any():
+            return
+        idx = np.flatnonzero(mask)
+        if isinstance(values, str):
+            shown = np.full(idx.size, values, dtype=object)
+        elif callable(values):  # built only for the rejected rows (cheap on big tables)
+            shown = np.asarray(values(idx), dtype=object)
+        else:
+            vals = values.iloc[idx] if isinstance(values, pd.Series) else np.asarray(values)[idx]
+            shown = _display(pd.Series(np.asarray(vals, dtype=object)))
+        if not isinstance(reason, str):
+            reason = np.asarray(reason, dtype=object)[idx]
+        self._rejects.append(
+            pd.DataFrame(
+                {
+                    "table": self.table,
+                    "file": self.file,
+                    "row": self.rows[idx],
+                    "column": column,
+                    "value": shown,
+                    "reason": reason,
+                }
+            )
+        )
+        self.alive &= ~mask
+
+    def rejected(self) -> pd.DataFrame:
+        if not self._rejects:
+            return _empty_rejected()
+        return pd.concat(self._rejects, ignore_index=True)
+
+    def raw_text(self, column: str) -> pd.Series:
+        """The column as the user wrote it (for the ``value`` field)."""
+        return _display(self.frame[column])
+
+    # ---------------------------------------------------------------- coercion
+    def coerce(self, column: str, kind: str, *, required: bool) -> None:
+        """Convert one column to its contract kind and reject the cells that do not fit."""
+        raw = self.frame[column]
+        if kind in ("id", "str"):
+            values, missing = text_column(raw)
+        elif kind == "date":
+            values, missing, bad = date_column(raw)
+            self.reject(bad, column, raw, REASONS["date"], only_alive=False)
+        elif kind in ("float", "nonneg_float", "int"):
+            values, missing = self._number(column, raw, kind)
+        elif kind == "level":
+            values, missing = text_column(raw)  # mapped to integers by the table's rule
+        else:  # pragma: no cover - schema guard
+            raise ValueError(f"unknown column kind {kind!r}")
+        if required:
+            self.reject(missing, column, "", REASONS["missing"], only_alive=False)
+        self.clean[column] = values
+
+    def _number(self, column: str, raw: pd.Series, kind: str) -> tuple[pd.Series, np.ndarray]:
+        values, missing, bad = number_column(raw)
+        self.reject(bad, column, raw, REASONS["number"], only_alive=False)
+        v = values.to_numpy()
+        with np.errstate(invalid="ignore"):
+            sentinel = np.isin(v, SENTINELS)
+            self.reject(sentinel, column, raw, REASONS["sentinel"], only_alive=False)
+            self.reject(np.isinf(v), column, raw, REASONS["not_finite"], only_alive=False)
+            if kind == "nonneg_float":
+                reason = REASONS["negative"].format(quantity=QUANTITY.get(column, "value"))
+                self.reject((v < 0) & ~sentinel, column, raw, reason, only_alive=False)
+            if kind == "int":
+                whole = np.isfinite(v) & (v != np.round(v))
+                self.reject(whole, column, raw, REASONS["whole"], only_alive=False)
+        return values, missing
+
+    # ---------------------------------------------------------------- finishing
+    def used(self, columns: list[str]) -> pd.DataFrame:
+        """The usable rows, with the clean version of ``columns`` (raw for the rest)."""
+        keep = self.alive
+        out = {}
+        for c in columns:
+            s = self.clean[c] if c in self.clean else self.frame[c]
+            out[c] = s[keep].reset_index(drop=True)
+        return pd.DataFrame(out)
+
+
+# -------------------------------------------------------------------- column converters
+def text_column(raw: pd.Series) -> tuple[pd.Series, np.ndarray]:
+    """Stripped text; numbers stored as numbers become their integer text (``1001.0`` -> ``1001``)."""
+    if pd.api.types.is_float_dtype(raw.dtype):
+        v = raw.to_numpy(dtype=float, na_value=np.nan)
+        whole = np.isfinite(v) & (v == np.round(v))
+        text = raw.astype(object).astype(str)
+        text[whole] = pd.Series(v[whole]).astype(np.int64).astype(str).to_numpy()
+        s = pd.Series(text, index=raw.index, dtype="str").where(~np.isnan(v), "")
+    elif pd.api.types.is_string_dtype(raw.dtype) and not pd.api.types.is_object_dtype(raw.dtype):
+        s = raw.fillna("")
+    else:
+        s = raw.astype(object).where(raw.notna(), "").astype("str")
+    s = s.str.strip()
+    missing = (s == "").to_numpy()
+    return s, missing
+
+
+def date_column(raw: pd.Series) -> tuple[pd.Series, np.ndarray, np.ndarray]:
+    """Dates (ISO 8601 text or stored dates) as midnight-normalised datetime64[ns]."""
+    if pd.api.types.is_datetime64_any_dtype(raw.dtype):
+        d = raw
+        missing = d.isna().to_numpy()
+        bad = np.zeros(len(d), dtype=bool)
+    else:
+        if pd.api.types.is_string_dtype(raw.dtype) and not pd.api.types.is_object_dtype(raw.dtype):
+            text = raw.fillna("").str.strip()
+            missing = (text == "") | text.str.lower().isin(NA_SPELLINGS)
+            d = pd.to_datetime(text.where(~missing), format="ISO8601", errors="coerce")
+        else:  # Python date objects from Parquet date32, mixed objects
+            missing = raw.isna()
+            d = pd.to_datetime(raw, errors="coerce")
+        missing = missing.to_numpy()
+        bad = d.isna().to_numpy() & ~missing
+    if getattr(d.dt, "tz", None) is not None:
+        d = d.dt.tz_localize(None)
+    d = d.dt.normalize().astype("datetime64[ns]")
+    return d, missing, bad
+
+
+def number_column(raw: pd.Series) -> tuple[pd.Series, np.ndarray, np.ndarray]:
+    """Float64 values; blank (or a common NA spelling) is missing, other text is unparseable."""
+    if pd.api.types.is_numeric_dtype(raw.dtype) and not pd.api.types.is_bool_dtype(raw.dtype):
+        v = pd.Series(raw.to_numpy(dtype=float, na_value=np.nan), index=raw.index)
+        missing = v.isna().to_numpy()
+        return v, missing, np.zeros(len(v), dtype=bool)
+    text = raw.astype("str").fillna("").str.strip()
+    missing = ((text == "") | text.str.lower().isin(NA_SPELLINGS)).to_numpy()
+    v = pd.to_numeric(text.where(~missing), errors="coerce").astype(np.float64)
+    bad = v.isna().to_numpy() & ~missing
+    return v, missing, bad
+
+
+def map_levels(
+    text: pd.Series,
+    issuer: pd.Series,
+    *,
+    n_levels: int,
+    names: Mapping[tuple[str, str], int],
+    allow_zero: bool,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Turn level text into integer levels.
+
+    A level is an integer ``1..n_levels`` (``0..n_levels`` when ``allow_zero``), or a stage
+    name: ``names`` maps ``(issuer, name in lower case)`` to a level, with issuer ``"*"`` for
+    names every issuer uses.
+
+    Returns
+    -------
+    levels : ndarray of float
+        The level, NaN where blank or not on the ladder.
+    bad : ndarray of bool
+        Non-blank text that is not on the ladder.
+    """
+    lower = text.str.lower()
+    num = pd.to_numeric(lower.where(lower != ""), errors="coerce").to_numpy(dtype=float)
+    levels = num.copy()
+    if names:
+        by_issuer = {f"{i}\x1f{n}": lv for (i, n), lv in names.items() if i != "*"}
+        anyone = {n: lv for (i, n), lv in names.items() if i == "*"}
+        key = issuer.astype("str").fillna("").str.strip() + "\x1f" + lower
+        named = key.map(by_issuer).astype(float).to_numpy()
+        if anyone:
+            fallback = lower.map(anyone).astype(float).to_numpy()
+            named = np.where(np.isnan(named), fallback, named)
+        levels = np.where(np.isnan(levels), named, levels)
+    lo = 0 if allow_zero else 1
+    with np.errstate(invalid="ignore"):
+        ok = np.isfinite(levels) & (levels == np.round(levels)) & (levels >= lo) & (levels <= n_levels)
+    blank = (lower == "").to_numpy()
+    bad = ~ok & ~blank
+    return np.where(ok, levels, np.nan), bad
+
+
+# -------------------------------------------------------------------- helpers
+def _display(s: pd.Series) -> np.ndarray:
+    out = s.astype(object).where(s.notna(), "")
+    return out.astype(str).to_numpy(dtype=object)
+
+
+def _empty_rejected() -> pd.DataFrame:
+    return pd.DataFrame(
+        {
+            "table": pd.Series(dtype="str"),
+            "file": pd.Series(dtype="str"),
+            "row": pd.Series(dtype=np.int64),
+            "column": pd.Series(dtype="str"),
+            "value": pd.Series(dtype="str"),
+            "reason": pd.Series(dtype="str"),
+        }
+    )
