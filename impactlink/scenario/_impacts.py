@@ -189,7 +189,7 @@ def _notices(geo: Geography, traits: Traits, hyd: Hydrology, rng: np.random.Gene
     level = _notice_levels(stress, rng)
     offsets = rng.integers(0, 5, size=(n_w + 1, n_s))  # weekday of each stage change
 
-    roles = _issuer_roles(geo, level)
+    roles = _issuer_roles(geo, level, np.asarray(hyd.weeks.year >= 2004))
     # Coverage: county start dates.
     cov_start = np.full(len(geo.county_ids), np.datetime64(NOTICE_COVERAGE_START))
     late_r, late_start = NOTICE_LATE_REGION
@@ -256,17 +256,18 @@ def _notice_levels(stress: np.ndarray, rng: np.random.Generator) -> np.ndarray:
     return level
 
 
-def _issuer_roles(geo: Geography, level: np.ndarray) -> dict:
+def _issuer_roles(geo: Geography, level: np.ndarray, recent: np.ndarray) -> dict:
     """Pick the issuers that carry documented quirks, deterministically from the levels.
 
     Snapshot issuer: the eastern system (west_east >= 0.5) with the most weeks under
     restriction. Stage-word issuer and overlap issuer: the two other systems with the most
-    stage changes (most notices), in that order.
+    changes between two non-zero levels since 2004, in that order (so both quirks show).
     """
     sysd = geo.systems
     g = geo.west_east[sysd["county_index"]]
     weeks_on = (level > 0).sum(axis=0)
-    changes = (np.diff(level, axis=0) != 0).sum(axis=0)
+    stepped = (np.diff(level, axis=0) != 0) & (level[1:] > 0) & (level[:-1] > 0)
+    changes = (stepped & recent[1:, None]).sum(axis=0)
     east = np.flatnonzero(g >= 0.5)
     snapshot = int(east[np.argmax(weeks_on[east])])
     order = [int(i) for i in np.argsort(-changes, kind="stable") if i != snapshot]
