@@ -356,7 +356,7 @@ def _coerce_traits(check: TableCheck, extra: list[str], path: Path) -> None:
                 f"{check.frame[col][bad].iloc[0]!r}); traits must be numeric: remove the "
                 f"column or encode it as numbers (e.g. 0/1 per category)"
             )
-        check._number(col, check.frame[col], "float")
+        check.clean[col], _ = check._number(col, check.frame[col], "float")
 
 
 # -------------------------------------------------------------------- counties
