@@ -17,6 +17,7 @@ from .compute import (
     DEFAULT_SCALES_MONTHS,
     DEFAULT_SCALES_WEEKS,
     compute_indices,
+    compute_pet,
     standardized_indices,
 )
 from .cube import IndexCube
@@ -26,6 +27,7 @@ from .standardize import to_percentile
 __all__ = [
     "IndexCube",
     "compute_indices",
+    "compute_pet",
     "standardized_indices",
     "to_percentile",
     "threshold_audit",

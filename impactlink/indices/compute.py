@@ -35,7 +35,7 @@ from .timegrid import (
     period_of_year,
 )
 
-__all__ = ["compute_indices", "standardized_indices", "DEFAULT_SCALES_WEEKS",
+__all__ = ["compute_indices", "compute_pet", "standardized_indices", "DEFAULT_SCALES_WEEKS",
            "DEFAULT_SCALES_MONTHS"]
 
 DEFAULT_SCALES_WEEKS = (4, 8, 13, 26, 39, 52, 104)
@@ -174,6 +174,43 @@ def compute_indices(
     provenance["calibration"] = list(cal)
     return IndexCube(weeks=grid.times, county_ids=grid.county_ids, arrays=arrays,
                      provenance=provenance)
+
+
+def compute_pet(
+    climate: pd.DataFrame,
+    *,
+    latitude_deg: pd.Series,
+    pet_method: Literal["hargreaves", "thornthwaite"] = "hargreaves",
+    use_supplied_pet: bool = False,
+    min_valid_days: int = 6,
+) -> pd.DataFrame:
+    """PET per county and grid step, as used by :func:`compute_indices`.
+
+    Parameters are as in :func:`compute_indices` (by default the PET is computed even
+    when ``pet_mm`` is present).
+
+    Returns
+    -------
+    pandas.DataFrame
+        Columns ``county_id``, ``week`` (ISO-week Monday, or month start for monthly
+        input) and ``pet_mm`` [mm per step].
+    """
+    clim = _check_climate(climate)
+    cadence = detect_cadence(clim.loc[clim["county_id"] == clim["county_id"].iloc[0], "date"])
+    grid, tpos, cpos = build_grid(clim["county_id"], clim["date"], cadence)
+    pet, _ = _pet_grid(clim, grid, tpos, cpos, latitude_deg, pet_method, use_supplied_pet,
+                       min_valid_days)
+    if pet is None:
+        raise IndexInputError(
+            "climate: no temperature columns (tmin_c/tmax_c/tmean_c) and no pet_mm; PET "
+            "cannot be computed"
+        )
+    nt, nc = grid.shape
+    return pd.DataFrame({
+        "county_id": np.tile(np.asarray(grid.county_ids, dtype=object), nt),
+        "week": np.repeat(grid.times.values, nc),
+        "pet_mm": pet.ravel(),
+    })
 
 
 def standardized_indices(
@@ -463,7 +500,7 @@ def _indicator_arrays(indicators, grid, cal, scales, clip, say):
     cmap = {c: i for i, c in enumerate(grid.county_ids)}
     d = pd.DatetimeIndex(ind["date"]).normalize()
     if grid.step == "weekly":
-        mon = d - pd.to_timedelta(d.dayofweek, unit="D")
+        mon = d - pd.to_timedelta(d.day_of_week, unit="D")
         tpos = ((mon - grid.times[0]).days // 7).to_numpy()
     else:
         tpos = ((d.year - grid.times[0].year) * 12 + d.month - grid.times[0].month).to_numpy()

@@ -246,7 +246,7 @@ def standardize_gamma(
     n_periods: int,
     estimator: Literal["mle", "thom"] = "mle",
     zero_handling: Literal["center_of_mass", "mixture"] = "center_of_mass",
-    min_positive: int = 4,
+    min_positive: int = 3,
     min_samples: int = 10,
     clip: float | None = DEFAULT_CLIP,
     return_params: bool = False,
@@ -272,8 +272,10 @@ def standardize_gamma(
         mass, so an all-zero week is not scored as if it were the wettest of the dry
         weeks. Positive values use ``H(x) = q + (1 - q) G(x)`` either way.
     min_positive : int
-        Minimum number of positive calibration values for a gamma fit; groups with fewer
-        get NaN for positive values (zeros are still scored from ``q``).
+        Minimum number of positive calibration values for a gamma fit. In groups with
+        fewer (very dry climates) positive values are scored at the centre of the positive
+        probability mass, ``H = q + (1 - q) / 2``, so the index stays finite; an
+        :class:`IndexFitWarning` gives the count.
     min_samples : int
         Minimum number of valid calibration values per (period of year, county).
     clip : float or None
@@ -316,13 +318,22 @@ def standardize_gamma(
     beta = np.where(fit_ok, beta, np.nan)
     with np.errstate(invalid="ignore", divide="ignore"):
         q = np.where(enough, n_zero / n, np.nan)
-    _warn_failed(int(np.sum(~fit_ok & enough & (n_pos > 0))), fit_ok.size, "SPI gamma")
+    n_fallback = int(np.sum(~fit_ok & enough))
+    if n_fallback:
+        warnings.warn(
+            f"SPI gamma: {n_fallback} of {fit_ok.size} (period of year x county) groups have "
+            f"fewer than {min_positive} positive calibration values; their positive values are "
+            "scored at the centre of the positive mass, H = q + (1 - q) / 2",
+            IndexFitWarning, stacklevel=2,
+        )
 
     a_t = _at_rows(alpha, period)
     b_t = _at_rows(beta, period)
     q_t = _at_rows(q, period)
+    ok_t = _at_rows(fit_ok, period)
     with np.errstate(invalid="ignore", divide="ignore"):
         g = special.gammainc(a_t, np.maximum(x, 0.0) / b_t)
+        g = np.where(ok_t, g, 0.5)
         p = q_t + (1.0 - q_t) * g
     zero_p = q_t / 2.0 if zero_handling == "center_of_mass" else q_t
     p = np.where(x == 0.0, zero_p, p)

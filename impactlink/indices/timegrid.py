@@ -58,7 +58,7 @@ def detect_cadence(dates: pd.Series) -> Cadence:
 
 def _monday(d: pd.DatetimeIndex) -> pd.DatetimeIndex:
     d = d.normalize()
-    return d - pd.to_timedelta(d.dayofweek, unit="D")
+    return d - pd.to_timedelta(d.day_of_week, unit="D")
 
 
 def build_grid(county: pd.Series, dates: pd.Series, cadence: Cadence) -> tuple[Grid, np.ndarray, np.ndarray]:
