@@ -272,6 +272,9 @@ def _read_table(
 ) -> tuple[pd.DataFrame, TableCheck]:
     spec = TABLES[name]
     frame = read_raw(path, geometry=spec.geometry, point_columns="lon" in spec.optional)
+    if path.suffix.lower() == ".shp":  # shapefiles cut field names to 10 characters
+        cut = {c[:10]: c for c in (*spec.required, *spec.optional) if len(c) > 10}
+        frame = frame.rename(columns={k: v for k, v in cut.items() if v not in frame.columns})
     _check_columns(spec, frame, path)
     if name == "counties":
         return _read_counties(frame, path, notes)
