@@ -1,0 +1,333 @@
+"""The trigger stage in one call: uniform vs local thresholds, scores, firing audit, timelines."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Literal
+
+import numpy as np
+import pandas as pd
+
+from impactlink.errors import StageError
+from impactlink.link.target import Target
+from impactlink.triggers.replay import _check_values, _replay
+from impactlink.triggers.scores import TriggerScores, evaluate_trigger
+from impactlink.triggers.tune import (
+    DEFAULT_CANDIDATES,
+    IndexScale,
+    Objective,
+    TuningResult,
+    firing_rate_audit,
+    tune_thresholds,
+)
+
+__all__ = ["TriggerResult", "audit_triggers", "impact_grid", "TRIGGER_COLUMNS"]
+
+#: Columns of ``triggers.csv``, in order.
+TRIGGER_COLUMNS = (
+    "county_id", "region", "scope", "index", "scale_weeks", "threshold", "entry_weeks",
+    "exit_weeks", "weeks_on_share", "below_share", "nominal_share", "activations", "hit_rate",
+    "false_alarm_ratio", "peirce_skill", "csi", "lead_weeks_median", "lead_weeks_q1",
+    "lead_weeks_q3", "events", "cv_peirce_skill",
+)
+
+
+@dataclass(frozen=True)
+class TriggerResult:
+    """Uniform and locally tuned trigger plans for one index and time scale.
+
+    Attributes
+    ----------
+    index, scale_weeks : str, int
+        The candidate the plans read.
+    county_ids, regions : tuple of str
+    uniform, local : TuningResult
+        Threshold search results (``local`` is per county, shrunk toward the region, or per
+        region, as chosen).
+    uniform_scores, local_scores : TriggerScores
+        In-sample scores of each plan replayed on the whole record, with lead times.
+    firing : pandas.DataFrame
+        Firing-rate audit per county for both plans (``scope`` column).
+    timeline : pandas.DataFrame
+        ``week, county_id, scope, index_value, threshold, trigger_on, impact_level`` for a few
+        counties (the report's timeline plot).
+    settings : dict
+    """
+
+    index: str
+    scale_weeks: int
+    county_ids: tuple[str, ...]
+    regions: tuple[str, ...]
+    uniform: TuningResult
+    local: TuningResult
+    uniform_scores: TriggerScores
+    local_scores: TriggerScores
+    firing: pd.DataFrame
+    timeline: pd.DataFrame
+    settings: dict = field(default_factory=dict)
+
+    def to_frame(self) -> pd.DataFrame:
+        """Rows of ``triggers.csv``: one per county and plan, plus pooled rows (``"all"``)."""
+        parts = []
+        for scope, tuned, scores in [
+            ("uniform", self.uniform, self.uniform_scores),
+            ("local", self.local, self.local_scores),
+        ]:
+            t = scores.table
+            fire = self.firing[self.firing["scope"] == scope]
+            n = len(self.county_ids)
+            is_uniform = scope == "uniform"
+            cv = tuned.cv_scores["peirce_skill"].to_numpy() if tuned.cv_scores is not None else (
+                np.full(n + 1, np.nan)
+            )
+            nominal = fire["nominal_share"].to_numpy()
+            below = fire["below_share"].to_numpy()
+            weeks = fire["weeks"].to_numpy()
+            frame = pd.DataFrame(
+                {
+                    "county_id": list(self.county_ids) + ["all"],
+                    "region": list(self.regions) + [""],
+                    "scope": scope,
+                    "index": self.index,
+                    "scale_weeks": int(self.scale_weeks),
+                    "threshold": np.append(
+                        tuned.thresholds,
+                        tuned.thresholds[0] if is_uniform and n else np.nan,
+                    ),
+                    "entry_weeks": int(self.settings["entry_weeks"]),
+                    "exit_weeks": int(self.settings["exit_weeks"]),
+                    "weeks_on_share": t["weeks_on_share"].to_numpy(),
+                    "below_share": np.append(
+                        below, np.nansum(below * weeks) / max(weeks.sum(), 1)
+                    ),
+                    "nominal_share": np.append(
+                        nominal, np.nanmean(nominal) if np.isfinite(nominal).any() else np.nan
+                    ),
+                    "activations": t["activations"].to_numpy(),
+                    "hit_rate": t["hit_rate"].to_numpy(),
+                    "false_alarm_ratio": t["false_alarm_ratio"].to_numpy(),
+                    "peirce_skill": t["peirce_skill"].to_numpy(),
+                    "csi": t["csi"].to_numpy(),
+                    "lead_weeks_median": t["lead_weeks_median"].to_numpy(),
+                    "lead_weeks_q1": t["lead_weeks_q1"].to_numpy(),
+                    "lead_weeks_q3": t["lead_weeks_q3"].to_numpy(),
+                    "events": t["episodes"].to_numpy(),
+                    "cv_peirce_skill": cv,
+                }
+            )
+            parts.append(frame)
+        return pd.concat(parts, ignore_index=True)[list(TRIGGER_COLUMNS)]
+
+    def timeline_frame(self) -> pd.DataFrame:
+        return self.timeline.copy()
+
+
+def audit_triggers(
+    index_values: np.ndarray,
+    impact_level: np.ndarray,
+    *,
+    weeks: pd.DatetimeIndex,
+    county_ids: list[str] | tuple[str, ...],
+    regions: list[str] | np.ndarray | None = None,
+    index: str = "index",
+    scale_weeks: int = 0,
+    local_scope: Literal["county", "region"] = "county",
+    objective: Objective = "peirce",
+    candidates: np.ndarray = DEFAULT_CANDIDATES,
+    max_false_alarm_ratio: float = 0.5,
+    entry_weeks: int = 2,
+    exit_weeks: int = 4,
+    window_weeks: int = 8,
+    min_level: int = 1,
+    shrink_events: float = 5.0,
+    index_scale: IndexScale = "normal",
+    timeline_counties: int | list[str] = 3,
+    seed: int = 0,
+) -> TriggerResult:
+    """Tune, replay and audit a uniform and a local trigger plan for one index and scale.
+
+    Parameters
+    ----------
+    index_values, impact_level : ndarray, shape (weeks, counties)
+        See :func:`tune_thresholds` (impact levels NaN or -1 where unknown; build them from a
+        county-week state target with :func:`impact_grid`).
+    weeks : pandas.DatetimeIndex
+        Mondays of the rows (the IndexCube's weeks); fold years are their ISO years.
+    county_ids : sequence of str
+        Column labels.
+    regions : sequence of str, optional
+        Region of each county (shrinkage target and the ``region`` column).
+    index, scale_weeks : str, int
+        Labels written to ``triggers.csv``.
+    local_scope : {"county", "region"}
+        How the local plan is tuned.
+    objective, candidates, max_false_alarm_ratio, entry_weeks, exit_weeks, window_weeks,
+    min_level, shrink_events
+        See :func:`tune_thresholds`.
+    index_scale : {"normal", "percentile", "none"}
+        Nominal firing rate (see :func:`firing_rate_audit`).
+    timeline_counties : int or list of str, default 3
+        Counties for the timeline frame; an integer n picks the county with the most impact
+        episodes, then the ones where the uniform threshold is reached most and least often.
+    seed : int
+
+    Returns
+    -------
+    TriggerResult
+
+    Raises
+    ------
+    StageError
+        As :func:`tune_thresholds`; also for unknown timeline counties.
+
+    Notes
+    -----
+    The scores in ``triggers.csv`` (hit rate, false-alarm ratio, Peirce skill, CSI, lead time)
+    are in-sample for thresholds tuned on the same record and therefore optimistic;
+    ``cv_peirce_skill`` is the held-out (leave-one-year-out) Peirce skill, the one to compare
+    plans by. Triggers are statistical associations in past records, not causes; a plan is the
+    responsible authority's decision.
+    """
+    values = _check_values(index_values, "index_values")
+    if len(county_ids) != values.shape[1]:
+        raise StageError(
+            f"county_ids has {len(county_ids)} entries; index_values has {values.shape[1]} "
+            "counties."
+        )
+    if local_scope not in ("county", "region"):
+        raise StageError(f"local_scope must be 'county' or 'region'; got {local_scope!r}.")
+    ids = tuple(str(c) for c in county_ids)
+    regs = tuple("" for _ in ids) if regions is None else tuple(str(r) for r in regions)
+    common = dict(
+        weeks=weeks, candidates=candidates, objective=objective,
+        max_false_alarm_ratio=max_false_alarm_ratio, regions=regions, entry_weeks=entry_weeks,
+        exit_weeks=exit_weeks, window_weeks=window_weeks, min_level=min_level,
+        shrink_events=shrink_events, county_ids=ids, seed=seed,
+    )
+    uniform = tune_thresholds(values, impact_level, scope="uniform", **common)
+    local = tune_thresholds(values, impact_level, scope=local_scope, **common)
+    plans = {}
+    for scope, tuned in [("uniform", uniform), ("local", local)]:
+        on = _replay(values, tuned.thresholds, tuned.thresholds, entry_weeks, exit_weeks)
+        scores = evaluate_trigger(
+            on, impact_level, weeks=weeks, min_level=min_level, window_weeks=window_weeks,
+            county_ids=ids,
+        )
+        fire = firing_rate_audit(values, tuned.thresholds, index_scale=index_scale, county_ids=ids)
+        fire.insert(0, "scope", scope)
+        plans[scope] = (tuned, on, scores, fire)
+    firing = pd.concat([plans["uniform"][3], plans["local"][3]], ignore_index=True)
+    chosen = _timeline_counties(timeline_counties, ids, plans["uniform"][2], plans["uniform"][3])
+    timeline = _timeline(values, impact_level, weeks, ids, chosen, plans)
+    settings = {
+        "entry_weeks": int(entry_weeks), "exit_weeks": int(exit_weeks),
+        "window_weeks": int(window_weeks), "min_level": int(min_level),
+        "objective": objective, "local_scope": local_scope, "shrink_events": float(shrink_events),
+        "index_scale": index_scale, "seed": int(seed),
+    }
+    return TriggerResult(
+        index=str(index), scale_weeks=int(scale_weeks), county_ids=ids, regions=regs,
+        uniform=uniform, local=local, uniform_scores=plans["uniform"][2],
+        local_scores=plans["local"][2], firing=firing, timeline=timeline, settings=settings,
+    )
+
+
+def impact_grid(
+    target: Target, weeks: pd.DatetimeIndex, county_ids: list[str] | tuple[str, ...]
+) -> np.ndarray:
+    """Impact levels of a county-week target on the index grid; NaN outside its coverage.
+
+    Parameters
+    ----------
+    target : Target
+        A county-week target (use the ``state`` role: every week in coverage, not only the
+        weeks at risk of an onset).
+    weeks : pandas.DatetimeIndex
+        Mondays of the grid.
+    county_ids : sequence of str
+
+    Returns
+    -------
+    ndarray of float, shape (weeks, counties)
+        Level of each week (the highest if a week appears twice); NaN where the target has no
+        row (unknown, not "no impact").
+
+    Raises
+    ------
+    StageError
+        If the target is not on the county-week grain or lacks ``county_id``/``time``/``level``.
+    """
+    if target.grain != "county_week":
+        raise StageError(
+            f"target {target.name!r} is on the {target.grain!r} grain; trigger audits need a "
+            "county_week target (the 'state' role of a weekly impact)."
+        )
+    missing = [c for c in ("county_id", "time", "level") if c not in target.frame.columns]
+    if missing:
+        raise StageError(f"target {target.name!r} frame lacks columns {missing}.")
+    f = target.frame
+    w = pd.DatetimeIndex(weeks)
+    t = pd.DatetimeIndex(pd.to_datetime(f["time"])).normalize()
+    monday = t - pd.to_timedelta(t.dayofweek, unit="D")
+    wp = np.asarray((monday - w[0]).days // 7, dtype=np.int64)
+    lookup = {str(c): i for i, c in enumerate(county_ids)}
+    cp = np.array([lookup.get(str(c), -1) for c in f["county_id"]], dtype=np.int64)
+    ok = (wp >= 0) & (wp < len(w)) & (cp >= 0)
+    lev = f["level"].to_numpy(dtype=np.float64)
+    ok &= np.isfinite(lev)
+    grid = np.full((len(w), len(lookup)), -np.inf)
+    np.maximum.at(grid, (wp[ok], cp[ok]), lev[ok])
+    grid[np.isneginf(grid)] = np.nan
+    return grid
+
+
+# --------------------------------------------------------------------------- private steps
+def _timeline_counties(choice, ids, scores: TriggerScores, fire: pd.DataFrame) -> list[str]:
+    if isinstance(choice, (int, np.integer)) and not isinstance(choice, bool):
+        n = max(0, int(choice))
+        episodes = scores.table["episodes"].to_numpy()[:-1]
+        share = fire["below_share"].to_numpy()
+        order = [int(np.argmax(episodes))] if len(ids) else []
+        if np.isfinite(share).any():
+            order += [int(np.nanargmax(share)), int(np.nanargmin(share))]
+        order += list(np.argsort(-episodes, kind="stable"))
+        picked: list[str] = []
+        for i in order:
+            if ids[i] not in picked:
+                picked.append(ids[i])
+            if len(picked) >= n:
+                break
+        return picked
+    unknown = [c for c in choice if str(c) not in ids]
+    if unknown:
+        raise StageError(f"timeline_counties {unknown} are not among the county_ids.")
+    return [str(c) for c in choice]
+
+
+def _timeline(values, impact_level, weeks, ids, chosen, plans) -> pd.DataFrame:
+    pos = [ids.index(c) for c in chosen]
+    lev = np.asarray(impact_level, dtype=np.float64)
+    lev = np.where(lev < 0, np.nan, lev)
+    parts = []
+    for scope in ("uniform", "local"):
+        tuned, on = plans[scope][0], plans[scope][1]
+        for p in pos:  # a handful of counties for a plot
+            parts.append(
+                pd.DataFrame(
+                    {
+                        "week": pd.DatetimeIndex(weeks),
+                        "county_id": ids[p],
+                        "scope": scope,
+                        "index_value": values[:, p],
+                        "threshold": tuned.thresholds[p],
+                        "trigger_on": on[:, p],
+                        "impact_level": lev[:, p],
+                    }
+                )
+            )
+    if not parts:
+        return pd.DataFrame(
+            columns=["week", "county_id", "scope", "index_value", "threshold", "trigger_on",
+                     "impact_level"]
+        )
+    return pd.concat(parts, ignore_index=True)

@@ -1,0 +1,505 @@
+"""Threshold tuning: grid search, uniform vs local thresholds, honest leave-one-year-out skill."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Literal
+
+import numpy as np
+import pandas as pd
+from scipy.special import ndtr
+
+from impactlink.errors import StageError
+from impactlink.triggers.replay import _check_persistence, _check_values, _replay
+from impactlink.triggers.scores import (
+    COUNT_NAMES,
+    _labels,
+    _ratio,
+    _score_table,
+    check_levels,
+    critical_success_index,
+    impact_arrays,
+    peirce_skill_score,
+    week_indicators,
+)
+
+__all__ = ["TuningResult", "tune_thresholds", "firing_rate_audit", "DEFAULT_CANDIDATES"]
+
+Objective = Literal["peirce", "csi", "target_far"]
+Scope = Literal["uniform", "county", "region"]
+IndexScale = Literal["normal", "percentile", "none"]
+
+#: Default candidate thresholds for a standardized index (z units), -2.5 to 0.0 by 0.1.
+DEFAULT_CANDIDATES = np.round(np.arange(-2.5, 0.01, 0.1), 10)
+
+#: Upper bound on the number of (week x candidate x county) cells held at once while counting.
+_MAX_CELLS = 20_000_000
+
+
+@dataclass(frozen=True)
+class TuningResult:
+    """Thresholds chosen by :func:`tune_thresholds` and their in-sample and held-out scores.
+
+    Attributes
+    ----------
+    scope, objective : str
+        Settings used.
+    candidates : ndarray, shape (candidates,)
+        Thresholds searched (index units).
+    thresholds : ndarray, shape (counties,)
+        Threshold chosen for each county from all years (a uniform scope repeats one value).
+    scores : pandas.DataFrame
+        In-sample counts and scores per county and pooled (``county`` = "all"), at the chosen
+        thresholds (see :class:`~impactlink.triggers.scores.TriggerScores` for the columns).
+    cv_scores : pandas.DataFrame or None
+        Same columns, from held-out years only: each year scored with thresholds chosen
+        without it (leave-one-year-out). None when ``cv="none"``.
+    fold_thresholds : pandas.DataFrame or None
+        ``year, county, threshold``: the threshold each fold chose.
+    curve : pandas.DataFrame
+        Pooled in-sample ``threshold, peirce_skill, csi, hit_rate, false_alarm_ratio,
+        below_share`` of every candidate applied uniformly (for the report's tuning plot).
+    settings : dict
+        entry_weeks, exit_weeks, window_weeks, min_level, shrink_events, max_false_alarm_ratio.
+    """
+
+    scope: str
+    objective: str
+    candidates: np.ndarray
+    thresholds: np.ndarray
+    scores: pd.DataFrame
+    cv_scores: pd.DataFrame | None
+    fold_thresholds: pd.DataFrame | None
+    curve: pd.DataFrame
+    settings: dict
+
+
+def tune_thresholds(
+    index_values: np.ndarray,
+    impact_level: np.ndarray,
+    *,
+    weeks: pd.DatetimeIndex | None = None,
+    candidates: np.ndarray = DEFAULT_CANDIDATES,
+    objective: Objective = "peirce",
+    max_false_alarm_ratio: float = 0.5,
+    scope: Scope = "uniform",
+    regions: np.ndarray | list | None = None,
+    years: np.ndarray | None = None,
+    cv: Literal["leave_one_year_out", "none"] = "leave_one_year_out",
+    entry_weeks: int = 2,
+    exit_weeks: int = 4,
+    window_weeks: int = 8,
+    min_level: int = 1,
+    shrink_events: float = 5.0,
+    county_ids: list[str] | tuple[str, ...] | None = None,
+    seed: int = 0,
+) -> TuningResult:
+    """Choose trigger thresholds by grid search and score them on years they never saw.
+
+    Parameters
+    ----------
+    index_values : ndarray, shape (weeks, counties)
+        Index values (index units; NaN where undefined).
+    impact_level : ndarray, shape (weeks, counties)
+        Impact level per week; NaN or -1 where unknown (excluded from every count).
+    weeks : pandas.DatetimeIndex, optional
+        Mondays of the rows; gives the fold years (ISO year) when ``years`` is not given.
+    candidates : ndarray, default -2.5 to 0.0 by 0.1
+        Thresholds searched (index units), sorted ascending by this function.
+    objective : {"peirce", "csi", "target_far"}
+        "peirce": maximise the weekly Peirce skill score; "csi": maximise the weekly critical
+        success index; "target_far": maximise the episode hit rate among thresholds whose
+        false-alarm ratio is at most ``max_false_alarm_ratio`` (if none qualifies, the lowest
+        false-alarm ratio).
+    max_false_alarm_ratio : float, default 0.5
+        Used by ``objective="target_far"``.
+    scope : {"uniform", "county", "region"}
+        One statewide threshold; one per county; or one per region (needs ``regions``).
+    regions : array of str, shape (counties,), optional
+        Region of each county. For ``scope="county"`` it sets the group each county is shrunk
+        toward (default: all counties).
+    years : ndarray of int, shape (weeks,), optional
+        Fold label of each week (default: ISO year of ``weeks``).
+    cv : {"leave_one_year_out", "none"}
+        Out-of-sample evaluation; needs at least 3 years.
+    entry_weeks, exit_weeks : int
+        Persistence rules of :func:`replay_trigger`.
+    window_weeks, min_level : int
+        Episode matching window and impact level (see :func:`evaluate_trigger`).
+    shrink_events : float, default 5.0
+        ``scope="county"`` only: credibility weight of the region's threshold. The county's own
+        best threshold gets weight :math:`Z = E/(E + s)` (E its impact episodes in the
+        training years, s = ``shrink_events``) and its region's (or, without ``regions``, the
+        statewide) best threshold :math:`1 - Z`; the blend is rounded to the nearest candidate.
+        A county with few events thus takes (nearly) its region's threshold; one with many
+        keeps its own. 0 = no shrinkage.
+    county_ids : sequence of str, optional
+        Labels for the result frames.
+    seed : int, default 0
+        Accepted for a uniform stage signature; the grid search and leave-one-year-out folds are
+        deterministic (ties go to the lowest, i.e. most conservative, threshold).
+
+    Returns
+    -------
+    TuningResult
+
+    Raises
+    ------
+    StageError
+        On bad shapes or options, fewer than 3 years with ``cv="leave_one_year_out"``, or no
+        known impact weeks at all.
+
+    Notes
+    -----
+    Every candidate is replayed at once (arrays of weeks x candidates x counties). The eight
+    counts of :data:`~impactlink.triggers.scores.COUNT_NAMES` are summed per year, so a training
+    set is "all years minus one" by subtraction and every fold's search is a lookup. An impact
+    episode counts in the year of its onset; an activation in the year it starts. The replay
+    itself runs over the whole record (the trigger state in a held-out year depends on the index
+    before it, as it would in operation), but thresholds are chosen only from training-year
+    impacts. Picking a maximum from many candidates flatters in-sample scores; the held-out
+    ``cv_scores`` are the honest ones (Wilks 2011, section 7.4; Hastie et al. 2009, 7.10).
+
+    The county shrinkage is a credibility-weighted blend (Buhlmann 1967),
+    :math:`\\theta_c = Z\\hat\\theta_c + (1-Z)\\hat\\theta_r` with :math:`Z = E_c/(E_c+s)`;
+    ``s`` plays the role of Buhlmann's ratio of within- to between-county variance and is a
+    setting, not an estimate. Shrinkage trades a little bias for much less variance in counties
+    with few events; the held-out scores show whether that pays off.
+
+    References
+    ----------
+    Wilks, D. S. (2011). Statistical Methods in the Atmospheric Sciences, 3rd ed., Academic
+    Press.
+    Hastie, T., Tibshirani, R., & Friedman, J. (2009). The Elements of Statistical Learning,
+    2nd ed., Springer. https://doi.org/10.1007/978-0-387-84858-7
+    Buhlmann, H. (1967). Experience rating and credibility. ASTIN Bulletin, 4(3), 199-207.
+    https://doi.org/10.1017/S0515036100008989
+    """
+    values = _check_values(index_values, "index_values")
+    n_weeks, n_counties = values.shape
+    lev = np.asarray(impact_level)
+    if lev.shape != values.shape:
+        raise StageError(
+            f"impact_level has shape {lev.shape}; expected {values.shape} (weeks, counties) like "
+            "index_values."
+        )
+    cands = _check_candidates(candidates)
+    _check_choice(objective, ("peirce", "csi", "target_far"), "objective")
+    _check_choice(scope, ("uniform", "county", "region"), "scope")
+    _check_choice(cv, ("leave_one_year_out", "none"), "cv")
+    entry_weeks = _check_persistence(entry_weeks, "entry_weeks")
+    exit_weeks = _check_persistence(exit_weeks, "exit_weeks")
+    check_levels(min_level, window_weeks)
+    if not 0.0 <= float(max_false_alarm_ratio) <= 1.0:
+        raise StageError(
+            f"max_false_alarm_ratio must be between 0 and 1; got {max_false_alarm_ratio!r}."
+        )
+    if not np.isfinite(shrink_events) or shrink_events < 0:
+        raise StageError(f"shrink_events must be >= 0; got {shrink_events!r}.")
+    group_of = _region_codes(regions, n_counties, required=scope == "region")
+    year_labels = _year_labels(years, weeks, n_weeks, needed=cv != "none")
+    labels = _labels(county_ids, n_counties)
+
+    impact, known = impact_arrays(lev, int(min_level))
+    if not known.any():
+        raise StageError(
+            "impact_level has no known week (all NaN or -1); check the impact record's coverage."
+        )
+    uniq_years, year_code = np.unique(year_labels, return_inverse=True)
+    if cv != "none" and len(uniq_years) < 3:
+        raise StageError(
+            f"leave-one-year-out needs at least 3 years; found {len(uniq_years)}. Use cv='none' "
+            "or a longer record."
+        )
+    counts = _year_counts(
+        values, impact, known, cands, year_code, len(uniq_years),
+        entry_weeks, exit_weeks, int(window_weeks),
+    )
+    total = {k: v.sum(axis=0) for k, v in counts.items()}
+    choose = _Chooser(cands, objective, float(max_false_alarm_ratio), scope, group_of, shrink_events)
+
+    k_all = choose(total)
+    thresholds = cands[k_all]
+    scores = _score_table(_pick(total, k_all), labels)
+
+    cv_scores = fold_thr = None
+    if cv != "none":
+        held = {k: np.zeros(n_counties, dtype=np.int64) for k in COUNT_NAMES}
+        rows = []
+        # one iteration per held-out year (tens): each is a few array lookups over all counties
+        for y, year in enumerate(uniq_years):
+            train = {k: total[k] - counts[k][y] for k in COUNT_NAMES}
+            k_fold = choose(train)
+            got = _pick({k: counts[k][y] for k in COUNT_NAMES}, k_fold)
+            for k in COUNT_NAMES:
+                held[k] += got[k]
+            rows.append(pd.DataFrame({"year": year, "county": labels, "threshold": cands[k_fold]}))
+        cv_scores = _score_table(held, labels)
+        fold_thr = pd.concat(rows, ignore_index=True)
+
+    curve = _curve(total, cands, values)
+    settings = {
+        "entry_weeks": entry_weeks,
+        "exit_weeks": exit_weeks,
+        "window_weeks": int(window_weeks),
+        "min_level": int(min_level),
+        "shrink_events": float(shrink_events),
+        "max_false_alarm_ratio": float(max_false_alarm_ratio),
+        "cv": cv,
+        "years": [int(y) if np.issubdtype(type(y), np.integer) else y for y in uniq_years],
+    }
+    return TuningResult(
+        scope=scope,
+        objective=objective,
+        candidates=cands,
+        thresholds=thresholds,
+        scores=scores,
+        cv_scores=cv_scores,
+        fold_thresholds=fold_thr,
+        curve=curve,
+        settings=settings,
+    )
+
+
+def firing_rate_audit(
+    index_values: np.ndarray,
+    threshold: float | np.ndarray,
+    *,
+    index_scale: IndexScale = "normal",
+    county_ids: list[str] | tuple[str, ...] | None = None,
+) -> pd.DataFrame:
+    """How often a threshold is reached in each county, against how often it should be.
+
+    Parameters
+    ----------
+    index_values : ndarray, shape (weeks, counties)
+        Index values; NaN weeks are left out.
+    threshold : float or ndarray of shape (counties,)
+        Threshold in index units.
+    index_scale : {"normal", "percentile", "none"}
+        How to get the nominal share: standardized index -> :math:`\\Phi(\\theta)`; percentile
+        indicator (0-100) -> :math:`\\theta/100`; "none" -> NaN (no nominal rate).
+    county_ids : sequence of str, optional
+
+    Returns
+    -------
+    pandas.DataFrame
+        ``county, threshold, weeks, below_share, nominal_share, share_ratio, z_binomial``:
+        share of finite weeks at or below the threshold, the nominal share, their ratio, and
+        :math:`(\\hat p - p_0)/\\sqrt{p_0(1-p_0)/n}` (a rough guide only: weekly values are
+        autocorrelated, so the effective n is smaller and |z| is overstated).
+
+    Raises
+    ------
+    StageError
+        On a bad shape, threshold or ``index_scale``.
+
+    Notes
+    -----
+    If a standardized index is well calibrated in every county, a uniform threshold is reached
+    in the same share of weeks everywhere (that is the purpose of standardizing: McKee et al.
+    1993). Departures show fitted distributions that do not match the local climate (many
+    zero-precipitation weeks in dry counties, short calibration records) or raw indicators
+    whose scale differs between places; local thresholds equalise the firing rate.
+
+    References
+    ----------
+    McKee, T. B., Doesken, N. J., & Kleist, J. (1993). The relationship of drought frequency and
+    duration to time scales. Proceedings of the 8th Conference on Applied Climatology, American
+    Meteorological Society, 179-184.
+    """
+    values = _check_values(index_values, "index_values")
+    n_counties = values.shape[1]
+    thr = np.asarray(threshold, dtype=np.float64)
+    if thr.ndim == 0:
+        thr = np.full(n_counties, float(thr))
+    if thr.shape != (n_counties,) or not np.all(np.isfinite(thr)):
+        raise StageError(
+            f"threshold must be a finite number or one per county (shape ({n_counties},)); got "
+            f"shape {thr.shape}."
+        )
+    _check_choice(index_scale, ("normal", "percentile", "none"), "index_scale")
+    finite = np.isfinite(values)
+    n = finite.sum(axis=0)
+    with np.errstate(invalid="ignore"):
+        below = (values <= thr).sum(axis=0)
+    share = _ratio(below, n)
+    if index_scale == "normal":
+        nominal = ndtr(thr)
+    elif index_scale == "percentile":
+        nominal = thr / 100.0
+    else:
+        nominal = np.full(n_counties, np.nan)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        z = (share - nominal) / np.sqrt(nominal * (1 - nominal) / n)
+    return pd.DataFrame(
+        {
+            "county": _labels(county_ids, n_counties),
+            "threshold": thr,
+            "weeks": n,
+            "below_share": share,
+            "nominal_share": nominal,
+            "share_ratio": _ratio(share, nominal),
+            "z_binomial": z,
+        }
+    )
+
+
+# --------------------------------------------------------------------------- private steps
+def _year_counts(
+    values, impact, known, cands, year_code, n_years, entry_weeks, exit_weeks, window_weeks
+) -> dict[str, np.ndarray]:
+    """Counts per (year, candidate, county) for every name in COUNT_NAMES."""
+    n_weeks, n_counties = values.shape
+    n_k = len(cands)
+    onehot = np.zeros((n_years, n_weeks), dtype=np.int64)
+    onehot[year_code, np.arange(n_weeks)] = 1
+    out = {k: np.zeros((n_years, n_k, n_counties), dtype=np.int64) for k in COUNT_NAMES}
+    chunk = max(1, _MAX_CELLS // max(1, n_weeks * n_k))
+    # counties are processed in chunks only to bound memory (weeks x candidates x chunk cells);
+    # within a chunk everything is vectorised
+    for lo in range(0, n_counties, chunk):
+        sl = slice(lo, min(n_counties, lo + chunk))
+        on = _replay(
+            values[:, None, sl], cands[:, None], cands[:, None], entry_weeks, exit_weeks
+        )
+        ind = week_indicators(on, impact[:, None, sl], known[:, None, sl], window_weeks)
+        width = on.shape[2]
+        for k in COUNT_NAMES:
+            flat = np.broadcast_to(ind[k], on.shape).reshape(n_weeks, -1).astype(np.int64)
+            out[k][:, :, sl] = (onehot @ flat).reshape(n_years, n_k, width)
+    return out
+
+
+class _Chooser:
+    """Pick a candidate index per county from training counts ``{name: (K, C)}``."""
+
+    def __init__(self, cands, objective, max_far, scope, group_of, shrink_events):
+        self.cands = cands
+        self.objective = objective
+        self.max_far = max_far
+        self.scope = scope
+        self.group_of = group_of
+        n_groups = int(group_of.max()) + 1
+        self.member = np.zeros((len(group_of), n_groups), dtype=np.int64)
+        self.member[np.arange(len(group_of)), group_of] = 1
+        self.shrink_events = shrink_events
+
+    def __call__(self, train: dict[str, np.ndarray]) -> np.ndarray:
+        n_counties = len(self.group_of)
+        pooled = {k: v.sum(axis=1, keepdims=True) for k, v in train.items()}
+        k_all = _best(self._score(pooled))  # (1,); all-NaN (no events) -> lowest candidate
+        if self.scope == "uniform":
+            return np.full(n_counties, k_all[0])
+        group = {k: v @ self.member for k, v in train.items()}  # (K, G)
+        k_group = _best(self._score(group), fallback=k_all[0])
+        if self.scope == "region":
+            return k_group[self.group_of]
+        k_own = _best(self._score(train), fallback=k_group[self.group_of])
+        events = train["episodes"][0].astype(float)  # the same for every candidate
+        z = events / (events + self.shrink_events) if self.shrink_events > 0 else (
+            np.ones(n_counties)
+        )
+        z = np.where(np.isfinite(z), z, 0.0)
+        thr = z * self.cands[k_own] + (1.0 - z) * self.cands[k_group[self.group_of]]
+        return np.abs(self.cands[:, None] - thr[None, :]).argmin(axis=0)
+
+    def _score(self, c: dict[str, np.ndarray]) -> np.ndarray:
+        if self.objective == "peirce":
+            return peirce_skill_score(
+                c["hits"], c["false_alarms"], c["misses"], c["correct_negatives"]
+            )
+        if self.objective == "csi":
+            return critical_success_index(c["hits"], c["false_alarms"], c["misses"])
+        hit = _ratio(c["episodes_hit"], c["episodes"])
+        far = _ratio(c["false_activations"], c["activations_judged"])
+        far = np.where(np.isnan(far), 0.0, far)  # never judged as firing -> no false alarm
+        return np.where(far <= self.max_far + 1e-12, hit, -1.0 - far)
+
+
+def _best(score: np.ndarray, fallback: int | np.ndarray = 0) -> np.ndarray:
+    """Argmax over axis 0 ignoring NaN (first = lowest threshold on ties); fallback if all NaN."""
+    s = np.where(np.isnan(score), -np.inf, score)
+    k = np.argmax(s, axis=0)
+    all_nan = np.isnan(score).all(axis=0)
+    return np.where(all_nan, fallback, k).astype(np.int64)
+
+
+def _pick(counts: dict[str, np.ndarray], k: np.ndarray) -> dict[str, np.ndarray]:
+    cols = np.arange(len(k))
+    return {name: v[k, cols] for name, v in counts.items()}
+
+
+def _curve(total: dict[str, np.ndarray], cands: np.ndarray, values: np.ndarray) -> pd.DataFrame:
+    p = {k: v.sum(axis=1) for k, v in total.items()}
+    finite = np.sort(values[np.isfinite(values)])
+    below = np.searchsorted(finite, cands, side="right")
+    return pd.DataFrame(
+        {
+            "threshold": cands,
+            "peirce_skill": peirce_skill_score(
+                p["hits"], p["false_alarms"], p["misses"], p["correct_negatives"]
+            ),
+            "csi": critical_success_index(p["hits"], p["false_alarms"], p["misses"]),
+            "hit_rate": _ratio(p["episodes_hit"], p["episodes"]),
+            "false_alarm_ratio": _ratio(p["false_activations"], p["activations_judged"]),
+            "below_share": _ratio(below, np.full(len(cands), finite.size)),
+        }
+    )
+
+
+def _check_candidates(candidates) -> np.ndarray:
+    c = np.asarray(candidates, dtype=np.float64).ravel()
+    if c.size == 0 or not np.all(np.isfinite(c)):
+        raise StageError(
+            "candidates must be a non-empty array of finite thresholds (index units); got "
+            f"{c.size} values{' with NaN/inf' if c.size else ''}."
+        )
+    return np.unique(c)
+
+
+def _check_choice(value, allowed, name):
+    if value not in allowed:
+        raise StageError(f"{name} must be one of {list(allowed)}; got {value!r}.")
+
+
+def _region_codes(regions, n_counties: int, *, required: bool) -> np.ndarray:
+    if regions is None:
+        if required:
+            raise StageError(
+                "scope='region' needs regions (one region name per county); pass regions= or "
+                "use scope='county'."
+            )
+        return np.zeros(n_counties, dtype=np.int64)
+    r = np.asarray(regions, dtype=object)
+    if r.shape != (n_counties,):
+        raise StageError(
+            f"regions must have one entry per county ({n_counties}); got shape {r.shape}."
+        )
+    if pd.isna(r).any():
+        raise StageError("regions has missing entries; every county needs a region.")
+    _, codes = np.unique(r.astype(str), return_inverse=True)
+    return codes.astype(np.int64)
+
+
+def _year_labels(years, weeks, n_weeks: int, *, needed: bool) -> np.ndarray:
+    if years is not None:
+        y = np.asarray(years)
+        if y.shape != (n_weeks,):
+            raise StageError(
+                f"years must have one label per week ({n_weeks}); got shape {y.shape}."
+            )
+        return y
+    if weeks is not None:
+        w = pd.DatetimeIndex(weeks)
+        if len(w) != n_weeks:
+            raise StageError(
+                f"weeks has {len(w)} entries but index_values has {n_weeks} rows."
+            )
+        return w.isocalendar().year.to_numpy(dtype=np.int64)
+    if needed:
+        raise StageError(
+            "leave-one-year-out needs the year of each week: pass weeks= (the IndexCube's "
+            "weeks) or years=."
+        )
+    return np.zeros(n_weeks, dtype=np.int64)
