@@ -93,7 +93,7 @@ def hargreaves_pet(tmin_c: np.ndarray, tmax_c: np.ndarray, doy: np.ndarray,
 
 def simulate_hydrology(geo: Geography, wx: Weather, traits: Traits) -> Hydrology:
     """Bucket, streamflow and weekly water-balance anomalies (no randomness)."""
-    pet = hargreaves_pet(wx.tmin_c, wx.tmax_c, wx.dates.dayofyear.to_numpy(), geo.lat_deg)
+    pet = hargreaves_pet(wx.tmin_c, wx.tmax_c, wx.dates.day_of_year.to_numpy(), geo.lat_deg)
     soil, flow = _bucket_and_flow(wx.precip_mm, pet, traits.soil_whc_mm, geo.area_km2)
     i0 = (7 - wx.dates[0].weekday()) % 7  # first Monday
     n_weeks = (len(wx.dates) - i0) // 7

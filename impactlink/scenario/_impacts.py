@@ -349,7 +349,7 @@ def _field_reports(geo: Geography, traits: Traits, hyd: Hydrology, rng: np.rando
                       for r in regions])
     weeks = hyd.weeks.values.astype("datetime64[D]")
     woy = hyd.weeks.isocalendar().week.to_numpy()[:, None]
-    t_year = (hyd.weeks.year + (hyd.weeks.dayofyear - 1) / 365.25).to_numpy()[:, None]
+    t_year = (hyd.weeks.year + (hyd.weeks.day_of_year - 1) / 365.25).to_numpy()[:, None]
     effort = np.clip(0.3 + 0.7 * (t_year - 2008.0) / 17.0, 0.3, 1.0)
     covered = weeks[:, None] >= start[None, :]
     c_rel = np.clip(traits.cattle_per_km2 / 20.0, 0.3, 2.0)

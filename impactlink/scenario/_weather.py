@@ -118,7 +118,7 @@ def _anomaly_field(geo: Geography, months: pd.DatetimeIndex, rng: np.random.Gene
 def _precipitation(geo: Geography, dates: pd.DatetimeIndex, z: np.ndarray,
                    rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray]:
     g = geo.west_east[None, :]
-    doy = dates.dayofyear.to_numpy()[:, None].astype(float)
+    doy = dates.day_of_year.to_numpy()[:, None].astype(float)
     p_mean = P_WET_WEST + (P_WET_EAST - P_WET_WEST) * g
     amp = SEASONAL_AMP_WEST + (SEASONAL_AMP_EAST - SEASONAL_AMP_WEST) * g
     peak = PEAK_DOY_WEST + (PEAK_DOY_EAST - PEAK_DOY_WEST) * g
@@ -146,7 +146,7 @@ def _temperature(geo: Geography, dates: pd.DatetimeIndex, z: np.ndarray, wet: np
                  rng: np.random.Generator) -> tuple[np.ndarray, np.ndarray]:
     g = geo.west_east[None, :]
     lat = geo.lat_deg[None, :]
-    doy = dates.dayofyear.to_numpy()[:, None].astype(float)
+    doy = dates.day_of_year.to_numpy()[:, None].astype(float)
     years = (dates.year.to_numpy()[:, None] - 1981) + doy / 365.25
     t_annual = 10.5 - 0.9 * (lat - 40.9) + 0.8 * g
     amp = 13.5 - 1.0 * g
