@@ -1,0 +1,171 @@
+"""Index values aligned to target rows, one candidate (index, scale, lag) at a time.
+
+Features are never stored as a wide table: each call reads one (weeks, counties) array of an
+:class:`~impactlink.indices.cube.IndexCube` with numpy fancy indexing.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from impactlink.link._common import LinkError
+from impactlink.link.target import Target
+
+__all__ = ["feature_values", "feature_matrix", "reference_weeks", "iso_week_monday"]
+
+#: A region value needs index values for at least this share of the region's weight.
+MIN_REGION_WEIGHT = 0.5
+
+
+def feature_values(target: Target, cube, index: str, scale_weeks: int, lag_weeks: int
+                   ) -> np.ndarray:
+    """One candidate feature aligned to every row of ``target.frame``.
+
+    Parameters
+    ----------
+    target : Target
+    cube : impactlink.indices.cube.IndexCube
+    index : str
+        Index name, e.g. ``"spi"``.
+    scale_weeks : int
+        Time scale [weeks] (0 for an indicator used as supplied).
+    lag_weeks : int
+        Lag [weeks], >= 0: the value is taken ``lag_weeks`` weeks before the reference week.
+
+    Returns
+    -------
+    ndarray of float64, shape (n_rows,)
+        NaN where the index is undefined or the window leaves the cube's grid.
+
+    Raises
+    ------
+    LinkError
+        Negative lag, unknown reference rule, missing columns.
+    KeyError
+        The cube has no such (index, scale).
+
+    Notes
+    -----
+    Reference week *r* per row (``target.rule.reference``):
+
+    - ``row_week``: the row's own week (county-week targets; for onset and escalation targets
+      this is week *t*, the forecast time, so the value is known when the forecast is made);
+    - ``season_week``: ISO 8601 week ``season_week`` of the row's year (week 53 falls back to
+      week 52 in years with 52 weeks);
+    - ``month_end``: the last week that starts in the row's month.
+
+    The value is :math:`x_{r-\\ell}` for window 1, otherwise ``window_stat`` (min or mean) of
+    :math:`x_{r-\\ell-w+1}, \\ldots, x_{r-\\ell}`; a window with any missing week is NaN.
+    Region rows combine county values with the rule's weights, renormalised over counties
+    with a value; NaN when those hold less than half the region's weight.
+    """
+    lag = int(lag_weeks)
+    if lag < 0:
+        raise LinkError(f"feature_values: lag_weeks must be >= 0, got {lag_weeks}")
+    arr = cube.get(index, scale_weeks)
+    rule = target.rule
+    fr = target.frame
+    ref = reference_weeks(target)
+    pos = ((ref - cube.weeks[0]).days // 7).to_numpy().astype(np.int64) - lag
+    w = max(int(rule.window_weeks), 1)
+    stat = rule.window_stat if w > 1 else "value"
+    if stat not in ("value", "min", "mean"):
+        raise LinkError(f"feature_values: window_stat must be value, min or mean, got {stat!r}")
+    win = pos[:, None] - (w - 1) + np.arange(w)[None, :]
+    ok = (win >= 0) & (win < arr.shape[0])
+    winc = np.clip(win, 0, arr.shape[0] - 1)
+    if target.grain == "region_month":
+        return _region_values(target, cube, arr, winc, ok, stat)
+    if "county_id" not in fr.columns:
+        raise LinkError(f"feature_values: target {target.name!r} has no county_id column")
+    cp = pd.Index(cube.county_ids).get_indexer(fr["county_id"].astype(str))
+    vals = arr[winc, np.maximum(cp, 0)[:, None]]
+    vals = np.where(ok & (cp >= 0)[:, None], vals, np.nan)
+    return _reduce(vals, stat, axis=1)
+
+
+def feature_matrix(target: Target, cube, candidates: list[tuple[str, int, int]]) -> np.ndarray:
+    """Columns of :func:`feature_values` for a short list of (index, scale_weeks, lag_weeks).
+
+    Convenience for small lists only; model selection over many candidates should call
+    :func:`feature_values` one candidate at a time.
+    """
+    if not candidates:
+        raise LinkError("feature_matrix: candidates is empty; give (index, scale_weeks, lag_weeks)")
+    return np.column_stack([feature_values(target, cube, i, s, lag) for i, s, lag in candidates])
+
+
+def reference_weeks(target: Target) -> pd.DatetimeIndex:
+    """Monday of the reference week of every row (before the lag)."""
+    rule, fr = target.rule, target.frame
+    if rule.reference == "row_week":
+        t = pd.DatetimeIndex(pd.to_datetime(fr["time"])).normalize()
+        return t - pd.to_timedelta(t.dayofweek, unit="D")
+    if rule.reference == "season_week":
+        if rule.season_week is None:
+            raise LinkError(f"target {target.name!r}: reference 'season_week' needs season_week")
+        return iso_week_monday(fr["year"].to_numpy(), int(rule.season_week))
+    if rule.reference == "month_end":
+        t = pd.DatetimeIndex(pd.to_datetime(fr["time"]))
+        last = (t + pd.offsets.MonthEnd(0)).normalize()
+        return last - pd.to_timedelta(last.dayofweek, unit="D")
+    raise LinkError(
+        f"target {target.name!r}: rule.reference must be row_week, season_week or month_end, "
+        f"got {rule.reference!r}"
+    )
+
+
+def iso_week_monday(years, week: int) -> pd.DatetimeIndex:
+    """Monday of ISO 8601 week ``week`` of each year (week 53 -> 52 where the year has 52).
+
+    ISO week 1 is the week holding 4 January (ISO 8601-1:2019, 3.1.1.23 "calendar week").
+
+    Examples
+    --------
+    >>> iso_week_monday([2020, 2021], 53).strftime("%Y-%m-%d").tolist()
+    ['2020-12-28', '2021-12-27']
+    """
+    if not 1 <= int(week) <= 53:
+        raise LinkError(f"season_week must be an ISO week 1..53, got {week}")
+    y = np.asarray(years, dtype=np.int64)
+    jan4 = pd.to_datetime(pd.DataFrame({"year": y, "month": 1, "day": 4}))
+    mon1 = pd.DatetimeIndex(jan4 - pd.to_timedelta(jan4.dt.dayofweek, unit="D"))
+    out = mon1 + pd.to_timedelta((int(week) - 1) * 7, unit="D")
+    spill = out.isocalendar().year.to_numpy() != y
+    return pd.DatetimeIndex(np.where(spill, out - pd.Timedelta(days=7), out))
+
+
+# --------------------------------------------------------------------------- private steps
+def _reduce(vals: np.ndarray, stat: str, axis: int) -> np.ndarray:
+    if stat == "min":
+        return vals.min(axis=axis)
+    if stat == "mean":
+        return vals.mean(axis=axis)
+    return vals.take(-1, axis=axis)
+
+
+def _region_values(target, cube, arr, winc, ok, stat) -> np.ndarray:
+    wts = target.rule.weights
+    if wts is None:
+        raise LinkError(f"feature_values: region target {target.name!r} has no rule.weights")
+    regions = pd.Index(sorted(wts["region"].astype(str).unique()))
+    W = np.zeros((len(regions), len(cube.county_ids)))
+    cp = pd.Index(cube.county_ids).get_indexer(wts["county_id"].astype(str))
+    rp = regions.get_indexer(wts["region"].astype(str))
+    keep = cp >= 0
+    W[rp[keep], cp[keep]] = wts["weight"].to_numpy(float)[keep]
+    fr = target.frame
+    rcol = "region" if "region" in fr.columns else "unit_id"
+    rows_r = regions.get_indexer(fr[rcol].astype(str))
+    vals = arr[winc]                                   # (n, w, counties)
+    vals = np.where(ok[:, :, None], vals, np.nan)
+    v = _reduce(vals, stat, axis=1)                    # (n, counties)
+    Wr = np.where(rows_r[:, None] >= 0, W[np.maximum(rows_r, 0)], 0.0)
+    have = np.isfinite(v)
+    den = (Wr * have).sum(axis=1)
+    num = (np.where(have, v, 0.0) * Wr).sum(axis=1)
+    out = np.full(len(fr), np.nan)
+    good = (den >= MIN_REGION_WEIGHT * Wr.sum(axis=1)) & (den > 0)
+    out[good] = num[good] / den[good]
+    return out

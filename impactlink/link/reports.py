@@ -1,0 +1,155 @@
+"""Field reports (presence-only) -> county-week counts and highest severity."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from impactlink.link._common import (
+    Ledger,
+    LinkError,
+    LinkResult,
+    ReportingEffortWarning,
+    check_options,
+    check_weeks,
+    coverage_rows,
+    iso_season,
+    iso_year,
+    week_coverage,
+    week_pos,
+)
+from impactlink.link.notices import _regions, summarize
+from impactlink.link.target import FeatureRule, Target
+
+__all__ = ["link_field_reports", "effort_trend", "REPORT_OPTIONS"]
+
+REPORT_OPTIONS = {"sector", "min_severity", "effort_alpha", "defined_by"}
+
+
+def link_field_reports(spec, tables, *, counties, weeks, lags_weeks=(0,),
+                       equal_area_crs="EPSG:5070") -> LinkResult:
+    """County-week field-report target: highest severity reported (0 = no report).
+
+    Parameters
+    ----------
+    spec : impactlink.project.ImpactSpec
+        ``source="field_reports"``. Options (all optional):
+
+        - ``sector`` (str or list, default every sector);
+        - ``min_severity`` (int, optional): reports below this severity are not counted
+          (rejected with a reason); reports without a severity count as severity 1;
+        - ``effort_alpha`` (float, default 0.05): significance level of the reporting-effort
+          trend test;
+        - ``defined_by`` (str, optional): circularity flag.
+    tables : dict
+        ``field_reports`` (county_id, date, sector, optional severity); optional ``coverage``
+        (source "field_reports" or the impact name).
+
+    Returns
+    -------
+    LinkResult
+        One target (role "count"): ``level`` = highest severity that week, ``report_count``
+        the number of reports. Weeks outside coverage are absent (unknown), not zero.
+    """
+    opts = dict(spec.options)
+    check_options(opts, REPORT_OPTIONS, impact=spec.name, source="field_reports")
+    weeks = check_weeks(weeks)
+    fr = tables.get("field_reports")
+    if fr is None:
+        raise LinkError(f"[impacts.{spec.name}] source 'field_reports' needs a field_reports "
+                        "table; add it to [tables]")
+    ledger = Ledger(spec.name)
+    county_ids = tuple(sorted(counties["county_id"].astype(str)))
+    region_of = _regions(counties)
+    nw, nc = len(weeks), len(county_ids)
+    sel = np.ones(len(fr), dtype=bool)
+    if opts.get("sector") is not None:
+        want = opts["sector"]
+        want = [want] if isinstance(want, str) else list(want)
+        sel = fr["sector"].astype(str).isin([str(w) for w in want]).to_numpy()
+    r = fr.loc[sel]
+    ok = np.ones(len(r), dtype=bool)
+    sev = (pd.to_numeric(r["severity"], errors="coerce") if "severity" in r.columns
+           else pd.Series(np.nan, index=r.index))
+    has_sev = "severity" in r.columns
+    sev = sev.fillna(1).to_numpy(float)
+    if opts.get("min_severity") is not None:
+        low = sev < float(opts["min_severity"])
+        ledger.reject("field_reports", r, low, f"severity below min_severity "
+                      f"{opts['min_severity']}", column="severity")
+        ok &= ~low
+    cpos = pd.Index(county_ids).get_indexer(r["county_id"].astype(str))
+    bad = cpos < 0
+    ledger.reject("field_reports", r, bad & ok, "county_id not in the counties layer",
+                  column="county_id")
+    ok &= ~bad
+    wp = week_pos(weeks, r["date"])
+    mask = week_coverage(coverage_rows(tables, {spec.name, "field_reports"}), weeks, county_ids,
+                         counties)
+    on = (wp >= 0) & (wp < nw) & ok
+    inside = np.zeros(len(r), dtype=bool)
+    inside[on] = mask[wp[on], cpos[on]]
+    outside = ok & ~inside
+    ok &= inside
+    ledger.count("field_reports", records=len(r), used=int(ok.sum()), outside=int(outside.sum()),
+                 not_selected=int((~sel).sum()))
+    count = np.zeros((nw, nc), dtype=np.int64)
+    np.add.at(count, (wp[ok], cpos[ok]), 1)
+    top = np.zeros((nw, nc), dtype=np.int64)
+    np.maximum.at(top, (wp[ok], cpos[ok]), np.rint(sev[ok]).astype(np.int64))
+
+    # effort: reports per covered county-year
+    yrs = iso_year(weeks)
+    per_year = pd.DataFrame({"y": yrs, "n": count.sum(axis=1), "cov": mask.sum(axis=1)}).groupby(
+        "y").sum()
+    per_year = per_year[per_year["cov"] > 0]
+    tau, pval = effort_trend(per_year.index.to_numpy(), (per_year["n"] / per_year["cov"]).to_numpy())
+    alpha = float(opts.get("effort_alpha", 0.05))
+    if np.isfinite(pval) and pval < alpha:
+        ledger.warn(f"[impacts.{spec.name}] reports per covered county-week trend over the record "
+                    f"(Kendall tau {tau:+.2f}, p = {pval:.3g}); changing reporting effort can look "
+                    "like changing impacts (presence-only source)", ReportingEffortWarning)
+
+    w_idx, c_idx = np.nonzero(mask)
+    cid = np.asarray(county_ids, dtype=object)[c_idx]
+    time = weeks[w_idx]
+    frame = pd.DataFrame({
+        "unit_id": cid.astype(str), "county_id": cid.astype(str),
+        "region": region_of.reindex(cid).to_numpy(), "time": time,
+        "year": iso_year(time), "season": iso_season(time),
+        "level": top[w_idx, c_idx], "report_count": count[w_idx, c_idx],
+    })
+    kmax = max(int(top.max()), 1)
+    labels = ("none", "reported") if not has_sev else ("none", *[f"severity_{k}" for k in
+                                                                range(1, kmax + 1)])
+    if not has_sev:
+        frame["level"] = np.minimum(frame["level"], 1)
+    flags = [f"circular:{opts['defined_by']}"] if opts.get("defined_by") else []
+    flags += ["effort_trend"] if np.isfinite(pval) and pval < alpha else []
+    t = Target(name=f"{spec.name}:count", impact=spec.name,
+               kind="ordinal" if has_sev else "binary", grain="county_week", role="count",
+               frame=frame, levels=labels, rule=FeatureRule(),
+               provenance={"rows": len(frame), "presence_only": True, "effort_tau": tau,
+                           "effort_p": pval, "flags": flags})
+    return LinkResult(targets=(t,), rejected=ledger.rejected(),
+                      reconciliation=ledger.reconciliation(), summary=summarize([t]),
+                      warnings=ledger.warnings)
+
+
+def effort_trend(years: np.ndarray, rate: np.ndarray) -> tuple[float, float]:
+    """Kendall's tau between year and reporting rate, and its two-sided p-value.
+
+    A monotone trend test without a distributional assumption (Mann-Kendall style; Kendall
+    1938). Returns (nan, nan) with fewer than 4 years.
+
+    References
+    ----------
+    Kendall, M. G. (1938). A new measure of rank correlation. Biometrika 30(1-2), 81-93.
+    https://doi.org/10.1093/biomet/30.1-2.81
+    """
+    from scipy.stats import kendalltau
+
+    if len(years) < 4 or np.nanstd(rate) == 0:
+        return float("nan"), float("nan")
+    res = kendalltau(years, rate)
+    return float(res.statistic), float(res.pvalue)

@@ -1,0 +1,269 @@
+"""County-year yields -> shortfall against a trend fitted without the target year."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from impactlink.link._common import (
+    Ledger,
+    LinkError,
+    LinkResult,
+    check_options,
+    coverage_rows,
+    expand_to_counties,
+    interval_covered,
+)
+from impactlink.link.notices import _regions, summarize
+from impactlink.link.target import FeatureRule, Target
+
+__all__ = ["link_yields", "loo_trend", "shortfall_level", "YIELD_OPTIONS"]
+
+YIELD_OPTIONS = {
+    "crop", "practice", "trend", "robust", "lowess_frac", "min_years", "class_pct",
+    "binary_pct", "season_week", "window_weeks", "window_stat", "defined_by",
+}
+
+
+def link_yields(spec, tables, *, counties, weeks=None, lags_weeks=(), equal_area_crs="EPSG:5070"
+                ) -> LinkResult:
+    """County-year yield shortfall targets, one ordinal and one binary per crop and practice.
+
+    Parameters
+    ----------
+    spec : impactlink.project.ImpactSpec
+        ``source="yields"``. Options (all optional):
+
+        - ``crop`` (str or list, default every crop in the table);
+        - ``practice`` (str or list, default every practice, blank included);
+        - ``trend`` ("linear" | "quadratic" | "lowess", default "linear");
+        - ``robust`` (bool, default False): Huber M-estimation (statsmodels RLM) for the
+          polynomial trends, robustifying iterations (``it=3``) for LOWESS;
+        - ``lowess_frac`` (float, default 0.6): LOWESS span as a share of the years;
+        - ``min_years`` (int, default 10): other years needed to fit a trend;
+        - ``class_pct`` (list of float, default [10, 20, 30]): shortfall class edges [%];
+          level k = shortfall at least the k-th edge;
+        - ``binary_pct`` (float, default 20): the binary target is shortfall >= this [%];
+        - ``season_week`` (int, default 31), ``window_weeks`` (int, default 1),
+          ``window_stat`` ("value" | "min" | "mean", default "value"): the feature is the index
+          at ISO week ``season_week`` (or the window statistic over the ``window_weeks`` weeks
+          ending there), minus the lag;
+        - ``defined_by`` (str, optional): index the impact is keyed to (circularity flag).
+    tables : dict
+        ``yields`` (county_id, year, crop, yield, optional practice, unit); optional
+        ``coverage`` rows with source "yields" or the impact name.
+
+    Returns
+    -------
+    LinkResult
+
+    Notes
+    -----
+    Expected yield :math:`\\hat y_{-t}` is the trend fitted to the county's other years and
+    evaluated at year *t* (leave-one-out, so a year's own shortfall cannot bend its own trend);
+    departure :math:`d_t = 100\\,(y_t - \\hat y_{-t}) / \\hat y_{-t}` [%]; shortfall
+    :math:`s_t = -d_t`. Missing or withheld yields are rejected with a reason, never imputed.
+    """
+    opts = dict(spec.options)
+    check_options(opts, YIELD_OPTIONS, impact=spec.name, source="yields")
+    ys = tables.get("yields")
+    if ys is None:
+        raise LinkError(f"[impacts.{spec.name}] source 'yields' needs a yields table; add one "
+                        "to [tables]")
+    trend = opts.get("trend", "linear")
+    if trend not in ("linear", "quadratic", "lowess"):
+        raise LinkError(f"[impacts.{spec.name}] trend must be linear, quadratic or lowess, "
+                        f"got {trend!r}")
+    robust = bool(opts.get("robust", False))
+    frac = float(opts.get("lowess_frac", 0.6))
+    min_years = int(opts.get("min_years", 10))
+    edges = sorted(float(x) for x in opts.get("class_pct", (10, 20, 30)))
+    bin_pct = float(opts.get("binary_pct", 20))
+    rule = FeatureRule(reference="season_week", season_week=int(opts.get("season_week", 31)),
+                       window_weeks=int(opts.get("window_weeks", 1)),
+                       window_stat=opts.get("window_stat", "value"))
+    ledger = Ledger(spec.name)
+    region_of = _regions(counties)
+
+    y = ys.copy()
+    if "practice" not in y.columns:
+        y["practice"] = ""
+    y["practice"] = y["practice"].astype("string").fillna("").astype(str)
+    y["crop"] = y["crop"].astype(str)
+    sel = np.ones(len(y), dtype=bool)
+    for col in ("crop", "practice"):
+        want = opts.get(col)
+        if want is not None:
+            want = [want] if isinstance(want, str) else list(want)
+            sel &= y[col].isin([str(w) for w in want]).to_numpy()
+    not_selected = int((~sel).sum())
+    y = y.loc[sel]
+    if len(y) == 0:
+        raise LinkError(f"[impacts.{spec.name}] no yields rows match crop={opts.get('crop')!r} "
+                        f"practice={opts.get('practice')!r}; check the crop names in the table")
+
+    ok = np.ones(len(y), dtype=bool)
+    val = pd.to_numeric(y["yield"], errors="coerce")
+    miss = val.isna().to_numpy()
+    ledger.reject("yields", y, miss, "yield missing or withheld (not imputed)", column="yield")
+    ok &= ~miss
+    unknown = ~y["county_id"].astype(str).isin(region_of.index).to_numpy()
+    ledger.reject("yields", y, unknown & ok, "county_id not in the counties layer",
+                  column="county_id")
+    ok &= ~unknown
+    cov = coverage_rows(tables, {spec.name, "yields"})
+    outside = np.zeros(len(y), dtype=bool)
+    if cov is not None:
+        per = expand_to_counties(cov, counties)
+        yr = y["year"].astype(int)
+        outside = ~interval_covered(y["county_id"].astype(str), pd.to_datetime(
+            yr.astype(str) + "-01-01"), pd.to_datetime(yr.astype(str) + "-12-31"),
+            per["county_id"], per["start_date"], per["end_date"]) & ok
+    ok_cov = ok & ~outside
+
+    d = y.loc[ok_cov, ["county_id", "year", "crop", "practice"]].copy()
+    d["county_id"] = d["county_id"].astype(str)
+    d["year"] = d["year"].astype(int)
+    d["yield"] = val[ok_cov].to_numpy(float)
+    d["expected_yield"] = np.nan
+    # one small fit per series (county x crop x practice; a few hundred at most)
+    for _, g in d.groupby(["county_id", "crop", "practice"], sort=False):
+        if len(g) - 1 < min_years:
+            continue
+        d.loc[g.index, "expected_yield"] = loo_trend(
+            g["year"].to_numpy(float), g["yield"].to_numpy(float), trend=trend, robust=robust,
+            frac=frac)
+    short = d["expected_yield"].isna() | (d["expected_yield"] <= 0)
+    few = d["expected_yield"].isna()
+    idx_map = pd.Series(np.flatnonzero(ok_cov), index=d.index)
+    m = np.zeros(len(y), dtype=bool)
+    m[idx_map[few].to_numpy()] = True
+    ledger.reject("yields", y, m, f"fewer than {min_years} other years to fit a trend",
+                  column="year")
+    m = np.zeros(len(y), dtype=bool)
+    m[idx_map[short & ~few].to_numpy()] = True
+    ledger.reject("yields", y, m, "expected yield from the trend is not positive",
+                  column="yield")
+    d = d.loc[~short]
+    ledger.count("yields", records=len(y), used=len(d), outside=int(outside.sum()),
+                 not_selected=not_selected)
+
+    d["departure_pct"] = 100.0 * (d["yield"] - d["expected_yield"]) / d["expected_yield"]
+    d["shortfall_pct"] = -d["departure_pct"]
+    gaps = _gap_years(d)
+    if gaps:
+        ledger.warn(f"[impacts.{spec.name}] {gaps} county-crop years inside the record have no "
+                    "yield (withheld or missing); they are left out, not imputed")
+    flags = [f"circular:{opts['defined_by']}"] if opts.get("defined_by") else []
+    targets = []
+    for (crop, practice), g in d.groupby(["crop", "practice"], sort=True):
+        base = f"{spec.name}:{crop}" + (f":{practice}" if practice else "")
+        fr = pd.DataFrame({
+            "unit_id": g["county_id"].to_numpy(), "county_id": g["county_id"].to_numpy(),
+            "region": region_of.reindex(g["county_id"]).to_numpy(),
+            "time": pd.to_datetime(g["year"].astype(str) + "-01-01").to_numpy(),
+            "year": g["year"].to_numpy(), "season": rule.season_week,
+            "level": shortfall_level(g["shortfall_pct"].to_numpy(), edges),
+            "crop": crop, "practice": practice, "yield": g["yield"].to_numpy(),
+            "expected_yield": g["expected_yield"].to_numpy(),
+            "departure_pct": g["departure_pct"].to_numpy(),
+        }).sort_values(["year", "county_id"], ignore_index=True)
+        prov = {"trend": trend, "robust": robust, "class_pct": edges, "binary_pct": bin_pct,
+                "rows": len(fr), "missing_years": gaps, "flags": flags}
+        labels = ("none", *[f"shortfall_{e:g}pct" for e in edges])
+        targets.append(Target(name=base, impact=spec.name, kind="ordinal", grain="county_year",
+                              role="annual", frame=fr, levels=labels, rule=rule, provenance=prov))
+        fb = fr.copy()
+        fb["level"] = (-fb["departure_pct"].to_numpy() >= bin_pct).astype(np.int64)
+        targets.append(Target(name=f"{base}:shortfall_{bin_pct:g}pct", impact=spec.name,
+                              kind="binary", grain="county_year", role="annual", frame=fb,
+                              levels=("no", f"shortfall_{bin_pct:g}pct"), rule=rule,
+                              provenance=dict(prov)))
+    return LinkResult(targets=tuple(targets), rejected=ledger.rejected(),
+                      reconciliation=ledger.reconciliation(), summary=summarize(targets),
+                      warnings=ledger.warnings)
+
+
+def loo_trend(years: np.ndarray, values: np.ndarray, *, trend: str = "linear",
+              robust: bool = False, frac: float = 0.6) -> np.ndarray:
+    """Expected value of each year from a trend fitted to all *other* years.
+
+    Parameters
+    ----------
+    years : array of float
+    values : array of float
+        Same length, no NaN.
+    trend : {"linear", "quadratic", "lowess"}
+    robust : bool
+        Huber M-estimator (statsmodels ``RLM``, ``HuberT``) for polynomials; LOWESS
+        robustifying iterations (``it=3``, Cleveland 1979) otherwise ``it=0``.
+    frac : float
+        LOWESS span (share of the points used for each local fit).
+
+    Returns
+    -------
+    ndarray
+        Leave-one-out prediction for each year.
+
+    Notes
+    -----
+    For ordinary least squares the leave-one-out prediction needs one fit:
+    :math:`\\hat y_{-i} = y_i - e_i/(1-h_{ii})` with :math:`e_i` the residual and
+    :math:`h_{ii}` the leverage (the PRESS identity; Cook and Weisberg 1982, sec. 2.2).
+
+    References
+    ----------
+    Cleveland, W. S. (1979). Robust locally weighted regression and smoothing scatterplots.
+    Journal of the American Statistical Association 74(368), 829-836.
+    https://doi.org/10.1080/01621459.1979.10481038
+
+    Cook, R. D. and Weisberg, S. (1982). Residuals and Influence in Regression. Chapman and Hall.
+    """
+    x = np.asarray(years, dtype=float)
+    v = np.asarray(values, dtype=float)
+    n = len(x)
+    if trend not in ("linear", "quadratic", "lowess"):
+        raise LinkError(f"loo_trend: trend must be linear, quadratic or lowess, got {trend!r}")
+    if n < 3:
+        raise LinkError(f"loo_trend: need at least 3 years, got {n}")
+    xc = x - x.mean()
+    if trend == "lowess":
+        from statsmodels.nonparametric.smoothers_lowess import lowess
+
+        out = np.empty(n)
+        for i in range(n):  # one local fit per held-out year; series are short (<~60 years)
+            keep = np.arange(n) != i
+            out[i] = lowess(v[keep], x[keep], frac=frac, it=3 if robust else 0,
+                            xvals=x[i:i + 1])[0]
+        return out
+    X = np.column_stack([np.ones(n), xc] + ([xc**2] if trend == "quadratic" else []))
+    if not robust:
+        beta, *_ = np.linalg.lstsq(X, v, rcond=None)
+        e = v - X @ beta
+        h = np.einsum("ij,ji->i", X, np.linalg.pinv(X.T @ X) @ X.T)
+        return v - e / (1.0 - h)
+    import statsmodels.api as sm
+
+    out = np.empty(n)
+    for i in range(n):  # one M-estimation per held-out year
+        keep = np.arange(n) != i
+        fit = sm.RLM(v[keep], X[keep], M=sm.robust.norms.HuberT()).fit()
+        out[i] = X[i] @ fit.params
+    return out
+
+
+def shortfall_level(shortfall_pct: np.ndarray, edges) -> np.ndarray:
+    """Ordinal class: the number of edges [%] the shortfall reaches (0 = below the first).
+
+    Examples
+    --------
+    >>> shortfall_level(np.array([-5.0, 10.0, 19.9, 35.0]), [10, 20, 30]).tolist()
+    [0, 1, 1, 3]
+    """
+    s = np.asarray(shortfall_pct, dtype=float)
+    return (s[:, None] >= np.asarray(edges, dtype=float)[None, :]).sum(axis=1).astype(np.int64)
+
+
+def _gap_years(d: pd.DataFrame) -> int:
+    g = d.groupby(["county_id", "crop", "practice"])["year"].agg(["min", "max", "count"])
+    return int((g["max"] - g["min"] + 1 - g["count"]).sum())
