@@ -56,7 +56,7 @@ def monthly_inputs() -> pd.DataFrame:
         p[rng.random(n) < zero_share] = 0.0
         tmean = 14.0 + 9.0 * np.sin(2 * np.pi * (m - 4.5) / 12) + rng.normal(0, 1.0, n)
         tmean = np.maximum(tmean, 1.0)  # keep temperatures positive (see tests: heat index)
-        pet = 70.0 + 50.0 * np.sin(2 * np.pi * (m - 4) / 12) + rng.normal(0, 8.0, n)
+        pet = np.maximum(70.0 + 50.0 * np.sin(2 * np.pi * (m - 4) / 12) + rng.normal(0, 8.0, n), 1.0)
         rows.append(pd.DataFrame({"county_id": cid, "date": times, "latitude_deg": lat,
                                   "precip_mm": np.round(p, 3), "tmean_c": np.round(tmean, 3),
                                   "pet_mm": np.round(pet, 3)}))
