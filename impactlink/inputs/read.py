@@ -111,7 +111,10 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
     not a whole number, sentinel value (``-999`` style, :data:`impactlink.schema.SENTINELS`),
     value not finite, negative quantity, duplicate key (the later row is rejected and the
     reason names the earlier row), unknown county, end before start, level outside the
-    ladder, no county or coordinates, coordinates out of range, year out of range, tmin
+    ladder (notice levels and snapshot stages are integers 0..K, 0 meaning no restriction,
+    K the length of the notices impact option ``ladder``, default 3; or an issuer's stage
+    name from the option ``stage_names``, ``{issuer: {name: level}}``, or a name in a
+    ladder of names), no county or coordinates, coordinates out of range, year out of range, tmin
     above tmax, temperature out of range, severity out of range, zero price index, missing
     geometry. Cell-level checks report every bad cell of a row; the rules after them
     (cross-column checks, unknown county, duplicates) look only at rows still usable.
@@ -459,7 +462,8 @@ def _price_index(check: TableCheck, ctx: _Context) -> None:
 
 
 def _notices(check: TableCheck, ctx: _Context) -> None:
-    _levels(check, ctx, "level", allow_zero=False)
+    # level 0 = "restrictions lifted" (the linking stage ends open notices with it)
+    _levels(check, ctx, "level", allow_zero=True)
     _end_before_start(check)
     _coordinates(check)
     c = check.clean

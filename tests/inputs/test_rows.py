@@ -107,6 +107,8 @@ n8,Town of Ash,2001-05-01,,2.5,01003,,
 n9,Town of Ash,2001-05-01,,Voluntary,01003,,
 n1,Town of Ash,2001-07-01,,1,01001,,
 n10,Town of Ash,,,1,01001,,
+n11,Town of Ash,2001-09-01,,0,01001,,
+n12,Town of Ash,2001-09-01,,-1,01001,,
 """
 
 
@@ -125,6 +127,8 @@ def test_notice_rules(base_folder):
     _assert_one(b, "notices", row=9, column="level", reason="level outside the ladder")
     _assert_one(b, "notices", row=10, column="notice_id", reason="duplicate of row 1", value="n1")
     _assert_one(b, "notices", row=11, column="start_date", reason="missing required value")
+    _assert_one(b, "notices", row=13, column="level", reason="level outside the ladder", value="-1")
+    assert 12 not in _only(b, "notices")["row"].tolist()  # level 0 = restrictions lifted
     clean = b.tables["notices"].set_index("notice_id")
     assert clean.loc["n3", "level"] == 1 and clean.loc["n3", "level_label"] == "Voluntary"
     assert clean["level"].dtype == np.int64
