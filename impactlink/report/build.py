@@ -1,0 +1,155 @@
+"""``build_report``: rebuild ``report.html`` (and figures, table copies, map layers) from a
+run folder.
+
+The report is a pure function of the run folder: nothing here recomputes science, so
+``impactlink report RUN_DIR`` gives the same page as the run that wrote the folder.
+"""
+
+from __future__ import annotations
+
+import os
+import warnings
+from collections.abc import Callable
+from pathlib import Path
+
+import pandas as pd
+
+from impactlink.report import sections as S
+from impactlink.report.html import Markup, page
+from impactlink.report.runfolder import ReportInputWarning, RunFolder, read_run_folder
+from impactlink.schema import COUNTY
+
+__all__ = ["build_report", "render_html"]
+
+#: Tables that also get a Parquet copy beside their CSV.
+PARQUET_TABLES = ("skill", "skill_summary", "reliability", "curves", "crossings", "audit",
+                  "outlook", "triggers", "contrast", "reconciliation", "rejected_rows")
+
+
+def build_report(run_dir: str | Path, *, progress: Callable[[str], None] | None = None) -> Path:
+    """Write ``figures/*.png`` and ``report.html`` into a run folder.
+
+    Also writes a Parquet copy of every CSV table that lacks one, and adds per-county
+    layers (``audit``, ``outlook``) to ``counties.gpkg`` when the run did not write them.
+
+    Parameters
+    ----------
+    run_dir : str or Path
+        Output folder of ``impactlink run`` (holding ``manifest.json`` and the tables).
+        Any table may be missing: its section then says it was not computed.
+    progress : callable, optional
+        Called with one short message per step (``progress("report: figures")``).
+
+    Returns
+    -------
+    Path
+        The written ``report.html``.
+
+    Raises
+    ------
+    ReportError
+        If ``run_dir`` does not exist or is not a folder.
+
+    Warns
+    -----
+    ReportInputWarning
+        For each table that is present but unusable, and each figure or section that could
+        not be drawn from the data; the page says the same in words.
+    """
+    say = progress or (lambda _msg: None)
+    say("report: reading the run folder")
+    run = read_run_folder(run_dir)
+    say("report: drawing figures")
+    document, sink = render_html(run, progress=say)
+    say("report: writing files")
+    _write_figures(run.path, sink.files)
+    _write_parquet_copies(run)
+    _write_layers(run)
+    out = run.path / "report.html"
+    tmp = out.with_suffix(".html.tmp")
+    tmp.write_text(document, encoding="utf-8")
+    os.replace(tmp, out)
+    say(f"report: {out}")
+    return out
+
+
+def render_html(run: RunFolder, *, progress: Callable[[str], None] | None = None):
+    """The report page as a string, and the :class:`FigureSink` holding its figures.
+
+    Parameters
+    ----------
+    run : RunFolder
+    progress : callable, optional
+        Called once per section.
+
+    Returns
+    -------
+    (str, FigureSink)
+    """
+    say = progress or (lambda _msg: None)
+    sink = S.FigureSink()
+    man = run.manifest or {}
+    project = man.get("project") or {}
+    name = project.get("name") if isinstance(project, dict) else None
+    title = f"Drought impact report \u2014 {name}" if name else "Drought impact report"
+    subtitle = " \u00b7 ".join(str(p) for p in (
+        f"run of {man['created_utc']}" if man.get("created_utc") else None,
+        f"impactlink {man['impactlink_version']}" if man.get("impactlink_version") else None,
+        f"seed {man['seed']}" if man.get("seed") is not None else None,
+    ) if p) or "run details not recorded"
+    body: list[Markup] = [S.cautions_banner(), S.answer_cards(run, sink)]
+    body.append(S.contents([("summary", "What this run found")]
+                           + [(sid, title) for sid, title, _ in S.SECTIONS]))
+    for sid, stitle, builder in S.SECTIONS:
+        say(f"report: {stitle}")
+        try:
+            body.append(builder(run, sink))
+        # One unexpected table layout must not cost the whole page: the failure is shown in
+        # the section and raised as a warning.
+        except Exception as exc:  # noqa: BLE001
+            warnings.warn(f"report section {sid!r} failed: {type(exc).__name__}: {exc}",
+                          ReportInputWarning, stacklevel=2)
+            body.append(S.not_drawn(sid, stitle, exc))
+    return page(title=title, subtitle=subtitle, body=body), sink
+
+
+def _write_figures(folder: Path, files: dict[str, bytes]) -> None:
+    fig_dir = folder / "figures"
+    fig_dir.mkdir(exist_ok=True)
+    for name, png in files.items():
+        (fig_dir / name).write_bytes(png)
+
+
+def _write_parquet_copies(run: RunFolder) -> None:
+    for name in PARQUET_TABLES:
+        frame = run.table(name)
+        csv, pq = run.path / f"{name}.csv", run.path / f"{name}.parquet"
+        if frame is None or not csv.exists():
+            continue
+        if pq.exists() and pq.stat().st_mtime >= csv.stat().st_mtime:
+            continue
+        try:
+            frame.to_parquet(pq, index=False)
+        except (ValueError, TypeError, ImportError, OSError) as exc:
+            warnings.warn(f"{pq.name}: could not be written ({exc})", ReportInputWarning,
+                          stacklevel=3)
+
+
+def _write_layers(run: RunFolder) -> None:
+    """Add per-county ``audit`` (record period) and ``outlook`` layers if missing."""
+    if run.counties is None:
+        return
+    gpkg = run.path / "counties.gpkg"
+    wanted = {"audit": run.table("audit"), "outlook": run.table("outlook")}
+    for layer, frame in wanted.items():
+        if frame is None or frame.empty or layer in run.layers or COUNTY not in frame.columns:
+            continue
+        if layer == "audit" and "period" in frame.columns:
+            frame = frame[(frame["period"] == "record").fillna(False).to_numpy(bool)]
+        shapes = run.counties[[COUNTY, "geometry"]]
+        joined = shapes.merge(pd.DataFrame(frame), on=COUNTY, how="inner")
+        try:
+            joined.to_file(gpkg, layer=layer, driver="GPKG")
+        except Exception as exc:  # noqa: BLE001 - the GIS copy is a convenience, not the report
+            warnings.warn(f"counties.gpkg: layer {layer!r} could not be written ({exc})",
+                          ReportInputWarning, stacklevel=3)

@@ -1,0 +1,698 @@
+"""The sections of the report, each built from a :class:`RunFolder`.
+
+Every section is a function ``(run, figs) -> Markup``. A section whose inputs are missing
+says so in one line; a figure that cannot be drawn from the data at hand is replaced by a
+note (and a :class:`ReportInputWarning`), so one odd table never stops the page.
+"""
+
+from __future__ import annotations
+
+import json
+import warnings
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from impactlink.report import figures as F
+from impactlink.report import maps as M
+from impactlink.report.html import Markup, details, el, esc, image, join, link, paragraph, table
+from impactlink.report.runfolder import ReportInputWarning, RunFolder
+from impactlink.report.text import (
+    CAUTIONS,
+    answer_card,
+    candidate_label,
+    fmt_interval,
+    fmt_num,
+    index_name,
+    score_label,
+)
+from impactlink.schema import COUNTY
+
+__all__ = ["FigureSink", "SECTIONS", "cautions_banner", "answer_cards", "REFERENCES"]
+
+NOT_COMPUTED = "Not computed in this run."
+
+
+@dataclass
+class FigureSink:
+    """Renders figures to PNG, keeps them for writing to ``figures/`` and embeds them.
+
+    Attributes
+    ----------
+    files : dict
+        File name -> PNG bytes of every figure drawn so far.
+    alts : dict
+        File name -> alt text.
+    """
+
+    files: dict[str, bytes] = field(default_factory=dict)
+    alts: dict[str, str] = field(default_factory=dict)
+
+    def add(self, name: str, draw, *, alt: str, caption: str | None = None) -> Markup:
+        """Draw a figure (``draw()`` returns a Figure) and return its embedded image.
+
+        Any error from ``draw`` becomes a short note in the page and a warning.
+        """
+        try:
+            fig = draw()
+        except (F.FigureInputError, ValueError, KeyError, TypeError, IndexError) as exc:
+            message = f"Figure {name!r} could not be drawn: {exc}"
+            warnings.warn(message, ReportInputWarning, stacklevel=2)
+            return paragraph(message, class_="absent")
+        png = F.figure_png(fig)
+        file = _slug(name) + ".png"
+        self.files[file] = png
+        self.alts[file] = alt
+        return image(png, alt=alt, caption=caption, name=file)
+
+
+def _slug(text: str) -> str:
+    keep = "".join(ch if ch.isalnum() else "_" for ch in str(text).lower())
+    return "_".join(part for part in keep.split("_") if part)[:80] or "figure"
+
+
+def _absent(what: str = NOT_COMPUTED) -> Markup:
+    return paragraph(what, class_="absent")
+
+
+def _section(sid: str, title: str, *content) -> Markup:
+    return el("section", el("h2", title), *content, id=sid, aria_labelledby=None)
+
+
+def _files(run: RunFolder, *names: str) -> Markup:
+    present = []
+    for name in names:
+        for ext in (".csv", ".parquet", ".gpkg", ".json"):
+            if (run.path / f"{name}{ext}").exists():
+                present.append(link(f"{name}{ext}", f"{name}{ext}"))
+    if not present:
+        return Markup("")
+    return el("p", "Numbers behind this section: ", join(present, ", "), class_="files")
+
+
+def _sel(frame: pd.DataFrame, **equal) -> pd.DataFrame:
+    mask = np.ones(len(frame), dtype=bool)
+    for col, value in equal.items():
+        mask &= (frame[col] == value).fillna(False).to_numpy(dtype=bool)
+    return frame.loc[mask]
+
+
+def _pairs(frame: pd.DataFrame) -> list[tuple[str, str]]:
+    return list(dict.fromkeys(zip(frame["impact"].astype(str), frame["target"].astype(str),
+                                  strict=True)))
+
+
+def _score_for(run: RunFolder, impact: str, target: str) -> str:
+    summary = run.table("skill_summary")
+    if summary is not None and "score_name" in summary.columns:
+        row = _sel(summary, impact=impact, target=target)
+        if not row.empty and pd.notna(row["score_name"].iloc[0]):
+            return str(row["score_name"].iloc[0])
+    skill = run.table("skill")
+    if skill is not None and "rpss" in skill.columns:
+        if _sel(skill, impact=impact, target=target)["rpss"].notna().any():
+            return "rpss"
+    return "bss"
+
+
+def _county_names(run: RunFolder) -> pd.DataFrame | None:
+    if run.counties is None:
+        return None
+    cols = [c for c in (COUNTY, "county_name", "region") if c in run.counties.columns]
+    return pd.DataFrame(run.counties[cols])
+
+
+def _with_names(run: RunFolder, frame: pd.DataFrame) -> pd.DataFrame:
+    names = _county_names(run)
+    if names is None or COUNTY not in frame.columns:
+        return frame
+    out = frame.merge(names, on=COUNTY, how="left")
+    lead = [c for c in (COUNTY, "county_name", "region") if c in out.columns]
+    return out[lead + [c for c in out.columns if c not in lead]]
+
+
+# ---------------------------------------------------------------------- first screen
+def cautions_banner() -> Markup:
+    """The short cautions box shown on the first screen."""
+    items = [el("li", el("strong", head + ": "), body.split(". ")[0] + ".")
+             for head, body in CAUTIONS]
+    return el("aside", el("strong", "Read with care"), el("ul", *items),
+              paragraph("Full text in ", link("#cautions", "Cautions"), "."),
+              class_="cautions", aria_label="cautions")
+
+
+def answer_cards(run: RunFolder, figs: FigureSink | None = None) -> Markup:
+    """Per-impact answer cards: which index and time scale, how good, how sure."""
+    summary = run.table("skill_summary")
+    if summary is None or summary.empty:
+        return _section("summary", "What this run found", _absent(
+            "Not computed in this run: no skill summary was written, so no index can be "
+            "recommended."))
+    skill = run.table("skill")
+    cards = []
+    for impact, rows in summary.groupby("impact", sort=False):
+        if "role" in rows.columns:
+            rows = rows.assign(_p=(rows["role"] != "primary").fillna(True)).sort_values(
+                "_p", kind="stable")
+        answers = [answer_card(r, skill) for _, r in rows.iterrows()]
+        main, others = answers[0], answers[1:]
+        dl = el("dl",
+                el("dt", "Best predictor"), el("dd", main.which),
+                el("dt", "How good"), el("dd", main.how_good),
+                el("dt", "Against baselines"), el("dd", main.baselines or "No baselines scored."),
+                el("dt", "How sure"), el("dd", main.how_sure),
+                el("dt", "Evidence"), el("dd", main.rests_on),
+                *( [el("dt", "Beyond persistence"), el("dd", main.persistence)]
+                   if main.persistence else []))
+        extra = [el("li", el("strong", f"{a.target}: "), f"{a.which}. {a.verdict} "
+                    f"{a.how_sure} {a.persistence}".strip()) for a in others]
+        cards.append(el(
+            "article",
+            el("h3", f"{impact} \u2014 {main.target}"),
+            paragraph(main.verdict, class_="verdict"),
+            dl,
+            el("ul", *extra, class_="others") if extra else Markup(""),
+            class_="card",
+        ))
+    return _section("summary", "What this run found",
+                    paragraph("For each impact: the index, time scale and lag that predicted it "
+                              "best out of sample, how much better than the baselines, and how "
+                              "sure we can be."),
+                    el("div", *cards, class_="cards"),
+                    _files(run, "skill_summary"))
+
+
+def contents(entries: list[tuple[str, str]]) -> Markup:
+    """Table of contents (hidden in print)."""
+    return el("nav", el("ol", *[el("li", link(f"#{sid}", title)) for sid, title in entries]),
+              aria_label="contents")
+
+
+# ------------------------------------------------------------------------- data section
+def data_section(run: RunFolder, figs: FigureSink) -> Markup:
+    parts = []
+    man = run.manifest or {}
+    inputs = pd.DataFrame(man.get("inputs") or [])
+    if not inputs.empty:
+        shown = inputs.copy()
+        if "sha256" in shown.columns:
+            shown["sha256"] = shown["sha256"].astype(str).str[:12] + "\u2026"
+        parts.append(table(shown, caption="Inputs read (checksums in full under Provenance)"))
+        if {"date_min", "date_max"} <= set(inputs.columns):
+            spans = ", ".join(f"{r.table} {str(r.date_min)[:4]}\u2013{str(r.date_max)[:4]}"
+                              for r in inputs.itertuples())
+            parts.append(figs.add("record_timeline", lambda: F.record_timeline(inputs),
+                                  alt=f"Bar chart of the record span of each input: {spans}."))
+    else:
+        parts.append(_absent("Inputs: not recorded in this run (no manifest.json)."))
+    rec = run.table("reconciliation")
+    if rec is None and man.get("impacts"):
+        rec = pd.DataFrame(man["impacts"])
+    if rec is not None and not rec.empty:
+        parts.append(el("h3", "Impact records"))
+        parts.append(table(rec, caption="Impact records: used, rejected, outside coverage "
+                           "(outside coverage = unknown, not impact-free)"))
+    rej = run.table("rejected_rows")
+    parts.append(el("h3", "Rejected rows"))
+    if rej is None:
+        parts.append(_absent("No list of rejected rows in this run."))
+    elif rej.empty:
+        parts.append(paragraph("No input row was rejected."))
+    else:
+        counts = (rej.groupby(["table", "reason"], dropna=False).size()
+                  .rename("rows").reset_index().sort_values("rows", ascending=False))
+        parts.append(table(counts, caption="Why rows were rejected"))
+        parts.append(details(f"First rows of {len(rej)} rejected", table(rej, max_rows=50)))
+    names = _county_names(run)
+    if names is not None:
+        parts.append(el("h3", "Counties"))
+        parts.append(details(f"{len(names)} counties in the study area", table(names)))
+    if run.problems:
+        parts.append(el("h3", "Files that could not be used"))
+        parts.append(el("ul", *[el("li", p) for p in run.problems]))
+    parts.append(_files(run, "reconciliation", "rejected_rows", "manifest"))
+    return _section("data", "Data and coverage", *parts)
+
+
+# ------------------------------------------------------------------------------ curves
+def curves_section(run: RunFolder, figs: FigureSink) -> Markup:
+    curves = run.table("curves")
+    if curves is None or curves.empty:
+        return _section("curves", "Impact curves", _absent())
+    crossings = run.table("crossings")
+    parts = [paragraph("How the chance of each impact level rises as the best index gets "
+                       "drier. Shaded bands are intervals; crosses mark where a curve passes a "
+                       "chance of 10, 25 or 50 %.")]
+    for impact, target in _pairs(curves):
+        sub = _sel(curves, impact=impact, target=target)
+        first = sub.iloc[0]
+        parts.append(el("h3", f"{impact} \u2014 {target}"))
+        cr = None
+        if crossings is not None:
+            cr = _sel(crossings, impact=impact, target=target)
+        alt = (f"Impact curve for {impact}, {target}: chance of impact from 0 to 1 against "
+               f"{candidate_label(first['index'], first['scale_weeks'], first.get('lag_weeks'))}"
+               " values; the chance rises as the index gets drier.")
+        if cr is not None and not cr.empty:
+            mid = cr.sort_values("prob_level").iloc[len(cr) // 2]
+            alt += (f" The curve for '{mid.get('level_label', '')}' passes "
+                    f"{fmt_num(mid['prob_level'])} at index value {fmt_num(mid['x_cross'])}.")
+        parts.append(figs.add(f"curve_{impact}_{target}",
+                              lambda s=sub, c=cr, i=impact, t=target: F.impact_curves(
+                                  s, c, impact=i, target=t), alt=alt))
+        if cr is not None and not cr.empty:
+            cols = [c for c in ("level_label", "prob_level", "x_cross", "x_lo", "x_hi")
+                    if c in cr.columns]
+            parts.append(table(cr[cols], caption="Index value at which each chance is reached"))
+    parts.append(_files(run, "curves", "crossings"))
+    return _section("curves", "Impact curves", *parts)
+
+
+# ------------------------------------------------------------------------------- skill
+def skill_section(run: RunFolder, figs: FigureSink) -> Markup:
+    skill = run.table("skill")
+    if skill is None or skill.empty:
+        return _section("skill", "Skill by index, time scale and lag", _absent())
+    parts = [paragraph(
+        "Out-of-sample skill of every candidate, scored on years left out of the fit. Darker "
+        "cells are better; hatched cells are no better than the climatological base rate; "
+        "a dot marks candidates statistically as good as the best, and the framed cell is the "
+        "best.")]
+    for impact, target in _pairs(skill):
+        score = _score_for(run, impact, target)
+        if score not in skill.columns:
+            continue
+        sub = _sel(skill, impact=impact, target=target)
+        cand = F._candidates(sub).dropna(subset=[score])
+        if cand.empty:
+            continue
+        best = cand.loc[cand[score].idxmax()]
+        parts.append(el("h3", f"{impact} \u2014 {target}"))
+        label = candidate_label(best["index"], best["scale_weeks"], best["lag_weeks"])
+        parts.append(figs.add(
+            f"skill_{impact}_{target}",
+            lambda s=sub, i=impact, t=target, sc=score: F.skill_heatmap(
+                s, impact=i, target=t, score=sc),
+            alt=(f"Heat maps of {score_label(score)} for {impact}, {target}, by time scale "
+                 f"(weeks, rows) and lag (weeks, columns), one panel per index "
+                 f"({', '.join(index_name(i) for i in sorted(cand['index'].unique()))}). "
+                 f"Best: {label}, score {fmt_num(best[score])}.")))
+        if {f"{score}_lo", f"{score}_hi"} <= set(sub.columns):
+            parts.append(figs.add(
+                f"candidates_{impact}_{target}",
+                lambda s=sub, i=impact, t=target, sc=score: F.candidate_intervals(
+                    s, impact=i, target=t, score=sc),
+                alt=(f"Dot-and-interval chart of the ten best candidates for {impact}, "
+                     f"{target}, with seasonal and persistence baselines as vertical lines. "
+                     f"Best: {label}, {fmt_interval(best[score], best[f'{score}_lo'], best[f'{score}_hi'])}.")))
+    parts.append(_persistence_part(run, figs))
+    parts.append(_files(run, "skill", "skill_summary"))
+    return _section("skill", "Skill by index, time scale and lag", *parts)
+
+
+def _persistence_part(run: RunFolder, figs: FigureSink) -> Markup:
+    skill = run.table("skill")
+    has = skill["model"].isin(["persistence", "index_plus_persistence"]).fillna(False)
+    impacts = [i for i in dict.fromkeys(skill.loc[has.to_numpy(bool), "impact"].astype(str))
+               if (_sel(skill, impact=i)["model"] == "index_plus_persistence").any()]
+    if not impacts:
+        return Markup("")
+    parts = [el("h3", "Warning beyond persistence"),
+             paragraph("Where an impact tends to continue once it has started, simply "
+                       "assuming it continues (persistence) is a strong baseline. These "
+                       "charts compare the index alone, persistence alone, and both together.")]
+    summary = run.table("skill_summary")
+    for impact in impacts:
+        targets = list(dict.fromkeys(_sel(skill, impact=impact)["target"].astype(str)))
+        score = _score_for(run, impact, targets[0])
+        if not {score, f"{score}_lo", f"{score}_hi"} <= set(skill.columns):
+            continue
+        rows = []
+        for tgt in targets:
+            g = _sel(skill, impact=impact, target=tgt)
+            for label, pick in (("index alone", F._candidates(g)),
+                                ("persistence alone", g[(g["model"] == "persistence")
+                                                        .fillna(False).to_numpy(bool)]),
+                                ("index + persistence", g[(g["model"] == "index_plus_persistence")
+                                                          .fillna(False).to_numpy(bool)])):
+                pick = pick.dropna(subset=[score])
+                if pick.empty:
+                    continue
+                r = pick.loc[pick[score].idxmax()]
+                what = (candidate_label(r["index"], r["scale_weeks"], r["lag_weeks"], short=True)
+                        if pd.notna(r["index"]) else "")
+                rows.append({"target": tgt, "model": label, "candidate": what,
+                             score_label(score): fmt_interval(r[score], r[f"{score}_lo"],
+                                                              r[f"{score}_hi"])})
+        parts.append(figs.add(
+            f"persistence_{impact}",
+            lambda i=impact, sc=score: F.persistence_comparison(skill, impact=i, score=sc),
+            alt=(f"Dot-and-interval chart for {impact}: {score_label(score)} of the index alone, "
+                 f"persistence alone and index plus persistence, for {', '.join(targets)}.")))
+        parts.append(table(pd.DataFrame(rows), caption=f"{impact}: with and without persistence"))
+        if summary is not None and "persistence_sentence" in summary.columns:
+            sentences = _sel(summary, impact=impact)["persistence_sentence"].dropna()
+            parts.append(el("ul", *[el("li", s) for s in sentences]))
+    return join(parts)
+
+
+# ------------------------------------------------------------------------- reliability
+def reliability_section(run: RunFolder, figs: FigureSink) -> Markup:
+    rel = run.table("reliability")
+    if rel is None or rel.empty:
+        return _section("reliability", "Reliability", _absent())
+    parts = [paragraph("Do stated chances come true as often as they say? Points on the dashed "
+                       "diagonal are reliable; points below it mean the model over-warns, above "
+                       "it under-warns. Bars show how many forecasts fell in each bin.")]
+    for impact, target in _pairs(rel):
+        sub = _sel(rel, impact=impact, target=target)
+        models = ", ".join(dict.fromkeys(sub["model"].astype(str)))
+        parts.append(el("h3", f"{impact} \u2014 {target}"))
+        parts.append(figs.add(
+            f"reliability_{impact}_{target}",
+            lambda s=sub, i=impact, t=target: F.reliability_diagram(s, impact=i, target=t),
+            alt=(f"Reliability diagram for {impact}, {target}: observed frequency (0 to 1) "
+                 f"against forecast chance (0 to 1) for models {models}, with forecast counts "
+                 "per bin below.")))
+    parts.append(_files(run, "reliability"))
+    return _section("reliability", "Reliability", *parts)
+
+
+# -------------------------------------------------------------------------------- maps
+def maps_section(run: RunFolder, figs: FigureSink) -> Markup:
+    best = run.layers.get("best_candidate")
+    if run.counties is None or best is None or len(best) == 0:
+        return _section("maps", "County maps", _absent())
+    best = pd.DataFrame(best.drop(columns="geometry", errors="ignore"))
+    parts = [paragraph("Per county: which candidate predicted best, how well, and how many "
+                       "events that estimate rests on. Few events mean a fragile estimate.")]
+    keys = ["impact", "target"] if "target" in best.columns else ["impact"]
+    for key, sub in best.groupby(keys, sort=False):
+        key = key if isinstance(key, tuple) else (key,)
+        title = " \u2014 ".join(str(k) for k in key)
+        sub = sub.assign(candidate=[
+            candidate_label(r.get("index"), r.get("scale_weeks"), r.get("lag_weeks"), short=True)
+            for _, r in sub.iterrows()])
+        panels = [M.MapPanel(sub, "candidate", title="best candidate", label="candidate",
+                             kind="categorical")]
+        if "skill" in sub.columns:
+            panels.append(M.MapPanel(sub, "skill", title="skill", label="skill score (0 = base rate)"))
+        if "events" in sub.columns:
+            panels.append(M.MapPanel(sub, "events", title="events", label="events (count)"))
+        n_cand = sub["candidate"].nunique()
+        parts.append(el("h3", title))
+        parts.append(figs.add(
+            f"map_best_{'_'.join(map(str, key))}",
+            lambda p=panels, t=title: M.county_panels(run.counties, p, suptitle=t),
+            alt=(f"County maps for {title}: best candidate ({n_cand} different candidates across "
+                 f"{len(sub)} counties), skill score, and number of events per county.")))
+        cols = [c for c in ("county_id", "candidate", "skill", "events") if c in sub.columns]
+        parts.append(details("Per-county values", table(_with_names(run, sub[cols]))))
+    parts.append(paragraph("Layers for GIS use are in ", link("counties.gpkg", "counties.gpkg"),
+                           ".", class_="files"))
+    return _section("maps", "County maps", *parts)
+
+
+# ------------------------------------------------------------------------------- audit
+def audit_section(run: RunFolder, figs: FigureSink) -> Markup:
+    audit = run.table("audit")
+    if audit is None or audit.empty:
+        return _section("audit", "Threshold audit", _absent())
+    parts = [paragraph(
+        "Does each stage of a threshold ladder occur as often as its definition implies? A "
+        "ratio of observed to expected share of weeks above 1 means the stage is reached more "
+        "often than intended. The local threshold is the index value that would give the "
+        "expected share in that county. Drift compares an early and a late period.")]
+    for ladder, sub in audit.groupby("ladder", sort=False):
+        parts.append(el("h3", f"Ladder {ladder}"))
+        rec = _sel(sub, period="record")
+        med = rec.groupby("stage", observed=True)["observed_share"].median()
+        alt_stages = "; ".join(
+            f"{st}: expected {fmt_num(rec[rec['stage'] == st]['expected_share'].median(), 3)}, "
+            f"median observed {fmt_num(v, 3)}" for st, v in med.items())
+        parts.append(figs.add(
+            f"audit_{ladder}",
+            lambda s=sub, lad=ladder: F.audit_shares(s, ladder=lad),
+            alt=(f"Threshold audit for ladder {ladder}: observed over expected share of weeks "
+                 f"per county and stage, and early versus late period. {alt_stages}.")))
+        parts.append(table(_audit_summary(sub), caption="Summary over counties (medians)"))
+        if run.counties is not None and "local_threshold" in rec.columns:
+            for stage, st in rec.groupby("stage", sort=False):
+                thr = pd.to_numeric(st.get("threshold"), errors="coerce")
+                uniform = float(thr.median()) if thr is not None and thr.notna().any() else None
+                loc = pd.to_numeric(st["local_threshold"], errors="coerce")
+                lo = np.nanmin([loc.min(), uniform if uniform is not None else np.nan])
+                hi = np.nanmax([loc.max(), uniform if uniform is not None else np.nan])
+                panels = []
+                if uniform is not None:
+                    panels.append(M.MapPanel(st.assign(_u=uniform), "_u",
+                                             title=f"uniform threshold {fmt_num(uniform)}",
+                                             label="index value", vmin=lo, vmax=hi))
+                panels.append(M.MapPanel(st, "local_threshold", title="local threshold",
+                                         label="index value", vmin=lo, vmax=hi))
+                if "ratio" in st.columns:
+                    panels.append(M.MapPanel(st, "ratio", title="observed / expected",
+                                             label="ratio (1 = as defined)"))
+                parts.append(figs.add(
+                    f"audit_map_{ladder}_{stage}",
+                    lambda p=panels, t=f"{ladder} \u2014 {stage}": M.county_panels(
+                        run.counties, p, suptitle=t),
+                    alt=(f"County maps for stage {stage} of ladder {ladder}: the uniform "
+                         f"threshold {fmt_num(uniform)} beside the local threshold per county "
+                         f"(from {fmt_num(loc.min())} to {fmt_num(loc.max())}) and the "
+                         "observed over expected ratio.")))
+        cols = [c for c in (COUNTY, "stage", "period", "threshold", "expected_share",
+                            "observed_share", "ratio", "ratio_lo", "ratio_hi", "local_threshold",
+                            "local_threshold_lo", "local_threshold_hi", "weeks") if c in sub.columns]
+        parts.append(details("Per-county audit", table(_with_names(run, sub[cols]))))
+    parts.append(_files(run, "audit"))
+    return _section("audit", "Threshold audit", *parts)
+
+
+def _audit_summary(sub: pd.DataFrame) -> pd.DataFrame:
+    agg = {"expected_share": "median", "observed_share": "median"}
+    for col in ("ratio", "local_threshold", "threshold"):
+        if col in sub.columns:
+            agg[col] = "median"
+    out = sub.groupby(["stage", "period"], observed=True, sort=False).agg(agg)
+    if {"ratio_lo", "ratio_hi"} <= set(sub.columns):
+        g = sub.groupby(["stage", "period"], observed=True, sort=False)
+        out["counties_more_often"] = g["ratio_lo"].apply(lambda s: int((s > 1).sum()))
+        out["counties_less_often"] = g["ratio_hi"].apply(lambda s: int((s < 1).sum()))
+    return out.reset_index()
+
+
+# ------------------------------------------------------------- triggers and contrasts
+def _plain_table_section(run: RunFolder, sid: str, title: str, name: str, intro: str) -> Markup:
+    frame = run.table(name)
+    if frame is None:
+        return _section(sid, title, _absent())
+    if frame.empty:
+        return _section(sid, title, paragraph("The table is empty in this run."))
+    return _section(sid, title, paragraph(intro), table(_with_names(run, frame)),
+                    _files(run, name))
+
+
+def triggers_section(run: RunFolder, figs: FigureSink) -> Markup:
+    return _plain_table_section(
+        run, "triggers", "Trigger plan replay and tuning", "triggers",
+        "How the trigger plan would have performed over the record, with uniform and local "
+        "thresholds: hits, false alarms and lead time.")
+
+
+def contrast_section(run: RunFolder, figs: FigureSink) -> Markup:
+    return _plain_table_section(
+        run, "contrast", "County contrasts", "contrast",
+        "County characteristics associated with different impacts at similar index values "
+        "(association only).")
+
+
+# ----------------------------------------------------------------------------- outlook
+def outlook_section(run: RunFolder, figs: FigureSink) -> Markup:
+    out = run.table("outlook")
+    if out is None or out.empty:
+        return _section("outlook", "Outlook", _absent())
+    as_of = ", ".join(dict.fromkeys(out["as_of_week"].astype(str))) if "as_of_week" in out else "?"
+    parts = [paragraph(f"Chance of each impact now and some weeks ahead, from index values up "
+                       f"to the week of {as_of}. These are chances, not predictions of "
+                       "certainty.")]
+    keys = [k for k in ("impact", "target", "level_label") if k in out.columns]
+    for key, sub in out.groupby(keys, sort=False):
+        key = key if isinstance(key, tuple) else (key,)
+        title = " \u2014 ".join(str(k) for k in key)
+        horizons = sorted(pd.to_numeric(sub["horizon_weeks"], errors="coerce").dropna().unique())
+        parts.append(el("h3", title))
+        if run.counties is not None:
+            panels = [M.MapPanel(_sel(sub, horizon_weeks=h), "prob",
+                                 title="now" if h == 0 else f"{int(h)} weeks ahead",
+                                 label="chance (0\u20131)", vmin=0.0, vmax=1.0) for h in horizons]
+            prob = pd.to_numeric(sub["prob"], errors="coerce")
+            parts.append(figs.add(
+                f"outlook_{'_'.join(map(str, key))}",
+                lambda p=panels, t=title: M.county_panels(run.counties, p, suptitle=t),
+                alt=(f"County maps of the chance of {title} at horizons "
+                     f"{', '.join(str(int(h)) for h in horizons)} weeks; chances range from "
+                     f"{fmt_num(prob.min())} to {fmt_num(prob.max())}.")))
+        cols = [c for c in (COUNTY, "horizon_weeks", "prob", "prob_lo", "prob_hi", "index",
+                            "scale_weeks", "lag_weeks") if c in sub.columns]
+        ranked = sub[cols].sort_values(["horizon_weeks", "prob"], ascending=[True, False])
+        parts.append(details("Per-county chances", table(_with_names(run, ranked))))
+    parts.append(_files(run, "outlook"))
+    return _section("outlook", "Outlook", *parts)
+
+
+# ----------------------------------------------------------------------------- methods
+REFERENCES = (
+    "Allen, R. G., Pereira, L. S., Raes, D. and Smith, M. (1998). Crop evapotranspiration: "
+    "guidelines for computing crop water requirements. FAO Irrigation and Drainage Paper 56. "
+    "FAO, Rome.",
+    "Brier, G. W. (1950). Verification of forecasts expressed in terms of probability. "
+    "Monthly Weather Review, 78(1), 1\u20133. doi:10.1175/1520-0493(1950)078<0001:VOFEIT>2.0.CO;2",
+    "Efron, B. and Tibshirani, R. J. (1993). An Introduction to the Bootstrap. Chapman & Hall, "
+    "New York.",
+    "Epstein, E. S. (1969). A scoring system for probability forecasts of ranked categories. "
+    "Journal of Applied Meteorology, 8(6), 985\u2013987.",
+    "Hargreaves, G. H. and Samani, Z. A. (1985). Reference crop evapotranspiration from "
+    "temperature. Applied Engineering in Agriculture, 1(2), 96\u201399.",
+    "Hobbins, M. T., Wood, A., McEvoy, D. J., Huntington, J. L., Morton, C., Anderson, M. and "
+    "Hain, C. (2016). The Evaporative Demand Drought Index. Part I: Linking drought evolution "
+    "to variations in evaporative demand. Journal of Hydrometeorology, 17(6), 1745\u20131761. "
+    "doi:10.1175/JHM-D-15-0121.1",
+    "Hosking, J. R. M. (1990). L-moments: analysis and estimation of distributions using "
+    "linear combinations of order statistics. Journal of the Royal Statistical Society B, "
+    "52(1), 105\u2013124.",
+    "Künsch, H. R. (1989). The jackknife and the bootstrap for general stationary "
+    "observations. The Annals of Statistics, 17(3), 1217\u20131241.",
+    "McCullagh, P. (1980). Regression models for ordinal data. Journal of the Royal "
+    "Statistical Society B, 42(2), 109\u2013142.",
+    "McKee, T. B., Doesken, N. J. and Kleist, J. (1993). The relationship of drought "
+    "frequency and duration to time scales. Proceedings of the 8th Conference on Applied "
+    "Climatology, American Meteorological Society, Boston, 179\u2013184.",
+    "Murphy, A. H. (1973). A new vector partition of the probability score. Journal of "
+    "Applied Meteorology, 12(4), 595\u2013600.",
+    "Singer, J. D. and Willett, J. B. (1993). It's about time: using discrete-time survival "
+    "analysis to study duration and the timing of events. Journal of Educational Statistics, "
+    "18(2), 155\u2013195.",
+    "Varma, S. and Simon, R. (2006). Bias in error estimation when using cross-validation for "
+    "model selection. BMC Bioinformatics, 7, 91. doi:10.1186/1471-2105-7-91",
+    "Vicente-Serrano, S. M., Beguería, S. and López-Moreno, J. I. (2010). A multiscalar "
+    "drought index sensitive to global warming: the Standardized Precipitation "
+    "Evapotranspiration Index. Journal of Climate, 23(7), 1696\u20131718. "
+    "doi:10.1175/2009JCLI2909.1",
+    "World Meteorological Organization (2012). Standardized Precipitation Index User Guide "
+    "(M. Svoboda, M. Hayes and D. Wood). WMO-No. 1090, Geneva.",
+)
+
+_METHODS = (
+    ("Indices",
+     "Climate records are summed into ISO 8601 weeks and accumulated over each time scale. "
+     "The standardized precipitation index (SPI; McKee et al. 1993; WMO 2012) maps "
+     "accumulated precipitation through a fitted distribution to the standard normal scale; "
+     "the SPEI does the same for precipitation minus potential evapotranspiration "
+     "(Vicente-Serrano et al. 2010), with potential evapotranspiration from temperature "
+     "(Hargreaves & Samani 1985) or the FAO-56 reference method (Allen et al. 1998). "
+     "Evaporative demand is standardized non-parametrically (Hobbins et al. 2016). "
+     "Distributions are fitted per week of the year over the calibration period."),
+    ("Impact models",
+     "Yes/no impacts use logistic regression; ranked impact levels use the proportional-odds "
+     "model (McCullagh 1980). The onset of restrictions is modelled in discrete time "
+     "(Singer & Willett 1993). Sparse counties borrow strength from their region."),
+    ("Skill",
+     "Every candidate (index, time scale, lag, model) is scored on whole years left out of "
+     "the fit. Scores are the Brier score (Brier 1950) and the ranked probability score "
+     "(Epstein 1969), expressed as skill against the climatological base rate; reliability "
+     "follows the decomposition of Murphy (1973). Intervals come from a bootstrap over whole "
+     "years (Efron & Tibshirani 1993; Künsch 1989). Because picking the best of many "
+     "candidates flatters its score, a selection-aware (nested) estimate is reported beside "
+     "the best candidate's own score (Varma & Simon 2006). Candidates whose difference from "
+     "the best is within bootstrap noise are listed as statistically as good."),
+    ("Threshold audit",
+     "For each stage of a threshold ladder, the share of weeks at or below the threshold is "
+     "compared with the share its definition implies, per county, with year-block bootstrap "
+     "intervals; the local threshold giving the expected share is estimated by the empirical "
+     "quantile. Distributions use L-moment estimators where fitted (Hosking 1990)."),
+)
+
+
+def methods_section(run: RunFolder, figs: FigureSink) -> Markup:
+    parts = []
+    for head, text in _METHODS:
+        parts.append(el("h3", head))
+        parts.append(paragraph(text))
+    parts.append(el("h3", "References"))
+    parts.append(el("ol", *[el("li", r) for r in REFERENCES], class_="refs"))
+    return _section("methods", "Methods", *parts)
+
+
+def cautions_section(run: RunFolder, figs: FigureSink) -> Markup:
+    parts = []
+    for head, text in CAUTIONS:
+        parts.append(el("h3", head))
+        parts.append(paragraph(text))
+    warn = (run.manifest or {}).get("warnings") or []
+    if warn:
+        parts.append(el("h3", "Warnings raised during this run"))
+        parts.append(el("ul", *[el("li", w) for w in warn]))
+    return _section("cautions", "Cautions", *parts)
+
+
+# -------------------------------------------------------------------------- provenance
+def provenance_section(run: RunFolder, figs: FigureSink) -> Markup:
+    man = run.manifest
+    if not man:
+        return _section("provenance", "Provenance", _absent(
+            "Not recorded in this run: manifest.json is missing."))
+    facts = pd.DataFrame([
+        ("impactlink version", man.get("impactlink_version")),
+        ("run created (UTC)", man.get("created_utc")),
+        ("seed", man.get("seed")),
+        ("run folder", str(Path(run.path).resolve())),
+    ], columns=["item", "value"])
+    parts = [table(facts, caption="This run")]
+    inputs = pd.DataFrame(man.get("inputs") or [])
+    if not inputs.empty:
+        cols = [c for c in ("table", "file", "sha256", "rows_read", "rows_used", "rows_rejected")
+                if c in inputs.columns]
+        parts.append(table(inputs[cols], caption="Inputs with SHA-256 checksums"))
+    versions = man.get("versions") or {}
+    if versions:
+        parts.append(table(pd.DataFrame(sorted(versions.items()), columns=["package", "version"]),
+                           caption="Package versions"))
+    timings = man.get("timings_s") or {}
+    if timings:
+        parts.append(table(pd.DataFrame(list(timings.items()), columns=["stage", "seconds"]),
+                           caption="Time per stage", digits=1))
+    if man.get("project"):
+        parts.append(details("Settings of this run", el("pre", json.dumps(
+            man["project"], indent=2, sort_keys=True, default=str))))
+    parts.append(_files(run, "manifest"))
+    return _section("provenance", "Provenance", *parts)
+
+
+#: Sections after the first screen, in page order: (id, title, builder).
+SECTIONS = (
+    ("data", "Data and coverage", data_section),
+    ("curves", "Impact curves", curves_section),
+    ("skill", "Skill by index, time scale and lag", skill_section),
+    ("reliability", "Reliability", reliability_section),
+    ("maps", "County maps", maps_section),
+    ("audit", "Threshold audit", audit_section),
+    ("triggers", "Trigger plan replay and tuning", triggers_section),
+    ("contrast", "County contrasts", contrast_section),
+    ("outlook", "Outlook", outlook_section),
+    ("methods", "Methods", methods_section),
+    ("cautions", "Cautions", cautions_section),
+    ("provenance", "Provenance", provenance_section),
+)
+
+
+def not_drawn(sid: str, title: str, exc: Exception) -> Markup:
+    """Stand-in for a section whose builder failed on unexpected data."""
+    return _section(sid, title, _absent(
+        f"This section could not be built from this run's tables ({type(exc).__name__}: "
+        f"{exc})."))
+
+
+__all__ += ["contents", "not_drawn", "esc"]

@@ -1,0 +1,280 @@
+"""Plain-language sentences for the report, built from result rows.
+
+Every function returns plain text (no markup); the HTML layer escapes it. Wording is our
+own and aimed at committee members and county officials: numbers are rounded, intervals
+are written "from ... to ...", and each answer says what it rests on.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import pandas as pd
+
+__all__ = [
+    "index_name",
+    "score_label",
+    "candidate_label",
+    "fmt_num",
+    "fmt_interval",
+    "Answer",
+    "answer_card",
+    "verdict",
+    "CAUTIONS",
+]
+
+_INDEX_NAMES = {
+    "spi": "SPI",
+    "spei": "SPEI",
+    "eddi": "EDDI",
+    "soil_moisture_pct": "soil-moisture percentile",
+    "streamflow_pct": "streamflow percentile",
+}
+
+_SCORE_LABELS = {
+    "bss": "Brier skill score",
+    "rpss": "ranked probability skill score",
+    "brier": "Brier score",
+    "roc_auc": "ROC area",
+}
+
+#: The cautions every report carries (short banner form first, then the full text).
+CAUTIONS = (
+    (
+        "Association, not cause",
+        "These results describe statistical association between index values and recorded "
+        "impacts. They do not show that dryness caused any impact, nor that acting on an "
+        "index will prevent one.",
+    ),
+    (
+        "Limits of the data",
+        "Impact records are only as complete as their coverage and the effort spent "
+        "reporting them. Short records and few events make every estimate uncertain; "
+        "weeks outside a source's coverage are unknown, not impact-free. Intervals shown "
+        "are the honest range, not decoration.",
+    ),
+    (
+        "Decisions belong to the responsible authorities",
+        "Declarations, restrictions and relief decisions rest with the responsible "
+        "authorities, under local codes and licensed professional practice. This report is "
+        "one input to their judgement, not a substitute for it.",
+    ),
+)
+
+
+def index_name(index) -> str:
+    """Display name of an index ("spi" -> "SPI"); unknown names are kept as given."""
+    if index is None or (isinstance(index, float) and math.isnan(index)) or index is pd.NA:
+        return "no index"
+    return _INDEX_NAMES.get(str(index).lower(), str(index))
+
+
+def score_label(score: str) -> str:
+    """Display name of a score column ("bss" -> "Brier skill score")."""
+    return _SCORE_LABELS.get(str(score), str(score))
+
+
+def candidate_label(index, scale_weeks, lag_weeks, *, short: bool = False) -> str:
+    """Describe one candidate.
+
+    Parameters
+    ----------
+    index : str
+    scale_weeks, lag_weeks : int or float
+        Time scale and lag in weeks (missing values are left out).
+    short : bool, default False
+        "SPI 13w lag 4w" instead of "SPI, 13-week time scale, 4-week lag".
+
+    Examples
+    --------
+    >>> candidate_label("spi", 13, 4)
+    'SPI, 13-week time scale, 4-week lag'
+    >>> candidate_label("spei", 26, 0, short=True)
+    'SPEI 26w lag 0w'
+    """
+    parts = [index_name(index)]
+    if _present(scale_weeks):
+        parts.append(f"{int(scale_weeks)}w" if short else f"{int(scale_weeks)}-week time scale")
+    if _present(lag_weeks):
+        parts.append(f"lag {int(lag_weeks)}w" if short else f"{int(lag_weeks)}-week lag")
+    return " ".join(parts) if short else ", ".join(parts)
+
+
+def fmt_num(value, digits: int = 2) -> str:
+    """A number rounded for reading; missing values become "n/a".
+
+    Examples
+    --------
+    >>> fmt_num(0.2049)
+    '0.20'
+    >>> fmt_num(float("nan"))
+    'n/a'
+    """
+    if not _present(value):
+        return "n/a"
+    return f"{float(value):.{digits}f}"
+
+
+def fmt_interval(estimate, lo, hi, *, digits: int = 2) -> str:
+    """"0.21 (0.12 to 0.30)", or the estimate alone when the interval is missing.
+
+    Examples
+    --------
+    >>> fmt_interval(0.214, 0.12, 0.3)
+    '0.21 (0.12 to 0.30)'
+    """
+    text = fmt_num(estimate, digits)
+    if _present(lo) and _present(hi):
+        text += f" ({fmt_num(lo, digits)} to {fmt_num(hi, digits)})"
+    return text
+
+
+def verdict(nested, nested_lo, *, beats_seasonal=None, beats_persistence=None) -> str:
+    """One-line plain-language verdict on a selection-aware skill estimate.
+
+    Parameters
+    ----------
+    nested, nested_lo : float
+        Selection-aware (nested) skill and the lower end of its interval; 0 is the
+        climatological base rate, higher is better.
+    beats_seasonal, beats_persistence : bool, optional
+        Whether the best candidate beats those baselines out of sample.
+
+    Returns
+    -------
+    str
+    """
+    if not _present(nested):
+        return "Not scored in this run."
+    others = [b for b in (beats_seasonal, beats_persistence) if b is not None and _present(b)]
+    if _present(nested_lo) and nested_lo > 0:
+        if others and all(bool(b) for b in others):
+            return "Clear signal: the index beats every baseline out of sample."
+        return "Real signal, but it does not beat every baseline."
+    if nested > 0:
+        return "Weak signal: the interval reaches down to no skill."
+    return "No usable signal: no better than the base rate."
+
+
+@dataclass(frozen=True)
+class Answer:
+    """The per-target answer shown on the first screen.
+
+    Attributes are plain sentences (or "" when the run lacks the numbers).
+    """
+
+    impact: str
+    target: str
+    which: str
+    how_good: str
+    baselines: str
+    how_sure: str
+    rests_on: str
+    verdict: str
+    persistence: str = ""
+
+
+def answer_card(summary: pd.Series, skill: pd.DataFrame | None = None) -> Answer:
+    """Build the answer for one row of ``skill_summary.csv``.
+
+    Parameters
+    ----------
+    summary : Series
+        A row of ``skill_summary.csv``.
+    skill : DataFrame, optional
+        ``skill.csv``; used for baseline scores, the flags of the best candidate and the
+        names of candidates statistically as good as the best.
+
+    Returns
+    -------
+    Answer
+    """
+    g = summary.get
+    score = str(g("score_name", "bss") or "bss")
+    which = candidate_label(g("best_index"), g("best_scale_weeks"), g("best_lag_weeks"))
+    if _present(g("best_model")):
+        which += f" ({g('best_model')} model)"
+    how_good = (
+        f"{score_label(score)} {fmt_interval(g('nested_skill'), g('nested_lo'), g('nested_hi'))} "
+        f"after allowing for the search over {_int(g('n_candidates'))} candidates "
+        f"(best candidate's own score {fmt_num(g('naive_skill'))}); 0 = climatological base "
+        "rate, 1 = perfect."
+    )
+    baselines, flags, ties = "", {}, []
+    if skill is not None and not skill.empty and score in skill.columns:
+        rows = skill[((skill["impact"] == g("impact")) & (skill["target"] == g("target")))
+                     .fillna(False).to_numpy(dtype=bool)]
+        base = rows[rows["model"].isin(["seasonal", "persistence"]).fillna(False).to_numpy(bool)]
+        parts = [f"{m} {fmt_num(s)}" for m, s in zip(base["model"], base[score], strict=True)
+                 if _present(s)]
+        best = rows[((rows["index"] == g("best_index"))
+                     & (rows["scale_weeks"] == g("best_scale_weeks"))
+                     & (rows["lag_weeks"] == g("best_lag_weeks"))).fillna(False).to_numpy(bool)]
+        if not best.empty:
+            b = best.loc[best[score].idxmax()] if best[score].notna().any() else best.iloc[0]
+            flags = {k: b.get(k) for k in ("beats_climatology", "beats_seasonal",
+                                           "beats_persistence") if k in b.index}
+        beaten = [k.removeprefix("beats_") for k, v in flags.items() if _present(v) and _truthy(v)]
+        missed = [k.removeprefix("beats_") for k, v in flags.items()
+                  if _present(v) and not _truthy(v)]
+        baselines = "Baseline scores: " + (", ".join(parts) if parts else "none in this run") + "."
+        if beaten:
+            baselines += " Beats " + ", ".join(beaten) + "."
+        if missed:
+            baselines += " Does not beat " + ", ".join(missed) + "."
+        if "indistinguishable_from_best" in rows.columns:
+            tie_rows = rows[rows["indistinguishable_from_best"].astype("boolean").fillna(False)
+                            .to_numpy(bool)]
+            tie_rows = tie_rows.sort_values(score, ascending=False)
+            ties = [candidate_label(r["index"], r["scale_weeks"], r["lag_weeks"], short=True)
+                    for _, r in tie_rows.iterrows()
+                    if not (r["index"] == g("best_index") and r["scale_weeks"] == g(
+                        "best_scale_weeks") and r["lag_weeks"] == g("best_lag_weeks"))]
+    n_ind = g("n_indistinguishable")
+    n_other = int(n_ind) - 1 if _present(n_ind) and int(n_ind) >= 1 else len(ties)
+    if n_other <= 0:
+        how_sure = "No other candidate is statistically as good as the best."
+    else:
+        shown = "; ".join(ties[:5]) + ("; ..." if len(ties) > 5 else "")
+        how_sure = (f"{n_other} other candidate{'s are' if n_other != 1 else ' is'} statistically "
+                    f"as good as the best" + (f": {shown}." if ties else "."))
+    rests_on = (f"Rests on {_int(g('events'))} events among {_int(g('n'))} scored cases.")
+    persistence = ""
+    if _present(g("persistence_sentence")):
+        persistence = str(g("persistence_sentence"))
+    elif _present(g("persistence_gain")):
+        persistence = ("Gain over persistence: "
+                       f"{fmt_interval(g('persistence_gain'), g('persistence_gain_lo'), g('persistence_gain_hi'))}.")
+    return Answer(
+        impact=str(g("impact")),
+        target=str(g("target")),
+        which=which,
+        how_good=how_good,
+        baselines=baselines,
+        how_sure=how_sure,
+        rests_on=rests_on,
+        verdict=verdict(g("nested_skill"), g("nested_lo"),
+                        beats_seasonal=flags.get("beats_seasonal"),
+                        beats_persistence=flags.get("beats_persistence")),
+        persistence=persistence,
+    )
+
+
+def _present(value) -> bool:
+    if value is None or value is pd.NA:
+        return False
+    try:
+        return not (isinstance(value, float) and math.isnan(value)) and not pd.isna(value)
+    except (TypeError, ValueError):
+        return True
+
+
+def _truthy(value) -> bool:
+    if isinstance(value, str):
+        return value.strip().lower() in ("true", "1", "yes")
+    return bool(value)
+
+
+def _int(value) -> str:
+    return str(int(value)) if _present(value) else "an unknown number of"
