@@ -268,7 +268,7 @@ def impact_grid(
     f = target.frame
     w = pd.DatetimeIndex(weeks)
     t = pd.DatetimeIndex(pd.to_datetime(f["time"])).normalize()
-    monday = t - pd.to_timedelta(t.dayofweek, unit="D")
+    monday = t - pd.to_timedelta(t.day_of_week, unit="D")
     wp = np.asarray((monday - w[0]).days // 7, dtype=np.int64)
     lookup = {str(c): i for i, c in enumerate(county_ids)}
     cp = np.array([lookup.get(str(c), -1) for c in f["county_id"]], dtype=np.int64)

@@ -1,0 +1,135 @@
+"""Trigger scores: contingency-table scores and episode matching."""
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from impactlink.errors import StageError
+from impactlink.triggers import (
+    critical_success_index,
+    evaluate_trigger,
+    false_alarm_ratio,
+    peirce_skill_score,
+    probability_of_detection,
+)
+
+# Finley's tornado forecasts (1884) as tabulated in Wilks, Statistical Methods in the
+# Atmospheric Sciences (table of the 2x2 verification example): hits 28, false alarms 72,
+# misses 23, correct negatives 2680.
+FINLEY = dict(hits=28, false_alarms=72, misses=23, correct_negatives=2680)
+
+
+def test_finley_table_by_arithmetic():
+    # Peirce = 28/51 - 72/2752; CSI = 28/(28+72+23); exact rational arithmetic.
+    assert float(peirce_skill_score(**FINLEY)) == pytest.approx(28 / 51 - 72 / 2752, abs=1e-15)
+    assert float(critical_success_index(**FINLEY)) == pytest.approx(28 / 123, abs=1e-15)
+    assert float(probability_of_detection(28, 23)) == pytest.approx(28 / 51, abs=1e-15)
+    assert float(false_alarm_ratio(28, 72)) == pytest.approx(0.72, abs=1e-15)
+
+
+def test_finley_table_against_published_values():
+    # From memory (Wilks, Finley example): Peirce skill score 0.523, CSI 0.228 (three decimals).
+    assert float(peirce_skill_score(**FINLEY)) == pytest.approx(0.523, abs=5e-4)
+    assert float(critical_success_index(**FINLEY)) == pytest.approx(0.228, abs=5e-4)
+
+
+def test_scores_of_perfect_and_constant_forecasts():
+    # Common practice: perfect -> 1; a forecast that is always "yes" has Peirce 0.
+    assert float(peirce_skill_score(10, 0, 0, 90)) == 1.0
+    assert float(critical_success_index(10, 0, 0, 90)) == 1.0
+    assert float(peirce_skill_score(10, 90, 0, 0)) == 0.0
+    assert np.isnan(peirce_skill_score(0, 0, 0, 10))  # no events: undefined, not 0
+
+
+WEEKS = pd.date_range("2001-01-01", periods=20, freq="7D")
+N = np.nan
+ON_A = [0, 0, 1, 1, 1, 0, 0, 0, 0, 0, 1, 1, 0, 0, 0, 0, 0, 0, 1, 1]
+IMP_A = [0, 0, 0, 0, 1, 1, 0, 0, 0, 0, 0, 0, 0, 0, 1, 1, N, N, 0, 0]
+# county B: impact already under way when coverage starts (no known onset), trigger never on
+ON_B = [0] * 20
+IMP_B = [N, N, 1, 1, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0, 0]
+
+
+def _hand_case():
+    on = np.array([ON_A, ON_B], dtype=bool).T
+    lev = np.array([IMP_A, IMP_B], dtype=float).T
+    return evaluate_trigger(on, lev, weeks=WEEKS, window_weeks=2, county_ids=["A", "B"])
+
+
+def test_hand_counted_county():
+    t = _hand_case().table.set_index("county")
+    a = t.loc["A"]
+    # weekly table over the 18 known weeks: hit week 4; false alarms 2,3,10,11,18,19;
+    # misses 5,14,15; correct negatives 0,1,6,7,8,9,12,13.
+    assert (a.hits, a.false_alarms, a.misses, a.correct_negatives) == (1, 6, 3, 8)
+    assert a.peirce_skill == pytest.approx(1 / 4 - 6 / 14)
+    assert a.csi == pytest.approx(1 / 10)
+    # onsets at weeks 4 (trigger on since week 2: hit, lead 2) and 14 (nothing on in 12-14)
+    assert (a.episodes, a.episodes_hit, a.hit_rate) == (2, 1, 0.5)
+    assert a.lead_weeks_median == 2
+    # activations at 2 (impact at 4: true), 10 (10-12 known, no impact: false), 18 (window runs
+    # past the record: not judged)
+    assert (a.activations, a.activations_judged, a.false_activations) == (3, 2, 1)
+    assert a.false_alarm_ratio == 0.5
+    assert a.weeks_on_share == pytest.approx(7 / 20)
+    assert a.known_weeks == 18
+
+
+def test_unknown_weeks_are_not_no_impact():
+    t = _hand_case().table.set_index("county")
+    b = t.loc["B"]
+    assert b.known_weeks == 18
+    assert b.episodes == 0  # the onset before coverage is not counted
+    assert (b.misses, b.correct_negatives) == (2, 16)
+
+
+def test_pooled_row_sums_counts():
+    t = _hand_case().table
+    pooled = t.iloc[-1]
+    assert pooled.county == "all"
+    for col in ["hits", "false_alarms", "misses", "correct_negatives", "episodes",
+                "activations", "false_activations"]:
+        assert pooled[col] == t.iloc[:-1][col].sum()
+    assert pooled.peirce_skill == pytest.approx(1 / 6 - 6 / 30)
+
+
+def test_county_order_does_not_change_scores():
+    rng = np.random.default_rng(0)
+    on = rng.random((150, 6)) < 0.2
+    lev = (rng.random((150, 6)) < 0.15).astype(float)
+    lev[rng.random((150, 6)) < 0.1] = np.nan
+    weeks = pd.date_range("2001-01-01", periods=150, freq="7D")
+    perm = rng.permutation(6)
+    a = evaluate_trigger(on, lev, weeks=weeks).table
+    b = evaluate_trigger(on[:, perm], lev[:, perm], weeks=weeks).table
+    pd.testing.assert_frame_equal(
+        a.iloc[:-1].iloc[perm].drop(columns="county").reset_index(drop=True),
+        b.iloc[:-1].drop(columns="county").reset_index(drop=True),
+    )
+    pd.testing.assert_series_equal(a.iloc[-1], b.iloc[-1], check_names=False)
+
+
+def test_integer_levels_with_minus_one_unknown():
+    on = np.array(ON_A, dtype=bool)[:, None]
+    as_int = np.nan_to_num(np.array(IMP_A, dtype=float), nan=-1).astype(int)[:, None]
+    as_float = np.array(IMP_A, dtype=float)[:, None]
+    a = evaluate_trigger(on, as_int, weeks=WEEKS, window_weeks=2).table
+    b = evaluate_trigger(on, as_float, weeks=WEEKS, window_weeks=2).table
+    pd.testing.assert_frame_equal(a, b)
+
+
+@pytest.mark.parametrize(
+    "on, lev, weeks, kwargs, match",
+    [
+        (np.zeros(20, bool), np.zeros(20), WEEKS, {}, "2-D boolean array"),
+        (np.zeros((20, 2)), np.zeros((20, 2)), WEEKS, {}, "must be boolean"),
+        (np.zeros((20, 2), bool), np.zeros((20, 3)), WEEKS, {}, "impact_level has shape"),
+        (np.zeros((19, 2), bool), np.zeros((19, 2)), WEEKS, {}, "weeks has 20 entries"),
+        (np.zeros((20, 2), bool), np.zeros((20, 2)), WEEKS, {"min_level": 0}, "min_level"),
+        (np.zeros((20, 2), bool), np.zeros((20, 2)), WEEKS, {"window_weeks": -1},
+         "window_weeks"),
+    ],
+)
+def test_errors(on, lev, weeks, kwargs, match):
+    with pytest.raises(StageError, match=match):
+        evaluate_trigger(on, lev, weeks=weeks, **kwargs)
