@@ -133,7 +133,7 @@ class Ledger:
 def monday(dates) -> pd.DatetimeIndex:
     """Monday of the ISO 8601 week holding each date."""
     d = pd.DatetimeIndex(pd.to_datetime(dates)).normalize()
-    return d - pd.to_timedelta(d.dayofweek, unit="D")
+    return d - pd.to_timedelta(d.day_of_week, unit="D")
 
 
 def check_weeks(weeks: pd.DatetimeIndex) -> pd.DatetimeIndex:
@@ -141,8 +141,8 @@ def check_weeks(weeks: pd.DatetimeIndex) -> pd.DatetimeIndex:
     weeks = pd.DatetimeIndex(weeks)
     if len(weeks) == 0:
         raise LinkError("weeks: the weekly grid is empty; expected the Mondays of the record")
-    if (weeks.dayofweek != 0).any():
-        bad = weeks[weeks.dayofweek != 0][0]
+    if (weeks.day_of_week != 0).any():
+        bad = weeks[weeks.day_of_week != 0][0]
         raise LinkError(f"weeks: {bad.date()} is not a Monday; label every ISO week by its Monday")
     if len(weeks) > 1 and not (np.diff(weeks.values.astype("datetime64[D]").astype(np.int64)) == 7).all():
         raise LinkError("weeks: the grid must be consecutive Mondays 7 days apart with no gaps")

@@ -101,7 +101,7 @@ def reference_weeks(target: Target) -> pd.DatetimeIndex:
     rule, fr = target.rule, target.frame
     if rule.reference == "row_week":
         t = pd.DatetimeIndex(pd.to_datetime(fr["time"])).normalize()
-        return t - pd.to_timedelta(t.dayofweek, unit="D")
+        return t - pd.to_timedelta(t.day_of_week, unit="D")
     if rule.reference == "season_week":
         if rule.season_week is None:
             raise LinkError(f"target {target.name!r}: reference 'season_week' needs season_week")
@@ -109,7 +109,7 @@ def reference_weeks(target: Target) -> pd.DatetimeIndex:
     if rule.reference == "month_end":
         t = pd.DatetimeIndex(pd.to_datetime(fr["time"]))
         last = (t + pd.offsets.MonthEnd(0)).normalize()
-        return last - pd.to_timedelta(last.dayofweek, unit="D")
+        return last - pd.to_timedelta(last.day_of_week, unit="D")
     raise LinkError(
         f"target {target.name!r}: rule.reference must be row_week, season_week or month_end, "
         f"got {rule.reference!r}"
@@ -130,7 +130,7 @@ def iso_week_monday(years, week: int) -> pd.DatetimeIndex:
         raise LinkError(f"season_week must be an ISO week 1..53, got {week}")
     y = np.asarray(years, dtype=np.int64)
     jan4 = pd.to_datetime(pd.DataFrame({"year": y, "month": 1, "day": 4}))
-    mon1 = pd.DatetimeIndex(jan4 - pd.to_timedelta(jan4.dt.dayofweek, unit="D"))
+    mon1 = pd.DatetimeIndex(jan4 - pd.to_timedelta(jan4.dt.day_of_week, unit="D"))
     out = mon1 + pd.to_timedelta((int(week) - 1) * 7, unit="D")
     spill = out.isocalendar().year.to_numpy() != y
     return pd.DatetimeIndex(np.where(spill, out - pd.Timedelta(days=7), out))
