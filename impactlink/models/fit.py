@@ -508,10 +508,12 @@ def _fit_one(
         return fail(f"level(s) {empty} never occur in the fitted rows; merge them with a "
                     "neighbouring level or fit a binary target")
     sd = X.std(ddof=0)
-    const_feat = [f for f in spec.features if not sd[f] > 0]
+    # constant up to rounding: sd below 1e-10 of the column's magnitude
+    flat = sd <= 1e-10 * np.maximum(1.0, X.abs().max())
+    const_feat = [f for f in spec.features if flat[f]]
     if const_feat:
         return fail(f"constant predictor: feature(s) {const_feat} take one value in all rows")
-    const_other = [c for c in X.columns if c not in spec.features and not sd[c] > 0]
+    const_other = [c for c in X.columns if c not in spec.features and flat[c]]
     if const_other:
         notes.append(f"constant column(s) {const_other} dropped")
         X = X.drop(columns=const_other)

@@ -1,0 +1,244 @@
+"""Fitting impact models: equivalences, failure modes, predictor sets, error messages."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+from impact_targets import make_target, simulate_binary
+
+from impactlink.models import ImpactModel, fit_impact_model
+from impactlink.models._penalised import fit_cumulative
+
+
+# ------------------------------------------------------------------ equivalences
+@pytest.mark.parametrize("link", ["logit", "probit"])
+def test_two_level_ordinal_equals_logistic(link):
+    # A cumulative link model with two levels is the binary GLM with the same link
+    # (McCullagh 1980, Sec. 2): the threshold is minus the intercept. Both optimisers reach
+    # the optimum to ~1e-6, so rtol 1e-4.
+    x, y = simulate_binary(600, seed=3)
+    binary = fit_impact_model(make_target(y), x, link=link)
+    ordinal = fit_impact_model(make_target(y, kind="ordinal"), x, link=link)
+    assert binary.method == "glm_binomial" and ordinal.method == "ordered_model"
+    np.testing.assert_allclose(ordinal.params.to_numpy(), binary.params.to_numpy(), rtol=1e-4)
+    # Covariances: for the canonical logit both use the observed information (rtol 1e-3).
+    # For probit, statsmodels' GLM (IRLS) reports the expected information and
+    # OrderedModel the observed one; they differ by O(1/sqrt(n)), here about 1 %.
+    tol = 1e-3 if link == "logit" else 3e-2
+    np.testing.assert_allclose(ordinal.cov.to_numpy(), binary.cov.to_numpy(), rtol=tol)
+    np.testing.assert_allclose(ordinal.predict(x[:20]), binary.predict(x[:20]), atol=1e-6)
+
+
+def test_own_solver_without_penalty_equals_statsmodels():
+    # Cross-implementation: the numpy/scipy fallback solver with the prior switched off must
+    # reproduce statsmodels OrderedModel (same likelihood, two optimisers; 1e-5).
+    rng = np.random.default_rng(5)
+    x = rng.normal(size=(500, 2))
+    eta = x @ np.array([-1.2, 0.5])
+    y = np.digitize(eta + rng.logistic(size=500), [0.3, 1.8])
+    m = fit_impact_model(make_target(y), {"a": x[:, 0], "b": x[:, 1]})
+    own = fit_cumulative(x, y, 2, "logit", prior_sd=None)
+    np.testing.assert_allclose(own["beta"], m.beta, atol=1e-5)
+    np.testing.assert_allclose(own["cuts"], m.cuts, atol=1e-5)
+    np.testing.assert_allclose(own["cov"], m.cov.to_numpy(), rtol=1e-3, atol=1e-7)
+
+
+def test_probabilities_are_ordered_and_hand_checked():
+    # P(level >= 1) >= P(level >= 2) for every row, and the first row equals the formula
+    # expit(x b - c_k) computed by hand from the fitted parameters.
+    rng = np.random.default_rng(2)
+    x = rng.normal(size=400)
+    y = np.digitize(-1.0 * x + rng.logistic(size=400), [0.0, 1.5])
+    m = fit_impact_model(make_target(y), x)
+    p = m.predict(x)
+    assert np.all(p[:, 0] >= p[:, 1])
+    b, c = m.beta[0], m.cuts
+    np.testing.assert_allclose(p[0], 1 / (1 + np.exp(-(b * x[0] - c))), rtol=1e-12)
+    lo, hi = m.predict_interval(x, ci=0.9)
+    assert np.all(lo <= p) and np.all(p <= hi)
+    lo50, hi50 = m.predict_interval(x, ci=0.5)
+    assert np.all(hi50 - lo50 < hi - lo)
+
+
+# ------------------------------------------------------------------ failure modes
+def _failure_cases():
+    rng = np.random.default_rng(0)
+    x = rng.normal(size=60)
+    return {
+        "no events": (np.zeros(60, int), x, "no events"),
+        "all events": (np.ones(60, int), x, "every one"),
+        "constant predictor": ((x > 0).astype(int), np.full(60, -1.2), "constant predictor"),
+        "too few": (np.r_[np.ones(2, int), np.zeros(58, int)], x, "too few"),
+    }
+
+
+@pytest.mark.parametrize("case", list(_failure_cases()))
+def test_failures_are_recorded_not_raised(case):
+    y, x, words = _failure_cases()[case]
+    m = fit_impact_model(make_target(y, levels=("none", "impact")), x)
+    assert isinstance(m, ImpactModel)
+    assert not m.ok and m.method == "none"
+    assert words in m.reason
+    assert np.all(np.isnan(m.predict(x[:3])))
+    table = m.to_frame()
+    assert bool(table["ok"].iloc[0]) is False and words in table["reason"].iloc[0]
+
+
+def test_empty_ordinal_level_is_a_recorded_failure():
+    x, y = simulate_binary(200, seed=1)
+    y = y * 2  # levels 0 and 2 only; level 1 never occurs
+    m = fit_impact_model(make_target(y, levels=("none", "watch", "severe")), x)
+    assert not m.ok and "'watch'" in m.reason and "never occur" in m.reason
+
+
+def test_complete_separation_falls_back_to_ridge():
+    # Impact exactly when x < -0.5: the maximum-likelihood slope is infinite. The ridge
+    # fallback (normal prior sd 2.5 per 2 sd of x) gives a finite, steep, negative slope.
+    rng = np.random.default_rng(4)
+    x = rng.normal(size=300)
+    y = (x < -0.5).astype(int)
+    m = fit_impact_model(make_target(y), x)
+    assert m.ok and m.method == "ridge_cumulative_link"
+    assert "separation" in m.reason and "ridge" in m.reason
+    slope_per_sd = m.beta[0] * x.std()
+    assert -12 < slope_per_sd < -2
+    assert np.all(np.isfinite(m.cov.to_numpy()))
+    p = m.predict(np.array([-2.0, 1.0]))[:, 0]
+    assert p[0] > 0.95 and p[1] < 0.05
+
+
+def test_quasi_separation_by_persistence_covariate_is_penalised():
+    # Persistence perfectly predicts the state (every row in state had state known before):
+    # a common case for restriction targets. Must not return an absurd coefficient.
+    x, y = simulate_binary(400, seed=8)
+    pers = y.copy()
+    m = fit_impact_model(make_target(y, extra={"persistence_4": pers}), x,
+                         covariates=("persistence_4",))
+    assert m.ok and m.method == "ridge_cumulative_link"
+    assert abs(m.params["persistence_4"] * pers.std()) < 12
+
+
+def test_ordinal_separation_falls_back_to_ridge():
+    rng = np.random.default_rng(9)
+    x = rng.normal(size=300)
+    y = np.digitize(-x, [0.0, 1.0])  # level fixed by x exactly
+    m = fit_impact_model(make_target(y), x)
+    assert m.ok and m.method == "ridge_cumulative_link"
+    assert np.all(np.diff(m.cuts) > 0)
+
+
+# ------------------------------------------------------------------ predictor sets
+def test_index_persistence_and_both_are_predictor_sets():
+    rng = np.random.default_rng(11)
+    n = 800
+    x = rng.normal(size=n)
+    pers = (rng.uniform(size=n) < 0.3).astype(float)
+    eta = -1.5 - 1.0 * x + 1.2 * pers
+    y = (rng.uniform(size=n) < 1 / (1 + np.exp(-eta))).astype(int)
+    t = make_target(y, extra={"persistence_4": pers})
+    index_only = fit_impact_model(t, x)
+    pers_only = fit_impact_model(t, {"persistence_4": pers})
+    both = fit_impact_model(t, x, covariates=("persistence_4",))
+    assert index_only.predictors == ("x",)
+    assert pers_only.predictors == ("persistence_4",)
+    assert both.predictors == ("x", "persistence_4")
+    # planted effects recovered within about 3 standard errors
+    se = np.sqrt(np.diag(both.cov.to_numpy()))
+    assert abs(both.params["x"] + 1.0) < 3 * se[0]
+    assert abs(both.params["persistence_4"] - 1.2) < 3 * se[1]
+    assert both.loglik > index_only.loglik and both.loglik > pers_only.loglik
+    # the model needs the covariate at prediction time, by name
+    with pytest.raises(ValueError, match="persistence_4"):
+        both.predict(x[:3], frame=pd.DataFrame({"other": [0, 0, 0]}))
+    p = both.predict(x[:3], frame=pd.DataFrame({"persistence_4": [1.0, 1.0, 1.0]}))
+    q = both.predict(x[:3], frame=pd.DataFrame({"persistence_4": [0.0, 0.0, 0.0]}))
+    assert np.all(p > q)
+
+
+def test_rows_with_missing_predictors_are_left_out():
+    x, y = simulate_binary(300, seed=12)
+    x[:40] = np.nan
+    m = fit_impact_model(make_target(y), x)
+    assert m.n == 260 and m.events == int(y[40:].sum())
+
+
+def test_seasonal_harmonics_recover_planted_season():
+    # Impacts more likely around ISO week 30 (late summer): cos term negative at the peak
+    # is not assumed; we check the fitted seasonal curve peaks within 4 weeks of week 30.
+    rng = np.random.default_rng(13)
+    n = 52 * 40
+    week = np.tile(np.arange(1, 53), 40)
+    x = rng.normal(size=n)
+    season_effect = 1.5 * np.cos(2 * np.pi * (week - 30) / (365.2425 / 7))
+    eta = -2.0 - 1.0 * x + season_effect
+    y = (rng.uniform(size=n) < 1 / (1 + np.exp(-eta))).astype(int)
+    m = fit_impact_model(make_target(y, season=week), x, seasonal=True)
+    assert m.predictors == ("x", "season_sin", "season_cos")
+    frame = pd.DataFrame({"season": np.arange(1, 53)})
+    p = m.predict(np.zeros(52), frame=frame)[:, 0]
+    assert abs(int(np.argmax(p)) + 1 - 30) <= 4
+    with pytest.raises(ValueError, match="season"):
+        m.predict(np.zeros(3))
+
+
+def test_seasonal_ignored_for_annual_targets():
+    x, y = simulate_binary(200, seed=14)
+    m = fit_impact_model(make_target(y, grain="county_year"), x, seasonal=True)
+    assert m.ok and m.predictors == ("x",) and "seasonal terms ignored" in m.reason
+
+
+def test_traits_are_merged_and_standardised():
+    rng = np.random.default_rng(15)
+    counties = np.array([f"c{i:02d}" for i in range(20)])
+    irrigated = np.linspace(0, 80, 20)  # percent of cropland irrigated
+    cid = np.repeat(counties, 60)
+    x = rng.normal(size=cid.size)
+    trait_z = np.repeat((irrigated - irrigated.mean()) / irrigated.std(), 60)
+    eta = -1.0 - 1.2 * x - 0.8 * trait_z
+    y = (rng.uniform(size=x.size) < 1 / (1 + np.exp(-eta))).astype(int)
+    traits = pd.DataFrame({"county_id": counties, "irrigated_pct": irrigated,
+                           "label": ["a"] * 20, "constant": 1.0})
+    m = fit_impact_model(make_target(y, county_id=cid), x, traits=traits)
+    assert m.predictors == ("x", "irrigated_pct")
+    assert "non-numeric" in m.reason and "constant" in m.reason
+    se = np.sqrt(m.cov.iloc[1, 1])
+    assert abs(m.params["irrigated_pct"] + 0.8) < 3 * se
+    with pytest.raises(ValueError, match="county_id"):
+        fit_impact_model(make_target(y, county_id=cid), x, traits=traits.drop(columns="county_id"))
+
+
+def test_to_frame_lists_parameters_with_metadata():
+    x, y = simulate_binary(300, seed=16)
+    m = fit_impact_model(make_target(y), x, meta={"index": "spi", "scale_weeks": 8,
+                                                    "lag_weeks": 4})
+    t = m.to_frame()
+    assert list(t["term"]) == ["x", "cut_1"]
+    assert set(t["index"]) == {"spi"} and set(t["lag_weeks"]) == {4}
+    assert np.all(t["std_error"] > 0)
+
+
+# ------------------------------------------------------------------ error messages
+def test_error_messages_name_the_argument():
+    x, y = simulate_binary(100, seed=17)
+    t = make_target(y)
+    with pytest.raises(TypeError, match="Target"):
+        fit_impact_model(t.frame, x)
+    with pytest.raises(ValueError, match="link must be one of"):
+        fit_impact_model(t, x, link="cloglog")
+    with pytest.raises(ValueError, match="pooling must be one of"):
+        fit_impact_model(t, x, pooling="state")
+    with pytest.raises(ValueError, match="99 values but the target frame has 100 rows"):
+        fit_impact_model(t, x[:99])
+    with pytest.raises(ValueError, match="covariates .*'persistence_2'.* not columns"):
+        fit_impact_model(t, x, covariates=("persistence_2",))
+    with pytest.raises(ValueError, match="1-D array"):
+        fit_impact_model(t, np.ones((100, 2)))
+    bad = make_target(np.r_[y[:-1], 3], levels=("none", "impact"))
+    with pytest.raises(ValueError, match="outside 0..1"):
+        fit_impact_model(bad, x)
+    m = fit_impact_model(t, x)
+    with pytest.raises(ValueError, match="ci must be strictly between 0 and 1"):
+        m.predict_interval(x, ci=90)
+    with pytest.raises(ValueError, match="lacks feature"):
+        m.predict({"spi": x})
