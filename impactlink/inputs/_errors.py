@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from impactlink.errors import ImpactlinkWarning
+
 __all__ = ["InputError", "InputWarning", "REASONS"]
 
 
@@ -13,7 +15,7 @@ class InputError(ValueError):
     """
 
 
-class InputWarning(UserWarning):
+class InputWarning(ImpactlinkWarning):
     """A recoverable surprise in the input data (the run goes on; the bundle keeps the text)."""
 
 
@@ -22,6 +24,7 @@ class InputWarning(UserWarning):
 #: ``negative`` and ``duplicate`` are templates: ``negative {quantity}`` and
 #: ``duplicate of row {row}``.
 REASONS: dict[str, str] = {
+    "blank": "blank row",
     "missing": "missing required value",
     "date": "unparseable date",
     "number": "unparseable number",

@@ -63,7 +63,12 @@ def read_raw(path: Path, *, geometry: bool, point_columns: bool = False):
 def _read_csv(path: Path) -> pd.DataFrame:
     try:
         return pd.read_csv(
-            path, dtype=str, keep_default_na=False, na_filter=False, encoding="utf-8-sig"
+            path,
+            dtype=str,
+            keep_default_na=False,
+            na_filter=False,
+            encoding="utf-8-sig",
+            skip_blank_lines=False,  # keep row numbers equal to data lines of the file
         )
     except pd.errors.EmptyDataError:
         raise InputError(f"{path}: the file is empty; it needs a header row and data rows") from None

@@ -53,6 +53,7 @@ class TableCheck:
         self.n = len(self.frame)
         self.rows = np.arange(1, self.n + 1, dtype=np.int64)
         self.alive = np.ones(self.n, dtype=bool)
+        self.blank = np.zeros(self.n, dtype=bool)  # wholly blank rows, reported once
         self.clean: dict[str, pd.Series] = {}
         self._rejects: list[pd.DataFrame] = []
 
@@ -74,6 +75,8 @@ class TableCheck:
         mask = np.asarray(mask, dtype=bool)
         if only_alive:
             mask = mask & self.alive
+        else:
+            mask = mask & ~self.blank
         if not mask.any():
             return
         idx = np.flatnonzero(mask)
@@ -108,6 +111,23 @@ class TableCheck:
     def raw_text(self, column: str) -> pd.Series:
         """The column as the user wrote it (for the ``value`` field)."""
         return _display(self.frame[column])
+
+    def reject_blank_rows(self) -> None:
+        """A row with every cell blank (a blank line in a CSV) is reported once as a blank row."""
+        if self.n == 0 or not len(self.frame.columns):
+            return
+        if not all(pd.api.types.is_string_dtype(t) for t in self.frame.dtypes):
+            return  # typed (Parquet) frames: blank rows show up as missing values instead
+        # Only rows whose first cell is blank can be blank rows: test the rest on those alone.
+        cand = np.flatnonzero(_blank(self.frame.iloc[:, 0]))
+        if cand.size == 0:
+            return
+        sub = self.frame.iloc[cand]
+        all_blank = np.logical_and.reduce([_blank(sub[c]) for c in sub.columns])
+        blank = np.zeros(self.n, dtype=bool)
+        blank[cand[all_blank]] = True
+        self.reject(blank, "", "", REASONS["blank"])
+        self.blank = blank
 
     # ---------------------------------------------------------------- coercion
     def coerce(self, column: str, kind: str, *, required: bool) -> None:
@@ -250,6 +270,10 @@ def map_levels(
 
 
 # -------------------------------------------------------------------- helpers
+def _blank(s: pd.Series) -> np.ndarray:
+    return s.astype("str").fillna("").str.strip().eq("").to_numpy()
+
+
 def _display(s: pd.Series) -> np.ndarray:
     out = s.astype(object).where(s.notna(), "")
     return out.astype(str).to_numpy(dtype=object)

@@ -114,9 +114,9 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
     ladder (notice levels and snapshot stages are integers 0..K, 0 meaning no restriction,
     K the length of the notices impact option ``ladder``, default 3; or an issuer's stage
     name from the option ``stage_names``, ``{issuer: {name: level}}``, or a name in a
-    ladder of names), no county or coordinates, coordinates out of range, year out of range, tmin
-    above tmax, temperature out of range, severity out of range, zero price index, missing
-    geometry. Cell-level checks report every bad cell of a row; the rules after them
+    ladder of names), blank row, no county or coordinates, coordinates out of range, year
+    out of range, tmin above tmax, temperature out of range, severity out of range, zero
+    price index, missing geometry. Cell-level checks report every bad cell of a row; the rules after them
     (cross-column checks, unknown county, duplicates) look only at rows still usable.
 
     Traits: every column other than ``county_id`` must be numeric. A column in which no
@@ -148,7 +148,7 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
     return InputBundle(
         tables=tables,
         rejected=rej,
-        counts=pd.DataFrame(counts),
+        counts=pd.DataFrame(counts).astype({"counties": "Int64"}),
         checksums=checksums,
         files=dict(files),
         warnings=notes,
@@ -282,6 +282,7 @@ def _read_table(
     if name == "counties":
         return _read_counties(frame, path, notes)
     check = TableCheck(name, str(path), frame)
+    check.reject_blank_rows()
     columns = _declared_columns(spec, frame)
     for col in columns:
         kind = spec.required.get(col) or spec.optional[col]

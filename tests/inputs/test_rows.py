@@ -274,3 +274,17 @@ def test_several_bad_cells_in_one_row_are_all_listed_but_counted_once(base_folde
     assert sorted(r["reason"]) == ["sentinel value", "unparseable date"]
     assert set(r["row"]) == {1}
     assert b.counts.set_index("table").loc["climate", "rows_rejected"] == 1
+
+
+def test_blank_line_is_one_rejected_row_and_keeps_row_numbers(base_folder):
+    path = write_text(
+        base_folder, "yields.csv",
+        "county_id,year,crop,yield\n01001,2001,corn,150\n\n,,,\n01001,2002,corn,-5",
+    )
+    b = read_inputs(make_project(base_folder))
+    r = _only(b, "yields")
+    assert r[["row", "reason"]].values.tolist() == [
+        [2, "blank row"], [3, "blank row"], [4, "negative yield"]
+    ]
+    assert (r["file"] == str(path)).all()
+    assert b.counts.set_index("table").loc["yields", "rows_read"] == 4
