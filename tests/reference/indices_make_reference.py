@@ -71,7 +71,7 @@ def main() -> None:
 
     df = monthly_inputs()
     out = []
-    for cid, g in df.groupby("county_id", sort=False):
+    for _cid, g in df.groupby("county_id", sort=False):
         p = g["precip_mm"].to_numpy()
         pet = g["pet_mm"].to_numpy()
         t = g["tmean_c"].to_numpy()
