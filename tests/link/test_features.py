@@ -1,0 +1,170 @@
+"""Index values aligned to target rows: lags, ISO season weeks, windows, region weights.
+
+Reference for ISO weeks: ISO 8601-1:2019, via Python's ``datetime.date.fromisocalendar``.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+
+import numpy as np
+import pandas as pd
+import pytest
+from conftest import cube_from, mondays
+
+from impactlink.link import (
+    FeatureRule,
+    LinkError,
+    Target,
+    area_weights,
+    feature_matrix,
+    feature_values,
+    iso_week_monday,
+)
+
+
+def _week_target(times, counties, *, rule=None, role="state") -> Target:
+    fr = pd.DataFrame({"unit_id": counties, "county_id": counties, "region": "r",
+                       "time": pd.to_datetime(times), "year": 0, "season": 0, "level": 0})
+    return Target(name="t", impact="t", kind="binary", grain="county_week", role=role, frame=fr,
+                  levels=("no", "yes"), rule=rule or FeatureRule())
+
+
+def _grid_cube(weeks, county_ids):
+    """Value = 1000 * week position + county position, so the read position is visible."""
+    nw, nc = len(weeks), len(county_ids)
+    return cube_from(weeks, county_ids, 1000 * np.arange(nw)[:, None] + np.arange(nc)[None, :])
+
+
+def test_lag_alignment_across_a_53_week_year():
+    # ISO 2020 has 53 weeks (datetime.date.isocalendar): week 53 is 2020-12-28
+    assert dt.date.fromisocalendar(2020, 53, 1) == dt.date(2020, 12, 28)
+    weeks = mondays("2020-11-30", 12)
+    cube = _grid_cube(weeks, ("a", "b"))
+    t = _week_target(["2021-01-04", "2020-12-28", "2021-01-06"], ["a", "b", "a"])
+    # 2021-01-04 is position 5; 2020-12-28 position 4; a Wednesday maps to its Monday
+    np.testing.assert_array_equal(feature_values(t, cube, "spi", 4, 0), [5000, 4001, 5000])
+    # lag 1 from ISO 2021-W01 is ISO 2020-W53 (not 2020-W52)
+    np.testing.assert_array_equal(feature_values(t, cube, "spi", 4, 1), [4000, 3001, 4000])
+    assert weeks[4].isocalendar()[:2] == (2020, 53)
+    # off the grid -> NaN
+    assert np.isnan(feature_values(t, cube, "spi", 4, 6)).all()
+
+
+def test_onset_rows_read_the_value_known_at_forecast_time():
+    weeks = mondays("2030-01-07", 10)
+    cube = _grid_cube(weeks, ("a",))
+    t = _week_target(["2030-02-04"], ["a"], role="onset")
+    # row week t (position 4); with lag 2 the value is from week t - 2, never from t + 1 .. t + L
+    assert feature_values(t, cube, "spi", 4, 2).tolist() == [2000]
+
+
+def test_iso_week_monday_matches_fromisocalendar():
+    years = np.arange(2000, 2041)
+    for w in (1, 26, 52):
+        got = iso_week_monday(years, w)
+        want = [pd.Timestamp(dt.date.fromisocalendar(int(y), w, 1)) for y in years]
+        assert list(got) == want
+    got53 = iso_week_monday(years, 53)
+    for y, g in zip(years, got53):
+        try:
+            want = dt.date.fromisocalendar(int(y), 53, 1)
+        except ValueError:  # the year has 52 weeks: fall back to week 52
+            want = dt.date.fromisocalendar(int(y), 52, 1)
+        assert g == pd.Timestamp(want)
+
+
+def _year_target(years, counties, rule):
+    fr = pd.DataFrame({"unit_id": counties, "county_id": counties, "region": "r",
+                       "time": pd.to_datetime([f"{y}-01-01" for y in years]), "year": years,
+                       "season": rule.season_week, "level": 0})
+    return Target(name="y", impact="y", kind="ordinal", grain="county_year", role="annual",
+                  frame=fr, levels=("n", "s"), rule=rule)
+
+
+def test_season_week_window_min_and_mean():
+    weeks = mondays("2019-12-30", 60)  # 2019-12-30 is ISO 2020-W01
+    vals = np.sin(np.arange(60) / 3.0)[:, None] * np.array([[1.0, 2.0]])
+    cube = cube_from(weeks, ("a", "b"), vals)
+    rule = FeatureRule(reference="season_week", season_week=10, window_weeks=4, window_stat="min")
+    t = _year_target([2020, 2020], ["a", "b"], rule)
+    # ISO 2020-W10 is position 9; lag 2 -> window positions 4..7
+    want = vals[4:8].min(axis=0)
+    np.testing.assert_allclose(feature_values(t, cube, "spi", 4, 2), want)
+    rule_m = FeatureRule(reference="season_week", season_week=10, window_weeks=4,
+                         window_stat="mean")
+    np.testing.assert_allclose(feature_values(_year_target([2020], ["b"], rule_m), cube, "spi", 4,
+                                              0), [vals[6:10, 1].mean()])
+
+
+def test_window_with_a_missing_week_is_missing():
+    weeks = mondays("2019-12-30", 20)
+    vals = np.ones((20, 1))
+    vals[7] = np.nan
+    cube = cube_from(weeks, ("a",), vals)
+    rule = FeatureRule(reference="season_week", season_week=10, window_weeks=3, window_stat="mean")
+    t = _year_target([2020, 2020], ["a", "a"], rule)
+    out = feature_values(t, cube, "spi", 4, 0)
+    assert np.isnan(out[0])
+    assert feature_values(t, cube, "spi", 4, 3)[0] == 1.0
+
+
+def test_region_month_weighted_mean(counties):
+    """Area weights 0.25 / 0.75 (north) and 0.5 / 0.5 (south) from the hand-built squares."""
+    weeks = mondays("2029-12-31", 10)
+    ids = ("a", "b", "c", "d")
+    vals = np.tile(np.array([[4.0, 8.0, 1.0, 3.0]]), (10, 1))
+    vals[:, 0] += np.arange(10)  # county a changes week by week
+    cube = cube_from(weeks, ids, vals)
+    w = area_weights(counties)
+    rule = FeatureRule(reference="month_end", weights=w)
+    fr = pd.DataFrame({"unit_id": ["north", "south"], "region": ["north", "south"],
+                       "time": pd.to_datetime(["2030-01-01", "2030-02-01"]), "year": 2030,
+                       "season": [1, 2], "level": 0})
+    t = Target(name="p", impact="p", kind="ordinal", grain="region_month", role="monthly",
+               frame=fr, levels=("n", "s"), rule=rule)
+    # last week starting in January 2030: Monday 2030-01-28, position 4
+    got = feature_values(t, cube, "spi", 4, 0)
+    np.testing.assert_allclose(got, [0.25 * (4 + 4) + 0.75 * 8, 0.5 * 1 + 0.5 * 3])
+    # lag 1: position 3 for north
+    np.testing.assert_allclose(feature_values(t, cube, "spi", 4, 1)[0], 0.25 * 7 + 0.75 * 8)
+    # a county without a value is left out and the weights renormalised; under half -> NaN
+    vals2 = vals.copy()
+    vals2[:, 0] = np.nan
+    cube2 = cube_from(weeks, ids, vals2)
+    assert feature_values(t, cube2, "spi", 4, 0)[0] == 8.0
+    vals2[:, 1] = np.nan
+    vals2[:, 0] = 1.0
+    assert np.isnan(feature_values(t, cube_from(weeks, ids, vals2), "spi", 4, 0)[0])
+
+
+def test_feature_matrix_stacks_candidates():
+    weeks = mondays("2030-01-07", 10)
+    cube = _grid_cube(weeks, ("a",))
+    t = _week_target(["2030-02-04"], ["a"])
+    m = feature_matrix(t, cube, [("spi", 4, 0), ("spi", 4, 3)])
+    assert m.tolist() == [[4000, 1000]]
+
+
+def test_unknown_county_is_missing():
+    weeks = mondays("2030-01-07", 5)
+    t = _week_target(["2030-01-14"], ["zz"])
+    assert np.isnan(feature_values(t, _grid_cube(weeks, ("a",)), "spi", 4, 0)).all()
+
+
+def test_errors():
+    weeks = mondays("2030-01-07", 5)
+    cube = _grid_cube(weeks, ("a",))
+    t = _week_target(["2030-01-14"], ["a"])
+    with pytest.raises(LinkError, match="lag_weeks must be >= 0"):
+        feature_values(t, cube, "spi", 4, -1)
+    with pytest.raises(KeyError, match="no index 'spei'"):
+        feature_values(t, cube, "spei", 4, 0)
+    with pytest.raises(LinkError, match="candidates is empty"):
+        feature_matrix(t, cube, [])
+    with pytest.raises(LinkError, match="ISO week 1..53"):
+        iso_week_monday([2020], 54)
+    bad = Target(name="r", impact="r", kind="binary", grain="region_month", role="monthly",
+                 frame=t.frame, levels=("n", "y"), rule=FeatureRule(reference="month_end"))
+    with pytest.raises(LinkError, match="no rule.weights"):
+        feature_values(bad, cube, "spi", 4, 0)
