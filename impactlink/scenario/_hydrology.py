@@ -69,23 +69,45 @@ def draw_traits(geo: Geography, rng: np.random.Generator) -> Traits:
     return Traits(np.round(irr, 3), np.round(whc, 1), np.round(gw, 3), np.round(cattle, 1))
 
 
+def extraterrestrial_radiation(doy: np.ndarray, lat_deg: np.ndarray) -> np.ndarray:
+    """Daily extraterrestrial radiation Ra, MJ m-2 day-1, shape (days, sites).
+
+    Notes
+    -----
+    FAO-56 Eq. 21 with Eqs. 23 (inverse relative Earth-Sun distance), 24 (solar
+    declination) and 25 (sunset hour angle), solar constant 0.0820 MJ m-2 min-1
+    (Allen et al. 1998).
+    """
+    phi = np.deg2rad(np.asarray(lat_deg, dtype=float))[None, :]
+    j = np.asarray(doy, dtype=float)[:, None]
+    dr = 1.0 + 0.033 * np.cos(2.0 * np.pi * j / 365.0)
+    delta = 0.409 * np.sin(2.0 * np.pi * j / 365.0 - 1.39)
+    ws = np.arccos(np.clip(-np.tan(phi) * np.tan(delta), -1.0, 1.0))
+    return (24.0 * 60.0 / np.pi) * 0.0820 * dr * (
+        ws * np.sin(phi) * np.sin(delta) + np.cos(phi) * np.cos(delta) * np.sin(ws))
+
+
 def hargreaves_pet(tmin_c: np.ndarray, tmax_c: np.ndarray, doy: np.ndarray,
                    lat_deg: np.ndarray) -> np.ndarray:
     """Daily reference evapotranspiration by Hargreaves and Samani (1985), mm/day.
 
+    Parameters
+    ----------
+    tmin_c, tmax_c : ndarray, shape (days, sites)
+        Daily minimum and maximum temperature [deg C].
+    doy : ndarray, shape (days,)
+        Day of the year [1-366].
+    lat_deg : ndarray, shape (sites,)
+        Latitude [degrees north].
+
     Notes
     -----
-    ``PET = 0.0023 * 0.408 * Ra * (Tmean + 17.8) * sqrt(Tmax - Tmin)`` with extraterrestrial
-    radiation ``Ra`` (MJ m-2 day-1) from FAO-56 Eqs. 21, 23, 24 and 25 (Allen et al. 1998),
-    0.408 converting MJ m-2 to mm of evaporated water (FAO-56 Eq. 20).
+    ``PET = 0.0023 * 0.408 * Ra * (Tmean + 17.8) * sqrt(Tmax - Tmin)`` with ``Tmean`` the
+    mean of ``Tmin`` and ``Tmax``, ``Ra`` from :func:`extraterrestrial_radiation`, and 0.408
+    converting MJ m-2 to mm of evaporated water (FAO-56 Eq. 20; FAO-56 Eq. 52 is this
+    equation). Negative values are set to 0.
     """
-    phi = np.deg2rad(lat_deg)[None, :]
-    j = doy[:, None].astype(float)
-    dr = 1.0 + 0.033 * np.cos(2.0 * np.pi * j / 365.0)
-    delta = 0.409 * np.sin(2.0 * np.pi * j / 365.0 - 1.39)
-    ws = np.arccos(np.clip(-np.tan(phi) * np.tan(delta), -1.0, 1.0))
-    ra = (24.0 * 60.0 / np.pi) * 0.0820 * dr * (
-        ws * np.sin(phi) * np.sin(delta) + np.cos(phi) * np.cos(delta) * np.sin(ws))
+    ra = extraterrestrial_radiation(doy, lat_deg)
     tmean = 0.5 * (tmin_c + tmax_c)
     pet = 0.0023 * 0.408 * ra * (tmean + 17.8) * np.sqrt(np.maximum(tmax_c - tmin_c, 0.0))
     return np.maximum(pet, 0.0)
@@ -169,6 +191,8 @@ def _standardize(x: np.ndarray, woy: np.ndarray, calib: np.ndarray) -> np.ndarra
     # Loop over 52 weeks of the year (not counties); each step is vectorised over counties.
     for w in range(1, 53):
         sel = woy == w
+        if not (sel & calib).any():
+            continue
         ref = x[sel & calib]
         mu = np.nanmean(ref, axis=0)
         sd = np.nanstd(ref, axis=0, ddof=1)

@@ -67,6 +67,9 @@ def invent_names(n: int, rng: np.random.Generator, *, exclude: frozenset[str] = 
         chosen.append(name)
         if len(chosen) == n:
             break
+    if len(chosen) < n:
+        raise ValueError(f"invent_names: asked for n={n} names; at most {len(chosen)} can be "
+                         "made with three names per head syllable; add syllables")
     return chosen
 
 
