@@ -21,6 +21,7 @@ from impactlink.report.html import Markup, details, el, esc, image, join, link, 
 from impactlink.report.runfolder import ReportInputWarning, RunFolder
 from impactlink.report.text import (
     CAUTIONS,
+    CAUTIONS_SHORT,
     answer_card,
     candidate_label,
     fmt_interval,
@@ -136,11 +137,9 @@ def _with_names(run: RunFolder, frame: pd.DataFrame) -> pd.DataFrame:
 # ---------------------------------------------------------------------- first screen
 def cautions_banner() -> Markup:
     """The short cautions box shown on the first screen."""
-    items = [el("li", el("strong", head + ": "), body.split(". ")[0] + ".")
-             for head, body in CAUTIONS]
-    return el("aside", el("strong", "Read with care"), el("ul", *items),
-              paragraph("Full text in ", link("#cautions", "Cautions"), "."),
-              class_="cautions", aria_label="cautions")
+    items = [el("li", el("strong", head + ": "), body) for head, body in CAUTIONS_SHORT]
+    return el("aside", el("strong", "Read with care "), "(", link("#cautions", "full text"), ")",
+              el("ul", *items), class_="cautions", aria_label="cautions")
 
 
 def answer_cards(run: RunFolder, figs: FigureSink | None = None) -> Markup:

@@ -22,6 +22,7 @@ __all__ = [
     "answer_card",
     "verdict",
     "CAUTIONS",
+    "CAUTIONS_SHORT",
 ]
 
 _INDEX_NAMES = {
@@ -39,7 +40,15 @@ _SCORE_LABELS = {
     "roc_auc": "ROC area",
 }
 
-#: The cautions every report carries (short banner form first, then the full text).
+#: Short form of the cautions for the banner on the first screen: (heading, sentence).
+CAUTIONS_SHORT = (
+    ("Association, not cause", "the numbers show what tends to go together, not what causes what."),
+    ("Data limits", "coverage, reporting effort, short records and few events make every "
+     "estimate uncertain."),
+    ("Decisions", "rest with the responsible authorities, local codes and licensed practice."),
+)
+
+#: The cautions every report carries, in full: (heading, text).
 CAUTIONS = (
     (
         "Association, not cause",
@@ -196,7 +205,7 @@ def answer_card(summary: pd.Series, skill: pd.DataFrame | None = None) -> Answer
     if _present(g("best_model")):
         which += f" ({g('best_model')} model)"
     how_good = (
-        f"{score_label(score)} {fmt_interval(g('nested_skill'), g('nested_lo'), g('nested_hi'))} "
+        f"{score_label(score).capitalize()} {fmt_interval(g('nested_skill'), g('nested_lo'), g('nested_hi'))} "
         f"after allowing for the search over {_int(g('n_candidates'))} candidates "
         f"(best candidate's own score {fmt_num(g('naive_skill'))}); 0 = climatological base "
         "rate, 1 = perfect."

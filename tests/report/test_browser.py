@@ -1,0 +1,200 @@
+"""Open the report in a real headless browser (Chromium, Debian package).
+
+The browser is driven over the Chrome DevTools Protocol on a pipe
+(``--remote-debugging-pipe``: JSON messages separated by NUL bytes on file descriptors 3 and
+4), so no extra package and no network port is needed. The test records console errors and
+uncaught exceptions, checks that every image decoded, checks that a phone-width viewport
+needs no sideways scrolling, and saves screenshots to ``test-artifacts/``.
+
+Without Chromium the test is skipped locally but fails when ``CI`` is ``"true"``.
+"""
+
+from __future__ import annotations
+
+import base64
+import json
+import os
+import select
+import shutil
+import subprocess
+import time
+from pathlib import Path
+
+import pytest
+
+from impactlink.report import build_report
+
+CHROMIUM = os.environ.get("IMPACTLINK_CHROMIUM", "/usr/bin/chromium")
+ARTIFACTS = Path(__file__).resolve().parents[2] / "test-artifacts"
+
+pytestmark = pytest.mark.browser
+
+
+def _chromium() -> str:
+    path = CHROMIUM if Path(CHROMIUM).exists() else shutil.which("chromium")
+    if not path:
+        message = (f"headless Chromium not found at {CHROMIUM}; install it with "
+                   "`apt-get install -y chromium` (.ci/run does this)")
+        if os.environ.get("CI") == "true":
+            pytest.fail(message)
+        pytest.skip(message)
+    return path
+
+
+def _above_four(fd: int) -> int:
+    import fcntl
+
+    new = fcntl.fcntl(fd, fcntl.F_DUPFD_CLOEXEC, 10)
+    os.close(fd)
+    return new
+
+
+class _Pipe:
+    """Minimal DevTools client over --remote-debugging-pipe."""
+
+    def __init__(self, exe: str, profile: Path) -> None:
+        to_child_r, self._w = os.pipe()
+        self._r, from_child_w = os.pipe()
+        # Move the child's ends above 4 so that remapping one cannot clobber the other.
+        to_child_r, from_child_w = (_above_four(to_child_r), _above_four(from_child_w))
+
+        def wire():  # in the child: the protocol expects fd 3 = commands, fd 4 = replies
+            os.dup2(to_child_r, 3)
+            os.dup2(from_child_w, 4)
+
+        # pass_fds=(3, 4): subprocess closes other descriptors after preexec_fn runs.
+        self.proc = subprocess.Popen(
+            [exe, "--headless", "--no-sandbox", "--disable-gpu",
+             "--disable-background-networking", "--disable-component-update", "--no-first-run",
+             "--disable-extensions", f"--user-data-dir={profile}", "--remote-debugging-pipe",
+             "about:blank"],
+            stdin=subprocess.DEVNULL, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL,
+            preexec_fn=wire, pass_fds=(3, 4),
+        )
+        os.close(to_child_r)
+        os.close(from_child_w)
+        self._buf = b""
+        self._id = 0
+        self.events: list[dict] = []
+
+    def send(self, method: str, params: dict | None = None, session: str | None = None,
+             timeout: float = 30.0) -> dict:
+        self._id += 1
+        msg = {"id": self._id, "method": method, "params": params or {}}
+        if session:
+            msg["sessionId"] = session
+        os.write(self._w, json.dumps(msg).encode() + b"\0")
+        while True:
+            reply = self._next(timeout)
+            if reply.get("id") == self._id:
+                if "error" in reply:
+                    raise RuntimeError(f"{method}: {reply['error']}")
+                return reply.get("result", {})
+            self.events.append(reply)
+
+    def wait_event(self, method: str, timeout: float = 30.0) -> dict:
+        for k, ev in enumerate(self.events):
+            if ev.get("method") == method:
+                return self.events.pop(k)
+        deadline = time.monotonic() + timeout
+        while True:
+            ev = self._next(max(deadline - time.monotonic(), 0.01))
+            if ev.get("method") == method:
+                return ev
+            self.events.append(ev)
+
+    def _next(self, timeout: float) -> dict:
+        deadline = time.monotonic() + timeout
+        while b"\0" not in self._buf:
+            left = deadline - time.monotonic()
+            ready, _, _ = select.select([self._r], [], [], max(left, 0))
+            if not ready:
+                raise TimeoutError("no reply from Chromium over the DevTools pipe")
+            chunk = os.read(self._r, 1 << 20)
+            if not chunk:
+                raise RuntimeError("Chromium closed the DevTools pipe")
+            self._buf += chunk
+        raw, self._buf = self._buf.split(b"\0", 1)
+        return json.loads(raw)
+
+    def close(self) -> None:
+        try:
+            self.send("Browser.close", timeout=5)
+        except (RuntimeError, TimeoutError, OSError):
+            pass
+        try:
+            self.proc.wait(timeout=10)
+        except subprocess.TimeoutExpired:
+            self.proc.kill()
+            self.proc.wait()
+        os.close(self._w)
+        os.close(self._r)
+
+
+_IMAGES = """JSON.stringify(Array.from(document.images).map(i => ({
+  alt: i.alt, ok: i.complete && i.naturalWidth > 0, w: i.naturalWidth})))"""
+_OVERFLOW = "document.documentElement.scrollWidth - window.innerWidth"
+
+
+def _open(client: _Pipe, url: str, width: int, height: int) -> str:
+    target = client.send("Target.createTarget", {"url": "about:blank"})["targetId"]
+    session = client.send("Target.attachToTarget",
+                          {"targetId": target, "flatten": True})["sessionId"]
+    for domain in ("Page", "Runtime", "Log"):
+        client.send(f"{domain}.enable", session=session)
+    client.send("Emulation.setDeviceMetricsOverride",
+                {"width": width, "height": height, "deviceScaleFactor": 1,
+                 "mobile": width < 600}, session=session)
+    client.send("Page.navigate", {"url": url}, session=session)
+    client.wait_event("Page.loadEventFired", timeout=60)
+    return session
+
+
+def _eval(client: _Pipe, session: str, expression: str):
+    res = client.send("Runtime.evaluate", {"expression": expression, "returnByValue": True},
+                      session=session)
+    return res["result"]["value"]
+
+
+def _errors(events: list[dict]) -> list[str]:
+    out = []
+    for ev in events:
+        m, p = ev.get("method"), ev.get("params", {})
+        if m == "Runtime.exceptionThrown":
+            out.append(json.dumps(p.get("exceptionDetails", {}))[:300])
+        elif m == "Runtime.consoleAPICalled" and p.get("type") in ("error", "assert"):
+            out.append(json.dumps(p.get("args", []))[:300])
+        elif m == "Log.entryAdded" and p.get("entry", {}).get("level") == "error":
+            out.append(p["entry"].get("text", "")[:300])
+    return out
+
+
+def test_report_renders_in_headless_chromium(fake_run, tmp_path):
+    exe = _chromium()
+    html = build_report(fake_run)
+    client = _Pipe(exe, tmp_path / "profile")
+    try:
+        session = _open(client, html.resolve().as_uri(), 1200, 1600)
+        images = json.loads(_eval(client, session, _IMAGES))
+        shot = client.send("Page.captureScreenshot", {"format": "png"}, session=session)
+        ARTIFACTS.mkdir(exist_ok=True)
+        (ARTIFACTS / "report.png").write_bytes(base64.b64decode(shot["data"]))
+
+        phone = _open(client, html.resolve().as_uri(), 390, 844)
+        overflow = _eval(client, phone, _OVERFLOW)
+        first_screen = _eval(client, phone, "document.querySelector('.card h3') !== null")
+        shot = client.send("Page.captureScreenshot", {"format": "png"}, session=phone)
+        (ARTIFACTS / "report-phone.png").write_bytes(base64.b64decode(shot["data"]))
+        errors = _errors(client.events)
+    finally:
+        client.close()
+
+    assert errors == [], f"console errors or exceptions in the page: {errors}"
+    assert len(images) >= 10, "the fake run should produce at least ten figures"
+    broken = [i["alt"][:60] for i in images if not i["ok"]]
+    assert broken == [], f"images that did not load: {broken}"
+    assert all(i["alt"].strip() for i in images), "every image needs alt text"
+    # Phone width: figures and tables scale or scroll inside their box, not the page.
+    assert overflow <= 0, f"page is {overflow}px wider than a 390px phone screen"
+    assert first_screen
+    assert (ARTIFACTS / "report.png").stat().st_size > 10_000
