@@ -203,7 +203,16 @@ def date_column(raw: pd.Series) -> tuple[pd.Series, np.ndarray, np.ndarray]:
         if pd.api.types.is_string_dtype(raw.dtype) and not pd.api.types.is_object_dtype(raw.dtype):
             text = raw.fillna("").str.strip()
             missing = (text == "") | text.str.lower().isin(NA_SPELLINGS)
-            d = pd.to_datetime(text.where(~missing), format="ISO8601", errors="coerce")
+            if (text.str.len() > 10).any():
+                # A date with a time (and maybe a UTC offset): the calendar date as written
+                # is the date meant; offsets would otherwise mix time zones.
+                timed = text.str.match(r"^\d{4}-\d{2}-\d{2}[T ]")
+                text = text.where(~timed, text.str.slice(0, 10))
+            try:
+                d = pd.to_datetime(text.where(~missing), format="ISO8601", errors="coerce")
+            except ValueError:  # mixed offsets in forms the slice above does not cover
+                d = pd.to_datetime(text.where(~missing), format="ISO8601", errors="coerce",
+                                   utc=True)
         else:  # Python date objects from Parquet date32, mixed objects
             missing = raw.isna()
             d = pd.to_datetime(raw, errors="coerce")

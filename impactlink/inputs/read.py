@@ -316,11 +316,14 @@ def _check_columns(spec: TableSpec, frame: pd.DataFrame, path: Path) -> None:
         import difflib
 
         hints = []
+        lower = {str(c).lower(): c for c in found}
         for m in missing:
-            close = difflib.get_close_matches(m, found, n=1, cutoff=0.6)
+            close = difflib.get_close_matches(m, list(lower), n=1, cutoff=0.6)
             if close:
-                hints.append(f"{close[0]!r} -> {m!r}")
+                hints.append(f"{lower[close[0]]!r} -> {m!r}")
         hint = f" (rename {', '.join(hints)})" if hints else ""
+        if len(found) == 1 and any(sep in str(found[0]) for sep in (";", "\t", "|")):
+            hint += "; the file seems to use another separator: save it with commas"
         raise InputError(
             f"{path}: the {spec.name} table lacks required column(s) {missing}; found "
             f"{found}; expected {[c for c in spec.required if c != 'geometry']}{hint}. "

@@ -171,3 +171,21 @@ def test_all_rows_rejected_is_not_confused_with_unknown_ids(base_folder):
     b = read_inputs(make_project(base_folder))
     assert b.counts.set_index("table").loc["yields", "rows_used"] == 0
     assert pd.Series(b.rejected.reason).str.contains("sentinel").sum() == 4
+
+
+def test_semicolon_separated_csv(base_folder):
+    write_text(base_folder, "yields.csv", "county_id;year;crop;yield\n01001;2001;corn;150")
+    with pytest.raises(InputError, match=r"yields\.csv: .*another separator: save it with commas"):
+        read_inputs(make_project(base_folder))
+
+
+def test_column_name_case_hint(base_folder):
+    write_text(base_folder, "yields.csv", "County_ID,year,crop,yield\n01001,2001,corn,150")
+    with pytest.raises(InputError, match=r"rename 'County_ID' -> 'county_id'"):
+        read_inputs(make_project(base_folder))
+
+
+def test_not_utf8_csv(base_folder):
+    (base_folder / "yields.csv").write_bytes("county_id,year,crop,yield\n01001,2001,ma\xefs,1\n".encode("utf-16"))
+    with pytest.raises(InputError, match=r"yields\.csv: cannot be read as CSV .*UTF-8"):
+        read_inputs(make_project(base_folder))

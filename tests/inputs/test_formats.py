@@ -156,3 +156,14 @@ def test_clean_run_has_no_warnings(base_folder):
         b = read_inputs(make_project(base_folder))
     assert b.warnings == [] and len(b.rejected) == 0
     assert list(b.rejected.columns) == ["table", "file", "row", "column", "value", "reason"]
+
+
+def test_dates_with_time_zones_keep_the_calendar_date(base_folder):
+    write_text(
+        base_folder, "field_reports.csv",
+        "county_id,date,sector\n01001,2001-06-01T23:00:00-05:00,hay\n01001,2001-06-02,hay\n"
+        "01001,2001-06-03 08:00:00Z,hay",
+    )
+    fr = read_inputs(make_project(base_folder)).tables["field_reports"]
+    assert fr["date"].dt.strftime("%Y-%m-%d").tolist() == ["2001-06-01", "2001-06-02", "2001-06-03"]
+    assert fr["date"].dtype == "datetime64[ns]"
