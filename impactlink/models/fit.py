@@ -14,7 +14,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 import pandas as pd
 
-from impactlink.link.target import Target
+from impactlink.link.target import FeatureRule, Target
 from impactlink.models import _links
 from impactlink.models._design import (
     DesignSpec,
@@ -88,6 +88,8 @@ class ImpactModel:
         Estimated between-county standard deviation of the deviations (``"county"`` only).
     horizon_weeks : int
         Copied from the target (onset window), for the outlook.
+    grain, role, rule
+        Copied from the target, so the outlook can align new index values the same way.
     meta : dict
         Candidate metadata (index, scale_weeks, lag_weeks, ...) passed by the caller.
     loglik : float
@@ -117,6 +119,9 @@ class ImpactModel:
     horizon_weeks: int = 0
     meta: dict = field(default_factory=dict)
     loglik: float = np.nan
+    grain: str = "county_week"
+    role: str = "state"
+    rule: FeatureRule | None = None
 
     # ------------------------------------------------------------ parameters
     @property
@@ -423,7 +428,7 @@ def fit_impact_model(
     common = dict(
         kind=target.kind, target=target.name, impact=target.impact,
         horizon_weeks=int(target.horizon_weeks), meta=dict(meta or {}), link=link,
-        levels=tuple(target.levels),
+        levels=tuple(target.levels), grain=target.grain, role=target.role, rule=target.rule,
     )
     if K < 1:
         return _failed(spec, f"target has {target.n_levels} level(s); need at least 2",
