@@ -193,7 +193,8 @@ def link_notices(spec, tables: dict[str, pd.DataFrame], *, counties, weeks: pd.D
                 f"got {k}"
             )
         for h in _horizons(opts, spec.name):
-            for role in ("onset", "escalation"):
+            # escalation needs a ladder with at least two levels
+            for role in ("onset", "escalation") if K >= 2 else ("onset",):
                 at_risk, event = risk_set(level, mask, horizon_weeks=h, role=role,
                                           onset_level=k, top_level=K)
                 t = _target_from_grid(
