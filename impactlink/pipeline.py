@@ -10,6 +10,7 @@ from __future__ import annotations
 import json
 import platform
 import time
+import warnings as _warnings
 from dataclasses import dataclass, field
 from datetime import UTC, datetime
 from pathlib import Path
@@ -130,7 +131,14 @@ def run_project(
         for stage in stages:
             reporter.stage(stage)
             t0 = time.perf_counter()
-            written = _STAGES[stage](project, st, out_dir, reporter, warnings)
+            with _warnings.catch_warnings(record=True) as caught:
+                _warnings.simplefilter("always")
+                written = _STAGES[stage](project, st, out_dir, reporter, warnings)
+            for w in caught:  # kept in the manifest, shown once as a progress line
+                msg = f"{w.category.__name__}: {w.message}"
+                if msg not in warnings:
+                    warnings.append(msg)
+                    reporter(f"warning: {msg}")
             result.timings_s[stage] = round(time.perf_counter() - t0, 3)
             result.written.extend(written or [])
             _write_manifest(out_dir, project, st, result.timings_s, warnings)
@@ -471,6 +479,8 @@ def _write_manifest(out_dir: Path, project: Project, st: dict, timings: dict, wa
 
 
 def _jsonable(v):
+    if v is None or v is pd.NaT or v is pd.NA:
+        return None
     if isinstance(v, (np.integer,)):
         return int(v)
     if isinstance(v, (np.floating,)):
@@ -481,7 +491,7 @@ def _jsonable(v):
         return {str(k): _jsonable(x) for k, x in v.items()}
     if isinstance(v, (list, tuple)):
         return [_jsonable(x) for x in v]
-    if v is pd.NaT or (isinstance(v, float) and np.isnan(v)):
+    if isinstance(v, float) and np.isnan(v):
         return None
     return v
 
