@@ -1,0 +1,478 @@
+"""County contrasts: why counties with similar index values had different impacts."""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass, field
+from typing import Literal
+
+import numpy as np
+import pandas as pd
+from scipy.stats import chi2
+
+from impactlink.errors import ImpactlinkWarning, StageError
+from impactlink.link.target import Target
+
+__all__ = ["ContrastResult", "ContrastWarning", "county_contrast", "poisson_ratio_interval"]
+
+#: Quantile levels summarising each county's exposure (the index values in impact seasons).
+_EXPOSURE_Q = np.linspace(0.05, 0.95, 19)
+
+
+class ContrastWarning(ImpactlinkWarning):
+    """Rows, traits or counties were left out of a county contrast, or the fit is fragile."""
+
+
+@dataclass(frozen=True)
+class ContrastResult:
+    """County contrasts for one target and one index feature.
+
+    Attributes
+    ----------
+    terms : pandas.DataFrame
+        ``term, odds_ratio_per_sd, or_lo, or_hi, p_value, sd`` for the index (``term`` =
+        "index") and each trait (``sd``: one standard deviation in the trait's own units; the
+        index per-SD odds ratio uses the SD of the feature over the rows used).
+    county_excess : pandas.DataFrame
+        ``county_id, rows, events, expected_events, ratio, ratio_lo, ratio_hi``: observed vs
+        expected events given the index alone.
+    pairs : pandas.DataFrame
+        ``county_a, county_b, exposure_gap, rate_a, rate_b, events_a, events_b, rows_a,
+        rows_b, largest_trait_gap`` and ``gap_<trait>_sd`` (trait of a minus b in SD units);
+        ``a`` is the county with the higher impact rate.
+    skill : dict
+        ``brier_index``, ``brier_traits``, ``brier_change`` (traits minus index; negative = the
+        traits help out of sample), ``brier_change_lo``/``_hi`` (year-block bootstrap interval),
+        ``n_years``.
+    provenance : dict
+        Rows used and dropped, counties, clusters, settings, warnings.
+    """
+
+    terms: pd.DataFrame
+    county_excess: pd.DataFrame
+    pairs: pd.DataFrame
+    skill: dict
+    provenance: dict = field(default_factory=dict)
+
+    def to_frame(self) -> pd.DataFrame:
+        """Rows of ``contrast.csv``: one per model term, with the target and skill attached."""
+        out = self.terms.copy()
+        out.insert(0, "target", self.provenance.get("target", ""))
+        for key in ("brier_index", "brier_traits", "brier_change", "brier_change_lo",
+                    "brier_change_hi"):
+            out[key] = self.skill.get(key, np.nan)
+        return out
+
+
+def county_contrast(
+    target: Target,
+    x: np.ndarray,
+    traits: pd.DataFrame,
+    *,
+    link: Literal["logit"] = "logit",
+    cluster: Literal["county", "year"] = "county",
+    ci: float = 0.90,
+    n_pairs: int = 10,
+    n_boot: int = 200,
+    seed: int = 0,
+) -> ContrastResult:
+    """Explain county differences in impacts at similar index values from county traits.
+
+    Parameters
+    ----------
+    target : Target
+        A county-grain target (``county_week`` or ``county_year``; its frame has
+        ``county_id``, ``year``, ``level`` and, if present, ``season``). The outcome is
+        binary: level >= 1 (any impact) for both binary and ordinal targets.
+    x : ndarray, shape (rows,)
+        The feature of the chosen candidate (index, scale, lag) for each row of
+        ``target.frame`` (index units); NaN rows are left out.
+    traits : pandas.DataFrame
+        ``county_id`` plus numeric trait columns (e.g. ``irrigated_share``,
+        ``storage_days``); one row per county.
+    link : {"logit"}
+        Link of the binomial GLM (odds ratios need the logit link).
+    cluster : {"county", "year"}, default "county"
+        Grouping of the cluster-robust standard errors. Traits are constant within a county,
+        so rows of one county share its unexplained risk: clustering by county is the default
+        (Cameron & Miller 2015, section II); "year" guards against statewide drought years
+        instead.
+    ci : float, default 0.90
+        Confidence level of the odds-ratio and excess-ratio intervals.
+    n_pairs : int, default 10
+        Rows of the matched-pairs table.
+    n_boot : int, default 200
+        Year-block bootstrap replicates for the Brier-change interval (0 = none).
+    seed : int, default 0
+        Seed of the bootstrap.
+
+    Returns
+    -------
+    ContrastResult
+
+    Raises
+    ------
+    StageError
+        If the target is not on a county grain, ``x`` does not match its rows, the traits table
+        has no ``county_id`` or no usable numeric column, an option is unknown, or too few rows
+        or events remain to fit.
+
+    Warns
+    -----
+    ContrastWarning
+        When rows without a feature value or without traits, constant traits or non-numeric
+        columns are left out, or when there are fewer than 10 clusters (cluster-robust
+        standard errors are then unreliable even with the small-sample correction).
+
+    Notes
+    -----
+    (a) Excess: the index-only model :math:`\\text{logit}\\,p_i = \\beta_0 + \\beta_1 x_i` is
+    fitted to all rows; county c's expected events are :math:`E_c = \\sum_{i\\in c}\\hat p_i`
+    and its ratio :math:`O_c/E_c` (as a standardized incidence ratio; Breslow & Day 1987,
+    chapter 2) with the exact Poisson interval for :math:`O_c` (Garwood 1936) divided by
+    :math:`E_c` (the uncertainty of :math:`E_c` is ignored, as is usual).
+
+    (b) Traits: :math:`\\text{logit}\\,p_i = \\beta_0 + \\beta_1 x_i + \\sum_k \\gamma_k z_{ck}`
+    with traits standardized across counties (each county once, SD with ddof = 1), so
+    :math:`e^{\\gamma_k}` is the odds ratio per one SD of trait k at a given index value.
+    Cluster-robust (sandwich) covariance with the small-sample correction and t intervals
+    with G - 1 degrees of freedom (Cameron & Miller 2015). The out-of-sample value of the
+    traits is the change in Brier score (lower is better; Brier 1950) between the two models
+    under leave-one-year-out cross-validation, with a percentile interval from resampling
+    whole years.
+
+    (c) Matched pairs: each county's exposure is the distribution of ``x`` over its rows in
+    impact seasons (the ``season`` values in which any event occurred); the exposure gap of
+    two counties is the mean absolute difference of their 5th..95th percentiles (a discrete
+    1-Wasserstein distance, in index units). Among pairs whose gap is in the lowest quarter
+    of all pairs, those with the largest difference in impact rate are listed with their trait
+    differences.
+
+    All of this is statistical association in past records, not cause: a trait that stands
+    out may stand for something unmeasured.
+
+    References
+    ----------
+    Breslow, N. E., & Day, N. E. (1987). Statistical Methods in Cancer Research, Vol. II: The
+    Design and Analysis of Cohort Studies. IARC Scientific Publications 82.
+    Brier, G. W. (1950). Verification of forecasts expressed in terms of probability. Monthly
+    Weather Review, 78(1), 1-3. https://doi.org/10.1175/1520-0493(1950)078<0001:VOFEIT>2.0.CO;2
+    Cameron, A. C., & Miller, D. L. (2015). A practitioner's guide to cluster-robust inference.
+    Journal of Human Resources, 50(2), 317-372. https://doi.org/10.3368/jhr.50.2.317
+    Garwood, F. (1936). Fiducial limits for the Poisson distribution. Biometrika, 28(3/4),
+    437-442. https://doi.org/10.1093/biomet/28.3-4.437
+    """
+    data, trait_names, trait_sd, prov = _prepare(target, x, traits, link, cluster, ci, n_pairs,
+                                                 n_boot)
+    alpha = 1.0 - ci
+    y = data["y"].to_numpy()
+    xv = data["x"].to_numpy()
+    z = data[trait_names].to_numpy()
+
+    base = _fit(y, np.column_stack([np.ones_like(xv), xv]))
+    excess = _county_excess(data, base.predict(), alpha)
+
+    design = np.column_stack([np.ones_like(xv), xv, z])
+    groups = data["county_id" if cluster == "county" else "year"].to_numpy()
+    n_groups = len(np.unique(groups))
+    if n_groups < 10:
+        warnings.warn(
+            f"only {n_groups} {cluster} clusters; cluster-robust intervals are unreliable with "
+            "fewer than about 10 clusters (Cameron & Miller 2015). Read the odds ratios as "
+            "rough.",
+            ContrastWarning,
+            stacklevel=2,
+        )
+        prov["warnings"].append(f"few clusters: {n_groups}")
+    full = _fit(y, design, groups=groups)
+    terms = _terms(full, ["index"] + trait_names, alpha, np.append(np.std(xv, ddof=1), trait_sd),
+                   n_groups)
+
+    skill = _brier_cv(y, xv, z, data["year"].to_numpy(), n_boot, alpha, seed)
+    pairs = _pairs(data, trait_names, n_pairs)
+    prov.update({"clusters": int(n_groups), "cluster": cluster, "link": link, "ci": ci,
+                 "seed": int(seed), "n_boot": int(n_boot)})
+    return ContrastResult(terms=terms, county_excess=excess, pairs=pairs, skill=skill,
+                          provenance=prov)
+
+
+def poisson_ratio_interval(
+    observed: np.ndarray, expected: np.ndarray, *, ci: float = 0.90
+) -> tuple[np.ndarray, np.ndarray]:
+    """Exact (Garwood) interval of the ratio observed / expected for Poisson counts.
+
+    Parameters
+    ----------
+    observed : array of int
+        Observed events O >= 0.
+    expected : array of float
+        Expected events E > 0 (treated as known).
+    ci : float
+        Confidence level.
+
+    Returns
+    -------
+    (lo, hi) : arrays
+        :math:`\\chi^2_{\\alpha/2}(2O)/(2E)` and :math:`\\chi^2_{1-\\alpha/2}(2O+2)/(2E)`; lo = 0
+        when O = 0.
+
+    References
+    ----------
+    Garwood, F. (1936). Fiducial limits for the Poisson distribution. Biometrika, 28(3/4),
+    437-442. https://doi.org/10.1093/biomet/28.3-4.437
+    """
+    o = np.asarray(observed, dtype=np.float64)
+    e = np.asarray(expected, dtype=np.float64)
+    a = 1.0 - ci
+    with np.errstate(invalid="ignore", divide="ignore"):
+        lo = np.where(o > 0, chi2.ppf(a / 2, 2 * np.maximum(o, 1e-300)) / 2, 0.0) / e
+        hi = chi2.ppf(1 - a / 2, 2 * o + 2) / 2 / e
+    return lo, hi
+
+
+# --------------------------------------------------------------------------- private steps
+def _prepare(target, x, traits, link, cluster, ci, n_pairs, n_boot):
+    if link != "logit":
+        raise StageError(
+            f"link must be 'logit' (odds ratios per SD need it); got {link!r}."
+        )
+    if cluster not in ("county", "year"):
+        raise StageError(f"cluster must be 'county' or 'year'; got {cluster!r}.")
+    if not 0.5 <= float(ci) < 1.0:
+        raise StageError(f"ci must be a confidence level in [0.5, 1); got {ci!r}.")
+    if int(n_pairs) < 0 or int(n_boot) < 0:
+        raise StageError(f"n_pairs and n_boot must be >= 0; got {n_pairs!r}, {n_boot!r}.")
+    frame = target.frame
+    if target.grain not in ("county_week", "county_year") or "county_id" not in frame.columns:
+        raise StageError(
+            f"target {target.name!r} is on the {target.grain!r} grain; county contrasts need a "
+            "county grain (county_week or county_year) with a county_id column."
+        )
+    for col in ("year", "level"):
+        if col not in frame.columns:
+            raise StageError(f"target {target.name!r} frame lacks the {col!r} column.")
+    xv = np.asarray(x, dtype=np.float64)
+    if xv.shape != (len(frame),):
+        raise StageError(
+            f"x has shape {xv.shape}; expected ({len(frame)},), one feature value per row of "
+            f"target {target.name!r}."
+        )
+    if not isinstance(traits, pd.DataFrame) or "county_id" not in traits.columns:
+        raise StageError(
+            "traits must be a DataFrame with a county_id column and numeric trait columns."
+        )
+    if traits["county_id"].astype(str).duplicated().any():
+        dup = traits.loc[traits["county_id"].astype(str).duplicated(), "county_id"].tolist()[:5]
+        raise StageError(f"traits has repeated county_id values {dup}; one row per county.")
+    prov: dict = {"target": target.name, "warnings": [], "rows_in": int(len(frame))}
+    numeric = [c for c in traits.columns
+               if c != "county_id" and pd.api.types.is_numeric_dtype(traits[c])
+               and not pd.api.types.is_bool_dtype(traits[c])]
+    other = [c for c in traits.columns if c != "county_id" and c not in numeric]
+    if other:
+        _warn(prov, f"non-numeric trait columns left out: {other}")
+    if not numeric:
+        raise StageError(
+            "traits has no numeric column besides county_id; add county characteristics such as "
+            "irrigated_share or storage_days."
+        )
+    tr = traits[["county_id"] + numeric].copy()
+    tr["county_id"] = tr["county_id"].astype(str)
+
+    data = pd.DataFrame(
+        {
+            "county_id": frame["county_id"].astype(str).to_numpy(),
+            "year": frame["year"].to_numpy(),
+            "season": frame["season"].to_numpy() if "season" in frame.columns else 0,
+            "y": (frame["level"].to_numpy(dtype=np.float64) >= 1).astype(np.float64),
+            "x": xv,
+        }
+    )
+    ok = np.isfinite(xv) & frame["level"].notna().to_numpy()
+    if (~ok).any():
+        _warn(prov, f"{int((~ok).sum())} rows without a feature value or level left out")
+    data = data[ok]
+    data = data.merge(tr, on="county_id", how="left")
+    no_trait = data[numeric].isna().any(axis=1)
+    if no_trait.any():
+        missing = sorted(data.loc[no_trait, "county_id"].unique())
+        _warn(prov, f"{int(no_trait.sum())} rows of {len(missing)} counties without complete "
+                    f"traits left out (e.g. {missing[:3]})")
+    data = data[~no_trait].reset_index(drop=True)
+
+    county_traits = data.drop_duplicates("county_id")[numeric]
+    sd = county_traits.std(ddof=1).to_numpy()
+    keep = [c for c, s in zip(numeric, sd) if np.isfinite(s) and s > 0]
+    if len(keep) < len(numeric):
+        _warn(prov, f"traits constant across counties left out: "
+                    f"{[c for c in numeric if c not in keep]}")
+    if not keep:
+        raise StageError("no trait varies across the counties with data; nothing to contrast.")
+    mean = county_traits[keep].mean().to_numpy()
+    sd_keep = county_traits[keep].std(ddof=1).to_numpy()
+    data[keep] = (data[keep].to_numpy() - mean) / sd_keep
+    n_events = int(data["y"].sum())
+    if len(data) < 20 or n_events < 5 or n_events > len(data) - 5:
+        raise StageError(
+            f"{len(data)} usable rows with {n_events} events: too few rows, events or non-events "
+            "to fit a county contrast (need >= 20 rows and >= 5 of each outcome)."
+        )
+    prov.update({"rows_used": int(len(data)), "events": n_events,
+                 "counties": int(data["county_id"].nunique()),
+                 "traits": keep})
+    return data, keep, sd_keep, prov
+
+
+def _warn(prov: dict, message: str) -> None:
+    prov["warnings"].append(message)
+    warnings.warn(message, ContrastWarning, stacklevel=3)
+
+
+def _fit(y, design, groups=None):
+    import statsmodels.api as sm
+    from statsmodels.tools.sm_exceptions import PerfectSeparationWarning
+
+    model = sm.GLM(y, design, family=sm.families.Binomial())
+    with warnings.catch_warnings():
+        warnings.simplefilter("error", PerfectSeparationWarning)
+        try:
+            if groups is None:
+                return model.fit()
+            codes = pd.factorize(groups)[0]
+            return model.fit(cov_type="cluster", cov_kwds={"groups": codes, "use_correction": True},
+                             use_t=True)
+        except (PerfectSeparationWarning, np.linalg.LinAlgError) as err:
+            raise StageError(
+                "the impact is perfectly separated by the index or traits (some trait or index "
+                "range has only events or only non-events); the odds ratios are not estimable. "
+                f"Use fewer traits or more counties. ({type(err).__name__})"
+            ) from None
+
+
+def _terms(fit, names, alpha, sd, n_groups) -> pd.DataFrame:
+    from scipy.stats import t as t_dist
+
+    params = np.asarray(fit.params)[1:]
+    se = np.asarray(fit.bse)[1:]
+    dfree = max(n_groups - 1, 1)
+    q = t_dist.ppf(1 - alpha / 2, dfree)
+    pvals = np.asarray(fit.pvalues)[1:]
+    # the index coefficient is per index unit; rescale to per SD of the feature like the traits
+    scale = np.ones_like(params)
+    scale[0] = sd[0]
+    beta = params * scale
+    half = q * se * scale
+    return pd.DataFrame(
+        {
+            "term": names,
+            "odds_ratio_per_sd": np.exp(beta),
+            "or_lo": np.exp(beta - half),
+            "or_hi": np.exp(beta + half),
+            "p_value": pvals,
+            "sd": sd,
+        }
+    )
+
+
+def _county_excess(data: pd.DataFrame, p_hat: np.ndarray, alpha: float) -> pd.DataFrame:
+    g = pd.DataFrame({"county_id": data["county_id"], "y": data["y"], "p": p_hat})
+    agg = g.groupby("county_id", sort=True).agg(rows=("y", "size"), events=("y", "sum"),
+                                                 expected_events=("p", "sum")).reset_index()
+    agg["events"] = agg["events"].astype(np.int64)
+    lo, hi = poisson_ratio_interval(agg["events"], agg["expected_events"], ci=1 - alpha)
+    agg["ratio"] = agg["events"] / agg["expected_events"]
+    agg["ratio_lo"] = lo
+    agg["ratio_hi"] = hi
+    return agg
+
+
+def _brier_cv(y, xv, z, years, n_boot, alpha, seed) -> dict:
+    """Leave-one-year-out Brier scores of index-only and index+traits models."""
+    uniq = np.unique(years)
+    if len(uniq) < 3:
+        return {"brier_index": np.nan, "brier_traits": np.nan, "brier_change": np.nan,
+                "brier_change_lo": np.nan, "brier_change_hi": np.nan, "n_years": len(uniq)}
+    d0 = np.column_stack([np.ones_like(xv), xv])
+    d1 = np.column_stack([d0, z])
+    p0 = np.full(len(y), np.nan)
+    p1 = np.full(len(y), np.nan)
+    # one fit pair per held-out year (tens of small GLMs)
+    for yr in uniq:
+        test = years == yr
+        train = ~test
+        if y[train].min() == y[train].max():
+            continue
+        p0[test] = _predict(y[train], d0[train], d0[test])
+        p1[test] = _predict(y[train], d1[train], d1[test])
+    ok = np.isfinite(p0) & np.isfinite(p1)
+    e0 = (p0 - y) ** 2
+    e1 = (p1 - y) ** 2
+    codes = np.unique(years[ok], return_inverse=True)[1]
+    n_y = codes.max() + 1
+    s0 = np.bincount(codes, e0[ok], n_y)
+    s1 = np.bincount(codes, e1[ok], n_y)
+    cnt = np.bincount(codes, minlength=n_y).astype(float)
+    change = (s1.sum() - s0.sum()) / cnt.sum()
+    lo = hi = np.nan
+    if n_boot > 0:
+        rng = np.random.default_rng(seed)
+        draw = rng.integers(0, n_y, size=(n_boot, n_y))
+        boot = (s1[draw].sum(1) - s0[draw].sum(1)) / cnt[draw].sum(1)
+        lo, hi = np.quantile(boot, [alpha / 2, 1 - alpha / 2])
+    return {"brier_index": float(s0.sum() / cnt.sum()), "brier_traits": float(s1.sum() / cnt.sum()),
+            "brier_change": float(change), "brier_change_lo": float(lo),
+            "brier_change_hi": float(hi), "n_years": int(n_y)}
+
+
+def _predict(y, d_train, d_test):
+    import statsmodels.api as sm
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore")  # a fold may be near-separated; its score shows it
+        res = sm.GLM(y, d_train, family=sm.families.Binomial()).fit()
+    return res.predict(d_test)
+
+
+def _pairs(data: pd.DataFrame, trait_names: list[str], n_pairs: int) -> pd.DataFrame:
+    event_seasons = np.unique(data.loc[data["y"] == 1, "season"])
+    season_rows = data[data["season"].isin(event_seasons)]
+    counties = np.array(sorted(season_rows["county_id"].unique()))
+    cols = (["county_a", "county_b", "exposure_gap", "rate_a", "rate_b", "events_a", "events_b",
+             "rows_a", "rows_b", "largest_trait_gap"] + [f"gap_{t}_sd" for t in trait_names])
+    if len(counties) < 2 or n_pairs == 0:
+        return pd.DataFrame(columns=cols)
+    grouped = season_rows.groupby("county_id", sort=True)
+    q = np.vstack([np.quantile(g["x"].to_numpy(), _EXPOSURE_Q) for _, g in grouped])
+    rate = grouped["y"].mean().to_numpy()
+    events = grouped["y"].sum().to_numpy().astype(np.int64)
+    rows = grouped.size().to_numpy()
+    tz = grouped[trait_names].first().to_numpy()
+    gap = np.abs(q[:, None, :] - q[None, :, :]).mean(axis=2)  # (C, C)
+    i, j = np.triu_indices(len(counties), k=1)
+    g_ij = gap[i, j]
+    close = g_ij <= np.quantile(g_ij, 0.25)
+    i, j, g_ij = i[close], j[close], g_ij[close]
+    diff = np.abs(rate[i] - rate[j])
+    order = np.lexsort((g_ij, -diff))[:n_pairs]
+    i, j, g_ij = i[order], j[order], g_ij[order]
+    swap = rate[j] > rate[i]
+    a = np.where(swap, j, i)
+    b = np.where(swap, i, j)
+    tgap = tz[a] - tz[b]
+    out = pd.DataFrame(
+        {
+            "county_a": counties[a],
+            "county_b": counties[b],
+            "exposure_gap": g_ij,
+            "rate_a": rate[a],
+            "rate_b": rate[b],
+            "events_a": events[a],
+            "events_b": events[b],
+            "rows_a": rows[a],
+            "rows_b": rows[b],
+            "largest_trait_gap": np.asarray(trait_names)[np.abs(tgap).argmax(axis=1)],
+        }
+    )
+    for k, t in enumerate(trait_names):
+        out[f"gap_{t}_sd"] = tgap[:, k]
+    return out[cols]
