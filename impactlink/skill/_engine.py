@@ -1,0 +1,251 @@
+"""The histogram fast path: per-block outcome counts in narrow index bins, batched CV fits.
+
+A univariate impact model only needs, per block (a year, or a year x region for
+leave-one-region-out), the count of each outcome level in each narrow bin of the index
+value, and the sum of the index values there. Every fold's training data is then the total
+minus the held-out blocks, each fit runs on a few hundred weighted rows (bins x cells x
+levels), and all fits of a chunk of candidates run at once through
+:func:`impactlink.models.batch.fit_cumlogit_batch` (a binary target is the two-level case).
+The held-out rows of a bin are predicted at their own mean index value, so binning only
+approximates the *fit*, not the scored values; ``tests/skill/test_engine.py`` checks the
+binned fit against the exact unbinned fit.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from impactlink.models.batch import fit_cumlogit_batch
+
+PRIOR_WEIGHT = 1.0  # total weight of the pseudo-rows that keep every fit finite
+
+
+# --------------------------------------------------------------------------- structures
+@dataclass(frozen=True)
+class Layout:
+    """Block / fold structure shared by every candidate of one target."""
+
+    n_blocks: int
+    block_fold: np.ndarray  # (G,)
+    block_year: np.ndarray  # (G,) year position 0..Y-1
+    n_folds: int
+    excl: np.ndarray  # (J, F) 1 where a fold is left out of job j's training data
+    scored: np.ndarray  # (J, G) 1 where job j scores block g
+    n_main: int  # jobs 0..F-1 are the main CV fits (job f leaves out fold f)
+    inner_of: np.ndarray  # (J,) outer fold of an inner job, -1 for main jobs
+    boot: np.ndarray  # (R, G) block multiplicities of the year bootstrap
+    n_levels: int
+
+
+@dataclass
+class Hist:
+    """Histogram of one candidate: counts (G, R, K) and index sums (G, R, P) over rows R.
+
+    Rows are bins (x cells): ``cell`` (R,) gives each row's cell (persistence category)
+    and ``n_cells`` their number (1 when there are none).
+    """
+
+    N: np.ndarray
+    S: np.ndarray
+    cell: np.ndarray
+    n_cells: int
+
+
+def make_layout(block_fold, block_year, n_years, n_levels, *, k_inner, n_boot, seed):
+    G = block_fold.size
+    F = int(block_fold.max()) + 1
+    excl, scored, inner_of = [], [], []
+    for f in range(F):
+        e = np.zeros(F)
+        e[f] = 1
+        excl.append(e)
+        scored.append((block_fold == f).astype(float))
+        inner_of.append(-1)
+    if k_inner > 0:
+        for f in range(F):
+            rest = np.array([g for g in range(F) if g != f])
+            for grp in np.array_split(rest, min(k_inner, rest.size)):
+                e = np.zeros(F)
+                e[f] = 1
+                e[grp] = 1
+                excl.append(e)
+                scored.append(np.isin(block_fold, grp).astype(float))
+                inner_of.append(f)
+    rng = np.random.default_rng(seed)
+    if n_boot > 0:
+        M = rng.multinomial(n_years, np.full(n_years, 1.0 / n_years), size=n_boot)
+        boot = M[:, block_year].astype(float)
+    else:
+        boot = np.zeros((0, G))
+    return Layout(G, block_fold, block_year, F, np.array(excl), np.array(scored), F,
+                  np.array(inner_of), boot, n_levels)
+
+
+def bin_codes(x: np.ndarray, n_bins: int) -> np.ndarray:
+    """Equal-width bin of each value between the sample minimum and maximum."""
+    lo, hi = float(x.min()), float(x.max())
+    if hi <= lo:
+        return np.zeros(x.size, dtype=np.int64)
+    b = np.floor((x - lo) / (hi - lo) * n_bins).astype(np.int64)
+    return np.clip(b, 0, n_bins - 1)
+
+
+def build_hist(block, level, xs, bins, cell, *, n_blocks, n_bins_total, n_cells, n_levels):
+    """Counts and sums for one candidate (one pass over the rows)."""
+    G, NB, C, K = n_blocks, n_bins_total, n_cells, n_levels
+    row = (block * NB + bins) * C + cell
+    N = np.bincount(row * K + level, minlength=G * NB * C * K).reshape(G, NB * C, K)
+    S = np.stack([np.bincount(row, weights=x, minlength=G * NB * C) for x in xs], axis=-1)
+    S = S.reshape(G, NB * C, len(xs))
+    keep = N.sum(axis=(0, 2)) > 0
+    cells = np.tile(np.arange(C), NB)[keep]
+    return Hist(N=N[:, keep].astype(float), S=S[:, keep], cell=cells, n_cells=C)
+
+
+# --------------------------------------------------------------------------- fitting
+def fit_chunk(hists: list[Hist], layout: Layout, *, use_cells: bool, jobs_subset: str = "all",
+              prior: float = PRIOR_WEIGHT, max_iter: int = 30, tol: float = 1e-7):
+    """Fit every CV job for a list of candidates with the same shape; return coefficients.
+
+    Returns an array (U, J, q) of cumulative-logit coefficients (K-1 cut-points, then slopes
+    of the P index columns, then the C-1 cell effects when ``use_cells``).
+    """
+    K = layout.n_levels
+    J = layout.excl.shape[0] if jobs_subset == "all" else layout.n_main
+    excl = layout.excl[:J]
+    feats, Ns = [], []
+    Rmax = max(h.N.shape[1] for h in hists)
+    for h in hists:
+        N, S = _padded(h, Rmax)
+        NF = _fold_sums(N, layout)  # (F, R, K)
+        SF = _fold_sums(S, layout)
+        Ntr = N.sum(0)[None] - np.einsum("jf,frk->jrk", excl, NF)
+        Str = S.sum(0)[None] - np.einsum("jf,frp->jrp", excl, SF)
+        Ntr = np.maximum(Ntr, 0.0)  # guard against round-off in the subtraction
+        n = Ntr.sum(-1)
+        xbar = Str / np.maximum(n, 1e-12)[..., None]
+        Ns.append(Ntr)
+        feats.append(_design(xbar, _cells(h, Rmax), h.n_cells if use_cells else 1))
+    Ntr = np.stack(Ns)  # (U, J, R, K)
+    X = np.stack(feats)  # (U, J, R, p)
+    U, _, R, p = X.shape
+    # expand rows to (row, level); add pseudo-rows at the weighted mean design row
+    Xl = np.repeat(X[:, :, :, None, :], K, axis=3).reshape(U * J, R * K, p)
+    yl = np.tile(np.arange(K), R)[None].repeat(U * J, 0)
+    wl = Ntr.reshape(U * J, R * K)
+    if prior > 0:
+        n_row = Ntr.sum(-1).reshape(U * J, R)
+        Xflat = X.reshape(U * J, R, p)
+        xm = (Xflat * n_row[..., None]).sum(1) / np.maximum(n_row.sum(1), 1e-12)[:, None]
+        Xp = np.repeat(xm[:, None, :], K, axis=1)
+        Xl = np.concatenate([Xl, Xp], axis=1)
+        yl = np.concatenate([yl, np.tile(np.arange(K), (U * J, 1))], axis=1)
+        wl = np.concatenate([wl, np.full((U * J, K), prior / K)], axis=1)
+    fit = fit_cumlogit_batch(Xl, yl, wl, n_levels=K, ridge=1e-4, max_iter=max_iter, tol=tol)
+    return fit.coef.reshape(U, J, -1), fit.converged.reshape(U, J)
+
+
+def _padded(h: Hist, R: int):
+    pad = R - h.N.shape[1]
+    if pad == 0:
+        return h.N, h.S
+    return (np.pad(h.N, ((0, 0), (0, pad), (0, 0))), np.pad(h.S, ((0, 0), (0, pad), (0, 0))))
+
+
+def _cells(h: Hist, R: int) -> np.ndarray:
+    return np.pad(h.cell, (0, R - h.cell.size))
+
+
+def _fold_sums(A: np.ndarray, layout: Layout) -> np.ndarray:
+    out = np.zeros((layout.n_folds,) + A.shape[1:])
+    np.add.at(out, layout.block_fold, A)
+    return out
+
+
+def _design(xbar: np.ndarray, cell: np.ndarray, n_cells: int) -> np.ndarray:
+    """Design rows: index means (..., P) then one-hot cells 1..C-1."""
+    if n_cells <= 1:
+        return xbar
+    D = np.zeros(xbar.shape[:-1] + (n_cells - 1,))
+    on = cell > 0
+    D[..., on, cell[on] - 1] = 1.0
+    return np.concatenate([xbar, D], axis=-1)
+
+
+# --------------------------------------------------------------------------- prediction
+def predict_blocks(h: Hist, coef: np.ndarray, *, use_cells: bool, n_levels: int) -> np.ndarray:
+    """Level probabilities (J, G, R, K) of the held-out rows of every block, every job."""
+    K = n_levels
+    n = h.N.sum(-1)
+    xbar = h.S / np.maximum(n, 1e-12)[..., None]  # (G, R, P)
+    X = _design(xbar, h.cell, h.n_cells if use_cells else 1)  # (G, R, p)
+    theta = coef[:, : K - 1]
+    beta = coef[:, K - 1:]
+    eta = np.einsum("grp,jp->jgr", X, beta)
+    a = theta[:, None, None, :] - eta[..., None]
+    F = 0.5 * (1.0 + np.tanh(0.5 * a))
+    shape = F.shape[:-1] + (1,)
+    F = np.concatenate([np.zeros(shape), F, np.ones(shape)], axis=-1)
+    return np.maximum(np.diff(F, axis=-1), 1e-15)
+
+
+def block_losses(P: np.ndarray, N: np.ndarray) -> dict[str, np.ndarray]:
+    """Per-block sums of RPS, event Brier and log loss; P (..., G, R, K), N (G, R, K)."""
+    K = P.shape[-1]
+    cumP = np.cumsum(P, -1)[..., : K - 1]  # (..., G, R, K-1)
+    obs = (np.arange(K)[:, None] <= np.arange(K - 1)[None, :]).astype(float)  # (K, K-1)
+    # RPS of a row observed at level k: sum_m (cumP_m - obs[k, m])^2
+    rps_k = ((cumP[..., None, :] - obs) ** 2).sum(-1)  # (..., G, R, K)
+    q = 1.0 - P[..., 0]  # event chance
+    n1 = N[..., 1:].sum(-1)
+    n0 = N[..., 0]
+    return {
+        "rps": (rps_k * N).sum((-1, -2)),
+        "sse": (n1 * (1 - q) ** 2 + n0 * q**2).sum(-1),
+        "ll": -(N * np.log(P)).sum((-1, -2)),
+    }
+
+
+# --------------------------------------------------------------------------- rates (baselines)
+def rate_predictions(Ncat: np.ndarray, layout: Layout, *, shrink: float) -> np.ndarray:
+    """Out-of-fold level probabilities (G, R, K) of a table of categorical rows.
+
+    ``Ncat`` (G, R, K) counts per block and category. For each fold the training rate of a
+    category is ``(N_r + shrink * pi) / (n_r + shrink)`` with ``pi`` the training
+    climatology (itself smoothed by half a count): a conditional base rate. One category
+    (R = 1) gives the climatological base rate.
+    """
+    K = Ncat.shape[-1]
+    NF = _fold_sums(Ncat, layout)
+    tot = Ncat.sum(0)
+    out = np.zeros(Ncat.shape)
+    for f in range(layout.n_folds):  # few folds; each is one vectorised step
+        tr = tot - NF[f]
+        clim = (tr.sum(0) + 0.5 / K) / (tr.sum() + 0.5)
+        rate = (tr + shrink * clim) / (tr.sum(-1, keepdims=True) + shrink)
+        m = layout.block_fold == f
+        out[m] = rate[None]
+    return out
+
+
+# --------------------------------------------------------------------------- ROC area
+def auc_replicates(q: np.ndarray, n1: np.ndarray, n0: np.ndarray, block: np.ndarray,
+                   W: np.ndarray) -> np.ndarray:
+    """Weighted ROC area for each row of block weights ``W`` (R, G); rows (q, n1, n0).
+
+    Rows are sorted once by forecast; each replicate only re-weights them, so the area is
+    a cumulative sum (ties count one half, as in :func:`sklearn.metrics.roc_auc_score`).
+    """
+    order = np.argsort(q, kind="stable")
+    qs = q[order]
+    starts = np.flatnonzero(np.r_[True, qs[1:] != qs[:-1]])
+    wrow = W[:, block[order]]
+    pos = np.add.reduceat(wrow * n1[order], starts, axis=1)
+    neg = np.add.reduceat(wrow * n0[order], starts, axis=1)
+    below = np.cumsum(neg, 1) - neg
+    num = (pos * (below + 0.5 * neg)).sum(1)
+    den = pos.sum(1) * neg.sum(1)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.where(den > 0, num / den, np.nan)
