@@ -48,7 +48,7 @@ from impactlink.link._common import (
 from impactlink.link.spatial import points_to_counties
 from impactlink.link.target import FeatureRule, Target
 
-__all__ = ["link_notices", "notice_levels", "risk_set", "NOTICE_OPTIONS"]
+__all__ = ["link_notices", "notice_levels", "risk_set", "episodic_targets", "NOTICE_OPTIONS"]
 
 NOTICE_OPTIONS = {
     "ladder", "stage_names", "open_end_cap_weeks", "drought_causes", "episodic",
@@ -186,24 +186,8 @@ def link_notices(spec, tables: dict[str, pd.DataFrame], *, counties, weeks: pd.D
                     "episodes": _episode_stats(level, mask)})
     targets = [state]
     if bool(opts.get("episodic", True)):
-        k = int(opts.get("onset_level", 1))
-        if not 1 <= k <= K:
-            raise LinkError(
-                f"[impacts.{spec.name}] onset_level must be between 1 and {K} (the ladder), "
-                f"got {k}"
-            )
-        for h in _horizons(opts, spec.name):
-            # escalation needs a ladder with at least two levels
-            for role in ("onset", "escalation") if K >= 2 else ("onset",):
-                at_risk, event = risk_set(level, mask, horizon_weeks=h, role=role,
-                                          onset_level=k, top_level=K)
-                t = _target_from_grid(
-                    spec.name, f"{spec.name}:{role}:{h}w", role, "binary",
-                    ("no", "yes"), base, at_risk, values=event.astype(np.int64),
-                    extra={"state": level}, lags=list(lags), horizon=h,
-                    provenance={"onset_level": k, "at_risk": int(at_risk.sum()),
-                                "events": int(event[at_risk].sum()), "flags": flags})
-                targets.append(t)
+        targets += episodic_targets(spec.name, level, mask, base, opts=opts, top_level=K,
+                                    lags=lags, flags=flags)
     summary = summarize(targets)
     return LinkResult(targets=tuple(targets), rejected=ledger.rejected(),
                       reconciliation=ledger.reconciliation(), summary=summary,
@@ -301,6 +285,32 @@ def risk_set(level: np.ndarray, covered: np.ndarray, *, horizon_weeks: int,
         at_risk = covered & (level >= 1) & (level < top) & fcov
         event = fmax > level
     return at_risk, event & at_risk
+
+
+def episodic_targets(impact: str, level: np.ndarray, mask: np.ndarray, base: dict, *, opts,
+                     top_level: int, lags, flags) -> list[Target]:
+    """Onset (and, for ladders of two or more levels, escalation) targets for each horizon.
+
+    Options read: ``horizon_weeks`` (default [4, 13]) and ``onset_level`` (default 1).
+    """
+    k = int(opts.get("onset_level", 1))
+    if not 1 <= k <= top_level:
+        raise LinkError(
+            f"[impacts.{impact}] onset_level must be between 1 and {top_level} (the ladder), "
+            f"got {k}"
+        )
+    out = []
+    for h in _horizons(opts, impact):
+        # escalation needs a ladder with at least two levels
+        for role in ("onset", "escalation") if top_level >= 2 else ("onset",):
+            at_risk, event = risk_set(level, mask, horizon_weeks=h, role=role, onset_level=k,
+                                      top_level=top_level)
+            out.append(_target_from_grid(
+                impact, f"{impact}:{role}:{h}w", role, "binary", ("no", "yes"), base, at_risk,
+                values=event.astype(np.int64), extra={"state": level}, lags=list(lags),
+                horizon=h, provenance={"onset_level": k, "at_risk": int(at_risk.sum()),
+                                       "events": int(event[at_risk].sum()), "flags": flags}))
+    return out
 
 
 # --------------------------------------------------------------------------- preparation
@@ -571,6 +581,9 @@ def summarize(targets) -> pd.DataFrame:
             "last_year": int(fr["year"].max()) if len(fr) else None,
             "units": int(fr["unit_id"].nunique()) if len(fr) else 0,
             "at_risk": len(fr) if t.role in ("onset", "escalation") else None,
+            "episodes": (t.provenance.get("episodes") or {}).get("episodes"),
+            "mean_duration_weeks": (t.provenance.get("episodes") or {}).get(
+                "mean_duration_weeks"),
             "flags": ";".join(t.provenance.get("flags", [])),
         })
     return pd.DataFrame(rows)

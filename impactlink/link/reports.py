@@ -13,17 +13,22 @@ from impactlink.link._common import (
     check_options,
     check_weeks,
     coverage_rows,
-    iso_season,
     iso_year,
     week_coverage,
     week_pos,
 )
-from impactlink.link.notices import _regions, summarize
-from impactlink.link.target import FeatureRule, Target
+from impactlink.link.notices import (
+    _grid_columns,
+    _regions,
+    _target_from_grid,
+    episodic_targets,
+    summarize,
+)
 
 __all__ = ["link_field_reports", "effort_trend", "REPORT_OPTIONS"]
 
-REPORT_OPTIONS = {"sector", "min_severity", "effort_alpha", "defined_by"}
+REPORT_OPTIONS = {"sector", "min_severity", "effort_alpha", "defined_by", "episodic",
+                  "horizon_weeks", "onset_level"}
 
 
 def link_field_reports(spec, tables, *, counties, weeks, lags_weeks=(0,),
@@ -40,7 +45,10 @@ def link_field_reports(spec, tables, *, counties, weeks, lags_weeks=(0,),
           (rejected with a reason); reports without a severity count as severity 1;
         - ``effort_alpha`` (float, default 0.05): significance level of the reporting-effort
           trend test;
-        - ``defined_by`` (str, optional): circularity flag.
+        - ``defined_by`` (str, optional): circularity flag;
+        - ``episodic`` (bool, default False): also build onset and escalation targets from the
+          weekly level (options ``horizon_weeks``, default [4, 13], and ``onset_level``,
+          default 1, as for notices).
     tables : dict
         ``field_reports`` (county_id, date, sector, optional severity); optional ``coverage``
         (source "field_reports" or the impact name).
@@ -110,29 +118,29 @@ def link_field_reports(spec, tables, *, counties, weeks, lags_weeks=(0,),
                     f"(Kendall tau {tau:+.2f}, p = {pval:.3g}); changing reporting effort can look "
                     "like changing impacts (presence-only source)", ReportingEffortWarning)
 
-    w_idx, c_idx = np.nonzero(mask)
-    cid = np.asarray(county_ids, dtype=object)[c_idx]
-    time = weeks[w_idx]
-    frame = pd.DataFrame({
-        "unit_id": cid.astype(str), "county_id": cid.astype(str),
-        "region": region_of.reindex(cid).to_numpy(), "time": time,
-        "year": iso_year(time), "season": iso_season(time),
-        "level": top[w_idx, c_idx], "report_count": count[w_idx, c_idx],
-    })
     kmax = max(int(top.max()), 1)
-    labels = ("none", "reported") if not has_sev else ("none", *[f"severity_{k}" for k in
-                                                                range(1, kmax + 1)])
-    if not has_sev:
-        frame["level"] = np.minimum(frame["level"], 1)
+    if has_sev:
+        labels = ("none", *[f"severity_{k}" for k in range(1, kmax + 1)])
+    else:
+        top = np.minimum(top, 1)
+        labels = ("none", "reported")
     flags = [f"circular:{opts['defined_by']}"] if opts.get("defined_by") else []
     flags += ["effort_trend"] if np.isfinite(pval) and pval < alpha else []
-    t = Target(name=f"{spec.name}:count", impact=spec.name,
-               kind="ordinal" if has_sev else "binary", grain="county_week", role="count",
-               frame=frame, levels=labels, rule=FeatureRule(),
-               provenance={"rows": len(frame), "presence_only": True, "effort_tau": tau,
-                           "effort_p": pval, "flags": flags})
-    return LinkResult(targets=(t,), rejected=ledger.rejected(),
-                      reconciliation=ledger.reconciliation(), summary=summarize([t]),
+    lags = tuple(sorted({int(x) for x in lags_weeks}))
+    base = _grid_columns(weeks, county_ids, region_of, top, mask, lags)
+    base["_meta"] = (weeks, county_ids, region_of)
+    t = _target_from_grid(
+        spec.name, f"{spec.name}:count", "count", "ordinal" if has_sev else "binary", labels,
+        base, mask, values=top, extra={"report_count": count},
+        lags=[x for x in lags if x >= 1], horizon=0,
+        provenance={"presence_only": True, "effort_tau": tau, "effort_p": pval,
+                    "flags": flags})
+    targets = [t]
+    if bool(opts.get("episodic", False)):
+        targets += episodic_targets(spec.name, top, mask, base, opts=opts,
+                                    top_level=len(labels) - 1, lags=lags, flags=flags)
+    return LinkResult(targets=tuple(targets), rejected=ledger.rejected(),
+                      reconciliation=ledger.reconciliation(), summary=summarize(targets),
                       warnings=ledger.warnings)
 
 

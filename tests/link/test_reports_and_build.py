@@ -131,3 +131,24 @@ def test_errors(counties):
     with pytest.raises(LinkError, match="needs a field_reports table"):
         build_targets(ImpactSpec("x", "field_reports", {}), {}, counties=counties, weeks=weeks)
     assert panel_frame([]).columns.tolist() == PANEL_COLUMNS
+
+
+def test_field_reports_marked_episodic_get_onset_targets(counties):
+    weeks = mondays("2030-01-07", 6)
+    rep = pd.DataFrame({"county_id": ["a", "a"], "sector": "crops", "severity": [1, 2],
+                        "date": pd.to_datetime(["2030-01-23", "2030-01-30"])})
+    res = build_targets(ImpactSpec("fr", "field_reports", {"episodic": True,
+                                                           "horizon_weeks": [1]}),
+                        {"field_reports": rep}, counties=counties, weeks=weeks, lags_weeks=(1,))
+    names = [t.name for t in res.targets]
+    assert names == ["fr:count", "fr:onset:1w", "fr:escalation:1w"]
+    on = res.targets[1].frame
+    a = on[on["county_id"] == "a"].set_index("time")
+    # weeks 01-07 and 01-14 at risk; the report in week 01-21 is the onset for week 01-14
+    assert a["level"].to_dict() == {pd.Timestamp("2030-01-07"): 0,
+                                    pd.Timestamp("2030-01-14"): 1,
+                                    pd.Timestamp("2030-02-04"): 0}
+    esc = res.targets[2].frame
+    assert esc[["county_id", "time", "level"]].values.tolist() == [
+        ["a", pd.Timestamp("2030-01-21"), 1]]
+    assert res.targets[0].frame["persistence_1"].notna().sum() == 4 * 5

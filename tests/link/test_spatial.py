@@ -6,10 +6,10 @@ import geopandas as gpd
 import numpy as np
 import pandas as pd
 import pytest
+import shapely
 from conftest import lonlat_of
 from pyproj import Transformer
 from shapely.geometry import box
-import shapely
 
 from impactlink.link import LinkError, LinkWarning, area_weights, points_to_counties
 
