@@ -7,7 +7,7 @@ loop runs over rows, so a million-row climate table is checked in seconds.
 
 from __future__ import annotations
 
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
 from typing import Any
 
 import numpy as np
@@ -108,9 +108,11 @@ class TableCheck:
             return _empty_rejected()
         return pd.concat(self._rejects, ignore_index=True)
 
-    def raw_text(self, column: str) -> pd.Series:
-        """The column as the user wrote it (for the ``value`` field)."""
-        return _display(self.frame[column])
+    def raw_text(self, column: str) -> Callable[[np.ndarray], np.ndarray]:
+        """The column as the user wrote it (for the ``value`` field), built only for the
+        rejected rows."""
+        raw = self.frame[column]
+        return lambda idx: _display(raw.iloc[idx])
 
     def reject_blank_rows(self) -> None:
         """A row with every cell blank (a blank line in a CSV) is reported once as a blank row."""

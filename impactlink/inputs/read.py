@@ -141,6 +141,7 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
         counts.append(_count_row(name, path, check, clean))
         checksums.update(checksums_for(path))
     _check_record_length(tables["climate"], files["climate"], project)
+    notes += _climate_gaps(tables["climate"], tables["counties"], files["climate"], project)
     for message in notes:
         warnings.warn(message, InputWarning, stacklevel=2)
     rej = pd.concat(rejected, ignore_index=True)[REJECTED_COLUMNS]
@@ -588,27 +589,36 @@ def _warn_unknown_regions(check: TableCheck, ctx: _Context, path: Path, notes: l
 
 
 def _reject_duplicates(check: TableCheck, spec: TableSpec) -> None:
+    """Reject the later of two usable rows with the same key; the reason names the first."""
     key = [k for k in spec.key if k in check.clean]
     if not key or not check.alive.any():
         return
     live = np.flatnonzero(check.alive)
-    frame = pd.DataFrame({k: check.clean[k].iloc[live].to_numpy() for k in key})
-    dup = frame.duplicated(keep="first").to_numpy()
+    # One integer code per distinct key (factorize each column, fold them together and
+    # re-factorize after each step so the codes stay below the row count).
+    code = np.zeros(live.size, dtype=np.int64)
+    for k in key:
+        col, _ = pd.factorize(check.clean[k].iloc[live], use_na_sentinel=False)
+        code, _ = pd.factorize(code * (int(col.max(initial=0)) + 1) + col)
+    _, first, inverse = np.unique(code, return_index=True, return_inverse=True)
+    first_of_row = first[inverse]
+    dup = first_of_row != np.arange(live.size)
     if not dup.any():
         return
-    first_pos = frame.groupby(key, dropna=False, sort=False).ngroup().to_numpy()
-    first_row = pd.Series(check.rows[live]).groupby(first_pos).transform("first").to_numpy()
     mask = np.zeros(check.n, bool)
     mask[live[dup]] = True
     reasons = np.empty(check.n, dtype=object)
-    reasons[live[dup]] = [REASONS["duplicate"].format(row=r) for r in first_row[dup]]
-    values = np.empty(check.n, dtype=object)
-    sub = frame[dup].copy()
+    reasons[live[dup]] = [
+        REASONS["duplicate"].format(row=r) for r in check.rows[live[first_of_row[dup]]]
+    ]
+    parts = []
     for k in key:
-        if pd.api.types.is_datetime64_any_dtype(sub[k].dtype):
-            sub[k] = sub[k].dt.strftime("%Y-%m-%d")
-    sub = sub.astype(object).astype(str)
-    values[live[dup]] = sub.agg(" | ".join, axis=1).to_numpy() if len(key) > 1 else sub[key[0]]
+        v = check.clean[k].iloc[live[dup]]
+        if pd.api.types.is_datetime64_any_dtype(v.dtype):
+            v = v.dt.strftime("%Y-%m-%d")
+        parts.append(v.astype(object).astype(str).to_numpy())
+    values = np.empty(check.n, dtype=object)
+    values[live[dup]] = [" | ".join(t) for t in zip(*parts)]
     check.reject(mask, "+".join(key), values, reasons)
 
 
@@ -650,6 +660,31 @@ def _count_row(name: str, path: Path, check: TableCheck, clean: pd.DataFrame) ->
         "date_max": dmax,
         "counties": counties,
     }
+
+
+def _climate_gaps(
+    climate: pd.DataFrame, counties: pd.DataFrame, path: Path, project: Project
+) -> list[str]:
+    """Warnings for counties with no climate rows or a record shorter than min_years."""
+    out = []
+    codes, ids = pd.factorize(climate[COUNTY])
+    years = climate["date"].dt.year.to_numpy().astype(np.int64)
+    pairs = np.unique(codes.astype(np.int64) * 10_000 + years)  # years are below 10000
+    have = pd.Series(np.bincount(pairs // 10_000, minlength=len(ids)), index=ids)
+    absent = sorted(set(counties[COUNTY]) - set(have.index))
+    if absent:
+        out.append(
+            f"{path}: {len(absent)} of {len(counties)} counties have no climate rows "
+            f"(e.g. {absent[:5]}); they get no index values"
+        )
+    short = have[have < project.calibration.min_years]
+    if len(short):
+        out.append(
+            f"{path}: {len(short)} counties have fewer than {project.calibration.min_years} "
+            f"years of climate rows (e.g. {dict(list(short.items())[:3])} years); their "
+            f"index values rest on a short record"
+        )
+    return out
 
 
 def _check_record_length(climate: pd.DataFrame, path: Path, project: Project) -> None:

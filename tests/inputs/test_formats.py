@@ -167,3 +167,25 @@ def test_dates_with_time_zones_keep_the_calendar_date(base_folder):
     fr = read_inputs(make_project(base_folder)).tables["field_reports"]
     assert fr["date"].dt.strftime("%Y-%m-%d").tolist() == ["2001-06-01", "2001-06-02", "2001-06-03"]
     assert fr["date"].dtype == "datetime64[ns]"
+
+
+def test_warnings_for_repairs_and_gaps(tmp_path):
+    from shapely.geometry import Polygon
+
+    g = counties_frame()
+    g.loc[1, "geometry"] = Polygon([(1, 0), (2, 1), (2, 0), (1, 1)])  # a bow-tie: invalid
+    g.to_file(tmp_path / "counties.gpkg")
+    c = climate_frame()
+    c = c[c.county_id != "02005"]  # one county without climate
+    short = c[(c.county_id == "01003") & (c.date < "2002-01-01")]
+    c = pd.concat([c[c.county_id != "01003"], short])
+    write_csv(tmp_path, "climate", c)
+    write_text(tmp_path, "prices.csv", "region,date,commodity,price\neast,2001-01-01,hay,90")
+    with pytest.warns(InputWarning):
+        b = read_inputs(make_project(tmp_path))
+    text = "\n".join(b.warnings)
+    assert "counties.gpkg: 1 invalid geometries repaired with make_valid" in text
+    assert "climate.csv: 1 of 3 counties have no climate rows (e.g. ['02005'])" in text
+    assert "1 counties have fewer than 2 years of climate rows (e.g. {'01003': 1} years)" in text
+    assert "prices.csv: region(s) ['east'] are not regions of the counties table" in text
+    assert b.tables["counties"].geometry.is_valid.all()

@@ -11,6 +11,7 @@ import tempfile
 from pathlib import Path
 
 import pandas as pd
+import pytest
 from conftest import COUNTY_IDS, counties_frame, make_project, write_csv
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
@@ -51,6 +52,7 @@ def _expected(rows: list[tuple[str, str, str]], n_good: int) -> set[int]:
     return bad_rows
 
 
+@pytest.mark.filterwarnings("ignore::impactlink.inputs.InputWarning")
 @settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(st.lists(row, min_size=0, max_size=40))
 def test_rows_read_equal_used_plus_rejected(rows):
