@@ -6,6 +6,8 @@ Features are never stored as a wide table: each call reads one (weeks, counties)
 
 from __future__ import annotations
 
+import weakref
+
 import numpy as np
 import pandas as pd
 
@@ -65,9 +67,8 @@ def feature_values(target: Target, cube, index: str, scale_weeks: int, lag_weeks
         raise LinkError(f"feature_values: lag_weeks must be >= 0, got {lag_weeks}")
     arr = cube.get(index, scale_weeks)
     rule = target.rule
-    fr = target.frame
-    ref = reference_weeks(target)
-    pos = ((ref - cube.weeks[0]).days // 7).to_numpy().astype(np.int64) - lag
+    ref_pos, cp = _positions(target, cube)
+    pos = ref_pos - lag
     w = max(int(rule.window_weeks), 1)
     stat = rule.window_stat if w > 1 else "value"
     if stat not in ("value", "min", "mean"):
@@ -77,9 +78,6 @@ def feature_values(target: Target, cube, index: str, scale_weeks: int, lag_weeks
     winc = np.clip(win, 0, arr.shape[0] - 1)
     if target.grain == "region_month":
         return _region_values(target, cube, arr, winc, ok, stat)
-    if "county_id" not in fr.columns:
-        raise LinkError(f"feature_values: target {target.name!r} has no county_id column")
-    cp = pd.Index(cube.county_ids).get_indexer(fr["county_id"].astype(str))
     vals = arr[winc, np.maximum(cp, 0)[:, None]]
     vals = np.where(ok & (cp >= 0)[:, None], vals, np.nan)
     return _reduce(vals, stat, axis=1)
@@ -137,6 +135,35 @@ def iso_week_monday(years, week: int) -> pd.DatetimeIndex:
 
 
 # --------------------------------------------------------------------------- private steps
+#: (id of a target frame, cube grid) -> (reference week positions, county positions). Target
+#: frames are results and are not modified after construction; an entry is dropped when its
+#: frame is garbage-collected. Saves the date and id lookups when hundreds of candidates are
+#: read for one target.
+_POSITIONS: dict[tuple, tuple[np.ndarray, np.ndarray]] = {}
+
+
+def _positions(target: Target, cube) -> tuple[np.ndarray, np.ndarray]:
+    fr = target.frame
+    key = (id(fr), len(fr), target.rule.reference, target.rule.season_week,
+           cube.weeks[0], len(cube.weeks), hash(tuple(cube.county_ids)))
+    hit = _POSITIONS.get(key)
+    if hit is not None:
+        return hit
+    ref = reference_weeks(target)
+    ref_pos = ((ref - cube.weeks[0]).days // 7).to_numpy().astype(np.int64)
+    if target.grain == "region_month":
+        cp = np.zeros(len(fr), dtype=np.int64)
+    else:
+        if "county_id" not in fr.columns:
+            raise LinkError(f"feature_values: target {target.name!r} has no county_id column")
+        cp = pd.Index(cube.county_ids).get_indexer(fr["county_id"].astype(str))
+    if len(_POSITIONS) > 256:
+        _POSITIONS.clear()
+    _POSITIONS[key] = (ref_pos, cp)
+    weakref.finalize(fr, _POSITIONS.pop, key, None)
+    return ref_pos, cp
+
+
 def _reduce(vals: np.ndarray, stat: str, axis: int) -> np.ndarray:
     if stat == "min":
         return vals.min(axis=axis)

@@ -168,3 +168,13 @@ def test_errors():
                  frame=t.frame, levels=("n", "y"), rule=FeatureRule(reference="month_end"))
     with pytest.raises(LinkError, match="no rule.weights"):
         feature_values(bad, cube, "spi", 4, 0)
+
+
+def test_same_target_against_cubes_on_different_grids():
+    """Cached row positions are per cube grid: a cube starting 2 weeks later shifts by 2."""
+    t = _week_target(["2030-02-04", "2030-02-11"], ["a", "a"])
+    c1 = _grid_cube(mondays("2030-01-07", 10), ("a",))
+    c2 = _grid_cube(mondays("2030-01-21", 10), ("b", "a"))
+    assert feature_values(t, c1, "spi", 4, 0).tolist() == [4000, 5000]
+    assert feature_values(t, c2, "spi", 4, 0).tolist() == [2001, 3001]
+    assert feature_values(t, c1, "spi", 4, 1).tolist() == [3000, 4000]
