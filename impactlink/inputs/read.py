@@ -420,6 +420,12 @@ def _read_counties(gdf, path: Path, notes: list[str]) -> tuple[pd.DataFrame, Tab
                 f"(bounds {xmin:.0f}, {ymin:.0f}, {xmax:.0f}, {ymax:.0f}); save the file with "
                 f"its CRS (e.g. a .prj beside a shapefile)"
             )
+    if not check.alive.any():
+        why = check.rejected()["reason"].value_counts().to_dict()
+        raise InputError(
+            f"{path}: the counties table has no usable county ({check.n} rows; problems: "
+            f"{why or 'none'}); each county needs a county_id and a polygon"
+        )
     columns = [c for c in (COUNTY, "county_name", REGION) if c in attrs]
     clean = check.used(columns)
     if REGION not in clean:

@@ -189,3 +189,10 @@ def test_not_utf8_csv(base_folder):
     (base_folder / "yields.csv").write_bytes("county_id,year,crop,yield\n01001,2001,ma\xefs,1\n".encode("utf-16"))
     with pytest.raises(InputError, match=r"yields\.csv: cannot be read as CSV .*UTF-8"):
         read_inputs(make_project(base_folder))
+
+
+def test_counties_with_no_usable_row(tmp_path):
+    write_text(tmp_path, "counties.csv", 'county_id,geometry\n,"POLYGON ((0 0, 1 0, 1 1, 0 0))"')
+    write_csv(tmp_path, "climate", climate_frame())
+    with pytest.raises(InputError, match=r"counties\.csv: the counties table has no usable county \(1 rows; problems: \{'missing required value': 1\}\)"):
+        read_inputs(make_project(tmp_path))

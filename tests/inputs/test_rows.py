@@ -19,7 +19,17 @@ def _only(bundle, table):
     return r[r["table"] == table].reset_index(drop=True)
 
 
+def _reconciles(bundle):
+    """rows read = rows used + distinct rows rejected, for every table."""
+    for rec in bundle.counts.itertuples():
+        rej = bundle.rejected[bundle.rejected.table == rec.table]
+        assert rec.rows_read == rec.rows_used + rec.rows_rejected
+        assert rec.rows_rejected == rej["row"].nunique()
+        assert len(bundle.tables[rec.table]) == rec.rows_used
+
+
 def _assert_one(bundle, table, *, row, column, reason, value=None, file=None):
+    _reconciles(bundle)
     r = _only(bundle, table)
     hit = r[(r["row"] == row) & (r["column"] == column)]
     assert len(hit) == 1, f"no single rejection at row {row} column {column}:\n{r}"
