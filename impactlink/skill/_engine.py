@@ -106,7 +106,8 @@ def build_hist(block, level, xs, bins, cell, *, n_blocks, n_bins_total, n_cells,
 
 # --------------------------------------------------------------------------- fitting
 def fit_chunk(hists: list[Hist], layout: Layout, *, use_cells: bool, jobs_subset: str = "all",
-              prior: float = PRIOR_WEIGHT, max_iter: int = 30, tol: float = 1e-7):
+              prior: float = PRIOR_WEIGHT, ridge: float = 1e-4, max_iter: int = 30,
+              tol: float = 1e-7):
     """Fit every CV job for a list of candidates with the same shape; return coefficients.
 
     Returns an array (U, J, q) of cumulative-logit coefficients (K-1 cut-points, then slopes
@@ -143,7 +144,7 @@ def fit_chunk(hists: list[Hist], layout: Layout, *, use_cells: bool, jobs_subset
         Xl = np.concatenate([Xl, Xp], axis=1)
         yl = np.concatenate([yl, np.tile(np.arange(K), (U * J, 1))], axis=1)
         wl = np.concatenate([wl, np.full((U * J, K), prior / K)], axis=1)
-    fit = fit_cumlogit_batch(Xl, yl, wl, n_levels=K, ridge=1e-4, max_iter=max_iter, tol=tol)
+    fit = fit_cumlogit_batch(Xl, yl, wl, n_levels=K, ridge=ridge, max_iter=max_iter, tol=tol)
     return fit.coef.reshape(U, J, -1), fit.converged.reshape(U, J)
 
 
