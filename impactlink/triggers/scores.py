@@ -193,7 +193,12 @@ def evaluate_trigger(
 
 # --------------------------------------------------------------------------- private steps
 def week_indicators(
-    on: np.ndarray, impact: np.ndarray, known: np.ndarray, window_weeks: int
+    on: np.ndarray,
+    impact: np.ndarray,
+    known: np.ndarray,
+    window_weeks: int,
+    *,
+    with_lead: bool = True,
 ) -> dict[str, np.ndarray]:
     """Per-week indicators of every count in ``COUNT_NAMES`` (+ activations, lead_weeks).
 
@@ -228,6 +233,8 @@ def week_indicators(
     false_alarm = start & ~imp_ahead & all_known_ahead
     out["activations_judged"] = true_alarm | false_alarm
     out["false_activations"] = false_alarm
+    if not with_lead:
+        return out
 
     t = np.arange(shape[0]).reshape((-1,) + (1,) * (len(shape) - 1))
     last_on = np.maximum.accumulate(np.where(on, t, -1), axis=0)

@@ -352,8 +352,10 @@ def _year_counts(
     """Counts per (year, candidate, county) for every name in COUNT_NAMES."""
     n_weeks, n_counties = values.shape
     n_k = len(cands)
-    onehot = np.zeros((n_years, n_weeks), dtype=np.int64)
-    onehot[year_code, np.arange(n_weeks)] = 1
+    # rows grouped by year: a stable sort of the weeks by year code, then one reduceat per count
+    order = np.argsort(year_code, kind="stable")
+    in_order = bool(np.all(order == np.arange(n_weeks)))
+    starts = np.searchsorted(year_code[order], np.arange(n_years))
     out = {k: np.zeros((n_years, n_k, n_counties), dtype=np.int64) for k in COUNT_NAMES}
     chunk = max(1, _MAX_CELLS // max(1, n_weeks * n_k))
     # counties are processed in chunks only to bound memory (weeks x candidates x chunk cells);
@@ -363,11 +365,13 @@ def _year_counts(
         on = _replay(
             values[:, None, sl], cands[:, None], cands[:, None], entry_weeks, exit_weeks
         )
-        ind = week_indicators(on, impact[:, None, sl], known[:, None, sl], window_weeks)
-        width = on.shape[2]
+        ind = week_indicators(
+            on, impact[:, None, sl], known[:, None, sl], window_weeks, with_lead=False
+        )
         for k in COUNT_NAMES:
-            flat = np.broadcast_to(ind[k], on.shape).reshape(n_weeks, -1).astype(np.int64)
-            out[k][:, :, sl] = (onehot @ flat).reshape(n_years, n_k, width)
+            full = np.broadcast_to(ind[k], on.shape)
+            full = full if in_order else full[order]
+            out[k][:, :, sl] = np.add.reduceat(full, starts, axis=0, dtype=np.int64)
     return out
 
 

@@ -203,3 +203,11 @@ def test_errors(change, match):
         warnings.simplefilter("ignore", ContrastWarning)
         with pytest.raises(StageError, match=match):
             county_contrast(target, x, traits, **change)
+
+
+def test_year_clusters_change_intervals_not_estimates():
+    target, x, traits = _make(9)
+    by_county = county_contrast(target, x, traits, n_boot=0).terms
+    by_year = county_contrast(target, x, traits, n_boot=0, cluster="year").terms
+    np.testing.assert_allclose(by_county["odds_ratio_per_sd"], by_year["odds_ratio_per_sd"])
+    assert not np.allclose(by_county["or_lo"], by_year["or_lo"])
