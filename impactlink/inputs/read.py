@@ -334,7 +334,7 @@ def _check_columns(spec: TableSpec, frame: pd.DataFrame, path: Path) -> None:
         groups = " or ".join("+".join(g) for g in spec.either)
         raise InputError(
             f"{path}: the {spec.name} table needs {groups} columns to place each row; found "
-            f"{found}. Add a county_id column (or the coordinates)"
+            f"{found}. Add {' or '.join(' and '.join(g) for g in spec.either)}"
         )
 
 

@@ -196,3 +196,9 @@ def test_counties_with_no_usable_row(tmp_path):
     write_csv(tmp_path, "climate", climate_frame())
     with pytest.raises(InputError, match=r"counties\.csv: the counties table has no usable county \(1 rows; problems: \{'missing required value': 1\}\)"):
         read_inputs(make_project(tmp_path))
+
+
+def test_coverage_without_county_or_region_columns(base_folder):
+    write_text(base_folder, "coverage.csv", "source,start_date,end_date\nyields,2001-01-01,2002-01-01")
+    with pytest.raises(InputError, match=r"coverage\.csv: the coverage table needs county_id or region columns.*Add county_id or region$"):
+        read_inputs(make_project(base_folder))
