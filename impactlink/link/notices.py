@@ -67,8 +67,9 @@ def link_notices(spec, tables: dict[str, pd.DataFrame], *, counties, weeks: pd.D
     spec : impactlink.project.ImpactSpec
         ``source="notices"``. Options (all optional):
 
-        - ``ladder`` (list of str, default ``["stage_1", ..., "stage_K"]`` with K the highest
-          level found): names of levels 1..K; level 0 is "none".
+        - ``ladder`` (list, default ``["stage_1", ..., "stage_K"]`` with K the highest
+          level found): levels 1..K; names are used as labels, numbers give
+          ``stage_<n>``; level 0 is "none".
         - ``stage_names``: used by the inputs stage (issuer stage names -> integer level);
           accepted and ignored here.
         - ``open_end_cap_weeks`` (int or None, default None): a notice without an end date stays
@@ -125,7 +126,8 @@ def link_notices(spec, tables: dict[str, pd.DataFrame], *, counties, weeks: pd.D
     if ladder is None:
         k_max = max([1, *levels_found])
         ladder = [f"stage_{k}" for k in range(1, k_max + 1)]
-    ladder = [str(x) for x in ladder]
+    # a ladder of names gives the labels; a ladder of numbers (1, 2, 3) only its length
+    ladder = [x if isinstance(x, str) else f"stage_{x}" for x in ladder]
     K = len(ladder)
     cap = opts.get("open_end_cap_weeks")
     record_end = weeks[-1] + pd.Timedelta(days=6)

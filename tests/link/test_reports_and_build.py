@@ -152,3 +152,19 @@ def test_field_reports_marked_episodic_get_onset_targets(counties):
     assert esc[["county_id", "time", "level"]].values.tolist() == [
         ["a", pd.Timestamp("2030-01-21"), 1]]
     assert res.targets[0].frame["persistence_1"].notna().sum() == 4 * 5
+
+
+@pytest.mark.parametrize("seed", [0, 1, 2])
+def test_effort_trend_matches_scipy_kendalltau_asymptotic(seed):
+    """Cross-implementation: scipy.stats.kendalltau (tau-b, asymptotic p-value), with ties."""
+    from scipy.stats import kendalltau
+
+    from impactlink.link.reports import effort_trend
+
+    rng = np.random.default_rng(seed)
+    years = np.arange(1990, 2020)
+    rate = np.round(rng.normal(size=30) + 0.03 * seed * np.arange(30), 1)  # rounding makes ties
+    tau, p = effort_trend(years, rate)
+    ref = kendalltau(years, rate, method="asymptotic")
+    assert tau == pytest.approx(ref.statistic, rel=1e-12)
+    assert p == pytest.approx(ref.pvalue, rel=1e-9)
