@@ -247,15 +247,45 @@ class _Context:
         sev = DEFAULT_SEVERITY_RANGE
         for spec in project.impacts:
             opts = spec.options
+            where = f"[impacts.{spec.name}]"
             if spec.source == "notices":
-                if "ladder" in opts and len(opts["ladder"]) > len(ladder):
-                    ladder = tuple(opts["ladder"])
-                for issuer, table in (opts.get("stage_names") or {}).items():
+                if "ladder" in opts:
+                    if not isinstance(opts["ladder"], (list, tuple)) or not opts["ladder"]:
+                        raise InputError(
+                            f"{where} ladder must be a list of level names (levels 1..K), got "
+                            f"{opts['ladder']!r}"
+                        )
+                    if len(opts["ladder"]) >= len(ladder):  # several ladders: the longest
+                        ladder = tuple(opts["ladder"])
+                stage_names = opts.get("stage_names") or {}
+                if not isinstance(stage_names, dict) or not all(
+                    isinstance(t, dict) for t in stage_names.values()
+                ):
+                    raise InputError(
+                        f"{where} stage_names must map issuer -> {{stage name -> level}}, e.g. "
+                        f'[{where[1:-1]}.stage_names."Pine Utility"] then "Voluntary" = 1'
+                    )
+                for issuer, table in stage_names.items():
                     for stage, level in table.items():
-                        names[(str(issuer).strip(), str(stage).strip().lower())] = int(level)
+                        if isinstance(level, bool) or not isinstance(level, int) or level < 0:
+                            raise InputError(
+                                f"{where} stage_names: {issuer!r} stage {stage!r} must map to "
+                                f"a whole level >= 0, got {level!r}"
+                            )
+                        names[(str(issuer).strip(), str(stage).strip().lower())] = level
             if spec.source == "field_reports" and "severity_range" in opts:
-                lo, hi = opts["severity_range"]
-                sev = (int(lo), int(hi))
+                rng = opts["severity_range"]
+                if (
+                    not isinstance(rng, (list, tuple))
+                    or len(rng) != 2
+                    or not all(isinstance(x, int) for x in rng)
+                    or rng[0] > rng[1]
+                ):
+                    raise InputError(
+                        f"{where} severity_range must be [lowest, highest] whole numbers, got "
+                        f"{rng!r}"
+                    )
+                sev = (int(rng[0]), int(rng[1]))
         for pos, step in enumerate(ladder, start=1):
             if isinstance(step, str):  # a ladder of names: name -> its position
                 names.setdefault(("*", step.strip().lower()), pos)

@@ -202,3 +202,19 @@ def test_coverage_without_county_or_region_columns(base_folder):
     write_text(base_folder, "coverage.csv", "source,start_date,end_date\nyields,2001-01-01,2002-01-01")
     with pytest.raises(InputError, match=r"coverage\.csv: the coverage table needs county_id or region columns.*Add county_id or region$"):
         read_inputs(make_project(base_folder))
+
+
+@pytest.mark.parametrize(
+    ("options", "message"),
+    [
+        ({"source": "notices", "ladder": 3}, r"\[impacts\.x\] ladder must be a list of level names"),
+        ({"source": "notices", "stage_names": {"Ash": 2}}, r"\[impacts\.x\] stage_names must map issuer"),
+        ({"source": "notices", "stage_names": {"Ash": {"Voluntary": "one"}}},
+         r"'Ash' stage 'Voluntary' must map to a whole level >= 0, got 'one'"),
+        ({"source": "field_reports", "severity_range": [5, 1]},
+         r"\[impacts\.x\] severity_range must be \[lowest, highest\] whole numbers, got \[5, 1\]"),
+    ],
+)
+def test_bad_level_options(base_folder, options, message):
+    with pytest.raises(InputError, match=message):
+        read_inputs(make_project(base_folder, impacts={"x": options}))
