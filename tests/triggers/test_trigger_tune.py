@@ -163,3 +163,16 @@ def test_firing_audit_errors():
         firing_rate_audit(np.zeros((5, 2)), -1.0, index_scale="gamma")
     with pytest.raises(StageError, match="threshold must be a finite number"):
         firing_rate_audit(np.zeros((5, 2)), [1.0, 2.0, 3.0])
+
+
+def test_held_out_skill_exposes_selection_on_noise():
+    # impacts unrelated to the index: tuning per county still finds an in-sample "signal";
+    # the leave-one-year-out score does not (common practice: Wilks 2011, cross-validation)
+    x = _ar1(len(WEEKS), 10, seed=22)
+    lev = (_ar1(len(WEEKS), 10, seed=23) < -1.0).astype(float)
+    res = tune_thresholds(x, lev, weeks=WEEKS, scope="county", shrink_events=0.0)
+    in_sample = res.scores["peirce_skill"].iloc[-1]
+    held_out = res.cv_scores["peirce_skill"].iloc[-1]
+    assert in_sample > 0.05
+    assert held_out < in_sample - 0.05
+    assert abs(held_out) < 0.05
