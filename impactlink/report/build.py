@@ -59,12 +59,13 @@ def build_report(run_dir: str | Path, *, progress: Callable[[str], None] | None 
     say = progress or (lambda _msg: None)
     say("report: reading the run folder")
     run = read_run_folder(run_dir)
-    say("report: drawing figures")
-    document, sink = render_html(run, progress=say)
-    say("report: writing files")
-    _write_figures(run.path, sink.files)
+    # Table copies and map layers first, so the page links to them on the first build too.
     _write_parquet_copies(run)
     _write_layers(run)
+    say("report: drawing figures")
+    document, sink = render_html(run, progress=say)
+    say("report: writing figures")
+    _write_figures(run.path, sink.files)
     out = run.path / "report.html"
     tmp = out.with_suffix(".html.tmp")
     tmp.write_text(document, encoding="utf-8")

@@ -117,7 +117,7 @@ def figure_png(fig: Figure, *, dpi: int = 110) -> bytes:
 
     FigureCanvasAgg(fig)
     buf = io.BytesIO()
-    fig.savefig(buf, format="png", dpi=dpi, bbox_inches="tight", facecolor="white")
+    fig.savefig(buf, format="png", dpi=dpi, facecolor="white")
     return buf.getvalue()
 
 
@@ -184,7 +184,10 @@ def skill_heatmap(skill: pd.DataFrame, *, impact: str, target: str, score: str =
     n = len(indices)
     ncol = min(n, 3)
     nrow = int(np.ceil(n / ncol))
-    fig = Figure(figsize=(2.6 * ncol + 1.2, 0.32 * len(scales) * nrow + 1.3 * nrow + 0.4), layout="constrained")
+    fig = Figure(
+        figsize=(2.6 * ncol + 1.2, 0.32 * len(scales) * nrow + 1.3 * nrow + 0.4),
+        layout="constrained",
+    )
     axes = fig.subplots(nrow, ncol, squeeze=False, sharey=True)
     image = None
     for k, ax in enumerate(axes.ravel()):
@@ -319,7 +322,7 @@ def candidate_intervals(
                    label=f"{b['model']} baseline")
     ax.set_xlabel(f"{score_label(score)} (higher is better; 0 = climatology)")
     ax.set_title(f"{impact} \u2014 {target}: best candidates with intervals")
-    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.12 - 0.9 / (len(cand) + 4)), ncol=2)
+    fig.legend(*ax.get_legend_handles_labels(), loc="outside lower center", ncol=2)
     return fig
 
 
@@ -583,7 +586,7 @@ def persistence_comparison(skill: pd.DataFrame, *, impact: str, score: str = "bs
     ax.set_yticks(range(len(targets))[::-1], targets)
     ax.set_xlabel(f"{score_label(score)} (higher is better; 0 = climatology)")
     ax.set_title(f"{impact}: does the index add warning beyond persistence?")
-    ax.legend(loc="upper center", bbox_to_anchor=(0.5, -0.25 - 0.5 / (len(targets) + 2)), ncol=3)
+    fig.legend(*ax.get_legend_handles_labels(), loc="outside lower center", ncol=3)
     return fig
 
 

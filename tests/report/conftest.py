@@ -206,6 +206,31 @@ def make_fake_run(folder: Path, *, county_names=None, issuer="Tallow Creek Water
     return folder
 
 
+#: Strings planted in the shared run to prove they are shown as text, never run as markup.
+EVIL_COUNTY = '<script>alert("county")</script>'
+EVIL_ISSUER = '<img src=x onerror="alert(1)">'
+EVIL_STAGE = "</td><b>watch</b>"
+
+
+@pytest.fixture(scope="session")
+def built(tmp_path_factory):
+    """One full fake run (with planted markup in a county, issuer, stage and project name),
+    built once per session: (run folder, report path, progress messages)."""
+    names = list(COUNTY_NAMES)
+    names[3] = EVIL_COUNTY
+    run = make_fake_run(tmp_path_factory.mktemp("built") / "run", county_names=names,
+                        issuer=EVIL_ISSUER)
+    audit = pd.read_csv(run / "audit.csv", dtype={"county_id": str})
+    audit["stage"] = audit["stage"].replace("dry_watch", EVIL_STAGE)
+    audit.to_csv(run / "audit.csv", index=False)
+    from impactlink.report import build_report
+
+    messages: list[str] = []
+    html = build_report(run, progress=messages.append)
+    return run, html, messages
+
+
 @pytest.fixture
-def fake_run(tmp_path) -> Path:
-    return make_fake_run(tmp_path / "run")
+def make_run():
+    """The fake-run builder itself, for tests that need other names or missing files."""
+    return make_fake_run

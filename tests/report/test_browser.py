@@ -22,7 +22,6 @@ from pathlib import Path
 
 import pytest
 
-from impactlink.report import build_report
 
 CHROMIUM = os.environ.get("IMPACTLINK_CHROMIUM", "/usr/bin/chromium")
 ARTIFACTS = Path(__file__).resolve().parents[2] / "test-artifacts"
@@ -169,9 +168,9 @@ def _errors(events: list[dict]) -> list[str]:
     return out
 
 
-def test_report_renders_in_headless_chromium(fake_run, tmp_path):
+def test_report_renders_in_headless_chromium(built, tmp_path):
     exe = _chromium()
-    html = build_report(fake_run)
+    _, html, _ = built  # holds a planted <script> county name: it must not run
     client = _Pipe(exe, tmp_path / "profile")
     try:
         session = _open(client, html.resolve().as_uri(), 1200, 1600)
@@ -185,11 +184,13 @@ def test_report_renders_in_headless_chromium(fake_run, tmp_path):
         first_screen = _eval(client, phone, "document.querySelector('.card h3') !== null")
         shot = client.send("Page.captureScreenshot", {"format": "png"}, session=phone)
         (ARTIFACTS / "report-phone.png").write_bytes(base64.b64decode(shot["data"]))
+        dialogs = [e for e in client.events if e.get("method") == "Page.javascriptDialogOpening"]
         errors = _errors(client.events)
     finally:
         client.close()
 
     assert errors == [], f"console errors or exceptions in the page: {errors}"
+    assert dialogs == [], "a planted script ran (an alert dialog opened)"
     assert len(images) >= 10, "the fake run should produce at least ten figures"
     broken = [i["alt"][:60] for i in images if not i["ok"]]
     assert broken == [], f"images that did not load: {broken}"

@@ -1,0 +1,220 @@
+"""build_report: a pure function of the run folder, robust to missing tables."""
+
+from __future__ import annotations
+
+import base64
+import re
+from html.parser import HTMLParser
+
+import pandas as pd
+import pyogrio
+import pytest
+
+from impactlink.report import ReportError, ReportInputWarning, build_report, read_run_folder
+from impactlink.report import sections as S
+from impactlink.report.text import CAUTIONS
+
+NOT_COMPUTED = "Not computed in this run."
+
+
+class _Sections(HTMLParser):
+    """Map section id -> its text; collect images and links."""
+
+    def __init__(self) -> None:
+        super().__init__(convert_charrefs=True)
+        self.text: dict[str, list[str]] = {}
+        self.order: list[str] = []
+        self.imgs: list[dict] = []
+        self.hrefs: list[str] = []
+        self._current = "_top"
+        self._skip = False
+
+    def handle_starttag(self, tag, attrs):
+        a = dict(attrs)
+        if tag == "section":
+            self._current = a["id"]
+            self.order.append(a["id"])
+        if tag == "img":
+            self.imgs.append(a)
+        if tag == "a":
+            self.hrefs.append(a.get("href", ""))
+        if tag in ("style",):
+            self._skip = True
+
+    def handle_endtag(self, tag):
+        if tag == "section":
+            self._current = "_between"
+        if tag == "style":
+            self._skip = False
+
+    def handle_data(self, data):
+        if not self._skip:
+            self.text.setdefault(self._current, []).append(data)
+
+    def section(self, sid: str) -> str:
+        return " ".join(" ".join(self.text.get(sid, [])).split())
+
+
+def _parse(path) -> tuple[str, _Sections]:
+    return _parse_markup(path.read_text(encoding="utf-8"))
+
+
+def _parse_markup(text: str) -> tuple[str, _Sections]:
+    p = _Sections()
+    p.feed(text)
+    return text, p
+
+
+def test_full_run_writes_page_figures_tables_and_layers(built):
+    run, html, messages = built
+    assert html == run / "report.html"
+    text, p = _parse(html)
+    pngs = sorted((run / "figures").glob("*.png"))
+    assert len(pngs) == len(p.imgs) >= 15
+    for img in p.imgs:
+        assert img["alt"].strip(), "every image has alt text"
+        payload = base64.b64decode(img["src"].removeprefix("data:image/png;base64,"))
+        assert payload[:8] == b"\x89PNG\r\n\x1a\n"
+    # No network dependency: no external source, stylesheet or script.
+    assert not re.search(r"""(src|href)=["']?(https?:)?//""", text)
+    assert "<script" not in text and "<link" not in text
+    # Tables: a Parquet copy beside each CSV, same content.
+    for name in ("skill", "audit", "outlook", "curves"):
+        csv = pd.read_csv(run / f"{name}.csv", dtype={"county_id": str})
+        pq = pd.read_parquet(run / f"{name}.parquet")
+        assert list(pq.columns) == list(csv.columns) and len(pq) == len(csv)
+    layers = {row[0] for row in pyogrio.list_layers(run / "counties.gpkg")}
+    assert {"counties", "best_candidate", "audit", "outlook"} <= layers
+    audit_layer = pyogrio.read_dataframe(run / "counties.gpkg", layer="audit")
+    assert set(audit_layer["period"]) == {"record"}
+    assert any("report:" in m for m in messages) and str(html) in messages[-1]
+
+
+def test_first_screen_has_cautions_then_an_answer_per_impact(built):
+    run, html, _ = built
+    text, p = _parse(html)
+    top = p.section("_top")
+    assert "Read with care" in top
+    assert "Association, not cause" in top and "Decisions" in top
+    assert p.order[0] == "summary", "the answer cards come before any other section"
+    summary = p.section("summary")
+    for impact in ("crop_shortfall", "restrictions"):
+        assert impact in summary
+    # Which index and time scale, how good, how sure, evidence.
+    for words in ("13-week time scale", "skill score", "statistically as good",
+                  "events among 600"):
+        assert words in summary
+    # The restriction card carries the persistence sentence of skill_summary.csv.
+    assert "the index adds warning beyond persistence" in summary
+
+
+def test_cautions_and_methods_carry_required_text(built):
+    _, html, _ = built
+    _, p = _parse(html)
+    cautions = p.section("cautions")
+    assert "statistical association" in cautions and "do not show that dryness caused" in cautions
+    for limit in ("coverage", "reporting", "Short records", "few events"):
+        assert limit in cautions
+    assert "responsible authorities" in cautions and "local codes" in cautions
+    assert "licensed professional practice" in cautions
+    assert [h for h, _ in CAUTIONS][0] in cautions
+    methods = p.section("methods")
+    for ref in ("McKee", "Vicente-Serrano", "Hobbins", "Hargreaves", "Allen", "McCullagh",
+                "Brier", "Murphy", "Singer", "Efron"):
+        assert ref in methods
+
+
+def test_persistence_comparison_for_restriction_targets(built):
+    _, html, _ = built
+    _, p = _parse(html)
+    skill = p.section("skill")
+    assert "Warning beyond persistence" in skill
+    for target in ("state", "onset", "escalation"):
+        assert f"For {target}, the index adds warning beyond persistence." in skill
+    for label in ("index alone", "persistence alone", "index + persistence"):
+        assert label in skill
+
+
+def test_provenance_lists_checksums_versions_seed(built):
+    _, html, _ = built
+    _, p = _parse(html)
+    prov = p.section("provenance")
+    assert "ab" * 32 in prov and "cd" * 32 in prov
+    assert "numpy" in prov and "seed" in prov and "skill" in prov
+
+
+def test_rebuilding_gives_the_same_page(built):
+    run, html, _ = built
+    first = html.read_text(encoding="utf-8")
+    second = build_report(run).read_text(encoding="utf-8")
+    assert first == second
+
+
+FILES = ["skill.csv", "skill_summary.csv", "reliability.csv", "curves.csv", "crossings.csv",
+         "audit.csv", "outlook.csv", "reconciliation.csv", "rejected_rows.csv", "manifest.json",
+         "counties.gpkg"]
+
+
+def test_every_section_survives_when_all_tables_are_missing(tmp_path, make_run):
+    run = make_run(tmp_path / "run", skip=FILES)
+    html = build_report(run)
+    _, p = _parse(html)
+    for sid in ("curves", "skill", "reliability", "maps", "audit", "triggers", "contrast",
+                "outlook"):
+        assert NOT_COMPUTED in p.section(sid), sid
+    assert "Not computed in this run" in p.section("summary")
+    assert "manifest.json is missing" in p.section("provenance")
+    assert "Association, not cause" in p.section("_top")
+    assert p.imgs == []
+
+
+@pytest.mark.parametrize(("missing", "sid"), [
+    ("skill.csv", "skill"), ("counties.gpkg", "maps"), ("curves.csv", "curves"),
+    ("audit.csv", "audit"), ("outlook.csv", "outlook"), ("reliability.csv", "reliability"),
+])
+def test_one_missing_table_costs_only_its_own_section(tmp_path, make_run, missing, sid):
+    run = read_run_folder(make_run(tmp_path / "run", skip=[missing]))
+    builders = {s: b for s, _, b in S.SECTIONS}
+    sink = S.FigureSink()
+    assert NOT_COMPUTED in builders[sid](run, sink)
+    # A section that does not need the missing file still draws.
+    other = "reliability" if sid != "reliability" else "curves"
+    assert NOT_COMPUTED not in builders[other](run, sink) and sink.files
+
+
+def test_optional_trigger_and_contrast_tables_are_shown_when_present(tmp_path, make_run):
+    folder = make_run(tmp_path / "run")
+    pd.DataFrame({"county_id": ["90000"], "plan": ["<uniform>"], "hit_rate": [0.5]}).to_csv(
+        folder / "triggers.csv", index=False)
+    run = read_run_folder(folder)
+    _, p = _parse_markup(S.triggers_section(run, S.FigureSink()))
+    triggers = p.section("triggers")
+    assert "<uniform>" in triggers and "Alder Bend" in triggers and "0.5" in triggers
+    assert NOT_COMPUTED in S.contrast_section(run, S.FigureSink())
+
+
+def test_damaged_table_warns_and_is_named(tmp_path, make_run):
+    folder = make_run(tmp_path / "run")
+    pd.DataFrame({"impact": ["x"], "unexpected": [1]}).to_csv(folder / "skill.csv", index=False)
+    with pytest.warns(ReportInputWarning, match=r"skill: lacks column\(s\)"):
+        run = read_run_folder(folder)
+    _, p = _parse_markup(S.data_section(run, S.FigureSink()))
+    assert "skill: lacks column(s)" in p.section("data")
+    assert NOT_COMPUTED in S.skill_section(run, S.FigureSink())
+
+
+def test_a_failing_section_is_replaced_by_a_note(tmp_path, make_run, monkeypatch):
+    folder = make_run(tmp_path / "run", skip=FILES)
+
+    def broken(run, figs):
+        raise KeyError("surprise")
+
+    monkeypatch.setattr(S, "SECTIONS", (("methods", "Methods", broken),))
+    with pytest.warns(ReportInputWarning, match="report section 'methods' failed"):
+        html = build_report(folder)
+    assert "could not be built from this run" in html.read_text(encoding="utf-8")
+
+
+def test_missing_run_folder_is_a_clear_error(tmp_path):
+    with pytest.raises(ReportError, match=r"does not exist or is not a folder; pass the output"):
+        build_report(tmp_path / "nowhere")
