@@ -96,8 +96,18 @@ class Ledger:
         else:
             values = np.full(len(sub), "", dtype=object)
         reasons = reason if isinstance(reason, str) else np.asarray(list(reason), dtype=object)[mask]
+        # the file's row number when the inputs stage kept it (column ``source_row`` or
+        # ``frame.attrs["source_rows"]``); otherwise the row's index in the validated frame
+        src = frame.attrs.get("source_rows") if hasattr(frame, "attrs") else None
+        if "source_row" in frame.columns:
+            rows = frame["source_row"].to_numpy()[mask]
+        elif src is not None and len(src) == len(frame):
+            rows = np.asarray(src)[mask]
+        else:
+            rows = sub.index.to_numpy()
+        file = file or str(getattr(frame, "attrs", {}).get("file", ""))
         self._rejected.append(pd.DataFrame({
-            "table": table, "file": file, "row": sub.index.to_numpy(),
+            "table": table, "file": file, "row": rows,
             "column": column, "value": values, "reason": reasons,
         }))
 

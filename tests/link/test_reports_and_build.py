@@ -168,3 +168,11 @@ def test_effort_trend_matches_scipy_kendalltau_asymptotic(seed):
     ref = kendalltau(years, rate, method="asymptotic")
     assert tau == pytest.approx(ref.statistic, rel=1e-12)
     assert p == pytest.approx(ref.pvalue, rel=1e-9)
+
+
+def test_rejected_rows_carry_the_file_row_when_known(counties):
+    rep = _reports()
+    rep["source_row"] = np.arange(2, 8)
+    res = build_targets(ImpactSpec("fr", "field_reports", {}), {"field_reports": rep},
+                        counties=counties, weeks=mondays("2030-01-07", 4))
+    assert res.rejected["row"].tolist() == [7]  # county zz, sixth data row
