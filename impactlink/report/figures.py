@@ -370,7 +370,7 @@ def impact_curves(
     fig = Figure(figsize=(6.4, 3.8), layout="constrained")
     ax = fig.subplots()
     units = sub["unit"].dropna().unique() if "unit" in sub.columns else []
-    for k, (key, g) in enumerate(groups):
+    for k, (_key, g) in enumerate(groups):
         label = str(g[level_col].iloc[0]) if level_col else "impact"
         if level_col and "level_k" in g.columns:
             label = f"at least '{label}'"

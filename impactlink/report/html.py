@@ -19,6 +19,7 @@ import base64
 import html as _html
 import math
 from collections.abc import Iterable
+from string import Template
 
 import pandas as pd
 
@@ -150,15 +151,15 @@ def image(png: bytes, *, alt: str, caption: str | None = None, name: str | None 
 
 
 def details(summary, *children) -> Markup:
-    """A collapsible block (open when printed)."""
+    """A collapsible block (long per-county tables; their full versions are linked files)."""
     return el("details", el("summary", summary), *children)
 
 
-_CSS = """
-:root { --ink: %(ink)s; --accent: %(accent)s; --pale: %(pale)s; --grid: %(grid)s;
-        --text: %(text)s; --band: %(band)s; }
+_CSS = Template("""
+:root { --ink: $ink; --accent: $accent; --pale: $pale; --grid: $grid;
+        --text: $text; --band: $band; }
 * { box-sizing: border-box; }
-html { -webkit-text-size-adjust: 100%%; }
+html { -webkit-text-size-adjust: 100%; }
 body { margin: 0; font: 16px/1.5 system-ui, -apple-system, "Segoe UI", Roboto, sans-serif;
        color: var(--text); background: #fff; }
 main { max-width: 62rem; margin: 0 auto; padding: 0.75rem 1rem 3rem; }
@@ -183,10 +184,10 @@ h3 { font-size: 1.05rem; margin: 1.2rem 0 0.4rem; color: var(--ink); }
 .others { font-size: 0.9rem; margin: 0.5rem 0 0; padding-left: 1.1rem; }
 nav ol { columns: 2 14rem; font-size: 0.9rem; padding-left: 1.3rem; }
 figure { margin: 0.8rem 0; break-inside: avoid; }
-figure img { display: block; max-width: 100%%; height: auto; border: 1px solid var(--grid); }
+figure img { display: block; max-width: 100%; height: auto; border: 1px solid var(--grid); }
 figcaption { font-size: 0.9rem; color: #444; margin-top: 0.2rem; }
-.scroll { overflow-x: auto; max-width: 100%%; margin: 0.5rem 0; }
-table { border-collapse: collapse; font-size: 0.85rem; min-width: 50%%; }
+.scroll { overflow-x: auto; max-width: 100%; margin: 0.5rem 0; }
+table { border-collapse: collapse; font-size: 0.85rem; min-width: 50%; }
 caption { text-align: left; font-weight: 600; padding: 0.2rem 0; }
 th, td { border: 1px solid var(--grid); padding: 0.2rem 0.45rem; text-align: left;
          vertical-align: top; }
@@ -209,14 +210,12 @@ a { color: var(--ink); }
   h2 { break-after: avoid; }
   .scroll { overflow: visible; }
   a { color: inherit; text-decoration: none; }
-  details > summary { list-style: none; }
-  details > *:not(summary) { display: block; }
   .card, figure, table { break-inside: avoid; }
 }
-""" % {
+""").substitute({
     "ink": CATEGORICAL["ink"], "accent": CATEGORICAL["marigold"], "pale": SEQUENCE[0],
     "grid": NEUTRAL["grid"], "text": NEUTRAL["text"], "band": SEQUENCE[1],
-}
+})
 
 
 def page(*, title: str, subtitle: str, body: Iterable[Markup], lang: str = "en") -> str:

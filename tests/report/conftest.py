@@ -55,7 +55,7 @@ def make_fake_run(folder: Path, *, county_names=None, issuer="Tallow Creek Water
                ("restrictions", "onset", "binary", "bss", "secondary"),
                ("restrictions", "escalation", "binary", "bss", "secondary")]
     rows = []
-    for imp, tgt, kind, score, _ in targets:
+    for imp, tgt, kind, _score, _ in targets:
         model = "ordinal_logit" if kind == "ordinal" else "logistic"
         for ix in ("spi", "spei", "eddi"):
             for sc in (4, 8, 13, 26):

@@ -22,7 +22,6 @@ from pathlib import Path
 
 import pytest
 
-
 CHROMIUM = os.environ.get("IMPACTLINK_CHROMIUM", "/usr/bin/chromium")
 ARTIFACTS = Path(__file__).resolve().parents[2] / "test-artifacts"
 
