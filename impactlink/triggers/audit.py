@@ -137,6 +137,7 @@ def audit_triggers(
     max_false_alarm_ratio: float = 0.5,
     entry_weeks: int = 2,
     exit_weeks: int = 4,
+    exit_offset: float = 0.0,
     window_weeks: int = 8,
     min_level: int = 1,
     shrink_events: float = 5.0,
@@ -161,8 +162,8 @@ def audit_triggers(
         Labels written to ``triggers.csv``.
     local_scope : {"county", "region"}
         How the local plan is tuned.
-    objective, candidates, max_false_alarm_ratio, entry_weeks, exit_weeks, window_weeks,
-    min_level, shrink_events
+    objective, candidates, max_false_alarm_ratio, entry_weeks, exit_weeks, exit_offset,
+    window_weeks, min_level, shrink_events
         See :func:`tune_thresholds`.
     index_scale : {"normal", "percentile", "none"}
         Nominal firing rate (see :func:`firing_rate_audit`).
@@ -201,14 +202,17 @@ def audit_triggers(
     common = dict(
         weeks=weeks, candidates=candidates, objective=objective,
         max_false_alarm_ratio=max_false_alarm_ratio, regions=regions, entry_weeks=entry_weeks,
-        exit_weeks=exit_weeks, window_weeks=window_weeks, min_level=min_level,
+        exit_weeks=exit_weeks, exit_offset=exit_offset, window_weeks=window_weeks,
+        min_level=min_level,
         shrink_events=shrink_events, county_ids=ids, seed=seed,
     )
     uniform = tune_thresholds(values, impact_level, scope="uniform", **common)
     local = tune_thresholds(values, impact_level, scope=local_scope, **common)
     plans = {}
     for scope, tuned in [("uniform", uniform), ("local", local)]:
-        on = _replay(values, tuned.thresholds, tuned.thresholds, entry_weeks, exit_weeks)
+        on = _replay(
+            values, tuned.thresholds, tuned.thresholds + exit_offset, entry_weeks, exit_weeks
+        )
         scores = evaluate_trigger(
             on, impact_level, weeks=weeks, min_level=min_level, window_weeks=window_weeks,
             county_ids=ids,
@@ -221,6 +225,7 @@ def audit_triggers(
     timeline = _timeline(values, impact_level, weeks, ids, chosen, plans)
     settings = {
         "entry_weeks": int(entry_weeks), "exit_weeks": int(exit_weeks),
+        "exit_offset": float(exit_offset),
         "window_weeks": int(window_weeks), "min_level": int(min_level),
         "objective": objective, "local_scope": local_scope, "shrink_events": float(shrink_events),
         "index_scale": index_scale, "seed": int(seed),

@@ -60,7 +60,8 @@ class TuningResult:
         Pooled in-sample ``threshold, peirce_skill, csi, hit_rate, false_alarm_ratio,
         below_share`` of every candidate applied uniformly (for the report's tuning plot).
     settings : dict
-        entry_weeks, exit_weeks, window_weeks, min_level, shrink_events, max_false_alarm_ratio.
+        entry_weeks, exit_weeks, exit_offset, window_weeks, min_level, shrink_events,
+        max_false_alarm_ratio, cv, years.
     """
 
     scope: str
@@ -88,6 +89,7 @@ def tune_thresholds(
     cv: Literal["leave_one_year_out", "none"] = "leave_one_year_out",
     entry_weeks: int = 2,
     exit_weeks: int = 4,
+    exit_offset: float = 0.0,
     window_weeks: int = 8,
     min_level: int = 1,
     shrink_events: float = 5.0,
@@ -124,6 +126,9 @@ def tune_thresholds(
         Out-of-sample evaluation; needs at least 3 years.
     entry_weeks, exit_weeks : int
         Persistence rules of :func:`replay_trigger`.
+    exit_offset : float, default 0.0
+        Hysteresis: each candidate's exit threshold is the candidate plus this (index units,
+        >= 0).
     window_weeks, min_level : int
         Episode matching window and impact level (see :func:`evaluate_trigger`).
     shrink_events : float, default 5.0
@@ -189,6 +194,11 @@ def tune_thresholds(
     _check_choice(cv, ("leave_one_year_out", "none"), "cv")
     entry_weeks = _check_persistence(entry_weeks, "entry_weeks")
     exit_weeks = _check_persistence(exit_weeks, "exit_weeks")
+    if not np.isfinite(exit_offset) or exit_offset < 0:
+        raise StageError(
+            f"exit_offset must be >= 0 (exit threshold at or above the entry threshold); got "
+            f"{exit_offset!r}."
+        )
     check_levels(min_level, window_weeks)
     if not 0.0 <= float(max_false_alarm_ratio) <= 1.0:
         raise StageError(
@@ -213,7 +223,7 @@ def tune_thresholds(
         )
     counts = _year_counts(
         values, impact, known, cands, year_code, len(uniq_years),
-        entry_weeks, exit_weeks, int(window_weeks),
+        entry_weeks, exit_weeks, float(exit_offset), int(window_weeks),
     )
     total = {k: v.sum(axis=0) for k, v in counts.items()}
     choose = _Chooser(cands, objective, float(max_false_alarm_ratio), scope, group_of, shrink_events)
@@ -241,6 +251,7 @@ def tune_thresholds(
     settings = {
         "entry_weeks": entry_weeks,
         "exit_weeks": exit_weeks,
+        "exit_offset": float(exit_offset),
         "window_weeks": int(window_weeks),
         "min_level": int(min_level),
         "shrink_events": float(shrink_events),
@@ -347,7 +358,8 @@ def firing_rate_audit(
 
 # --------------------------------------------------------------------------- private steps
 def _year_counts(
-    values, impact, known, cands, year_code, n_years, entry_weeks, exit_weeks, window_weeks
+    values, impact, known, cands, year_code, n_years, entry_weeks, exit_weeks, exit_offset,
+    window_weeks,
 ) -> dict[str, np.ndarray]:
     """Counts per (year, candidate, county) for every name in COUNT_NAMES."""
     n_weeks, n_counties = values.shape
@@ -363,7 +375,8 @@ def _year_counts(
     for lo in range(0, n_counties, chunk):
         sl = slice(lo, min(n_counties, lo + chunk))
         on = _replay(
-            values[:, None, sl], cands[:, None], cands[:, None], entry_weeks, exit_weeks
+            values[:, None, sl], cands[:, None], cands[:, None] + exit_offset, entry_weeks,
+            exit_weeks,
         )
         ind = week_indicators(
             on, impact[:, None, sl], known[:, None, sl], window_weeks, with_lead=False

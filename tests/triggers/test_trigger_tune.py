@@ -176,3 +176,20 @@ def test_held_out_skill_exposes_selection_on_noise():
     assert in_sample > 0.05
     assert held_out < in_sample - 0.05
     assert abs(held_out) < 0.05
+
+
+def test_in_sample_counts_equal_a_replay_with_hysteresis():
+    # the vectorised counts at the chosen thresholds equal replay_trigger + evaluate_trigger
+    x = _ar1(len(WEEKS), 6, seed=8)
+    lev = (x < -1.1).astype(float)
+    lev[200:260, 1] = np.nan
+    res = tune_thresholds(x, lev, weeks=WEEKS, scope="county", exit_offset=0.4, entry_weeks=3,
+                          exit_weeks=2, window_weeks=6, cv="none")
+    on = replay_trigger(x, threshold=res.thresholds, exit_threshold=res.thresholds + 0.4,
+                        entry_weeks=3, exit_weeks=2)
+    ref = evaluate_trigger(on, lev, weeks=WEEKS, window_weeks=6).table
+    cols = ["hits", "false_alarms", "misses", "correct_negatives", "episodes", "episodes_hit",
+            "activations_judged", "false_activations", "peirce_skill", "hit_rate"]
+    pd.testing.assert_frame_equal(res.scores[cols], ref[cols])
+    with pytest.raises(StageError, match="exit_offset must be >= 0"):
+        tune_thresholds(x, lev, weeks=WEEKS, exit_offset=-0.1)
