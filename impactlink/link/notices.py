@@ -101,6 +101,30 @@ def link_notices(spec, tables: dict[str, pd.DataFrame], *, counties, weeks: pd.D
     Returns
     -------
     LinkResult
+
+    Examples
+    --------
+    One notice (level 2, Wednesday 2031-07-09 to Tuesday 2031-07-22) becomes county-week
+    levels; a week counts when the notice is in force on any of its days:
+
+    >>> import geopandas as gpd
+    >>> from shapely.geometry import box
+    >>> from impactlink.project import ImpactSpec
+    >>> counties = gpd.GeoDataFrame({"county_id": ["90001"]},
+    ...                             geometry=[box(0, 1.8e6, 1e4, 1.81e6)], crs="EPSG:5070")
+    >>> notices = pd.DataFrame({"notice_id": ["N-17"], "issuer": ["Brambeth Waterworks"],
+    ...     "county_id": ["90001"], "level": [2],
+    ...     "start_date": pd.to_datetime(["2031-07-09"]),
+    ...     "end_date": pd.to_datetime(["2031-07-22"])})
+    >>> res = link_notices(ImpactSpec("restrictions", "notices", {"horizon_weeks": [2]}),
+    ...                    {"notices": notices}, counties=counties,
+    ...                    weeks=pd.date_range("2031-06-30", periods=5, freq="7D"))
+    >>> state = res.targets[0].frame
+    >>> state["time"].dt.strftime("%m-%d").tolist(), state["level"].tolist()
+    (['06-30', '07-07', '07-14', '07-21', '07-28'], [0, 2, 2, 2, 0])
+    >>> onset = res.targets[1].frame
+    >>> onset["time"].dt.strftime("%m-%d").tolist(), onset["level"].tolist()
+    (['06-30'], [1])
     """
     opts = dict(spec.options)
     check_options(opts, NOTICE_OPTIONS, impact=spec.name, source="notices")
