@@ -116,6 +116,7 @@ def fit_logistic_batch(
     X, y, w = _check_batch(X, y, w, "fit_logistic_batch")
     if ((y < 0) | (y > 1)).any():
         raise ValueError("fit_logistic_batch: y must lie in [0, 1] (event proportions)")
+    X, y, w = _drop_empty_rows(X, y, w)
     B, n, p = X.shape
     pen = np.full((B, p), float(ridge))
     pen[_constant_columns(X, w)] = 0.0
@@ -138,10 +139,10 @@ def fit_logistic_batch(
             it -= 1
             break
         Xa, ya, wa, ba, pa = X[active], y[active], w[active], beta[active], pen[active]
-        eta = np.einsum("bnp,bp->bn", Xa, ba)
+        eta = _mv(Xa, ba)
         mu = _sigmoid(eta)
-        grad = np.einsum("bnp,bn->bp", Xa, wa * (ya - mu)) - pa * ba
-        H = np.einsum("bnp,bn,bnq->bpq", Xa, wa * mu * (1 - mu), Xa)
+        grad = _tv(Xa, wa * (ya - mu)) - pa * ba
+        H = _quad(Xa, wa * mu * (1 - mu), Xa)
         H[:, np.arange(p), np.arange(p)] += pa + 1e-12
         step = _solve(H, grad)
         new, new_obj = _halve(
@@ -167,6 +168,29 @@ def _constant_columns(X: np.ndarray, w: np.ndarray) -> np.ndarray:
     return (lo == hi) & (lo != 0) & np.isfinite(lo)
 
 
+def _drop_empty_rows(X, y, w):
+    """Drop rows whose weight is zero in every fit of the batch (padding)."""
+    keep = (w > 0).any(0)
+    if keep.all() or not keep.any():
+        return X, y, w
+    return X[:, keep], y[:, keep], w[:, keep]
+
+
+def _mv(A: np.ndarray, v: np.ndarray) -> np.ndarray:
+    """``einsum("bnq,bq->bn")`` through batched BLAS matmul."""
+    return (A @ v[..., None])[..., 0]
+
+
+def _tv(A: np.ndarray, v: np.ndarray) -> np.ndarray:
+    """``einsum("bnq,bn->bq")``."""
+    return (v[:, None, :] @ A)[:, 0, :]
+
+
+def _quad(A: np.ndarray, v: np.ndarray, C: np.ndarray) -> np.ndarray:
+    """``einsum("bnq,bn,bnr->bqr")``: A^T diag(v) C per fit."""
+    return (A * v[..., None]).transpose(0, 2, 1) @ C
+
+
 def _sigmoid(z: np.ndarray) -> np.ndarray:
     return 0.5 * (1.0 + np.tanh(0.5 * z))
 
@@ -176,7 +200,7 @@ def _log_sigmoid(z: np.ndarray) -> np.ndarray:
 
 
 def _logit_objective(X, y, w, beta, pen) -> np.ndarray:
-    eta = np.einsum("bnp,bp->bn", X, beta)
+    eta = _mv(X, beta)
     ll = (w * (y * _log_sigmoid(eta) + (1 - y) * _log_sigmoid(-eta))).sum(1)
     return ll - 0.5 * (pen * beta**2).sum(1)
 
@@ -278,6 +302,7 @@ def fit_cumlogit_batch(
         raise ValueError(f"fit_cumlogit_batch: need at least 2 levels; got n_levels={K}")
     if yf.max() > K - 1:
         raise ValueError(f"fit_cumlogit_batch: y has level {int(yf.max())} >= n_levels={K}")
+    X, yf, w = _drop_empty_rows(X, yf, w)
     yi = yf.astype(np.int64)
     B, n, p = X.shape
     q = K - 1 + p
@@ -320,8 +345,8 @@ def fit_cumlogit_batch(
         A = np.flatnonzero(active)
         par = theta[A]
         du, dl, hu, hl, wa, pa = Du[A], Dl[A], has_u[A], has_l[A], w[A], pen[A]
-        au = np.where(hu, np.einsum("bnq,bq->bn", du, par), np.inf)
-        al = np.where(hl, np.einsum("bnq,bq->bn", dl, par), -np.inf)
+        au = np.where(hu, _mv(du, par), np.inf)
+        al = np.where(hl, _mv(dl, par), -np.inf)
         Fu, Fl = _sigmoid(au), _sigmoid(al)
         fu, fl = Fu * (1 - Fu), Fl * (1 - Fl)
         P = np.maximum(Fu - Fl, 1e-300)
@@ -329,12 +354,11 @@ def fit_cumlogit_batch(
         huu = fu * (1 - 2 * Fu) / P - gu**2
         hll = -fl * (1 - 2 * Fl) / P - gl**2
         hul = fu * fl / P**2
-        grad = np.einsum("bnq,bn->bq", du, wa * gu) + np.einsum("bnq,bn->bq", dl, wa * gl)
+        grad = _tv(du, wa * gu) + _tv(dl, wa * gl)
         grad -= pa * par
-        H = (np.einsum("bnq,bn,bnr->bqr", du, wa * huu, du)
-             + np.einsum("bnq,bn,bnr->bqr", dl, wa * hll, dl)
-             + np.einsum("bnq,bn,bnr->bqr", du, wa * hul, dl)
-             + np.einsum("bnq,bn,bnr->bqr", dl, wa * hul, du))
+        cross = _quad(du, wa * hul, dl)
+        H = (_quad(du, wa * huu, du) + _quad(dl, wa * hll, dl)
+             + cross + cross.transpose(0, 2, 1))
         H[:, np.arange(q), np.arange(q)] -= pa + 1e-12
         step = _solve(-H, grad)
 
@@ -366,8 +390,8 @@ def predict_cumlogit(X: np.ndarray, coef: np.ndarray, n_levels: int) -> np.ndarr
 
 
 def _cum_loglik(par, Du, Dl, has_u, has_l, w) -> np.ndarray:
-    au = np.where(has_u, np.einsum("bnq,bq->bn", Du, par), np.inf)
-    al = np.where(has_l, np.einsum("bnq,bq->bn", Dl, par), -np.inf)
+    au = np.where(has_u, _mv(Du, par), np.inf)
+    al = np.where(has_l, _mv(Dl, par), -np.inf)
     P = _sigmoid(au) - _sigmoid(al)
     # for precision in the far tails use the complementary form when both are large
     P = np.where(P > 0, P, 0.0)

@@ -176,16 +176,17 @@ def _design(xbar: np.ndarray, cell: np.ndarray, n_cells: int) -> np.ndarray:
 
 
 # --------------------------------------------------------------------------- prediction
-def predict_blocks(h: Hist, coef: np.ndarray, *, use_cells: bool, n_levels: int) -> np.ndarray:
-    """Level probabilities (J, G, R, K) of the held-out rows of every block, every job."""
+def predict_blocks(h: Hist, coef: np.ndarray, *, use_cells: bool, n_levels: int,
+                   jobs: np.ndarray, blocks: np.ndarray) -> np.ndarray:
+    """Level probabilities (pairs, R, K) of the rows of block ``blocks[i]`` under the fit of
+    job ``jobs[i]``, each held-out row predicted at its own bin's mean index value."""
     K = n_levels
-    n = h.N.sum(-1)
-    xbar = h.S / np.maximum(n, 1e-12)[..., None]  # (G, R, P)
-    X = _design(xbar, h.cell, h.n_cells if use_cells else 1)  # (G, R, p)
-    theta = coef[:, : K - 1]
-    beta = coef[:, K - 1:]
-    eta = np.einsum("grp,jp->jgr", X, beta)
-    a = theta[:, None, None, :] - eta[..., None]
+    n = h.N[blocks].sum(-1)
+    xbar = h.S[blocks] / np.maximum(n, 1e-12)[..., None]  # (pairs, R, P)
+    X = _design(xbar, h.cell, h.n_cells if use_cells else 1)  # (pairs, R, p)
+    c = coef[jobs]
+    eta = (X @ c[:, K - 1:, None])[..., 0]  # (pairs, R)
+    a = c[:, None, : K - 1] - eta[..., None]
     F = 0.5 * (1.0 + np.tanh(0.5 * a))
     shape = F.shape[:-1] + (1,)
     F = np.concatenate([np.zeros(shape), F, np.ones(shape)], axis=-1)

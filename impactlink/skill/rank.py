@@ -508,19 +508,23 @@ def _score_chunk(task) -> list[list[dict]]:
     for model, use_cells, nested in variants:
         coef, conv = E.fit_chunk(hists, layout, use_cells=use_cells,
                                  jobs_subset="all" if nested else "main")
+        G = layout.n_blocks
+        ji, gi = np.nonzero(layout.scored[layout.n_main:])
         for u, h in enumerate(hists):
-            P = E.predict_blocks(h, coef[u], use_cells=use_cells, n_levels=layout.n_levels)
-            G = layout.n_blocks
-            P_oof = P[layout.block_fold, np.arange(G)]
+            P_oof = E.predict_blocks(h, coef[u], use_cells=use_cells, n_levels=layout.n_levels,
+                                     jobs=layout.block_fold, blocks=np.arange(G))
             rec = _score_oof(P_oof, h.N, layout, W)
             rec["model"] = model
             rec["coef_main"] = coef[u, : layout.n_main]
             rec["n_unconverged"] = int((~conv[u]).sum())
             if nested:
+                # inner jobs: only the (job, block) pairs each inner fit scores
+                P_in = E.predict_blocks(h, coef[u], use_cells=use_cells,
+                                        n_levels=layout.n_levels, jobs=ji + layout.n_main,
+                                        blocks=gi)
+                rps = E.block_losses(P_in, h.N[gi])["rps"]
                 inner = np.zeros(layout.n_folds)
-                rps = E.block_losses(P[layout.n_main:], h.N)["rps"]  # (J_inner, G)
-                sc = layout.scored[layout.n_main:]
-                np.add.at(inner, layout.inner_of[layout.n_main:], (rps * sc).sum(1))
+                np.add.at(inner, layout.inner_of[ji + layout.n_main], rps)
                 rec["inner"] = inner
             out[u].append(rec)
     return out
@@ -797,9 +801,9 @@ def _row_probs(ctx, features, units, rec) -> np.ndarray:
     """Out-of-fold level probabilities (rows, K) of one single candidate, row by row."""
     u = units[rec["unit"]]
     lay = ctx.layout
-    P = E.predict_blocks(u.hist, rec["coef_main"], use_cells=rec["model"] != "index",
-                         n_levels=lay.n_levels)
-    P_oof = P[lay.block_fold, np.arange(lay.n_blocks)]
+    P_oof = E.predict_blocks(u.hist, rec["coef_main"], use_cells=rec["model"] != "index",
+                             n_levels=lay.n_levels, jobs=lay.block_fold,
+                             blocks=np.arange(lay.n_blocks))
     x = _feature(features, u.key, len(ctx.target.frame))[ctx.rows]
     mu, sd = u.transform[0][:2]
     b = E.bin_codes((x - mu) / sd, u.n_bins)

@@ -71,8 +71,8 @@ def test_out_of_fold_scores_match_row_by_row_scores():
     # rows predicted at their own bin's mean value (tiny hand-checkable identity)
     years, x, y, layout = _data(n=3000, discrete=True)
     h, coef = _fit(years, x, y, layout, 200, 2)
-    P = E.predict_blocks(h, coef, use_cells=False, n_levels=2)
-    P_oof = P[layout.block_fold, np.arange(layout.n_blocks)]
+    P_oof = E.predict_blocks(h, coef, use_cells=False, n_levels=2, jobs=layout.block_fold,
+                             blocks=np.arange(layout.n_blocks))
     loss = E.block_losses(P_oof, h.N)
     b = E.bin_codes(x, 200)
     rmap = np.cumsum(np.bincount(b, minlength=200) > 0) - 1
