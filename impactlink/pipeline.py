@@ -348,11 +348,102 @@ def _stage_outlook(project, st, out_dir, progress, warnings):
 
 
 def _stage_triggers(project, st, out_dir, progress, warnings):
-    return []
+    """Replay, tune and audit trigger plans for every county-week state target.
+
+    The index and time scale come from the best candidate for the matching onset target
+    (a trigger should warn of new impacts), else from the state target itself.
+    """
+    from impactlink.triggers import audit_triggers, impact_grid
+
+    cube = st["cube"]
+    counties = st["bundle"].tables["counties"]
+    region_of = counties.set_index("county_id")["region"].astype(str)
+    regions = [region_of.get(c, "all") for c in cube.county_ids]
+    frames, timelines = [], []
+    for target in st["targets"]:
+        if target.grain != "county_week" or target.role != "state":
+            continue
+        best = _best_for_impact(st, target)
+        if best is None:
+            continue
+        idx, scale, _lag = best
+        progress(f"triggers {target.name}: {idx} {scale} weeks")
+        res = audit_triggers(
+            cube.get(idx, scale),
+            impact_grid(target, cube.weeks, cube.county_ids),
+            weeks=cube.weeks,
+            county_ids=cube.county_ids,
+            regions=regions,
+            index=idx,
+            scale_weeks=scale,
+            entry_weeks=project.triggers.entry_weeks,
+            exit_weeks=project.triggers.exit_weeks,
+            seed=project.seed,
+        )
+        f = res.to_frame()
+        f.insert(0, "target", target.name)
+        f.insert(0, "impact", target.impact)
+        frames.append(f)
+        tl = res.timeline_frame()
+        tl.insert(0, "target", target.name)
+        timelines.append(tl)
+    st["triggers"] = _concat(frames)
+    written = []
+    for name, frame in [("triggers.csv", st["triggers"]), ("trigger_timeline.csv", _concat(timelines))]:
+        p = out_dir / name
+        frame.to_csv(p, index=False)
+        written.append(p)
+    return written
 
 
 def _stage_contrast(project, st, out_dir, progress, warnings):
-    return []
+    """County contrasts for each target with a county grain, on its best candidate."""
+    from impactlink.contrast import county_contrast
+    from impactlink.link import feature_values
+
+    traits = st["bundle"].tables.get("traits")
+    if traits is None or traits.empty:
+        warnings.append("no traits table: county contrasts not computed")
+        return []
+    cube = st["cube"]
+    rows, excess, pairs = [], [], []
+    for target in st["targets"]:
+        if target.grain == "region_month" or target.role in ("escalation",):
+            continue
+        if target.name not in st.get("best_models", {}):
+            continue
+        _model, (idx, scale, lag) = st["best_models"][target.name]
+        progress(f"contrast {target.name}: {idx} {scale} weeks, lag {lag}")
+        x = feature_values(target, cube, idx, scale, lag)
+        res = county_contrast(target, x, traits, ci=project.models.curve_ci, seed=project.seed)
+        meta = {"impact": target.impact, "target": target.name, "index": idx,
+                "scale_weeks": scale, "lag_weeks": lag}
+        for frame, bucket in [(res.to_frame(), rows), (res.county_excess, excess), (res.pairs, pairs)]:
+            if frame is None or len(frame) == 0:
+                continue
+            frame = frame.copy()
+            for i, (k, v) in enumerate(meta.items()):
+                frame.insert(i, k, v)
+            bucket.append(frame)
+    st["contrast"] = _concat(rows)
+    st["county_excess"] = _concat(excess)
+    written = []
+    for name, frame in [("contrast.csv", st["contrast"]), ("county_excess.csv", st["county_excess"]),
+                        ("contrast_pairs.csv", _concat(pairs))]:
+        p = out_dir / name
+        frame.to_csv(p, index=False)
+        written.append(p)
+    return written
+
+
+def _best_for_impact(st: dict, target) -> tuple[str, int, int] | None:
+    """Best (index, scale, lag) for a state target: its onset sibling's, else its own."""
+    best = st.get("best_models", {})
+    siblings = [n for n in best if n.startswith(f"{target.impact}:onset")]
+    for name in sorted(siblings) + [target.name]:
+        if name in best:
+            return best[name][1]
+    return None
 
 
 def _stage_report(project, st, out_dir, progress, warnings):
