@@ -1,0 +1,80 @@
+"""Plain-language sentences: tiny hand-built rows."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+
+from impactlink.report.text import (
+    answer_card,
+    candidate_label,
+    fmt_interval,
+    fmt_num,
+    index_name,
+    score_label,
+    verdict,
+)
+
+
+def test_labels_and_numbers():
+    assert candidate_label("spi", 13, 4) == "SPI, 13-week time scale, 4-week lag"
+    assert candidate_label("spei", 26.0, 0.0, short=True) == "SPEI 26w lag 0w"
+    assert candidate_label("my_gauge", np.nan, 2) == "my_gauge, 2-week lag"
+    assert index_name(None) == "no index" and index_name("EDDI") == "EDDI"
+    assert score_label("rpss") == "ranked probability skill score"
+    assert fmt_num(0.2049) == "0.20" and fmt_num(None) == "n/a" and fmt_num(pd.NA) == "n/a"
+    assert fmt_interval(0.214, 0.12, 0.3) == "0.21 (0.12 to 0.30)"
+    assert fmt_interval(0.214, np.nan, 0.3) == "0.21"
+
+
+def test_verdict_branches():
+    assert verdict(0.2, 0.05, beats_seasonal=True, beats_persistence=True).startswith("Clear")
+    assert verdict(0.2, 0.05, beats_seasonal=True, beats_persistence=False).startswith("Real")
+    assert verdict(0.1, -0.02).startswith("Weak")
+    assert verdict(-0.1, -0.3).startswith("No usable signal")
+    assert verdict(np.nan, np.nan) == "Not scored in this run."
+
+
+def _rows():
+    summary = pd.Series(dict(
+        impact="restrictions", target="onset", best_index="spi", best_scale_weeks=13,
+        best_lag_weeks=4, best_model="logistic", score_name="bss", naive_skill=0.31,
+        nested_skill=0.22, nested_lo=0.08, nested_hi=0.35, n_candidates=42,
+        n_indistinguishable=3, events=27, n=900, persistence_sentence=np.nan,
+        persistence_gain=0.04, persistence_gain_lo=-0.01, persistence_gain_hi=0.09))
+    skill = pd.DataFrame([
+        ("spi", 13, 4, "logistic", 0.31, True, True, True, False),
+        ("spei", 13, 4, "logistic", 0.29, True, True, True, False),
+        ("spi", 26, 8, "logistic", 0.28, True, True, True, False),
+        ("eddi", 4, 0, "logistic", 0.02, False, True, False, False),
+        (None, None, None, "seasonal", 0.10, False, None, None, None),
+        (None, None, None, "persistence", 0.33, False, None, None, None),
+    ], columns=["index", "scale_weeks", "lag_weeks", "model", "bss",
+                "indistinguishable_from_best", "beats_climatology", "beats_seasonal",
+                "beats_persistence"])
+    skill["impact"], skill["target"] = "restrictions", "onset"
+    return summary, skill
+
+
+def test_answer_card_reads_best_baselines_ties_and_evidence():
+    summary, skill = _rows()
+    a = answer_card(summary, skill)
+    assert a.which == "SPI, 13-week time scale, 4-week lag (logistic model)"
+    assert a.how_good.startswith("Brier skill score 0.22 (0.08 to 0.35)")
+    assert "42 candidates" in a.how_good and "own score 0.31" in a.how_good
+    assert a.baselines == ("Baseline scores: seasonal 0.10, persistence 0.33. Beats climatology, "
+                           "seasonal. Does not beat persistence.")
+    assert a.how_sure == ("2 other candidates are statistically as good as the best: "
+                          "SPEI 13w lag 4w; SPI 26w lag 8w.")
+    assert a.rests_on == "Rests on 27 events among 900 scored cases."
+    assert a.verdict.startswith("Real signal")
+    assert a.persistence == "Gain over persistence: 0.04 (-0.01 to 0.09)."
+
+
+def test_answer_card_without_skill_table_still_answers():
+    summary, _ = _rows()
+    a = answer_card(summary.drop(labels=["n_indistinguishable"]))
+    assert a.baselines == ""
+    assert a.how_sure == "No other candidate is statistically as good as the best."
+    a2 = answer_card(summary.drop(labels=["events", "n"]))
+    assert a2.rests_on == "Rests on an unknown number of events among an unknown number of scored cases."
