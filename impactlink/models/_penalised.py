@@ -24,6 +24,7 @@ def fit_cumulative(
     *,
     prior_sd: float | None = PRIOR_SD,
     maxiter: int = 500,
+    covariance: bool = True,
 ) -> dict:
     """Fit P(y >= k) = F(X beta - c_k), k = 1..K, with a normal prior on beta.
 
@@ -38,6 +39,8 @@ def fit_cumulative(
     link : {"logit", "probit"}
     prior_sd : float or None
         Standard deviation of the normal prior on ``beta_j * 2 * sd(X_j)``; None = no penalty.
+    covariance : bool
+        Compute the covariance (False: ``cov`` is NaN; used for starting values).
 
     Returns
     -------
@@ -109,6 +112,10 @@ def fit_cumulative(
     # Hessian in (beta, c) by central differences of the analytic gradient
     z = np.concatenate([beta, cuts])
     m = p + K
+    if not covariance:
+        return {"beta": beta, "cuts": cuts, "cov": np.full((m, m), np.nan),
+                "loglik": float(grad_bc(beta, cuts)[3]), "converged": bool(res.success),
+                "theta": res.x}
     H = np.empty((m, m))
     for j in range(m):  # loop over at most a dozen parameters
         h = 1e-5 * max(1.0, abs(z[j]))
