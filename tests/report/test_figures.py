@@ -58,8 +58,8 @@ def test_candidate_intervals_orders_by_score_and_draws_baselines():
     # The two best scores are 0.30 (logistic) and 0.25 (boosting), best at the top.
     assert [text for _, text in by_height] == ["SPI 13w lag 0w (logistic)",
                                                "SPI 13w lag 0w (boosting)"]
-    vlines = sorted(round(l.get_xdata()[0], 3) for l in ax.get_lines() if len(l.get_xdata()) == 2
-                    and l.get_xdata()[0] == l.get_xdata()[1])
+    vlines = sorted(round(ln.get_xdata()[0], 3) for ln in ax.get_lines() if len(ln.get_xdata()) == 2
+                    and ln.get_xdata()[0] == ln.get_xdata()[1])
     assert vlines == [0.0, 0.05, 0.12]
     assert "Brier skill score" in ax.get_xlabel()
     with pytest.raises(F.FigureInputError, match="top must be >= 1, got 0"):
@@ -97,7 +97,7 @@ def test_impact_curves_draw_each_level_with_axes_in_units():
                                    prob_level=0.5, x_cross=0.0)])
     fig = F.impact_curves(pd.DataFrame(rows), crossings, impact="crop", target="class")
     ax = fig.axes[0]
-    curves = [l for l in ax.get_lines() if len(l.get_xdata()) == 5]
+    curves = [ln for ln in ax.get_lines() if len(ln.get_xdata()) == 5]
     np.testing.assert_allclose(curves[0].get_ydata(), np.linspace(0.9, 0.1, 5))
     np.testing.assert_allclose(curves[1].get_ydata(), np.linspace(0.9, 0.1, 5) / 2)
     assert ax.get_ylim() == (0, 1)
@@ -126,8 +126,8 @@ def test_audit_median_marks_sit_at_hand_computed_medians():
         observed_share=[0.1, 0.2, 0.4, 0.05, 0.05, 0.1]))
     fig = F.audit_shares(audit, ladder="lad")
     ax1 = fig.axes[0]
-    meds = [l.get_xdata()[0] for l in ax1.get_lines() if len(l.get_xdata()) == 2
-            and l.get_xdata()[0] == l.get_xdata()[1] and l.get_linewidth() == 2.5]
+    meds = [ln.get_xdata()[0] for ln in ax1.get_lines() if len(ln.get_xdata()) == 2
+            and ln.get_xdata()[0] == ln.get_xdata()[1] and ln.get_linewidth() == 2.5]
     # watch: ratios 0.5, 1, 2 -> median 1; alarm: 1, 1, 2 -> median 1 (stage order: watch, alarm)
     assert meds == [1.0, 1.0]
     assert [t.get_text() for t in ax1.get_yticklabels()] == ["watch", "alarm"]
