@@ -174,7 +174,10 @@ class TableCheck:
         for c in columns:
             s = self.clean[c] if c in self.clean else self.frame[c]
             out[c] = s[keep].reset_index(drop=True)
-        return pd.DataFrame(out)
+        frame = pd.DataFrame(out)
+        # file row numbers of the kept rows, so later stages can name the row they reject
+        frame.attrs["source_rows"] = self.rows[np.asarray(keep, dtype=bool)]
+        return frame
 
 
 # -------------------------------------------------------------------- column converters
