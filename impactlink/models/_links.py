@@ -11,7 +11,9 @@ c_1 = -intercept. ``F`` is the logistic or the standard normal distribution func
 from __future__ import annotations
 
 import numpy as np
-from scipy import special, stats
+from scipy import special
+
+_SQRT_2PI = np.sqrt(2.0 * np.pi)
 
 LINKS = ("logit", "probit")
 
@@ -43,7 +45,7 @@ def pdf(z: np.ndarray, link: str) -> np.ndarray:
             e = special.expit(z)
             out = e * (1.0 - e)
         else:
-            out = stats.norm.pdf(z)
+            out = np.exp(-0.5 * z**2) / _SQRT_2PI
     return np.where(np.isfinite(z), out, 0.0)
 
 
@@ -54,7 +56,7 @@ def dpdf(z: np.ndarray, link: str) -> np.ndarray:
             e = special.expit(z)
             out = e * (1.0 - e) * (1.0 - 2.0 * e)
         else:
-            out = -z * stats.norm.pdf(z)
+            out = -z * np.exp(-0.5 * z**2) / _SQRT_2PI
     return np.where(np.isfinite(z), out, 0.0)
 
 

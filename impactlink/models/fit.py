@@ -368,6 +368,23 @@ def fit_impact_model(
     ``x={"persistence_4": frame["persistence_4"].to_numpy()}``; an index-plus-persistence
     model passes the index as ``x`` and ``covariates=("persistence_4",)``.
 
+    Examples
+    --------
+    >>> import numpy as np, pandas as pd
+    >>> from impactlink.link import Target
+    >>> rng = np.random.default_rng(0)
+    >>> x = rng.normal(size=400)                      # index values, negative = dry
+    >>> level = (rng.uniform(size=400) < 1 / (1 + np.exp(1 + 1.5 * x))).astype(int)
+    >>> frame = pd.DataFrame({"unit_id": "c1", "county_id": "c1", "region": "north",
+    ...                       "time": pd.Timestamp("2001-01-01"), "year": 2001,
+    ...                       "season": 1, "level": level})
+    >>> t = Target("demo", "demo", "binary", "county_week", "state", frame, ("none", "impact"))
+    >>> m = fit_impact_model(t, x, meta={"index": "spi", "scale_weeks": 8, "lag_weeks": 0})
+    >>> m.ok, m.method, m.predictors
+    (True, 'glm_binomial', ('x',))
+    >>> bool(m.predict(np.array([-2.0]))[0, 0] > m.predict(np.array([1.0]))[0, 0])
+    True
+
     References
     ----------
     McCullagh, P. (1980). Regression models for ordinal data. Journal of the Royal
