@@ -6,7 +6,7 @@ import re
 
 import pandas as pd
 import pytest
-from conftest import climate_frame, counties_frame, make_project, write_csv, write_text
+from inputs_fixtures import climate_frame, counties_frame, make_project, write_csv, write_text
 
 from impactlink.inputs import InputError, discover_tables, read_inputs
 

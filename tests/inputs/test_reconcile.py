@@ -12,7 +12,7 @@ from pathlib import Path
 
 import pandas as pd
 import pytest
-from conftest import COUNTY_IDS, counties_frame, make_project, write_csv
+from inputs_fixtures import COUNTY_IDS, counties_frame, make_project, write_csv
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 

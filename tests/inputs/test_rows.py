@@ -9,7 +9,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
-from conftest import climate_frame, make_project, write_csv, write_text
+from inputs_fixtures import climate_frame, make_project, write_csv, write_text
 
 from impactlink.inputs import read_inputs
 

@@ -10,7 +10,7 @@ import datetime as dt
 import numpy as np
 import pandas as pd
 import pytest
-from conftest import cube_from, mondays
+from link_fixtures import cube_from, mondays
 
 from impactlink.link import (
     FeatureRule,

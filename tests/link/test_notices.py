@@ -12,7 +12,7 @@ import datetime as dt
 import numpy as np
 import pandas as pd
 import pytest
-from conftest import lonlat_of, mondays
+from link_fixtures import lonlat_of, mondays
 
 from impactlink.link import (
     LinkError,

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
-from conftest import cube_from, mondays
+from link_fixtures import cube_from, mondays
 
 from impactlink.link import LinkError, build_targets, deflate, feature_values
 from impactlink.project import ImpactSpec

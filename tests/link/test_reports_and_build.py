@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
-from conftest import mondays
+from link_fixtures import mondays
 
 from impactlink.link import (
     PANEL_COLUMNS,

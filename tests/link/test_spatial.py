@@ -7,7 +7,7 @@ import numpy as np
 import pandas as pd
 import pytest
 import shapely
-from conftest import lonlat_of
+from link_fixtures import lonlat_of
 from pyproj import Transformer
 from shapely.geometry import box
 
