@@ -242,3 +242,16 @@ def test_error_messages_name_the_argument():
         m.predict_interval(x, ci=90)
     with pytest.raises(ValueError, match="lacks feature"):
         m.predict({"spi": x})
+
+
+def test_monthly_targets_use_month_harmonics():
+    # Region-month targets: season is the month 1..12, period 12.
+    rng = np.random.default_rng(18)
+    month = np.tile(np.arange(1, 13), 30)
+    x = rng.normal(size=month.size)
+    eta = -1.0 - x + 1.2 * np.sin(2 * np.pi * month / 12)
+    y = (rng.uniform(size=x.size) < 1 / (1 + np.exp(-eta))).astype(int)
+    m = fit_impact_model(make_target(y, season=month, grain="region_month"), x, seasonal=True)
+    assert m.design.seasonal == "month"
+    se = np.sqrt(m.cov.loc["season_sin", "season_sin"])
+    assert abs(m.params["season_sin"] - 1.2) < 3 * se

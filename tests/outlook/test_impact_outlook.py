@@ -192,3 +192,21 @@ def test_outlook_map_has_one_panel_per_lag():
         plot_outlook_map(pd.concat([out, out]), geo)
     with pytest.raises(ValueError, match="outlook lacks column"):
         plot_outlook_map(out.drop(columns="prob"), geo)
+
+
+def test_two_feature_model_forecasts_to_its_shortest_lag():
+    # A model on spi at lags 2 and 6 can forecast only 2 weeks past the latest week.
+    cube = _cube()
+    t, x2 = _weekly_target(cube, 6)
+    arr = cube.get("spi", 8)
+    wp = cube.week_position(t.frame["time"])
+    cp = cube.county_position(t.frame["county_id"])
+    x_lag2 = arr[wp - 2, cp]
+    m = fit_impact_model(t, {"spi_lag2": x_lag2, "spi_lag6": x2},
+                         meta={"features": {"spi_lag2": ("spi", 8, 2),
+                                            "spi_lag6": ("spi", 8, 6)}})
+    out = impact_outlook({"pair": m}, cube).set_index("county_id")
+    W = cube.weeks[-1]
+    assert set(out["lag_weeks"]) == {2} and set(out["valid_week"]) == {W + pd.Timedelta(weeks=2)}
+    expect = m.predict({"spi_lag2": arr[-1, 1:], "spi_lag6": arr[-5, 1:]})[:, 0]
+    np.testing.assert_allclose(out.loc[list(COUNTIES[1:]), "prob"], expect, rtol=1e-12)
