@@ -225,9 +225,14 @@ class ImpactModel:
 
     # ------------------------------------------------------------ tidy output
     def to_frame(self) -> pd.DataFrame:
-        """Coefficient table: unit, term, estimate, std_error and the model's provenance."""
+        """Coefficient table: unit, term, estimate, std_error and the model's provenance.
+
+        One block per unit (``"all"``, or each region for region and county pooling), then
+        for county pooling one ``county_deviation`` row per county (posterior mode and sd);
+        the events each county rests on and its shrinkage weight are in :attr:`groups`.
+        """
         parts = []
-        if self.pooling == "region" and self.members:
+        if self.pooling in ("region", "county") and self.members:
             for r, m in self.members.items():
                 parts.append(_coef_table(m, unit=r))
         else:

@@ -40,6 +40,10 @@ def test_tau_recovered_and_deviations_track_truth():
     assert np.corrcoef(g["deviation"], u)[0, 1] > 0.8
     assert set(g.columns) >= {"region", "n", "events", "deviation", "deviation_sd",
                               "shrinkage_weight", "parent"}
+    table = m.to_frame()
+    assert set(table.loc[table["term"] == "x", "unit"]) == {"r0", "r1", "r2"}
+    dev = table[table["term"] == "county_deviation"].set_index("unit")["estimate"]
+    np.testing.assert_allclose(dev.loc[g.index], g["deviation"])
 
 
 def test_no_county_variation_gives_small_tau_and_strong_shrinkage():
