@@ -455,6 +455,11 @@ def fit_impact_model(
     if K < 1:
         return _failed(spec, f"target has {target.n_levels} level(s); need at least 2",
                        pooling=pooling, **common)
+    if target.kind == "binary" and K != 1:
+        raise ValueError(
+            f"target {target.name!r} is binary but has {target.n_levels} levels "
+            f"{target.levels}; expected 2 (or kind='ordinal')"
+        )
     bad = np.isfinite(y) & ((y < 0) | (y > K) | (y != np.round(y)))
     if bad.any():
         raise ValueError(

@@ -237,6 +237,9 @@ def test_error_messages_name_the_argument():
     bad = make_target(np.r_[y[:-1], 3], levels=("none", "impact"))
     with pytest.raises(ValueError, match="outside 0..1"):
         fit_impact_model(bad, x)
+    three = make_target(np.r_[y[:-1], 2], kind="binary", levels=("a", "b", "c"))
+    with pytest.raises(ValueError, match="is binary but has 3 levels"):
+        fit_impact_model(three, x)
     m = fit_impact_model(t, x)
     with pytest.raises(ValueError, match="ci must be strictly between 0 and 1"):
         m.predict_interval(x, ci=90)
