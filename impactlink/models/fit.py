@@ -168,7 +168,7 @@ class ImpactModel:
         Delta method on the linear predictor: with g = (x, -e_k) and coefficient covariance
         V, the linear predictor eta_k = x'beta - c_k has variance g'Vg; the interval is
         F(eta_k -+ z sqrt(g'Vg)) with z the (1+ci)/2 normal quantile. Working on the linear
-        predictor keeps the interval inside (0, 1) (Agresti 2013, Ch. 4-5). For county
+        predictor keeps the interval inside (0, 1) (a standard Wald construction; Agresti 2013). For county
         pooling the posterior variance of the county deviation is added (its covariance with
         the parent coefficients is neglected). Deterministic: no simulation, no seed.
 
@@ -342,7 +342,10 @@ def fit_impact_model(
     ImpactModel
         Never raises for data problems: no events, every row an event, an empty ordinal
         level, too few events, a constant index feature, non-convergence end as ``ok=False``
-        with ``reason``.
+        with ``reason``. A fit rescued from separation by the ridge penalty is ``ok=True``
+        with ``method="ridge_cumulative_link"`` and the symptom in ``reason`` (its
+        predictions are usable; callers that want strict maximum likelihood filter on
+        ``method``).
 
     Raises
     ------
@@ -355,7 +358,7 @@ def fit_impact_model(
     -----
     Binary targets: logistic regression, logit P(level >= 1) = b_0 + x'b (McCullagh and
     Nelder 1989, Ch. 4), fitted by IRLS (statsmodels GLM). Ordinal targets: the cumulative
-    link (proportional-odds) model logit P(level <= k-1) = c_k - x'b (McCullagh 1980, eq. 2.2),
+    link (proportional-odds) model logit P(level <= k-1) = c_k - x'b (McCullagh 1980),
     fitted by maximum likelihood (statsmodels OrderedModel). Both are stored in the form
     P(level >= k) = F(x'b - c_k); a two-level ordinal fit equals the logistic fit.
 

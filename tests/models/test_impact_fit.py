@@ -15,7 +15,7 @@ from impactlink.models._penalised import fit_cumulative
 @pytest.mark.parametrize("link", ["logit", "probit"])
 def test_two_level_ordinal_equals_logistic(link):
     # A cumulative link model with two levels is the binary GLM with the same link
-    # (McCullagh 1980, Sec. 2): the threshold is minus the intercept. Both optimisers reach
+    # (McCullagh 1980): the threshold is minus the intercept. Both optimisers reach
     # the optimum to ~1e-6, so rtol 1e-4.
     x, y = simulate_binary(600, seed=3)
     binary = fit_impact_model(make_target(y), x, link=link)
