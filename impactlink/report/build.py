@@ -146,7 +146,9 @@ def _write_layers(run: RunFolder) -> None:
         if frame is None or frame.empty or layer in run.layers or COUNTY not in frame.columns:
             continue
         if layer == "audit" and "period" in frame.columns:
-            frame = frame[(frame["period"] == "record").fillna(False).to_numpy(bool)]
+            from impactlink.report.figures import record_period
+
+            frame = frame[(frame["period"] == record_period(frame)).fillna(False).to_numpy(bool)]
         shapes = run.counties[[COUNTY, "geometry"]]
         joined = shapes.merge(pd.DataFrame(frame), on=COUNTY, how="inner")
         try:

@@ -33,6 +33,7 @@ __all__ = [
     "persistence_comparison",
     "record_timeline",
     "figure_png",
+    "record_period",
 ]
 
 #: Models that are baselines, not index candidates.
@@ -496,7 +497,7 @@ def audit_shares(audit: pd.DataFrame, *, ladder: str) -> Figure:
     sub = sub.assign(_ratio=ratio.astype(float))
     fig = Figure(figsize=(9.0, 3.8), layout="constrained")
     ax1, ax2 = fig.subplots(1, 2)
-    rec = sub[(sub["period"] == "record").to_numpy(dtype=bool)]
+    rec = sub[(sub["period"] == record_period(sub)).to_numpy(dtype=bool)]
     rng = np.random.default_rng(0)  # jitter only; fixed seed keeps the picture reproducible
     for k, st in enumerate(stages):
         r = rec[(rec["stage"].astype(str) == st).to_numpy()]["_ratio"].dropna().to_numpy()
@@ -529,6 +530,20 @@ def audit_shares(audit: pd.DataFrame, *, ladder: str) -> Figure:
     ax2.legend(loc="upper right")
     fig.suptitle(f"threshold audit \u2014 {ladder}", fontsize=10)
     return fig
+
+
+def record_period(audit: pd.DataFrame) -> str:
+    """Name of the whole-record period in an audit table.
+
+    ``"record"`` by contract; ``"full"`` or any period other than ``"early"`` / ``"late"``
+    is accepted as well, so a stage that names it differently still gets its audit drawn.
+    """
+    periods = list(dict.fromkeys(audit["period"].dropna().astype(str)))
+    for name in ("record", "full"):
+        if name in periods:
+            return name
+    rest = [p for p in periods if p not in ("early", "late")]
+    return rest[0] if rest else "record"
 
 
 # ------------------------------------------------------------- persistence comparison

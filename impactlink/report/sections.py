@@ -196,6 +196,8 @@ def data_section(run: RunFolder, figs: FigureSink) -> Markup:
     inputs = pd.DataFrame(man.get("inputs") or [])
     if not inputs.empty:
         shown = inputs.copy()
+        if "file" in shown.columns:
+            shown["file"] = [Path(str(f)).name if pd.notna(f) else f for f in shown["file"]]
         if "sha256" in shown.columns:
             shown["sha256"] = shown["sha256"].astype(str).str[:12] + "\u2026"
         parts.append(table(shown, caption="Inputs read (checksums in full under Provenance)"))
@@ -213,6 +215,10 @@ def data_section(run: RunFolder, figs: FigureSink) -> Markup:
         parts.append(el("h3", "Impact records"))
         parts.append(table(rec, caption="Impact records: used, rejected, outside coverage "
                            "(outside coverage = unknown, not impact-free)"))
+    targets = pd.DataFrame(man.get("targets") or [])
+    if not targets.empty:
+        parts.append(table(targets, caption="Impact targets: scored rows and the events they "
+                           "hold (few events = fragile estimates)"))
     rej = run.table("rejected_rows")
     parts.append(el("h3", "Rejected rows"))
     if rej is None:
@@ -426,7 +432,7 @@ def audit_section(run: RunFolder, figs: FigureSink) -> Markup:
         "expected share in that county. Drift compares an early and a late period.")]
     for ladder, sub in audit.groupby("ladder", sort=False):
         parts.append(el("h3", f"Ladder {ladder}"))
-        rec = _sel(sub, period="record")
+        rec = _sel(sub, period=F.record_period(sub))
         med = rec.groupby("stage", observed=True)["observed_share"].median()
         alt_stages = "; ".join(
             f"{st}: expected {fmt_num(rec[rec['stage'] == st]['expected_share'].median(), 3)}, "

@@ -108,6 +108,16 @@ def test_first_screen_has_cautions_then_an_answer_per_impact(built):
     assert "the index adds warning beyond persistence" in summary
 
 
+def test_data_section_shows_inputs_rejections_and_event_counts(built):
+    _, html, _ = built
+    _, p = _parse(html)
+    data = p.section("data")
+    assert "climate.csv" in data and "1981-01-01" in data and "2025-06-01" in data
+    assert "missing-value sentinel -999" in data and "start_date after end_date" in data
+    assert "restrictions:state" in data and "events" in data
+    assert "outside_coverage" in data
+
+
 def test_cautions_and_methods_carry_required_text(built):
     _, html, _ = built
     _, p = _parse(html)
