@@ -2,8 +2,10 @@
 
 from __future__ import annotations
 
+import os
 import warnings
 from collections.abc import Callable, Sequence
+from concurrent.futures import ThreadPoolExecutor
 from typing import Literal
 
 import numpy as np
@@ -27,6 +29,7 @@ from .standardize import (
 )
 from .timegrid import (
     accumulate,
+    accumulate_many,
     build_grid,
     calibration_mask,
     detect_cadence,
@@ -62,6 +65,7 @@ def compute_indices(
     eddi_sign: Literal["dry_negative", "dry_positive"] = "dry_negative",
     indicator_scales: Sequence[int] = (0,),
     clip: float = DEFAULT_CLIP,
+    n_threads: int | None = None,
     progress: Callable[[str], None] | None = None,
 ) -> IndexCube:
     """Compute SPI, SPEI, EDDI and standardized indicators for every county and scale.
@@ -111,6 +115,8 @@ def compute_indices(
         steps before standardizing.
     clip : float
         All standardized values are clipped to ``[-clip, clip]``.
+    n_threads : int, optional
+        Threads over blocks of counties (default up to 2); results do not depend on it.
     progress : callable, optional
         Called with a short line of text at each step.
 
@@ -158,7 +164,8 @@ def compute_indices(
     arrays, provenance = standardized_indices(
         precip, pet, grid.times, step=grid.step, scales=scales, indices=indices,
         calibration=cal, spi_estimator=spi_estimator, spi_zero_handling=spi_zero_handling,
-        spei_distribution=spei_distribution, eddi_sign=eddi_sign, clip=clip, progress=say,
+        spei_distribution=spei_distribution, eddi_sign=eddi_sign, clip=clip,
+        n_threads=n_threads, progress=say,
     )
     for name in provenance:
         provenance[name]["calibration_note"] = cal_note
@@ -227,6 +234,7 @@ def standardized_indices(
     spei_distribution: Literal["log-logistic", "gev"] = "log-logistic",
     eddi_sign: Literal["dry_negative", "dry_positive"] = "dry_negative",
     clip: float = DEFAULT_CLIP,
+    n_threads: int | None = None,
     progress: Callable[[str], None] | None = None,
 ) -> tuple[dict[tuple[str, int], np.ndarray], dict]:
     """Array-level core of :func:`compute_indices` on a regular grid.
@@ -237,6 +245,9 @@ def standardized_indices(
         Precipitation and PET totals per step [mm]; NaN = missing.
     times : pandas.DatetimeIndex, length T
         ISO-week Mondays (``step="weekly"``) or month starts (``step="monthly"``).
+    n_threads : int, optional
+        Counties are split into this many blocks computed in threads (default: up to 2,
+        the CPU count). Results do not depend on it.
 
     Returns
     -------
@@ -249,7 +260,6 @@ def standardized_indices(
     period, n_periods = period_of_year(times, step)
     years = grid_years(times, step)
     calib = calibration_mask(years, calibration)
-    arrays: dict[tuple[str, int], np.ndarray] = {}
     prov: dict = {}
     unit = "months" if step == "monthly" else "weeks"
     common = {"calibration": list(calibration), "clip": [-clip, clip],
@@ -280,28 +290,41 @@ def standardized_indices(
                         "sign": ("negative = high evaporative demand (dry); the negative of "
                                  "published EDDI" if eddi_sign == "dry_negative"
                                  else "positive = high evaporative demand (dry), as published")}
-    balance = precip - pet if ("spei" in indices and pet is not None) else None
-    for s in scales:
+    nt, nc = precip.shape
+    arrays = {(name, int(s)): np.empty((nt, nc)) for name in indices for s in scales}
+    workers = max(1, min(int(n_threads or min(2, os.cpu_count() or 1)), nc))
+    slices = [sl for sl in np.array_split(np.arange(nc), workers) if sl.size]
+
+    def run(chunk_no: int, cols: np.ndarray) -> None:
+        # One block of counties: every index and scale, written into the shared outputs.
+        # Blocks run in threads; numpy and scipy.special release the GIL in these kernels.
+        sl = slice(int(cols[0]), int(cols[-1]) + 1)
+        tell = say if chunk_no == 0 else (lambda _msg: None)
+        p = np.ascontiguousarray(precip[:, sl])
+        e = np.ascontiguousarray(pet[:, sl]) if pet is not None else None
         if "spi" in indices:
-            say(f"indices: SPI {s} {unit}")
-            acc = accumulate(precip, s, nonnegative=True)
-            arrays[("spi", s)] = standardize_gamma(
-                acc, period, calib, n_periods=n_periods, estimator=spi_estimator,
-                zero_handling=spi_zero_handling, clip=clip)
-            del acc
+            for s, acc in accumulate_many(p, scales, nonnegative=True):
+                tell(f"indices: SPI {s} {unit}")
+                arrays[("spi", s)][:, sl] = standardize_gamma(
+                    acc, period, calib, n_periods=n_periods, estimator=spi_estimator,
+                    zero_handling=spi_zero_handling, clip=clip)
         if "spei" in indices:
-            say(f"indices: SPEI {s} {unit}")
-            acc = accumulate(balance, s)
             fn = standardize_loglogistic if spei_distribution == "log-logistic" else standardize_gev
-            arrays[("spei", s)] = fn(acc, period, calib, n_periods=n_periods, clip=clip)
-            del acc
+            for s, acc in accumulate_many(p - e, scales):
+                tell(f"indices: SPEI {s} {unit}")
+                arrays[("spei", s)][:, sl] = fn(acc, period, calib, n_periods=n_periods, clip=clip)
         if "eddi" in indices:
-            say(f"indices: EDDI {s} {unit}")
-            acc = accumulate(pet, s, nonnegative=True)
-            z = standardize_empirical(acc, period, calib, n_periods=n_periods,
-                                      plotting_position="tukey", clip=clip)
-            arrays[("eddi", s)] = -z if eddi_sign == "dry_negative" else z
-            del acc
+            for s, acc in accumulate_many(e, scales, nonnegative=True):
+                tell(f"indices: EDDI {s} {unit}")
+                z = standardize_empirical(acc, period, calib, n_periods=n_periods,
+                                          plotting_position="tukey", clip=clip)
+                arrays[("eddi", s)][:, sl] = -z if eddi_sign == "dry_negative" else z
+
+    if len(slices) == 1:
+        run(0, slices[0])
+    else:
+        with ThreadPoolExecutor(max_workers=len(slices)) as pool:
+            list(pool.map(run, range(len(slices)), slices))
     return arrays, prov
 
 

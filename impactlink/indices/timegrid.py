@@ -11,7 +11,7 @@ import pandas as pd
 from .errors import IndexInputError
 
 __all__ = ["Grid", "detect_cadence", "build_grid", "grid_values", "period_of_year",
-           "accumulate", "calibration_mask"]
+           "accumulate", "accumulate_many", "calibration_mask"]
 
 Cadence = Literal["daily", "weekly", "monthly"]
 
@@ -153,28 +153,39 @@ def accumulate(x: np.ndarray, scale: int, *, nonnegative: bool = False, how: str
     PET) a window without any positive value is exactly 0 and rounding never produces a
     negative total, so zero-precipitation windows stay exact zeros.
     """
+    return next(iter(accumulate_many(x, (scale,), nonnegative=nonnegative, how=how)))[1]
+
+
+def accumulate_many(x: np.ndarray, scales, *, nonnegative: bool = False, how: str = "sum"):
+    """Yield ``(scale, accumulate(x, scale))`` for several scales from one set of cumsums."""
     x = np.asarray(x, dtype=float)
-    if scale <= 1:
-        return x.copy()
     nt = x.shape[0]
     miss = np.isnan(x)
     filled = np.where(miss, 0.0, x)
     cs = np.zeros((nt + 1,) + x.shape[1:])
     np.cumsum(filled, axis=0, out=cs[1:])
-    out = np.full(x.shape, np.nan)
-    out[scale - 1:] = cs[scale:] - cs[:-scale]
     cm = np.zeros((nt + 1,) + x.shape[1:], dtype=np.int32)
     np.cumsum(miss, axis=0, out=cm[1:])
-    nmiss = np.zeros(x.shape, dtype=np.int32)
-    nmiss[: scale - 1] = 1
-    nmiss[scale - 1:] = cm[scale:] - cm[:-scale]
-    out[nmiss > 0] = np.nan
+    cp = None
     if nonnegative:
         cp = np.zeros((nt + 1,) + x.shape[1:], dtype=np.int32)
         np.cumsum(filled > 0, axis=0, out=cp[1:])
-        npos = np.zeros(x.shape, dtype=np.int32)
-        npos[scale - 1:] = cp[scale:] - cp[:-scale]
-        out = np.where(npos == 0, np.where(np.isnan(out), np.nan, 0.0), np.maximum(out, 0.0))
-    if how == "mean":
-        out = out / scale
-    return out
+    del filled
+    for scale in scales:
+        scale = int(scale)
+        if scale <= 1:
+            yield scale, (x.copy() if how == "sum" or scale == 1 else x / scale)
+            continue
+        out = np.full(x.shape, np.nan)
+        if scale <= nt:
+            out[scale - 1:] = cs[scale:] - cs[:-scale]
+            bad = (cm[scale:] - cm[:-scale]) > 0
+            out[scale - 1:][bad] = np.nan
+            if cp is not None:
+                win = out[scale - 1:]
+                npos = cp[scale:] - cp[:-scale]
+                np.maximum(win, 0.0, out=win)
+                win[(npos == 0) & ~np.isnan(win)] = 0.0
+        if how == "mean":
+            out /= scale
+        yield scale, out

@@ -174,3 +174,11 @@ def test_unknown_index_name():
     clim, lat = _weekly(n_years=31)
     with pytest.raises(IndexInputError, match="unknown"):
         compute_indices(clim, latitude_deg=lat, indices=("spx",))
+
+
+def test_threads_do_not_change_results():
+    clim, lat = _weekly(n_years=31)
+    a = compute_indices(clim, latitude_deg=lat, scales_weeks=(4, 26), n_threads=1)
+    b = compute_indices(clim, latitude_deg=lat, scales_weeks=(4, 26), n_threads=3)
+    for key in a.keys:  # equal up to floating-point summation order
+        np.testing.assert_allclose(a.get(*key), b.get(*key), rtol=0, atol=1e-12)
