@@ -306,13 +306,14 @@ def _stage_rank(project, st, out_dir, progress, warnings):
             continue
         idx, scale, lag = best
         x = features(idx, scale, lag)
-        model = fit_impact_model(
-            target, x, link=project.models.link, pooling="all",
-            seasonal=project.models.seasonal,
-        )
-        best_models[target.name] = (model, (idx, scale, lag))
         meta = {"impact": target.impact, "target": target.name, "index": idx,
                 "scale_weeks": scale, "lag_weeks": lag}
+        model = fit_impact_model(
+            target, x, link=project.models.link, pooling="all",
+            seasonal=project.models.seasonal, meta=meta,
+        )
+        best_models[target.name] = (model, (idx, scale, lag))
+        st.setdefault("skill_tables", {})[target.name] = res.table
         if model.ok:
             curves.append(impact_curves(model, ci=project.models.curve_ci, meta=meta))
             cr = crossings(model, ci=project.models.curve_ci)
@@ -338,9 +339,49 @@ def _stage_rank(project, st, out_dir, progress, warnings):
 
 
 def _stage_outlook(project, st, out_dir, progress, warnings):
+    """Chance of each impact now and at each modelled lag ahead, per county.
+
+    For every target and lag, the best single-index candidate at that lag is refitted on the
+    whole record; the latest week's index values then give the chance ``lag`` weeks ahead.
+    Onset targets use the current state of their impact (counties already in an episode are
+    not at risk of a new one).
+    """
+    from impactlink.link import feature_values
+    from impactlink.models import fit_impact_model
     from impactlink.outlook import impact_outlook
 
-    out = impact_outlook(st["best_models"], cube=st["cube"], targets=st["targets"])
+    cube = st["cube"]
+    counties = st["bundle"].tables["counties"][["county_id", "region"]]
+    states = {t.impact: t for t in st["targets"] if t.role == "state"}
+    frames = []
+    for target in st["targets"]:
+        table = st.get("skill_tables", {}).get(target.name)
+        if table is None or table.empty:
+            continue
+        models = {}
+        for lag in sorted(set(project.link.lags_weeks)):
+            best = _best_single(table[table["lag_weeks"] == lag])
+            if best is None:
+                continue
+            idx, scale, lag_ = best
+            meta = {"impact": target.impact, "target": target.name, "index": idx,
+                    "scale_weeks": scale, "lag_weeks": lag_}
+            x = feature_values(target, cube, idx, scale, lag_)
+            models[(target.name, idx, scale, lag_)] = fit_impact_model(
+                target, x, link=project.models.link, pooling="all",
+                seasonal=project.models.seasonal, meta=meta,
+            )
+        if not models:
+            continue
+        progress(f"outlook {target.name}: {len(models)} lags")
+        state = None
+        if target.role in ("onset", "escalation") and target.impact in states:
+            sf = states[target.impact].frame
+            last = sf[sf["time"] == sf["time"].max()]
+            state = last[["county_id", "level"]].drop_duplicates("county_id")
+        frames.append(impact_outlook(models, cube, counties=counties, state=state,
+                                     ci=project.models.curve_ci))
+    out = _concat(frames)
     st["outlook"] = out
     p = out_dir / "outlook.csv"
     out.to_csv(p, index=False)
