@@ -23,7 +23,8 @@ __all__ = ["build_report", "render_html"]
 
 #: Tables that also get a Parquet copy beside their CSV.
 PARQUET_TABLES = ("skill", "skill_summary", "reliability", "curves", "crossings", "audit",
-                  "outlook", "triggers", "contrast", "reconciliation", "rejected_rows")
+                  "outlook", "triggers", "trigger_timeline", "contrast", "county_excess",
+                  "contrast_pairs", "reconciliation", "rejected_rows")
 
 
 def build_report(run_dir: str | Path, *, progress: Callable[[str], None] | None = None) -> Path:

@@ -34,6 +34,8 @@ __all__ = [
     "record_timeline",
     "figure_png",
     "record_period",
+    "trigger_timeline",
+    "odds_ratio_chart",
 ]
 
 #: Models that are baselines, not index candidates.
@@ -643,4 +645,138 @@ def record_timeline(inputs: pd.DataFrame) -> Figure:
     ax.xaxis_date()
     ax.set_xlabel("date (year)")
     ax.set_title("record span of each input")
+    return fig
+
+
+# ---------------------------------------------------------------------- trigger timeline
+@_styled
+def trigger_timeline(timeline: pd.DataFrame, *, target: str | None = None,
+                     last_years: int | None = 20) -> Figure:
+    """Replay of trigger plans: index value, thresholds, weeks on, and impact weeks.
+
+    One panel per county. The index line is drawn once; each plan (``scope``: uniform,
+    local) adds its threshold as a horizontal line and its "trigger on" weeks as a band
+    under the axis; weeks with a recorded impact are marked on a strip above it.
+
+    Parameters
+    ----------
+    timeline : DataFrame
+        ``trigger_timeline.csv``: week, county_id, scope, index_value, threshold, trigger_on,
+        impact_level, and optionally target.
+    target : str, optional
+        Keep rows of this target only (when the table has a ``target`` column).
+    last_years : int or None, default 20
+        Show only the last so many years (None = whole record).
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Raises
+    ------
+    FigureInputError
+        Missing columns, no rows, or ``last_years < 1``.
+    """
+    where = "trigger_timeline"
+    _need(timeline, ["week", "county_id", "scope", "index_value", "threshold", "trigger_on"],
+          where)
+    if last_years is not None and last_years < 1:
+        raise FigureInputError(f"{where}: last_years must be >= 1 or None, got {last_years}")
+    sub = timeline
+    if target is not None and "target" in timeline.columns:
+        sub = _rows(timeline, where, target=target)
+    if sub.empty:
+        raise FigureInputError(f"{where}: the timeline has no rows")
+    sub = sub.assign(week=pd.to_datetime(sub["week"], errors="coerce")).dropna(subset=["week"])
+    if last_years is not None and not sub.empty:
+        start = sub["week"].max() - pd.DateOffset(years=last_years)
+        sub = sub[sub["week"] >= start]
+    counties = list(dict.fromkeys(sub["county_id"].astype(str)))
+    scopes = list(dict.fromkeys(sub["scope"].astype(str)))
+    colours = {"uniform": CATEGORICAL["rust"], "local": CATEGORICAL["harbour"]}
+    styles = {"uniform": "--", "local": "-."}
+    fig = Figure(figsize=(7.6, 1.9 * len(counties) + 0.9), layout="constrained")
+    axes = np.atleast_1d(fig.subplots(len(counties), 1, sharex=True, squeeze=False)[:, 0])
+    for ax, county in zip(axes, counties, strict=True):
+        g = sub[(sub["county_id"].astype(str) == county).to_numpy()]
+        first = g[(g["scope"].astype(str) == scopes[0]).to_numpy()].sort_values("week")
+        wk = first["week"].to_numpy()
+        val = first["index_value"].to_numpy(float)
+        ax.plot(wk, val, color=CATEGORICAL["ink"], lw=0.7, label="index value")
+        lo = np.nanmin(val) if np.isfinite(val).any() else -3.0
+        hi = np.nanmax(val) if np.isfinite(val).any() else 3.0
+        span = max(hi - lo, 1.0)
+        for k, scope in enumerate(scopes):
+            gs = g[(g["scope"].astype(str) == scope).to_numpy()].sort_values("week")
+            colour = colours.get(scope, category_colours(k + 3)[k + 2])
+            thr = pd.to_numeric(gs["threshold"], errors="coerce").dropna()
+            if not thr.empty:
+                ax.axhline(float(thr.iloc[0]), color=colour, ls=styles.get(scope, ":"), lw=1.2,
+                           label=f"{scope} threshold {float(thr.iloc[0]):.2f}")
+            on = gs["trigger_on"].astype("boolean").fillna(False).to_numpy(bool)
+            base = lo - span * (0.12 + 0.1 * k)
+            ax.fill_between(gs["week"].to_numpy(), base, base + span * 0.08, where=on,
+                            color=colour, step="mid", lw=0, label=f"{scope} plan on")
+        if "impact_level" in g.columns:
+            lev = pd.to_numeric(first.get("impact_level"), errors="coerce").to_numpy(float)
+            hit = np.nan_to_num(lev) > 0
+            top = hi + span * 0.05
+            ax.fill_between(wk, top, top + span * 0.08, where=hit, color=CATEGORICAL["marigold"],
+                            step="mid", lw=0, hatch="////", edgecolor=CATEGORICAL["ink"],
+                            label="impact recorded")
+        ax.set_ylabel("index value")
+        ax.set_title(f"county {county}", loc="left")
+    axes[-1].set_xlabel("week (date)")
+    handles, labels = axes[0].get_legend_handles_labels()
+    fig.legend(handles, labels, loc="outside lower center", ncol=3)
+    title = "trigger plan replay" + (f" \u2014 {target}" if target else "")
+    fig.suptitle(title, fontsize=10)
+    return fig
+
+
+# ------------------------------------------------------------------ odds ratio chart
+@_styled
+def odds_ratio_chart(contrast: pd.DataFrame, *, target: str | None = None) -> Figure:
+    """County traits: odds ratio per standard deviation with intervals (log axis).
+
+    Parameters
+    ----------
+    contrast : DataFrame
+        ``contrast.csv``: term, odds_ratio_per_sd, or_lo, or_hi and optionally target.
+    target : str, optional
+        Keep rows of this target only.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Notes
+    -----
+    An odds ratio above 1 means more impacts than the index alone predicts in counties with
+    more of the trait; it is an association, not an effect.
+
+    Raises
+    ------
+    FigureInputError
+        Missing columns or no rows.
+    """
+    where = "odds_ratio_chart"
+    _need(contrast, ["term", "odds_ratio_per_sd", "or_lo", "or_hi"], where)
+    sub = _rows(contrast, where, target=target) if target is not None else contrast
+    sub = sub.dropna(subset=["odds_ratio_per_sd"])
+    if sub.empty:
+        raise FigureInputError(f"{where}: no odds ratios to draw")
+    fig = Figure(figsize=(6.4, 0.4 * len(sub) + 1.3), layout="constrained")
+    ax = fig.subplots()
+    y = np.arange(len(sub))[::-1]
+    est = sub["odds_ratio_per_sd"].to_numpy(float)
+    err = np.nan_to_num(np.clip(np.vstack([est - sub["or_lo"].to_numpy(float),
+                                           sub["or_hi"].to_numpy(float) - est]), 0, None))
+    ax.errorbar(est, y, xerr=err, fmt="o", color=CATEGORICAL["ink"], capsize=2)
+    ax.axvline(1, color=NEUTRAL["baseline"], ls="--", lw=1)
+    ax.set_xscale("log")
+    ax.set_yticks(y, sub["term"].astype(str))
+    ax.set_xlabel("odds ratio per standard deviation of the trait (log scale; 1 = no association)")
+    ax.set_title("county traits and impacts at similar index values" + (
+        f" \u2014 {target}" if target else ""))
     return fig

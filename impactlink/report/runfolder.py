@@ -40,14 +40,18 @@ TABLE_COLUMNS: dict[str, tuple[str, ...]] = {
     "audit": (COUNTY, "ladder", "stage", "period", "expected_share", "observed_share"),
     "outlook": (COUNTY, "impact", "target", "horizon_weeks", "prob"),
     "triggers": (),
+    "trigger_timeline": ("week", COUNTY, "scope", "index_value", "threshold", "trigger_on"),
     "contrast": (),
+    "county_excess": (COUNTY,),
+    "contrast_pairs": (),
     "reconciliation": ("impact", "records", "used", "rejected"),
     "rejected_rows": ("table", "reason"),
 }
 
 #: Columns read as strings whatever they look like (ids keep their leading zeros).
 _STRING_COLUMNS = (COUNTY, "county_name", "region", "impact", "target", "index", "index2",
-                   "model", "stage", "ladder", "level_label", "table", "file", "reason")
+                   "model", "stage", "ladder", "level_label", "table", "file", "reason",
+                   "scope", "term")
 
 
 @dataclass(frozen=True)

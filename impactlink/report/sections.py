@@ -490,28 +490,134 @@ def _audit_summary(sub: pd.DataFrame) -> pd.DataFrame:
 
 
 # ------------------------------------------------------------- triggers and contrasts
-def _plain_table_section(run: RunFolder, sid: str, title: str, name: str, intro: str) -> Markup:
-    frame = run.table(name)
-    if frame is None:
-        return _section(sid, title, _absent())
-    if frame.empty:
-        return _section(sid, title, paragraph("The table is empty in this run."))
-    return _section(sid, title, paragraph(intro), table(_with_names(run, frame)),
-                    _files(run, name))
-
-
 def triggers_section(run: RunFolder, figs: FigureSink) -> Markup:
-    return _plain_table_section(
-        run, "triggers", "Trigger plan replay and tuning", "triggers",
-        "How the trigger plan would have performed over the record, with uniform and local "
-        "thresholds: hits, false alarms and lead time.")
+    trig = run.table("triggers")
+    timeline = run.table("trigger_timeline")
+    title = "Trigger plan replay and tuning"
+    if trig is None and timeline is None:
+        return _section("triggers", title, _absent())
+    parts = [paragraph(
+        "How a trigger plan (switch on after the index stays beyond its threshold for the "
+        "entry weeks, off after the exit weeks) would have performed over the record: one "
+        "threshold for every county (uniform) against thresholds tuned per county (local). "
+        "Hit rate and false-alarm ratio are shares of impact episodes and activations; the "
+        "Peirce skill score is hit rate minus false-alarm rate (0 = no skill).")]
+    if trig is not None and not trig.empty:
+        keys = [k for k in ("impact", "target") if k in trig.columns]
+        groups = trig.groupby(keys, sort=False) if keys else [((), trig)]
+        for key, sub in groups:
+            key = key if isinstance(key, tuple) else (key,)
+            label = " \u2014 ".join(str(k) for k in key) or "trigger plans"
+            parts.append(el("h3", label))
+            pooled = _sel(sub, county_id="all") if COUNTY in sub.columns else sub
+            cols = [c for c in ("scope", "index", "scale_weeks", "threshold", "entry_weeks",
+                                "exit_weeks", "activations", "hit_rate", "false_alarm_ratio",
+                                "peirce_skill", "cv_peirce_skill", "lead_weeks_median",
+                                "events") if c in pooled.columns]
+            if not pooled.empty:
+                parts.append(table(pooled[cols], caption="All counties together"))
+                parts.append(paragraph(_trigger_sentence(pooled)))
+            per = sub[(sub[COUNTY] != "all").fillna(True).to_numpy(bool)] if COUNTY in sub else sub
+            if run.counties is not None and {"scope", "threshold", COUNTY} <= set(per.columns):
+                uni = _sel(per, scope="uniform")
+                loc = _sel(per, scope="local")
+                thr = pd.to_numeric(per["threshold"], errors="coerce")
+                if not uni.empty and not loc.empty and thr.notna().any():
+                    lo, hi = float(thr.min()), float(thr.max())
+                    panels = [M.MapPanel(uni, "threshold", title="uniform threshold",
+                                         label="index value", vmin=lo, vmax=hi),
+                              M.MapPanel(loc, "threshold", title="local threshold",
+                                         label="index value", vmin=lo, vmax=hi)]
+                    if "peirce_skill" in loc.columns:
+                        panels.append(M.MapPanel(loc, "peirce_skill", title="local plan skill",
+                                                 label="Peirce skill score"))
+                    parts.append(figs.add(
+                        f"trigger_map_{'_'.join(map(str, key))}",
+                        lambda p=panels, t=label: M.county_panels(run.counties, p, suptitle=t),
+                        alt=(f"County maps for {label}: the uniform trigger threshold beside "
+                             f"the locally tuned threshold per county (from {fmt_num(lo)} to "
+                             f"{fmt_num(hi)}) and the local plan's Peirce skill score.")))
+            parts.append(details("Per-county plans", table(_with_names(run, per))))
+    if timeline is not None and not timeline.empty:
+        parts.append(el("h3", "Replay timelines"))
+        targets = (list(dict.fromkeys(timeline["target"].astype(str)))
+                   if "target" in timeline.columns else [None])
+        for tgt in targets:
+            sub = _sel(timeline, target=tgt) if tgt is not None else timeline
+            counties = ", ".join(dict.fromkeys(sub[COUNTY].astype(str)))
+            parts.append(figs.add(
+                f"trigger_timeline_{tgt or 'all'}",
+                lambda t=tgt: F.trigger_timeline(timeline, target=t),
+                alt=(f"Timelines of the trigger replay{' for ' + tgt if tgt else ''} in "
+                     f"counties {counties}: weekly index value over the last 20 years, the "
+                     "uniform and local thresholds, weeks each plan was on, and weeks with a "
+                     "recorded impact.")))
+    parts.append(_files(run, "triggers", "trigger_timeline"))
+    return _section("triggers", title, *parts)
+
+
+def _trigger_sentence(pooled: pd.DataFrame) -> str:
+    if "scope" not in pooled.columns or "peirce_skill" not in pooled.columns:
+        return ""
+    by = {str(r["scope"]): r for _, r in pooled.iterrows()}
+    if not {"uniform", "local"} <= set(by):
+        return ""
+    u, loc = by["uniform"], by["local"]
+    text = (f"Replayed on the whole record, local thresholds score {fmt_num(loc['peirce_skill'])} "
+            f"against {fmt_num(u['peirce_skill'])} for one uniform threshold")
+    if "cv_peirce_skill" in pooled.columns and pd.notna(loc.get("cv_peirce_skill")):
+        text += (f"; on years held out of the tuning, {fmt_num(loc['cv_peirce_skill'])} against "
+                 f"{fmt_num(u.get('cv_peirce_skill'))}")
+    return text + ". Tuned thresholds always look better on the years they were tuned on."
 
 
 def contrast_section(run: RunFolder, figs: FigureSink) -> Markup:
-    return _plain_table_section(
-        run, "contrast", "County contrasts", "contrast",
-        "County characteristics associated with different impacts at similar index values "
-        "(association only).")
+    con = run.table("contrast")
+    excess = run.table("county_excess")
+    pairs = run.table("contrast_pairs")
+    title = "County contrasts"
+    if con is None and excess is None:
+        return _section("contrast", title, _absent())
+    parts = [paragraph(
+        "Why did some counties suffer more than others at similar index values? County "
+        "traits are added to the index model; an odds ratio above 1 means more impacts than "
+        "the index alone predicts where the trait is higher. These are associations between "
+        "county characteristics and recorded impacts, not effects.")]
+    if con is not None and not con.empty:
+        targets = (list(dict.fromkeys(con["target"].astype(str)))
+                   if "target" in con.columns else [None])
+        for tgt in targets:
+            sub = _sel(con, target=tgt) if tgt is not None else con
+            parts.append(el("h3", tgt or "all targets"))
+            if {"term", "odds_ratio_per_sd", "or_lo", "or_hi"} <= set(sub.columns):
+                terms = sub.dropna(subset=["odds_ratio_per_sd"])
+                parts.append(figs.add(
+                    f"contrast_{tgt or 'all'}",
+                    lambda s=sub, t=tgt: F.odds_ratio_chart(s, target=t),
+                    alt=(f"Odds ratios per standard deviation of each county trait for "
+                         f"{tgt or 'all targets'}: " + "; ".join(
+                             f"{r['term']} {fmt_interval(r['odds_ratio_per_sd'], r['or_lo'], r['or_hi'])}"
+                             for _, r in terms.iterrows()) + ".")))
+            parts.append(table(sub))
+            if excess is not None and run.counties is not None and "ratio" in excess.columns:
+                ex = _sel(excess, target=tgt) if tgt is not None and "target" in excess else excess
+                if not ex.empty:
+                    parts.append(figs.add(
+                        f"county_excess_{tgt or 'all'}",
+                        lambda e=ex, t=tgt: M.county_map(
+                            run.counties, e, "ratio", title=f"observed / expected events \u2014 {t}",
+                            label="ratio (1 = as the index predicts)"),
+                        alt=(f"County map of observed over expected impact events for "
+                             f"{tgt or 'all targets'}, given the index alone; ratios range from "
+                             f"{fmt_num(ex['ratio'].min())} to {fmt_num(ex['ratio'].max())}.")))
+                    parts.append(details("Per-county observed and expected events",
+                                         table(_with_names(run, ex))))
+    if pairs is not None and not pairs.empty:
+        parts.append(el("h3", "Matched pairs"))
+        parts.append(details("Counties with similar dryness but different impacts",
+                             table(_with_names(run, pairs))))
+    parts.append(_files(run, "contrast", "county_excess", "contrast_pairs"))
+    return _section("contrast", title, *parts)
 
 
 # ----------------------------------------------------------------------------- outlook

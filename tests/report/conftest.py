@@ -170,6 +170,45 @@ def make_fake_run(folder: Path, *, county_names=None, issuer="Tallow Creek Water
                                 prob=rng.uniform(0, 1), prob_lo=0.0, prob_hi=1.0))
     write("outlook.csv", pd.DataFrame(outlook))
 
+    trig = []
+    for scope, base_thr in (("uniform", -1.2), ("local", None)):
+        for c in ids + ["all"]:
+            thr = base_thr if base_thr is not None else (
+                -1.2 + rng.normal(0, 0.3) if c != "all" else np.nan)
+            trig.append(dict(county_id=c, region="", scope=scope, index="spi", scale_weeks=13,
+                             threshold=thr, entry_weeks=2, exit_weeks=4, weeks_on_share=0.1,
+                             below_share=0.1, nominal_share=0.1, activations=12,
+                             hit_rate=0.6 if scope == "local" else 0.5,
+                             false_alarm_ratio=0.3, peirce_skill=0.4 if scope == "local" else 0.35,
+                             csi=0.4, lead_weeks_median=3, lead_weeks_q1=1, lead_weeks_q3=6,
+                             events=9, cv_peirce_skill=0.33 if scope == "local" else 0.34))
+    trig = pd.DataFrame(trig)
+    trig.insert(0, "target", "restrictions:state")
+    trig.insert(0, "impact", "restrictions")
+    write("triggers.csv", trig)
+    weeks = pd.date_range("2000-01-03", periods=520, freq="7D")
+    wave = np.sin(np.arange(520) / 20.0) * 1.5
+    tl = []
+    for c in ids[:2]:
+        for scope, thr in (("uniform", -1.2), ("local", -1.0)):
+            tl.append(pd.DataFrame(dict(week=weeks, county_id=c, scope=scope, index_value=wave,
+                                        threshold=thr, trigger_on=wave < thr,
+                                        impact_level=(wave < -1.3).astype(float))))
+    tl = pd.concat(tl, ignore_index=True)
+    tl.insert(0, "target", "restrictions:state")
+    write("trigger_timeline.csv", tl)
+    con = pd.DataFrame(dict(term=["index", "irrigated_share", "storage_days"],
+                            odds_ratio_per_sd=[2.5, 0.7, 0.9], or_lo=[1.8, 0.5, 0.6],
+                            or_hi=[3.4, 0.95, 1.3], p_value=[0.001, 0.02, 0.5]))
+    con.insert(0, "target", "crop_shortfall:class")
+    write("contrast.csv", con)
+    write("county_excess.csv", pd.DataFrame(dict(
+        target="crop_shortfall:class", county_id=ids, rows=40, events=rng.integers(2, 12, len(ids)),
+        expected_events=6.0, ratio=rng.uniform(0.4, 1.8, len(ids)), ratio_lo=0.2, ratio_hi=2.5)))
+    write("contrast_pairs.csv", pd.DataFrame(dict(
+        target=["crop_shortfall:class"], county_a=[ids[0]], county_b=[ids[1]], gap=[0.1],
+        rate_a=[0.3], rate_b=[0.05])))
+
     write("reconciliation.csv", pd.DataFrame([
         dict(impact="crop_shortfall", table="yields", records=900, used=870, rejected=10,
              outside_coverage=20),

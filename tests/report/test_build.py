@@ -162,7 +162,8 @@ def test_rebuilding_gives_the_same_page(built):
 
 FILES = ["skill.csv", "skill_summary.csv", "reliability.csv", "curves.csv", "crossings.csv",
          "audit.csv", "outlook.csv", "reconciliation.csv", "rejected_rows.csv", "manifest.json",
-         "counties.gpkg"]
+         "counties.gpkg", "triggers.csv", "trigger_timeline.csv", "contrast.csv",
+         "county_excess.csv", "contrast_pairs.csv"]
 
 
 def test_every_section_survives_when_all_tables_are_missing(tmp_path, make_run):
@@ -192,15 +193,37 @@ def test_one_missing_table_costs_only_its_own_section(tmp_path, make_run, missin
     assert NOT_COMPUTED not in builders[other](run, sink) and sink.files
 
 
-def test_optional_trigger_and_contrast_tables_are_shown_when_present(tmp_path, make_run):
-    folder = make_run(tmp_path / "run")
-    pd.DataFrame({"county_id": ["90000"], "plan": ["<uniform>"], "hit_rate": [0.5]}).to_csv(
-        folder / "triggers.csv", index=False)
+def test_trigger_section_compares_uniform_and_local_plans(built):
+    run, html, _ = built
+    _, p = _parse(html)
+    trig = p.section("triggers")
+    assert "local thresholds score 0.40 against 0.35 for one uniform threshold" in trig
+    assert "on years held out of the tuning, 0.33 against 0.34" in trig
+    assert (run / "figures" / "trigger_timeline_restrictions_state.png").exists()
+    assert (run / "figures" / "trigger_map_restrictions_restrictions_state.png").exists()
+    assert "Alder Bend" in trig
+
+
+def test_contrast_section_shows_traits_and_county_excess(built):
+    run, html, _ = built
+    _, p = _parse(html)
+    con = p.section("contrast")
+    alts = " ".join(i["alt"] for i in p.imgs)
+    assert "irrigated_share 0.70 (0.50 to 0.95)" in alts
+    assert "irrigated_share" in con and "0.950" in con
+    assert "association" in con.lower() and "not effects" in con
+    assert (run / "figures" / "county_excess_crop_shortfall_class.png").exists()
+
+
+def test_trigger_and_contrast_sections_each_work_alone(tmp_path, make_run):
+    folder = make_run(tmp_path / "run", skip=["trigger_timeline.csv", "county_excess.csv",
+                                             "contrast.csv"])
     run = read_run_folder(folder)
-    _, p = _parse_markup(S.triggers_section(run, S.FigureSink()))
-    triggers = p.section("triggers")
-    assert "<uniform>" in triggers and "Alder Bend" in triggers and "0.5" in triggers
-    assert NOT_COMPUTED in S.contrast_section(run, S.FigureSink())
+    sink = S.FigureSink()
+    _, p = _parse_markup(S.triggers_section(run, sink))
+    assert "Replay timelines" not in p.section("triggers")
+    assert NOT_COMPUTED in S.contrast_section(run, sink)
+    assert any(name.startswith("trigger_map") for name in sink.files)
 
 
 def test_damaged_table_warns_and_is_named(tmp_path, make_run):
