@@ -651,7 +651,8 @@ def record_timeline(inputs: pd.DataFrame) -> Figure:
 # ---------------------------------------------------------------------- trigger timeline
 @_styled
 def trigger_timeline(timeline: pd.DataFrame, *, target: str | None = None,
-                     last_years: int | None = 20) -> Figure:
+                     last_years: int | None = 20,
+                     county_names: dict[str, str] | None = None) -> Figure:
     """Replay of trigger plans: index value, thresholds, weeks on, and impact weeks.
 
     One panel per county. The index line is drawn once; each plan (``scope``: uniform,
@@ -667,6 +668,8 @@ def trigger_timeline(timeline: pd.DataFrame, *, target: str | None = None,
         Keep rows of this target only (when the table has a ``target`` column).
     last_years : int or None, default 20
         Show only the last so many years (None = whole record).
+    county_names : dict, optional
+        county_id -> display name for the panel titles.
 
     Returns
     -------
@@ -725,7 +728,8 @@ def trigger_timeline(timeline: pd.DataFrame, *, target: str | None = None,
                             step="mid", lw=0, hatch="////", edgecolor=CATEGORICAL["ink"],
                             label="impact recorded")
         ax.set_ylabel("index value")
-        ax.set_title(f"county {county}", loc="left")
+        name = (county_names or {}).get(county)
+        ax.set_title(f"{name} ({county})" if name else f"county {county}", loc="left")
     axes[-1].set_xlabel("week (date)")
     handles, labels = axes[0].get_legend_handles_labels()
     fig.legend(handles, labels, loc="outside lower center", ncol=3)

@@ -125,6 +125,13 @@ def _county_names(run: RunFolder) -> pd.DataFrame | None:
     return pd.DataFrame(run.counties[cols])
 
 
+def _name_map(run: RunFolder) -> dict[str, str]:
+    names = _county_names(run)
+    if names is None or "county_name" not in names.columns:
+        return {}
+    return dict(zip(names[COUNTY].astype(str), names["county_name"].astype(str), strict=True))
+
+
 def _with_names(run: RunFolder, frame: pd.DataFrame) -> pd.DataFrame:
     names = _county_names(run)
     if names is None or COUNTY not in frame.columns:
@@ -547,7 +554,8 @@ def triggers_section(run: RunFolder, figs: FigureSink) -> Markup:
             counties = ", ".join(dict.fromkeys(sub[COUNTY].astype(str)))
             parts.append(figs.add(
                 f"trigger_timeline_{tgt or 'all'}",
-                lambda t=tgt: F.trigger_timeline(timeline, target=t),
+                lambda t=tgt: F.trigger_timeline(timeline, target=t,
+                                                 county_names=_name_map(run)),
                 alt=(f"Timelines of the trigger replay{' for ' + tgt if tgt else ''} in "
                      f"counties {counties}: weekly index value over the last 20 years, the "
                      "uniform and local thresholds, weeks each plan was on, and weeks with a "

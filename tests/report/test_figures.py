@@ -180,3 +180,33 @@ def test_map_errors_name_the_problem():
         M.county_panels(_counties(), [])
     with pytest.raises(F.FigureInputError, match="must be a GeoDataFrame with 'county_id'"):
         M.county_map(None, vals, "p", title="t", label="l")
+
+
+def test_trigger_timeline_marks_plans_and_names_counties():
+    weeks = pd.date_range("2020-01-06", periods=6, freq="7D")
+    rows = [pd.DataFrame(dict(week=weeks, county_id="7", scope=scope, threshold=thr,
+                              index_value=[0.0, -1.5, -2.0, -0.5, 0.5, 1.0],
+                              trigger_on=[False, True, True, False, False, False],
+                              impact_level=[0, 0, 1, 1, 0, 0]))
+            for scope, thr in (("uniform", -1.0), ("local", -1.4))]
+    fig = F.trigger_timeline(pd.concat(rows), county_names={"7": "Fenrow"})
+    ax = fig.axes[0]
+    assert ax.get_title(loc="left") == "Fenrow (7)"
+    horizontal = sorted(ln.get_ydata()[0] for ln in ax.get_lines() if len(ln.get_ydata()) == 2)
+    assert horizontal == [-1.4, -1.0]
+    labels = [t.get_text() for t in fig.legends[0].get_texts()]
+    assert labels == ["index value", "uniform threshold -1.00", "uniform plan on",
+                      "local threshold -1.40", "local plan on", "impact recorded"]
+    with pytest.raises(F.FigureInputError, match="last_years must be >= 1 or None, got 0"):
+        F.trigger_timeline(pd.concat(rows), last_years=0)
+
+
+def test_odds_ratio_chart_uses_a_log_axis_centred_on_one():
+    con = pd.DataFrame(dict(term=["a", "b"], odds_ratio_per_sd=[2.0, 0.5], or_lo=[1.5, 0.3],
+                            or_hi=[2.6, 0.9]))
+    ax = F.odds_ratio_chart(con).axes[0]
+    assert ax.get_xscale() == "log"
+    vertical = [ln.get_xdata()[0] for ln in ax.get_lines() if list(ln.get_ydata()) == [0, 1]]
+    assert vertical == [1]
+    with pytest.raises(F.FigureInputError, match=r"odds_ratio_chart: frame lacks column\(s\) \['or_lo'\]"):
+        F.odds_ratio_chart(con.drop(columns="or_lo"))
