@@ -221,10 +221,10 @@ def fit_gev(b0, b1, b2):
         t3 = l3 / l2
         c = 2.0 / (3.0 + t3) - np.log(2.0) / np.log(3.0)
         k = 7.8590 * c + 2.9554 * c * c
-        ks = np.where(np.abs(k) < 1e-7, 1e-7, k)
-        g = special.gamma(1.0 + ks)
-        alpha = l2 * ks / ((1.0 - 2.0 ** (-ks)) * g)
-        xi = l1 - alpha * (1.0 - g) / ks
+        k = np.where(np.abs(k) < 1e-7, 1e-7, k)
+        g = special.gamma(1.0 + k)
+        alpha = l2 * k / ((1.0 - 2.0 ** (-k)) * g)
+        xi = l1 - alpha * (1.0 - g) / k
         bad = ~(np.isfinite(xi) & np.isfinite(alpha) & (alpha > 0) & (l2 > 0))
     for arr in (xi, alpha, k):
         arr[bad] = np.nan
@@ -350,8 +350,7 @@ def standardize_gamma(
     # transform, in place where possible: these (T, C) passes dominate the cost
     q_t = _at_rows(q, period)
     with np.errstate(invalid="ignore", divide="ignore"):
-        p = np.maximum(x, 0.0)
-        p /= _at_rows(beta, period)
+        p = np.divide(x, _at_rows(beta, period))  # x >= 0 (accumulated precipitation)
         p = special.gammainc(_at_rows(alpha, period), p, out=p)
     if not fit_ok.all():
         p[~_at_rows(fit_ok, period)] = 0.5
@@ -366,24 +365,42 @@ def standardize_gamma(
 
 
 # --------------------------------------------------------------------------- SPEI
-def _glo_cdf(x, xi, alpha, k):
-    # F = 1 / (1 + exp(-y)) with exp(-y) = arg**(1/k), arg = 1 - k (x - xi) / alpha
-    # (|k| >= 1e-7 always: fit_glo replaces smaller |k| by 1e-7, a logistic to 1e-7).
+def _bounded_power(x, period, xi, alpha, k):
+    """``arg**(1/k)`` with ``arg = 1 - k (x - xi) / alpha``, gathered by period, (T, C).
+
+    Shared by the generalized logistic and GEV CDFs (Hosking's parameterisation): GLO
+    ``F = 1 / (1 + arg**(1/k))``, GEV ``F = exp(-arg**(1/k))``. Beyond the bound of the
+    support (``arg <= 0``) the power is set to +inf for ``k < 0`` (lower bound: F = 0) and to
+    0 for ``k > 0`` (upper bound: F = 1). ``|k| >= 1e-7`` always (the fits substitute 1e-7).
+    """
+    c = -k / alpha
     with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-        arg = 1.0 - k * (x - xi) / alpha
-        p = 1.0 / (1.0 + np.power(np.where(arg > 0, arg, np.nan), 1.0 / k))
-        # beyond the bound: below the lower bound (k < 0) -> 0, above the upper (k > 0) -> 1
-        p = np.where(arg <= 0, np.where(k < 0, 0.0, 1.0), p)
-    return np.where(np.isnan(x) | np.isnan(k), np.nan, p)
+        t = np.subtract(x, xi[period])
+        t *= c[period]
+        t += 1.0
+        bad = t <= 0.0
+        np.power(t, (1.0 / k)[period], out=t)
+    if bad.any():
+        t[bad] = np.where(k < 0, np.inf, 0.0)[period][bad]
+    return t
 
 
-def _gev_cdf(x, xi, alpha, k):
-    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-        arg = 1.0 - k * (x - xi) / alpha
-        y = np.where(np.abs(k) < 1e-7, (x - xi) / alpha, -np.log(np.where(arg > 0, arg, np.nan)) / k)
-        p = np.exp(-np.exp(-y))
-        p = np.where(arg <= 0, np.where(k < 0, 0.0, 1.0), p)
-    return np.where(np.isnan(x) | np.isnan(k), np.nan, p)
+def _glo_cdf(x, xi, alpha, k, period=None):
+    if period is None:  # scalar / already-gathered parameters
+        period = ()
+        xi, alpha, k = (np.asarray(v, dtype=float) for v in (xi, alpha, k))
+    t = _bounded_power(x, period, xi, alpha, k)
+    t += 1.0
+    return np.reciprocal(t, out=t)
+
+
+def _gev_cdf(x, xi, alpha, k, period=None):
+    if period is None:
+        period = ()
+        xi, alpha, k = (np.asarray(v, dtype=float) for v in (xi, alpha, k))
+    t = _bounded_power(x, period, xi, alpha, k)
+    np.negative(t, out=t)
+    return np.exp(t, out=t)
 
 
 def _standardize_lmoment(x, period, calib, n_periods, fitter, cdf, min_samples, clip, what,
@@ -397,7 +414,7 @@ def _standardize_lmoment(x, period, calib, n_periods, fitter, cdf, min_samples, 
     for arr in (xi, alpha, k):
         arr[~ok] = np.nan
     _warn_failed(int(np.sum(enough & ~ok)), ok.size, what)
-    p = cdf(x, _at_rows(xi, period), _at_rows(alpha, period), _at_rows(k, period))
+    p = cdf(x, xi, alpha, k, period)
     z = _finish(p, clip)
     if return_params:
         return z, {"xi": xi, "alpha": alpha, "k": k, "n": n}

@@ -182,3 +182,23 @@ def test_threads_do_not_change_results():
     b = compute_indices(clim, latitude_deg=lat, scales_weeks=(4, 26), n_threads=3)
     for key in a.keys:  # equal up to floating-point summation order
         np.testing.assert_allclose(a.get(*key), b.get(*key), rtol=0, atol=1e-12)
+
+
+def test_daily_input_end_to_end():
+    # Daily rows: weekly totals are sums of the 7 days; PET is Hargreaves computed per day
+    # (FAO-56 eq. 52) and summed. SPI-4 of the daily panel equals SPI-4 of its weekly sums.
+    rng = np.random.default_rng(8)
+    days = pd.date_range("1990-01-01", "2021-12-26", freq="D")  # whole ISO weeks
+    p = rng.gamma(0.3, 8.0, len(days))
+    t = 12 + 10 * np.sin(2 * np.pi * (days.day_of_year.to_numpy() - 110) / 365)
+    daily = pd.DataFrame({"county_id": "A", "date": days, "precip_mm": p,
+                          "tmin_c": t - 5, "tmax_c": t + 5})
+    lat = pd.Series({"A": 41.0})
+    cube_d = compute_indices(daily, latitude_deg=lat, scales_weeks=(4,), indices=("spi", "spei"))
+    weekly = daily.assign(date=daily["date"] - pd.to_timedelta(daily["date"].dt.day_of_week,
+                                                                unit="D"))
+    weekly = weekly.groupby(["county_id", "date"], as_index=False)["precip_mm"].sum()
+    cube_w = compute_indices(weekly, latitude_deg=lat, scales_weeks=(4,), indices=("spi",))
+    assert cube_d.provenance["input_cadence"] == "daily"
+    np.testing.assert_allclose(cube_d.get("spi", 4), cube_w.get("spi", 4), atol=1e-9)
+    assert np.isfinite(cube_d.get("spei", 4)[3:]).all()
