@@ -25,6 +25,7 @@ from impactlink.report.text import candidate_label, index_name, score_label
 __all__ = [
     "FigureInputError",
     "BASELINE_MODELS",
+    "PERSISTENCE_COMBOS",
     "skill_heatmap",
     "candidate_intervals",
     "impact_curves",
@@ -40,6 +41,9 @@ __all__ = [
 
 #: Models that are baselines, not index candidates.
 BASELINE_MODELS = ("climatology", "seasonal", "persistence")
+
+#: Models that combine an index with the persistence baseline (both spellings accepted).
+PERSISTENCE_COMBOS = ("index_plus_persistence", "index_persistence")
 
 _MARKERS = ("o", "s", "^", "D", "v", "P")
 _LINESTYLES = ("-", "--", "-.", ":", (0, (5, 1, 1, 1)), (0, (1, 1)))
@@ -126,7 +130,7 @@ def figure_png(fig: Figure, *, dpi: int = 110) -> bytes:
 
 def _candidates(skill: pd.DataFrame) -> pd.DataFrame:
     """Single-index candidate rows (no baselines, no second index)."""
-    keep = ~skill["model"].isin(BASELINE_MODELS + ("index_plus_persistence",)).fillna(False)
+    keep = ~skill["model"].isin(BASELINE_MODELS + PERSISTENCE_COMBOS).fillna(False)
     keep &= skill["index"].notna()
     if "index2" in skill.columns:
         keep &= skill["index2"].isna()
@@ -317,12 +321,12 @@ def candidate_intervals(
     ]
     ax.set_yticks(y, labels)
     ax.axvline(0, color=NEUTRAL["baseline"], lw=1)
-    styles = {"seasonal": "--", "persistence": ":", "climatology": "-"}
-    for _, b in base.dropna(subset=[score]).iterrows():
-        if b["model"] == "climatology":
-            continue
-        ax.axvline(float(b[score]), color=CATEGORICAL["rust"], lw=1.2, ls=styles[str(b["model"])],
-                   label=f"{b['model']} baseline")
+    styles = {"seasonal": "--", "persistence": ":"}
+    for model, style in styles.items():  # the best of each baseline (persistence has one per lag)
+        vals = base[(base["model"] == model).fillna(False).to_numpy(bool)][score].dropna()
+        if not vals.empty:
+            ax.axvline(float(vals.max()), color=CATEGORICAL["rust"], lw=1.2, ls=style,
+                       label=f"{model} baseline")
     ax.set_xlabel(f"{score_label(score)} (higher is better; 0 = climatology)")
     ax.set_title(f"{impact} \u2014 {target}: best candidates with intervals")
     fig.legend(*ax.get_legend_handles_labels(), loc="outside lower center", ncol=2)
@@ -575,7 +579,7 @@ def persistence_comparison(skill: pd.DataFrame, *, impact: str, score: str = "bs
     lo, hi = f"{score}_lo", f"{score}_hi"
     _need(skill, ["impact", "target", "model", score, lo, hi], where)
     sub = _rows(skill, where, impact=impact)
-    if not sub["model"].isin(["persistence", "index_plus_persistence"]).any():
+    if not sub["model"].isin(("persistence",) + PERSISTENCE_COMBOS).any():
         raise FigureInputError(f"{where}: no persistence rows for {impact!r}")
     targets = list(dict.fromkeys(sub["target"].astype(str)))
     kinds = [("index alone", CATEGORICAL["harbour"], "o"),
@@ -588,7 +592,8 @@ def persistence_comparison(skill: pd.DataFrame, *, impact: str, score: str = "bs
         picks = [
             _candidates(g).dropna(subset=[score]),
             g[(g["model"] == "persistence").to_numpy(dtype=bool)].dropna(subset=[score]),
-            g[(g["model"] == "index_plus_persistence").to_numpy(dtype=bool)].dropna(subset=[score]),
+            g[g["model"].isin(PERSISTENCE_COMBOS).fillna(False).to_numpy(bool)].dropna(
+                subset=[score]),
         ]
         for k, (pick, (label, colour, marker)) in enumerate(zip(picks, kinds, strict=True)):
             if pick.empty:

@@ -15,11 +15,15 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
 from impactlink.schema import COUNTY
 
-__all__ = ["ReportInputWarning", "ReportError", "RunFolder", "read_run_folder", "TABLE_COLUMNS"]
+__all__ = [
+    "ReportInputWarning", "ReportError", "RunFolder", "read_run_folder", "TABLE_COLUMNS",
+    "normalise_summary",
+]
 
 
 class ReportInputWarning(UserWarning):
@@ -159,7 +163,33 @@ def _read_table(folder: Path, name: str, needed: tuple[str, ...], problems: list
     for col in _STRING_COLUMNS:
         if col in frame.columns:
             frame[col] = frame[col].astype("string")
+    if name == "skill_summary":
+        frame = normalise_summary(frame)
     return frame
+
+
+def normalise_summary(summary: pd.DataFrame) -> pd.DataFrame:
+    """Give a skill summary the generic score columns the report reads.
+
+    The skill stage may name its ranking score (``ranking_score`` = "rpss") and write
+    ``naive_rpss``, ``nested_rpss``, ``nested_rpss_lo`` ...; the report reads ``score_name``,
+    ``naive_skill``, ``nested_skill``, ``nested_lo``, ``nested_hi``. Existing generic columns
+    are kept; missing ones are filled from the score-specific ones.
+    """
+    out = summary.copy()
+    if "score_name" not in out.columns:
+        out["score_name"] = out["ranking_score"] if "ranking_score" in out.columns else pd.NA
+    score = out["score_name"].astype("string")
+    for generic, suffix in (("naive_skill", "naive_{}"), ("nested_skill", "nested_{}"),
+                            ("nested_lo", "nested_{}_lo"), ("nested_hi", "nested_{}_hi")):
+        values = out[generic] if generic in out.columns else pd.Series(np.nan, index=out.index)
+        for name in score.dropna().unique():
+            col = suffix.format(name)
+            if col in out.columns:
+                rows = (score == name).fillna(False).to_numpy(bool) & values.isna().to_numpy()
+                values = values.where(~rows, out[col])
+        out[generic] = pd.to_numeric(values, errors="coerce")
+    return out
 
 
 def _read_layers(file: Path, problems: list[str]):

@@ -326,9 +326,8 @@ def skill_section(run: RunFolder, figs: FigureSink) -> Markup:
 
 def _persistence_part(run: RunFolder, figs: FigureSink) -> Markup:
     skill = run.table("skill")
-    has = skill["model"].isin(["persistence", "index_plus_persistence"]).fillna(False)
-    impacts = [i for i in dict.fromkeys(skill.loc[has.to_numpy(bool), "impact"].astype(str))
-               if (_sel(skill, impact=i)["model"] == "index_plus_persistence").any()]
+    combo = skill["model"].isin(F.PERSISTENCE_COMBOS).fillna(False).to_numpy(bool)
+    impacts = list(dict.fromkeys(skill.loc[combo, "impact"].astype(str)))
     if not impacts:
         return Markup("")
     parts = [el("h3", "Warning beyond persistence"),
@@ -347,7 +346,7 @@ def _persistence_part(run: RunFolder, figs: FigureSink) -> Markup:
             for label, pick in (("index alone", F._candidates(g)),
                                 ("persistence alone", g[(g["model"] == "persistence")
                                                         .fillna(False).to_numpy(bool)]),
-                                ("index + persistence", g[(g["model"] == "index_plus_persistence")
+                                ("index + persistence", g[g["model"].isin(F.PERSISTENCE_COMBOS)
                                                           .fillna(False).to_numpy(bool)])):
                 pick = pick.dropna(subset=[score])
                 if pick.empty:
@@ -364,9 +363,10 @@ def _persistence_part(run: RunFolder, figs: FigureSink) -> Markup:
             alt=(f"Dot-and-interval chart for {impact}: {score_label(score)} of the index alone, "
                  f"persistence alone and index plus persistence, for {', '.join(targets)}.")))
         parts.append(table(pd.DataFrame(rows), caption=f"{impact}: with and without persistence"))
-        if summary is not None and "persistence_sentence" in summary.columns:
-            sentences = _sel(summary, impact=impact)["persistence_sentence"].dropna()
-            parts.append(el("ul", *[el("li", s) for s in sentences]))
+        if summary is not None:
+            sentences = [answer_card(r).persistence
+                         for _, r in _sel(summary, impact=impact).iterrows()]
+            parts.append(el("ul", *[el("li", s) for s in sentences if s]))
     return join(parts)
 
 

@@ -214,9 +214,15 @@ def answer_card(summary: pd.Series, skill: pd.DataFrame | None = None) -> Answer
     if skill is not None and not skill.empty and score in skill.columns:
         rows = skill[((skill["impact"] == g("impact")) & (skill["target"] == g("target")))
                      .fillna(False).to_numpy(dtype=bool)]
-        base = rows[rows["model"].isin(["seasonal", "persistence"]).fillna(False).to_numpy(bool)]
-        parts = [f"{m} {fmt_num(s)}" for m, s in zip(base["model"], base[score], strict=True)
-                 if _present(s)]
+        parts = []
+        for model in ("seasonal", "persistence"):
+            # persistence has one row per lag: quote the one at the best lag, else the best
+            base = rows[(rows["model"] == model).fillna(False).to_numpy(bool)].dropna(
+                subset=[score])
+            at_lag = base[(base["lag_weeks"] == g("best_lag_weeks")).fillna(False).to_numpy(bool)]
+            pick = at_lag if not at_lag.empty else base
+            if not pick.empty:
+                parts.append(f"{model} {fmt_num(pick[score].max())}")
         best = rows[((rows["index"] == g("best_index"))
                      & (rows["scale_weeks"] == g("best_scale_weeks"))
                      & (rows["lag_weeks"] == g("best_lag_weeks"))).fillna(False).to_numpy(bool)]
@@ -250,11 +256,15 @@ def answer_card(summary: pd.Series, skill: pd.DataFrame | None = None) -> Answer
                     f"as good as the best" + (f": {shown}." if ties else "."))
     rests_on = (f"Rests on {_int(g('events'))} events among {_int(g('n'))} scored cases.")
     persistence = ""
+    gain = fmt_interval(g("persistence_gain"), g("persistence_gain_lo"), g("persistence_gain_hi"))
     if _present(g("persistence_sentence")):
         persistence = str(g("persistence_sentence"))
+    elif _present(g("index_adds_skill")) and _present(g("persistence_gain")):
+        word = "adds" if _truthy(g("index_adds_skill")) else "does not clearly add"
+        persistence = (f"For {g('target')}, the index {word} warning beyond persistence "
+                       f"(knowing the current impact level): skill gain {gain}.")
     elif _present(g("persistence_gain")):
-        persistence = ("Gain over persistence: "
-                       f"{fmt_interval(g('persistence_gain'), g('persistence_gain_lo'), g('persistence_gain_hi'))}.")
+        persistence = f"Gain over persistence: {gain}."
     return Answer(
         impact=str(g("impact")),
         target=str(g("target")),

@@ -251,3 +251,20 @@ def test_a_failing_section_is_replaced_by_a_note(tmp_path, make_run, monkeypatch
 def test_missing_run_folder_is_a_clear_error(tmp_path):
     with pytest.raises(ReportError, match=r"does not exist or is not a folder; pass the output"):
         build_report(tmp_path / "nowhere")
+
+
+def test_skill_stage_model_names_are_understood(tmp_path, make_run):
+    # The skill stage names single candidates "index", the combined model
+    # "index_persistence", and writes one persistence baseline per lag.
+    folder = make_run(tmp_path / "run")
+    skill = pd.read_csv(folder / "skill.csv")
+    skill["model"] = skill["model"].replace({"logistic": "index", "ordinal_logit": "index",
+                                             "index_plus_persistence": "index_persistence"})
+    extra = skill[skill["model"] == "persistence"].assign(lag_weeks=8, bss=0.01)
+    pd.concat([skill, extra]).to_csv(folder / "skill.csv", index=False)
+    run = read_run_folder(folder)
+    sink = S.FigureSink()
+    _, p = _parse_markup(S.skill_section(run, sink))
+    text = p.section("skill")
+    assert "Warning beyond persistence" in text and "index + persistence" in text
+    assert "persistence_restrictions.png" in sink.files

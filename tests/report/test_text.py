@@ -78,3 +78,30 @@ def test_answer_card_without_skill_table_still_answers():
     assert a.how_sure == "No other candidate is statistically as good as the best."
     a2 = answer_card(summary.drop(labels=["events", "n"]))
     assert a2.rests_on == "Rests on an unknown number of events among an unknown number of scored cases."
+
+
+def test_summary_with_stage_specific_score_columns_is_normalised():
+    from impactlink.report.runfolder import normalise_summary
+
+    raw = pd.DataFrame(dict(impact=["r"], target=["r:onset"], ranking_score=["rpss"],
+                            naive_rpss=[0.3], nested_rpss=[0.2], nested_rpss_lo=[0.1],
+                            nested_rpss_hi=[0.28], index_adds_skill=[False],
+                            persistence_gain=[0.01], persistence_gain_lo=[-0.02],
+                            persistence_gain_hi=[0.04]))
+    out = normalise_summary(raw)
+    assert out.loc[0, ["score_name", "naive_skill", "nested_skill", "nested_lo", "nested_hi"]
+                   ].tolist() == ["rpss", 0.3, 0.2, 0.1, 0.28]
+    a = answer_card(out.iloc[0])
+    assert a.how_good.startswith("Ranked probability skill score 0.20 (0.10 to 0.28)")
+    assert a.persistence == ("For r:onset, the index does not clearly add warning beyond "
+                             "persistence (knowing the current impact level): skill gain "
+                             "0.01 (-0.02 to 0.04).")
+
+
+def test_baselines_quote_persistence_at_the_best_lag():
+    summary, skill = _rows()
+    per_lag = pd.DataFrame(dict(impact="restrictions", target="onset", model="persistence",
+                                lag_weeks=[0, 4, 8], bss=[0.40, 0.20, 0.10]))
+    skill = pd.concat([skill[skill["model"] != "persistence"], per_lag], ignore_index=True)
+    a = answer_card(summary, skill)
+    assert "persistence 0.20" in a.baselines  # the best candidate's lag is 4 weeks
