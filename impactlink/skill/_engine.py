@@ -17,7 +17,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from impactlink.models.batch import fit_cumlogit_batch
+from impactlink.models.batch import fit_cumlogit_batch, fit_logistic_batch
 
 PRIOR_WEIGHT = 1.0  # total weight of the pseudo-rows that keep every fit finite
 
@@ -132,14 +132,29 @@ def fit_chunk(hists: list[Hist], layout: Layout, *, use_cells: bool, jobs_subset
     Ntr = np.stack(Ns)  # (U, J, R, K)
     X = np.stack(feats)  # (U, J, R, p)
     U, _, R, p = X.shape
+    n_row = Ntr.sum(-1).reshape(U * J, R)
+    Xflat = X.reshape(U * J, R, p)
+    xm = (Xflat * n_row[..., None]).sum(1) / np.maximum(n_row.sum(1), 1e-12)[:, None]
+    if K == 2:
+        # the two-level cumulative logit is a logistic regression (intercept = -theta_0):
+        # fit it on R binomial rows instead of 2R level rows
+        Xb = np.concatenate([np.ones((U * J, R, 1)), Xflat], axis=2)
+        yb = Ntr[..., 1].reshape(U * J, R) / np.maximum(n_row, 1e-12)
+        wb = n_row
+        if prior > 0:
+            xp = np.concatenate([np.ones((U * J, 1)), xm], axis=1)[:, None, :]
+            Xb = np.concatenate([Xb, xp, xp], axis=1)
+            yb = np.concatenate([yb, np.zeros((U * J, 1)), np.ones((U * J, 1))], axis=1)
+            wb = np.concatenate([wb, np.full((U * J, 2), prior / 2)], axis=1)
+        fit = fit_logistic_batch(Xb, yb, wb, ridge=ridge, max_iter=max_iter, tol=tol)
+        coef = fit.coef.copy()
+        coef[:, 0] = -coef[:, 0]
+        return coef.reshape(U, J, -1), fit.converged.reshape(U, J)
     # expand rows to (row, level); add pseudo-rows at the weighted mean design row
     Xl = np.repeat(X[:, :, :, None, :], K, axis=3).reshape(U * J, R * K, p)
     yl = np.tile(np.arange(K), R)[None].repeat(U * J, 0)
     wl = Ntr.reshape(U * J, R * K)
     if prior > 0:
-        n_row = Ntr.sum(-1).reshape(U * J, R)
-        Xflat = X.reshape(U * J, R, p)
-        xm = (Xflat * n_row[..., None]).sum(1) / np.maximum(n_row.sum(1), 1e-12)[:, None]
         Xp = np.repeat(xm[:, None, :], K, axis=1)
         Xl = np.concatenate([Xl, Xp], axis=1)
         yl = np.concatenate([yl, np.tile(np.arange(K), (U * J, 1))], axis=1)
@@ -237,17 +252,26 @@ def auc_replicates(q: np.ndarray, n1: np.ndarray, n0: np.ndarray, block: np.ndar
                    W: np.ndarray) -> np.ndarray:
     """Weighted ROC area for each row of block weights ``W`` (R, G); rows (q, n1, n0).
 
-    Rows are sorted once by forecast; each replicate only re-weights them, so the area is
-    a cumulative sum (ties count one half, as in :func:`sklearn.metrics.roc_auc_score`).
+    Notes
+    -----
+    The area's numerator is a sum over pairs of blocks, :math:`\\sum_{g,h} w_g w_h A_{gh}`
+    with :math:`A_{gh}` the number of (event row in block g, non-event row in block h)
+    pairs ranked correctly (ties one half), and its denominator is
+    :math:`(\\sum_g w_g P_g)(\\sum_h w_h N_h)`. ``A`` is computed once from one sort, so
+    every bootstrap replicate is a quadratic form (ties as in
+    :func:`sklearn.metrics.roc_auc_score`).
     """
+    G = W.shape[1]
     order = np.argsort(q, kind="stable")
     qs = q[order]
-    starts = np.flatnonzero(np.r_[True, qs[1:] != qs[:-1]])
-    wrow = W[:, block[order]]
-    pos = np.add.reduceat(wrow * n1[order], starts, axis=1)
-    neg = np.add.reduceat(wrow * n0[order], starts, axis=1)
-    below = np.cumsum(neg, 1) - neg
-    num = (pos * (below + 0.5 * neg)).sum(1)
-    den = pos.sum(1) * neg.sum(1)
+    grp = np.cumsum(np.r_[True, qs[1:] != qs[:-1]]) - 1
+    ng = int(grp[-1]) + 1 if grp.size else 0
+    key = grp * G + block[order]
+    Pg = np.bincount(key, weights=n1[order], minlength=ng * G).reshape(ng, G)
+    Ng = np.bincount(key, weights=n0[order], minlength=ng * G).reshape(ng, G)
+    below = np.cumsum(Ng, 0) - Ng
+    A = Pg.T @ (below + 0.5 * Ng)  # (G, G)
+    num = np.einsum("rg,gh,rh->r", W, A, W)
+    den = (W @ Pg.sum(0)) * (W @ Ng.sum(0))
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(den > 0, num / den, np.nan)

@@ -423,9 +423,12 @@ def _histograms(ctx, features, cands, *, n_bins, pairs, pair_bins) -> list[_Unit
             z = (x - mu) / (sd if sd > 0 else 1.0)
             xs[sc] = (z, mu, sd if sd > 0 else 1.0)
             b = E.bin_codes(z, n_bins)
-            h, rmap = _hist(ctx, [z], b, cell_codes, n_bins, C)
-            units.append(_Unit("single", (ix, sc, lg), h, lg, cell is not None,
-                               ((mu, xs[sc][2], float(z.min()), float(z.max())),), rmap, n_bins))
+            tr = ((mu, xs[sc][2], float(z.min()), float(z.max())),)
+            h, rmap = _hist(ctx, [z], b, np.zeros_like(b), n_bins, 1)
+            units.append(_Unit("single", (ix, sc, lg), h, lg, False, tr, rmap, n_bins))
+            if cell is not None:  # the index-plus-persistence variant: rows by bin x level known
+                h, rmap = _hist(ctx, [z], b, cell_codes, n_bins, C)
+                units.append(_Unit("single_pers", (ix, sc, lg), h, lg, True, tr, rmap, n_bins))
         if pairs:
             shorts = [s for s in sorted(xs) if s <= SHORT_MAX_WEEKS]
             longs = [s for s in sorted(xs) if s >= LONG_MIN_WEEKS]
@@ -469,8 +472,8 @@ def _fit_all(ctx, units, *, jobs, dask_address, progress, chunk=8) -> list[dict]
             part = idx[s: s + chunk]
             if kind == "single":
                 variants = [("index", False, True)]
-                if use_cells:
-                    variants.append(("index_persistence", True, False))
+            elif kind == "single_pers":
+                variants = [("index_persistence", True, False)]
             else:
                 variants = [("index_pair", False, False)]
             tasks.append(([units[i].hist for i in part], ctx.layout, variants, ctx.boot_w))
@@ -484,7 +487,7 @@ def _fit_all(ctx, units, *, jobs, dask_address, progress, chunk=8) -> list[dict]
             u = units[i]
             for rec in per_unit:
                 n_bad += rec.pop("n_unconverged")
-                if u.kind == "single":
+                if u.kind in ("single", "single_pers"):
                     ix, sc, lg = u.key
                     rec.update(index=ix, scale_weeks=sc, lag_weeks=lg, index2=None,
                                scale2_weeks=None)
@@ -801,7 +804,7 @@ def _row_probs(ctx, features, units, rec) -> np.ndarray:
     """Out-of-fold level probabilities (rows, K) of one single candidate, row by row."""
     u = units[rec["unit"]]
     lay = ctx.layout
-    P_oof = E.predict_blocks(u.hist, rec["coef_main"], use_cells=rec["model"] != "index",
+    P_oof = E.predict_blocks(u.hist, rec["coef_main"], use_cells=u.use_cells,
                              n_levels=lay.n_levels, jobs=lay.block_fold,
                              blocks=np.arange(lay.n_blocks))
     x = _feature(features, u.key, len(ctx.target.frame))[ctx.rows]
