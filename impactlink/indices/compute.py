@@ -370,8 +370,8 @@ def _precip_grid(clim, grid, tpos, cpos, min_valid_days):
         arr, _ = grid_values(vals, tpos, cpos, grid.shape, how="sum",
                              min_count=min_valid_days, scale_to=7.0)
         return arr
-    arr, cnt = grid_values(vals, tpos, cpos, grid.shape, how="sum")
     _check_unique(tpos, cpos, grid)
+    arr, _ = grid_values(vals, tpos, cpos, grid.shape, how="sum", unique=True)
     return arr
 
 
@@ -440,7 +440,7 @@ def _pet_grid(clim, grid, tpos, cpos, latitude_deg, pet_method, use_supplied_pet
             arr, _ = grid_values(vals, tpos, cpos, grid.shape, how="sum",
                                  min_count=min_valid_days, scale_to=7.0)
         else:
-            arr, _ = grid_values(vals, tpos, cpos, grid.shape, how="sum")
+            arr, _ = grid_values(vals, tpos, cpos, grid.shape, how="sum", unique=True)
         return arr, {"method": "supplied pet_mm"}
     if not (has["tmin_c"] and has["tmax_c"]) and not has["tmean_c"]:
         return None, {"method": "none"}
@@ -458,18 +458,21 @@ def _pet_grid(clim, grid, tpos, cpos, latitude_deg, pet_method, use_supplied_pet
             arr, _ = grid_values(daily, tpos, cpos, grid.shape, how="sum",
                                  min_count=min_valid_days, scale_to=7.0)
         else:
-            tmin, _ = grid_values(clim["tmin_c"].to_numpy(float), tpos, cpos, grid.shape, how="mean")
-            tmax, _ = grid_values(clim["tmax_c"].to_numpy(float), tpos, cpos, grid.shape, how="mean")
+            tmin, _ = grid_values(clim["tmin_c"].to_numpy(float), tpos, cpos, grid.shape,
+                                  how="mean", unique=True)
+            tmax, _ = grid_values(clim["tmax_c"].to_numpy(float), tpos, cpos, grid.shape,
+                                  how="mean", unique=True)
             ra_mean, ndays = _period_day_mean(_day_table(lat, extraterrestrial_radiation), grid)
             arr = hargreaves_samani(tmin, tmax, ra_mean) * ndays[:, None]
         return arr, {"method": "Hargreaves-Samani (1985), FAO-56 eq. 52; Ra from FAO-56 eq. 21"}
     if pet_method == "thornthwaite":
+        uniq = grid.cadence != "daily"
         if has["tmean_c"]:
             tmean, _ = grid_values(clim["tmean_c"].to_numpy(float), tpos, cpos, grid.shape,
-                                   how="mean")
+                                   how="mean", unique=uniq)
         else:
             tm = (clim["tmin_c"].to_numpy(float) + clim["tmax_c"].to_numpy(float)) / 2.0
-            tmean, _ = grid_values(tm, tpos, cpos, grid.shape, how="mean")
+            tmean, _ = grid_values(tm, tpos, cpos, grid.shape, how="mean", unique=uniq)
         month = (grid.times + pd.Timedelta(days=3)).month.to_numpy() if grid.step == "weekly" \
             else grid.times.month.to_numpy()
         monthly = np.vstack([np.nanmean(np.where((month == m)[:, None], tmean, np.nan), axis=0)

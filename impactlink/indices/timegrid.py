@@ -56,9 +56,10 @@ def detect_cadence(dates: pd.Series) -> Cadence:
     )
 
 
-def _monday(d: pd.DatetimeIndex) -> pd.DatetimeIndex:
-    d = d.normalize()
-    return d - pd.to_timedelta(d.day_of_week, unit="D")
+def _monday_days(d: pd.DatetimeIndex) -> np.ndarray:
+    """Days since 1970-01-01 of the Monday of the ISO week of each date (int64)."""
+    days = d.values.astype("datetime64[D]").astype(np.int64)
+    return days - (days + 3) % 7  # 1970-01-01 was a Thursday; (days + 3) % 7 == 0 on Mondays
 
 
 def build_grid(county: pd.Series, dates: pd.Series, cadence: Cadence) -> tuple[Grid, np.ndarray, np.ndarray]:
@@ -81,16 +82,18 @@ def build_grid(county: pd.Series, dates: pd.Series, cadence: Cadence) -> tuple[G
         tpos = mi - m0
         step = "monthly"
     else:
-        mon = _monday(d)
-        start = mon.min()
-        tpos = ((mon - start).days // 7).to_numpy()
-        times = pd.date_range(start, mon.max(), freq="7D")
+        mon = _monday_days(d)
+        start, end = int(mon.min()), int(mon.max())
+        tpos = (mon - start) // 7
+        times = pd.date_range(pd.Timestamp(start, unit="D"), pd.Timestamp(end, unit="D"),
+                              freq="7D")
         step = "weekly"
     return Grid(pd.DatetimeIndex(times), county_ids, cadence, step), tpos.astype(np.int64), codes
 
 
 def grid_values(values: np.ndarray, tpos: np.ndarray, cpos: np.ndarray, shape, *,
-                how: Literal["sum", "mean"], min_count: int = 1, scale_to: float | None = None):
+                how: Literal["sum", "mean"], min_count: int = 1, scale_to: float | None = None,
+                unique: bool = False):
     """Aggregate row values into a (time, county) array.
 
     Parameters
@@ -105,9 +108,17 @@ def grid_values(values: np.ndarray, tpos: np.ndarray, cpos: np.ndarray, shape, *
         a week with one missing day is not biased low.
     min_count : int
         Cells with fewer valid values are NaN (missing, never zero).
+    unique : bool
+        The caller guarantees at most one row per cell (checked weekly or monthly input).
     """
     nt, nc = shape
     flat = tpos * nc + cpos
+    if unique and min_count <= 1 and scale_to is None:
+        # at most one row per cell: a scatter is exact and much faster than bincount
+        out = np.full(nt * nc, np.nan)
+        out[flat] = values
+        out = out.reshape(nt, nc)
+        return out, (~np.isnan(out)).astype(np.int64)
     ok = ~np.isnan(values)
     cnt = np.bincount(flat[ok], minlength=nt * nc).reshape(nt, nc)
     tot = np.bincount(flat[ok], weights=values[ok], minlength=nt * nc).reshape(nt, nc)
