@@ -22,7 +22,7 @@ from impactlink.schema import COUNTY
 __all__ = ["build_report", "render_html"]
 
 #: Tables that also get a Parquet copy beside their CSV.
-PARQUET_TABLES = ("skill", "skill_summary", "reliability", "curves", "crossings", "audit",
+PARQUET_TABLES = ("skill", "skill_summary", "skill_local", "reliability", "curves", "crossings", "audit",
                   "outlook", "triggers", "trigger_timeline", "contrast", "county_excess",
                   "contrast_pairs", "reconciliation", "rejected_rows")
 

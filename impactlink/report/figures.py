@@ -421,7 +421,8 @@ def reliability_diagram(reliability: pd.DataFrame, *, impact: str, target: str) 
     Parameters
     ----------
     reliability : DataFrame
-        ``reliability.csv``: impact, target, model, forecast_mean, observed_freq, count.
+        ``reliability.csv``: target, forecast_mean, observed_freq, count, and optionally
+        impact and model (without ``model`` the rows are the best candidate's).
     impact, target : str
 
     Returns
@@ -439,9 +440,12 @@ def reliability_diagram(reliability: pd.DataFrame, *, impact: str, target: str) 
         Missing columns or no rows.
     """
     where = "reliability_diagram"
-    _need(reliability, ["impact", "target", "model", "forecast_mean", "observed_freq", "count"],
-          where)
-    sub = _rows(reliability, where, impact=impact, target=target)
+    _need(reliability, ["target", "forecast_mean", "observed_freq", "count"], where)
+    if "model" not in reliability.columns:
+        reliability = reliability.assign(model="best candidate")
+    keys = {"impact": impact, "target": target} if "impact" in reliability.columns else {
+        "target": target}
+    sub = _rows(reliability, where, **keys)
     models = list(dict.fromkeys(sub["model"].astype(str)))
     colours = category_colours(len(models))
     fig = Figure(figsize=(6.4, 4.6), layout="constrained")

@@ -38,7 +38,8 @@ class ReportError(ValueError):
 TABLE_COLUMNS: dict[str, tuple[str, ...]] = {
     "skill": ("impact", "target", "index", "scale_weeks", "lag_weeks", "model"),
     "skill_summary": ("impact", "target", "best_index", "best_scale_weeks", "best_lag_weeks"),
-    "reliability": ("impact", "target", "model", "forecast_mean", "observed_freq", "count"),
+    "reliability": ("target", "forecast_mean", "observed_freq", "count"),
+    "skill_local": ("target", "unit", "index", "scale_weeks", "lag_weeks"),
     "curves": ("impact", "target", "index", "scale_weeks", "x", "prob"),
     "crossings": ("impact", "target", "level_k", "prob_level", "x_cross"),
     "audit": (COUNTY, "ladder", "stage", "period", "expected_share", "observed_share"),
@@ -52,10 +53,17 @@ TABLE_COLUMNS: dict[str, tuple[str, ...]] = {
     "rejected_rows": ("table", "reason"),
 }
 
+#: Other spellings of contract columns, per table (e.g. the skill stage's reliability
+#: table names its columns after the score module).
+_ALIASES: dict[str, dict[str, str]] = {
+    "reliability": {"mean_forecast": "forecast_mean", "observed_frequency": "observed_freq",
+                    "n": "count"},
+}
+
 #: Columns read as strings whatever they look like (ids keep their leading zeros).
 _STRING_COLUMNS = (COUNTY, "county_name", "region", "impact", "target", "index", "index2",
                    "model", "stage", "ladder", "level_label", "table", "file", "reason",
-                   "scope", "term")
+                   "scope", "term", "unit", "level")
 
 
 @dataclass(frozen=True)
@@ -152,6 +160,8 @@ def _read_table(folder: Path, name: str, needed: tuple[str, ...], problems: list
     except Exception as exc:  # noqa: BLE001 - any reader failure means "unusable", reported
         _problem(problems, f"{name}: could not be read ({type(exc).__name__}: {exc})")
         return None
+    frame = frame.rename(columns={k: v for k, v in _ALIASES.get(name, {}).items()
+                                  if k in frame.columns and v not in frame.columns})
     missing = [c for c in needed if c not in frame.columns]
     if missing:
         _problem(

@@ -125,6 +125,16 @@ def _county_names(run: RunFolder) -> pd.DataFrame | None:
     return pd.DataFrame(run.counties[cols])
 
 
+def _impact_of(run: RunFolder) -> dict[str, str]:
+    """target -> impact, from whichever table names both."""
+    for name in ("skill_summary", "skill", "curves"):
+        frame = run.table(name)
+        if frame is not None and {"impact", "target"} <= set(frame.columns):
+            return dict(zip(frame["target"].astype(str), frame["impact"].astype(str),
+                            strict=True))
+    return {}
+
+
 def _name_map(run: RunFolder) -> dict[str, str]:
     names = _county_names(run)
     if names is None or "county_name" not in names.columns:
@@ -378,6 +388,10 @@ def reliability_section(run: RunFolder, figs: FigureSink) -> Markup:
     parts = [paragraph("Do stated chances come true as often as they say? Points on the dashed "
                        "diagonal are reliable; points below it mean the model over-warns, above "
                        "it under-warns. Bars show how many forecasts fell in each bin.")]
+    if "impact" not in rel.columns:
+        rel = rel.assign(impact=rel["target"].map(_impact_of(run)).fillna(""))
+    if "model" not in rel.columns:
+        rel = rel.assign(model="best candidate")
     for impact, target in _pairs(rel):
         sub = _sel(rel, impact=impact, target=target)
         models = ", ".join(dict.fromkeys(sub["model"].astype(str)))
@@ -394,10 +408,9 @@ def reliability_section(run: RunFolder, figs: FigureSink) -> Markup:
 
 # -------------------------------------------------------------------------------- maps
 def maps_section(run: RunFolder, figs: FigureSink) -> Markup:
-    best = run.layers.get("best_candidate")
+    best = _best_per_county(run)
     if run.counties is None or best is None or len(best) == 0:
         return _section("maps", "County maps", _absent())
-    best = pd.DataFrame(best.drop(columns="geometry", errors="ignore"))
     parts = [paragraph("Per county: which candidate predicted best, how well, and how many "
                        "events that estimate rests on. Few events mean a fragile estimate.")]
     keys = ["impact", "target"] if "target" in best.columns else ["impact"]
@@ -424,7 +437,30 @@ def maps_section(run: RunFolder, figs: FigureSink) -> Markup:
         parts.append(details("Per-county values", table(_with_names(run, sub[cols]))))
     parts.append(paragraph("Layers for GIS use are in ", link("counties.gpkg", "counties.gpkg"),
                            ".", class_="files"))
+    parts.append(_files(run, "skill_local"))
     return _section("maps", "County maps", *parts)
+
+
+def _best_per_county(run: RunFolder) -> pd.DataFrame | None:
+    """Best candidate per county: the ``best_candidate`` layer, else the county rows
+    (``level == "unit"``) of ``skill_local.csv``."""
+    layer = run.layers.get("best_candidate")
+    if layer is not None and len(layer):
+        return pd.DataFrame(layer.drop(columns="geometry", errors="ignore"))
+    local = run.table("skill_local")
+    if local is None or local.empty:
+        return None
+    if "level" in local.columns:
+        local = local[(local["level"] == "unit").fillna(False).to_numpy(bool)]
+    out = local.rename(columns={"unit": COUNTY})
+    if "skill" not in out.columns:
+        for score in ("rpss", "bss"):
+            if score in out.columns:
+                out = out.assign(skill=out[score])
+                break
+    if "impact" not in out.columns:
+        out = out.assign(impact=out["target"].map(_impact_of(run)).fillna(""))
+    return out
 
 
 # ------------------------------------------------------------------------------- audit

@@ -268,3 +268,28 @@ def test_skill_stage_model_names_are_understood(tmp_path, make_run):
     text = p.section("skill")
     assert "Warning beyond persistence" in text and "index + persistence" in text
     assert "persistence_restrictions.png" in sink.files
+
+
+def test_skill_stage_reliability_and_local_tables_are_drawn(tmp_path, make_run):
+    # Reliability as the skill stage writes it (score-module column names, no impact or
+    # model), and per-county best candidates from skill_local.csv instead of a GIS layer.
+    folder = make_run(tmp_path / "run")
+    pd.DataFrame(dict(target="state", bin=[0, 5], p_lo=[0.0, 0.5], p_hi=[0.1, 0.6],
+                      mean_forecast=[0.05, 0.55], observed_frequency=[0.04, 0.6], n=[300, 20],
+                      events=[12, 12])).to_csv(folder / "reliability.csv", index=False)
+    import pyogrio
+
+    counties = pyogrio.read_dataframe(folder / "counties.gpkg", layer="counties")
+    (folder / "counties.gpkg").unlink()
+    counties.to_file(folder / "counties.gpkg", layer="counties", driver="GPKG")
+    pd.DataFrame(dict(impact="restrictions", target="state", level=["unit", "unit", "region"],
+                      unit=["90000", "90001", "Upland"], index=["spi", "spei", "spi"],
+                      scale_weeks=13, lag_weeks=4, rpss=[0.2, 0.1, 0.15], events=[5, 9, 14],
+                      n=100)).to_csv(folder / "skill_local.csv", index=False)
+    run = read_run_folder(folder)
+    sink = S.FigureSink()
+    _, p = _parse_markup(S.reliability_section(run, sink) + S.maps_section(run, sink))
+    assert "reliability_restrictions_state.png" in sink.files
+    maps = p.section("maps")
+    assert "SPEI 13w lag 4w" in maps and "Brackwater" in maps and "Upland" not in maps
+    assert "map_best_restrictions_state.png" in sink.files
