@@ -291,5 +291,6 @@ def test_skill_stage_reliability_and_local_tables_are_drawn(tmp_path, make_run):
     _, p = _parse_markup(S.reliability_section(run, sink) + S.maps_section(run, sink))
     assert "reliability_restrictions_state.png" in sink.files
     maps = p.section("maps")
-    assert "SPEI 13w lag 4w" in maps and "Brackwater" in maps and "Upland" not in maps
+    assert "SPEI 13w lag 4w" in maps and "Brackwater" in maps
+    assert "0.150" not in maps  # the region row (level "region") is not a county
     assert "map_best_restrictions_state.png" in sink.files
