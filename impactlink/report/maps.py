@@ -85,7 +85,8 @@ def county_map(counties, values: pd.DataFrame, column: str, *, title: str, label
 
 
 @_styled
-def county_panels(counties, panels: list[MapPanel], *, suptitle: str | None = None) -> Figure:
+def county_panels(counties, panels: list[MapPanel], *, suptitle: str | None = None,
+                  max_columns: int = 3) -> Figure:
     """Side-by-side county maps, one per :class:`MapPanel`.
 
     Parameters
@@ -94,6 +95,8 @@ def county_panels(counties, panels: list[MapPanel], *, suptitle: str | None = No
         County outlines with ``county_id``.
     panels : list of MapPanel
     suptitle : str, optional
+    max_columns : int, default 3
+        Panels per row; more panels wrap onto further rows.
 
     Returns
     -------
@@ -106,6 +109,8 @@ def county_panels(counties, panels: list[MapPanel], *, suptitle: str | None = No
     """
     if not panels:
         raise FigureInputError("county_panels: panels is empty; pass at least one MapPanel")
+    if max_columns < 1:
+        raise FigureInputError(f"county_panels: max_columns must be >= 1, got {max_columns}")
     if counties is None or COUNTY not in counties.columns or not hasattr(counties, "geometry"):
         raise FigureInputError(
             f"county_panels: counties must be a GeoDataFrame with {COUNTY!r} and geometry"
@@ -113,10 +118,15 @@ def county_panels(counties, panels: list[MapPanel], *, suptitle: str | None = No
     minx, miny, maxx, maxy = counties.total_bounds
     aspect = (maxy - miny) / max(maxx - minx, 1e-9)
     width = 3.4
-    fig = Figure(figsize=(width * len(panels), width * aspect + 1.4), layout="constrained")
-    axes = np.atleast_1d(fig.subplots(1, len(panels)))
-    for ax, panel in zip(axes, panels, strict=True):
-        _draw_panel(ax, fig, counties, panel)
+    ncol = min(len(panels), max_columns)
+    nrow = -(-len(panels) // ncol)
+    fig = Figure(figsize=(width * ncol, (width * aspect + 1.4) * nrow), layout="constrained")
+    axes = np.atleast_1d(fig.subplots(nrow, ncol, squeeze=False).ravel())
+    for k, ax in enumerate(axes):
+        if k < len(panels):
+            _draw_panel(ax, fig, counties, panels[k])
+        else:
+            ax.set_visible(False)
     if suptitle:
         fig.suptitle(suptitle, fontsize=10)
     return fig

@@ -79,7 +79,7 @@ def _absent(what: str = NOT_COMPUTED) -> Markup:
 
 
 def _section(sid: str, title: str, *content) -> Markup:
-    return el("section", el("h2", title), *content, id=sid, aria_labelledby=None)
+    return el("section", el("h2", title), *content, id=sid)
 
 
 def _files(run: RunFolder, *names: str) -> Markup:

@@ -210,3 +210,15 @@ def test_odds_ratio_chart_uses_a_log_axis_centred_on_one():
     assert vertical == [1]
     with pytest.raises(F.FigureInputError, match=r"odds_ratio_chart: frame lacks column\(s\) \['or_lo'\]"):
         F.odds_ratio_chart(con.drop(columns="or_lo"))
+
+
+def test_many_map_panels_wrap_onto_rows():
+    vals = pd.DataFrame({"county_id": ["1", "2", "3"], "p": [0.1, 0.5, 0.9]})
+    panels = [M.MapPanel(vals, "p", title=f"h{k}", label="chance") for k in range(4)]
+    fig = M.county_panels(_counties(), panels, max_columns=3)
+    maps = [ax for ax in fig.axes if ax.get_title().startswith("h")]
+    assert [ax.get_title() for ax in maps] == ["h0", "h1", "h2", "h3"]
+    rows = {round(ax.get_position().y0, 3) for ax in maps}
+    assert len(rows) == 2
+    with pytest.raises(F.FigureInputError, match="max_columns must be >= 1, got 0"):
+        M.county_panels(_counties(), panels, max_columns=0)
