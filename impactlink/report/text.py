@@ -254,7 +254,14 @@ def answer_card(summary: pd.Series, skill: pd.DataFrame | None = None) -> Answer
         shown = "; ".join(ties[:5]) + ("; ..." if len(ties) > 5 else "")
         how_sure = (f"{n_other} other candidate{'s are' if n_other != 1 else ' is'} statistically "
                     f"as good as the best" + (f": {shown}." if ties else "."))
-    rests_on = (f"Rests on {_int(g('events'))} events among {_int(g('n'))} scored cases.")
+    share = g("nested_most_picked_share")
+    if _present(share):
+        picks = g("nested_distinct_picks")
+        how_sure += (f" Re-running the search without each year's data picked the same "
+                     f"candidate {100 * float(share):.0f} % of the time"
+                     + (f" ({int(picks)} different picks)." if _present(picks) else "."))
+    years = f" in {int(g('n_years'))} years" if _present(g("n_years")) else ""
+    rests_on = (f"Rests on {_int(g('events'))} events among {_int(g('n'))} scored cases{years}.")
     persistence = ""
     gain = fmt_interval(g("persistence_gain"), g("persistence_gain_lo"), g("persistence_gain_hi"))
     if _present(g("persistence_sentence")):

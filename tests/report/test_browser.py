@@ -14,6 +14,7 @@ from __future__ import annotations
 import base64
 import json
 import os
+import re
 import select
 import shutil
 import subprocess
@@ -178,6 +179,9 @@ def test_report_renders_in_headless_chromium(built, tmp_path):
         ARTIFACTS.mkdir(exist_ok=True)
         (ARTIFACTS / "report.png").write_bytes(base64.b64decode(shot["data"]))
 
+        pdf = base64.b64decode(client.send("Page.printToPDF", {"printBackground": False},
+                                           session=session, timeout=60)["data"])
+
         phone = _open(client, html.resolve().as_uri(), 390, 844)
         overflow = _eval(client, phone, _OVERFLOW)
         first_screen = _eval(client, phone, "document.querySelector('.card h3') !== null")
@@ -197,4 +201,8 @@ def test_report_renders_in_headless_chromium(built, tmp_path):
     # Phone width: figures and tables scale or scroll inside their box, not the page.
     assert overflow <= 0, f"page is {overflow}px wider than a 390px phone screen"
     assert first_screen
+    # Printable: the print stylesheet yields a multi-page PDF.
+    pages = len(re.findall(rb"/Type\s*/Page[^s]", pdf))
+    assert pdf[:5] == b"%PDF-" and pages >= 2, f"printed to {pages} page(s)"
+    (ARTIFACTS / "report.pdf").write_bytes(pdf)
     assert (ARTIFACTS / "report.png").stat().st_size > 10_000

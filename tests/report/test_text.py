@@ -76,6 +76,10 @@ def test_answer_card_without_skill_table_still_answers():
     a = answer_card(summary.drop(labels=["n_indistinguishable"]))
     assert a.baselines == ""
     assert a.how_sure == "No other candidate is statistically as good as the best."
+    a3 = answer_card(pd.concat([summary, pd.Series(dict(
+        nested_most_picked_share=0.6, nested_distinct_picks=4, n_years=31))]))
+    assert a3.how_sure.endswith("picked the same candidate 60 % of the time (4 different picks).")
+    assert a3.rests_on == "Rests on 27 events among 900 scored cases in 31 years."
     a2 = answer_card(summary.drop(labels=["events", "n"]))
     assert a2.rests_on == "Rests on an unknown number of events among an unknown number of scored cases."
 
