@@ -168,8 +168,14 @@ def _errors(events: list[dict]) -> list[str]:
     return out
 
 
-def test_report_renders_in_headless_chromium(built, tmp_path):
-    exe = _chromium()
+@pytest.fixture(scope="session")
+def chromium() -> str:
+    """Path of the browser (checked before the shared run is built, so a skip is quick)."""
+    return _chromium()
+
+
+def test_report_renders_in_headless_chromium(chromium, built, tmp_path):
+    exe = chromium
     _, html, _ = built  # holds a planted <script> county name: it must not run
     client = _Pipe(exe, tmp_path / "profile")
     try:
