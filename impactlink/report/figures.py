@@ -517,6 +517,7 @@ def audit_shares(audit: pd.DataFrame, *, ladder: str) -> Figure:
             ax1.plot([np.median(r)] * 2, [k - 0.3, k + 0.3], color=CATEGORICAL["rust"], lw=2.5)
     ax1.axvline(1, color=NEUTRAL["baseline"], ls="--", lw=1)
     ax1.set_yticks(range(len(stages)), stages)
+    ax1.invert_yaxis()  # mildest stage on top, as in a ladder read from the first rung
     ax1.set_xlabel("observed / expected share of weeks (ratio; 1 = as defined)")
     ax1.set_title("record period, one dot per county")
     ax1.plot([], [], color=CATEGORICAL["rust"], lw=2.5, label="median")
