@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Literal
@@ -113,7 +114,11 @@ def threshold_audit(
     definition) at the cumulative expected probability ``Phi(t[i])`` (or ``t[i] / 100``),
     i.e. the threshold that would restore the nominal share; for the percentile kind it is
     reported as a percentile (``100 Phi(value)``). Intervals are percentile intervals of a
-    bootstrap that resamples whole years (weeks within a year are autocorrelated).
+    bootstrap that resamples whole years (weeks within a year are autocorrelated); the
+    replicates' local thresholds come from per-year histograms (256 bins, linear
+    interpolation in the bin), accurate to well within one bin width (~0.024 on the index
+    scale). Cost grows with counties x years x ``n_boot``: about 0.5 s of CPU per 30 counties
+    for 45 years, 3 periods and 500 replicates.
 
     References
     ----------
@@ -219,11 +224,9 @@ def _audit_period(x, years, z_thr, cum_p, expected, n_boot, rng, ci, county_ids,
         with np.errstate(invalid="ignore", divide="ignore"):
             obs_b = np.einsum("by,yck->bck", mult, counts) / np.einsum("by,yc->bc", mult, nvalid)[..., None]
         ratio_b = obs_b / expected[None, None, :]
-        ratio_lo = np.nanquantile(ratio_b, lo_q, axis=0)
-        ratio_hi = np.nanquantile(ratio_b, hi_q, axis=0)
-        local_b = _local_thresholds(x, yidx, ny, cum_p, mult)
-        local_lo = np.nanquantile(local_b, lo_q, axis=0)
-        local_hi = np.nanquantile(local_b, hi_q, axis=0)
+        ratio_lo, ratio_hi = _quantiles(ratio_b, lo_q, hi_q)
+        local_b = _bootstrap_local_thresholds(x, yidx, ny, cum_p, mult)
+        local_lo, local_hi = _quantiles(local_b, lo_q, hi_q)
     else:
         ratio_lo = ratio_hi = local_lo = local_hi = np.full((nc, nk), np.nan)
     # back to the user's form: undo the sign flip, then percentile units if asked
@@ -250,6 +253,18 @@ def _audit_period(x, years, z_thr, cum_p, expected, n_boot, rng, ci, county_ids,
         "local_threshold_hi": lhi.ravel(),
         "weeks": np.repeat(tot.astype(np.int64), nk),
     })
+
+
+def _quantiles(a, lo_q, hi_q):
+    """Lower and upper percentile bounds over replicates (axis 0); NaN-aware only if needed
+    (``np.nanquantile`` falls back to a slow per-cell loop)."""
+    if np.isnan(a).any():
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)  # all-NaN cells stay NaN
+            q = np.nanquantile(a, [lo_q, hi_q], axis=0)
+    else:
+        q = np.quantile(a, [lo_q, hi_q], axis=0)
+    return q[0], q[1]
 
 
 def _local_thresholds(x, yidx, ny, cum_p, mult, max_cells: int = 20_000_000):
@@ -284,3 +299,43 @@ def _local_thresholds(x, yidx, ny, cum_p, mult, max_cells: int = 20_000_000):
             val = xs[pos, np.arange(nc)[None, :]]
             out[b0:b1, :, k] = np.where(total > 0, val, np.nan)
     return out[0] if mult is None else out
+
+
+def _bootstrap_local_thresholds(x, yidx, ny, cum_p, mult, n_bins: int = 256,
+                                max_cells: int = 20_000_000):
+    """Local thresholds of every bootstrap replicate from per-year histograms, (B, C, K).
+
+    Each county's values are binned once per year (``n_bins`` equal bins over the data range);
+    a replicate's distribution is then ``mult @ hist`` (one matrix product for all counties),
+    and the quantile is interpolated linearly inside its bin. The error is well below the
+    bin width ((max - min) / n_bins, ~0.024 on a +-3.09 index), negligible against the width
+    of the intervals; the point estimate itself is exact (:func:`_local_thresholds`).
+    """
+    nt, nc = x.shape
+    valid = ~np.isnan(x)
+    lo, hi = np.nanmin(x), np.nanmax(x)
+    width = (hi - lo) / n_bins if hi > lo else 1.0
+    b = np.clip(((x - lo) / width).astype(np.int64, copy=False) if hi > lo
+                else np.zeros(x.shape, np.int64), 0, n_bins - 1)
+    flat = (yidx[:, None] * nc + np.arange(nc)[None, :]) * n_bins + b
+    hist = np.bincount(flat[valid], minlength=ny * nc * n_bins).astype(float)
+    hist = hist.reshape(ny, nc * n_bins)
+    nb = mult.shape[0]
+    out = np.full((nb, nc, cum_p.size), np.nan)
+    chunk = max(1, int(max_cells // max(nc * n_bins, 1)))
+    edges = lo + width * np.arange(n_bins)
+    for b0 in range(0, nb, chunk):  # chunks of replicates bound the memory
+        b1 = min(nb, b0 + chunk)
+        dens = (mult[b0:b1] @ hist).reshape(b1 - b0, nc, n_bins)
+        cum = np.cumsum(dens, axis=2)
+        total = cum[:, :, -1]
+        for k, p in enumerate(cum_p):  # a handful of thresholds
+            target = p * total
+            pos = np.minimum(np.sum(cum < target[:, :, None] - 1e-9, axis=2), n_bins - 1)
+            before = np.where(pos > 0, np.take_along_axis(cum, np.maximum(pos - 1, 0)[..., None],
+                                                          axis=2)[..., 0], 0.0)
+            inbin = np.take_along_axis(dens, pos[..., None], axis=2)[..., 0]
+            with np.errstate(invalid="ignore", divide="ignore"):
+                frac = np.clip((target - before) / inbin, 0.0, 1.0)
+            out[b0:b1, :, k] = np.where(total > 0, edges[pos] + width * frac, np.nan)
+    return out

@@ -129,3 +129,20 @@ def test_audit_error_messages(kwargs, match):
     args.update(kwargs)
     with pytest.raises(IndexInputError, match=match):
         threshold_audit(cube, **args)
+
+
+def test_histogram_bootstrap_quantiles_match_exact_weighted_quantiles():
+    # The bootstrap local thresholds use per-year histograms (256 bins); they must agree
+    # with exact weighted quantiles of the same replicates to within one bin width.
+    from impactlink.indices.audit import _bootstrap_local_thresholds, _local_thresholds
+
+    rng = np.random.default_rng(11)
+    x = np.clip(rng.normal(size=(52 * 12, 4)), -3.09, 3.09)
+    yidx = np.repeat(np.arange(12), 52)
+    mult = np.zeros((40, 12))
+    np.add.at(mult, (np.arange(40)[:, None], rng.integers(0, 12, (40, 12))), 1.0)
+    cum_p = stats.norm.cdf([-0.5, -1.0, -1.5])
+    exact = _local_thresholds(x, yidx, 12, cum_p, mult)
+    approx = _bootstrap_local_thresholds(x, yidx, 12, cum_p, mult)
+    width = (x.max() - x.min()) / 256
+    assert np.max(np.abs(exact - approx)) <= width
