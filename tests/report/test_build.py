@@ -294,3 +294,19 @@ def test_skill_stage_reliability_and_local_tables_are_drawn(tmp_path, make_run):
     assert "SPEI 13w lag 4w" in maps and "Brackwater" in maps
     assert "0.150" not in maps  # the region row (level "region") is not a county
     assert "map_best_restrictions_state.png" in sink.files
+
+
+def test_every_reference_is_cited_and_every_citation_listed():
+    import re as _re
+
+    text = " ".join(body for _, body in S._METHODS)
+    cited = set(_re.findall(r"([A-Z][\w\u00C0-\u017F-]+)(?: et al\.| & [A-Z][\w-]+)? \(?(\d{4})", text))
+    listed = set()
+    for ref in S.REFERENCES:
+        author = ref.split(",")[0].split(" (")[0]
+        year = _re.search(r"\((\d{4})\)", ref).group(1)
+        listed.add((author.split()[-1] if author.startswith("World") else author, year))
+    listed = {("WMO", y) if a == "Organization" else (a, y) for a, y in listed}
+    missing_in_list = {c for c in cited if c not in listed and c[0] != "ISO"}  # ISO 8601 weeks
+    uncited = {item for item in listed if item not in cited}
+    assert missing_in_list == set() and uncited == set(), (missing_in_list, uncited)
