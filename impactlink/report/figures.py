@@ -316,7 +316,7 @@ def candidate_intervals(
                         capsize=2, label=label, markeredgecolor=CATEGORICAL["ink"])
     labels = [
         candidate_label(r["index"], r["scale_weeks"], r["lag_weeks"], short=True)
-        + (f" ({r['model']})" if pd.notna(r["model"]) else "")
+        + (f" ({r['model']})" if pd.notna(r["model"]) and r["model"] != "index" else "")
         for _, r in cand.iterrows()
     ]
     ax.set_yticks(y, labels)
