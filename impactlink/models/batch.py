@@ -70,6 +70,7 @@ def fit_logistic_batch(
     ridge: float = 1e-6,
     max_iter: int = 50,
     tol: float = 1e-8,
+    start: np.ndarray | None = None,
 ) -> BatchFit:
     """Fit ``B`` weighted logistic regressions by Newton-Raphson, all at once.
 
@@ -90,6 +91,8 @@ def fit_logistic_batch(
     max_iter : int, default 50
     tol : float, default 1e-8
         Convergence when the largest absolute Newton step is below ``tol``.
+    start : ndarray, shape (B, p), optional
+        Starting coefficients (e.g. the fit on all data, to warm-start fold fits).
 
     Returns
     -------
@@ -130,6 +133,8 @@ def fit_logistic_batch(
     rows = np.flatnonzero(has)
     cval = X[rows, np.argmax(w[rows] > 0, axis=1), first[rows]]
     beta[rows, first[rows]] = np.log(rate[rows] / (1 - rate[rows])) / cval
+    if start is not None:
+        beta = _start(start, (B, p), "fit_logistic_batch")
     obj = _logit_objective(X, y, w, beta, pen)
     converged = np.zeros(B, dtype=bool)
     it = 0
@@ -138,19 +143,21 @@ def fit_logistic_batch(
         if not active.any():
             it -= 1
             break
-        Xa, ya, wa, ba, pa = X[active], y[active], w[active], beta[active], pen[active]
+        A = slice(None) if active.mean() > 0.5 else np.flatnonzero(active)
+        Xa, ya, wa, ba, pa = X[A], y[A], w[A], beta[A], pen[A]
         eta = _mv(Xa, ba)
         mu = _sigmoid(eta)
         grad = _tv(Xa, wa * (ya - mu)) - pa * ba
         H = _quad(Xa, wa * mu * (1 - mu), Xa)
         H[:, np.arange(p), np.arange(p)] += pa + 1e-12
         step = _solve(H, grad)
+        step[converged[A]] = 0.0
         new, new_obj = _halve(
             lambda bb, Xa=Xa, ya=ya, wa=wa, pa=pa: _logit_objective(Xa, ya, wa, bb, pa),
-            ba, step, obj[active])
-        beta[active] = new
-        obj[active] = new_obj
-        converged[np.flatnonzero(active)] = np.abs(step).max(1) < tol
+            ba, step, obj[A])
+        beta[A] = new
+        obj[A] = new_obj
+        converged[A] |= np.abs(step).max(1) < tol
     ll = _logit_objective(X, y, w, beta, np.zeros_like(pen))
     return BatchFit(coef=beta, converged=converged, n_iter=it, loglik=ll)
 
@@ -166,6 +173,13 @@ def _constant_columns(X: np.ndarray, w: np.ndarray) -> np.ndarray:
     lo = np.where(mask, X, np.inf).min(axis=1)
     hi = np.where(mask, X, -np.inf).max(axis=1)
     return (lo == hi) & (lo != 0) & np.isfinite(lo)
+
+
+def _start(start, shape, name) -> np.ndarray:
+    s = np.array(start, dtype=float)
+    if s.shape != shape or not np.isfinite(s).all():
+        raise ValueError(f"{name}: start must be finite with shape {shape}; got {s.shape}")
+    return s
 
 
 def _drop_empty_rows(X, y, w):
@@ -245,6 +259,7 @@ def fit_cumlogit_batch(
     ridge: float = 1e-6,
     max_iter: int = 50,
     tol: float = 1e-8,
+    start: np.ndarray | None = None,
 ) -> BatchFit:
     """Fit ``B`` weighted cumulative-logit (proportional-odds) models at once.
 
@@ -262,7 +277,8 @@ def fit_cumlogit_batch(
         infinity (held back by ``ridge``) and the fit reports ``converged=False``.
     ridge : float, default 1e-6
         Penalty on the slopes (not the cut-points).
-    max_iter, tol : as in :func:`fit_logistic_batch`.
+    max_iter, tol, start : as in :func:`fit_logistic_batch` (``start`` of shape (B, K-1+p),
+        cut-points increasing).
 
     Returns
     -------
@@ -325,6 +341,10 @@ def fit_cumlogit_batch(
     cum = np.cumsum(counts, 1)[:, :-1] / counts.sum(1, keepdims=True)
     theta = np.zeros((B, q))
     theta[:, : K - 1] = np.log(cum / (1 - cum))
+    if start is not None:
+        theta = _start(start, (B, q), "fit_cumlogit_batch")
+        if K > 2 and not (np.diff(theta[:, : K - 1], axis=1) > 0).all():
+            raise ValueError("fit_cumlogit_batch: start cut-points must be increasing")
 
     def objective(par, Du=Du, Dl=Dl, hu=has_u, hl=has_l, w=w, pen=pen):
         return _cum_loglik(par, Du, Dl, hu, hl, w) - 0.5 * (pen * par**2).sum(1)
@@ -342,7 +362,9 @@ def fit_cumlogit_batch(
         if not active.any():
             it -= 1
             break
-        A = np.flatnonzero(active)
+        # compute on views of all fits while most are active (no copies); on the
+        # remaining few once most have converged
+        A = slice(None) if active.mean() > 0.5 else np.flatnonzero(active)
         par = theta[A]
         du, dl, hu, hl, wa, pa = Du[A], Dl[A], has_u[A], has_l[A], w[A], pen[A]
         au = np.where(hu, _mv(du, par), np.inf)
@@ -361,6 +383,7 @@ def fit_cumlogit_batch(
              + cross + cross.transpose(0, 2, 1))
         H[:, np.arange(q), np.arange(q)] -= pa + 1e-12
         step = _solve(-H, grad)
+        step[converged[A]] = 0.0
 
         def obj_a(pp, du=du, dl=dl, hu=hu, hl=hl, wa=wa, pa=pa):
             return _cum_loglik(pp, du, dl, hu, hl, wa) - 0.5 * (pa * pp**2).sum(1)
@@ -368,7 +391,7 @@ def fit_cumlogit_batch(
         new, new_obj = _halve(obj_a, par, step, obj[A], valid=ordered)
         theta[A] = new
         obj[A] = new_obj
-        converged[A] = np.abs(step).max(1) < tol
+        converged[A] |= np.abs(step).max(1) < tol
     ll = _cum_loglik(theta, Du, Dl, has_u, has_l, w)
     return BatchFit(coef=theta, converged=converged, n_iter=it, loglik=ll)
 

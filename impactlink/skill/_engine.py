@@ -107,7 +107,7 @@ def build_hist(block, level, xs, bins, cell, *, n_blocks, n_bins_total, n_cells,
 # --------------------------------------------------------------------------- fitting
 def fit_chunk(hists: list[Hist], layout: Layout, *, use_cells: bool, jobs_subset: str = "all",
               prior: float = PRIOR_WEIGHT, ridge: float = 1e-4, max_iter: int = 30,
-              tol: float = 1e-7):
+              tol: float = 1e-6):
     """Fit every CV job for a list of candidates with the same shape; return coefficients.
 
     Returns an array (U, J, q) of cumulative-logit coefficients (K-1 cut-points, then slopes
@@ -146,21 +146,41 @@ def fit_chunk(hists: list[Hist], layout: Layout, *, use_cells: bool, jobs_subset
             Xb = np.concatenate([Xb, xp, xp], axis=1)
             yb = np.concatenate([yb, np.zeros((U * J, 1)), np.ones((U * J, 1))], axis=1)
             wb = np.concatenate([wb, np.full((U * J, 2), prior / 2)], axis=1)
-        fit = fit_logistic_batch(Xb, yb, wb, ridge=ridge, max_iter=max_iter, tol=tol)
+        start = _warm_start(fit_logistic_batch, Xb, yb, wb, U, J, ridge=ridge)
+        fit = fit_logistic_batch(Xb, yb, wb, ridge=ridge, max_iter=max_iter, tol=tol,
+                                 start=start)
         coef = fit.coef.copy()
         coef[:, 0] = -coef[:, 0]
         return coef.reshape(U, J, -1), fit.converged.reshape(U, J)
-    # expand rows to (row, level); add pseudo-rows at the weighted mean design row
-    Xl = np.repeat(X[:, :, :, None, :], K, axis=3).reshape(U * J, R * K, p)
-    yl = np.tile(np.arange(K), R)[None].repeat(U * J, 0)
-    wl = Ntr.reshape(U * J, R * K)
-    if prior > 0:
-        Xp = np.repeat(xm[:, None, :], K, axis=1)
-        Xl = np.concatenate([Xl, Xp], axis=1)
-        yl = np.concatenate([yl, np.tile(np.arange(K), (U * J, 1))], axis=1)
-        wl = np.concatenate([wl, np.full((U * J, K), prior / K)], axis=1)
-    fit = fit_cumlogit_batch(Xl, yl, wl, n_levels=K, ridge=ridge, max_iter=max_iter, tol=tol)
+    # expand rows to the (row, level) cells that occur for each candidate; pad to a common
+    # length; add pseudo-rows (one per level) at the weighted mean design row
+    cells = [np.nonzero(Ntr[u].sum(0) > 0) for u in range(U)]
+    n_max = max(c[0].size for c in cells)
+    Xl = np.zeros((U, J, n_max + K, p))
+    yl = np.zeros((U, J, n_max + K))
+    wl = np.zeros((U, J, n_max + K))
+    for u, (r, k) in enumerate(cells):  # candidates of the chunk (a handful)
+        m = r.size
+        Xl[u, :, :m] = X[u][:, r, :]
+        yl[u, :, :m] = k
+        wl[u, :, :m] = Ntr[u][:, r, k]
+    Xl[:, :, n_max:] = xm.reshape(U, J, 1, p)
+    yl[:, :, n_max:] = np.arange(K)
+    wl[:, :, n_max:] = prior / K
+    Xl, yl, wl = Xl.reshape(U * J, n_max + K, p), yl.reshape(U * J, -1), wl.reshape(U * J, -1)
+    start = _warm_start(lambda *a, **k: fit_cumlogit_batch(*a, n_levels=K, **k),
+                        Xl, yl, wl, U, J, ridge=ridge)
+    fit = fit_cumlogit_batch(Xl, yl, wl, n_levels=K, ridge=ridge, max_iter=max_iter, tol=tol,
+                             start=start)
     return fit.coef.reshape(U, J, -1), fit.converged.reshape(U, J)
+
+
+def _warm_start(solver, X, y, w, U, J, *, ridge):
+    """Fit each candidate's first job once and start all its jobs there (Newton then needs
+    two or three steps per fold, since folds differ by a few years of data)."""
+    first = np.arange(U) * J
+    pre = solver(X[first], y[first], w[first], ridge=ridge, max_iter=50, tol=1e-6)
+    return np.repeat(pre.coef, J, axis=0)
 
 
 def _padded(h: Hist, R: int):
