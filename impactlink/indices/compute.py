@@ -318,7 +318,9 @@ def standardized_indices(
                 tell(f"indices: EDDI {s} {unit}")
                 z = standardize_empirical(acc, period, calib, n_periods=n_periods,
                                           plotting_position="tukey", clip=clip)
-                arrays[("eddi", s)][:, sl] = -z if eddi_sign == "dry_negative" else z
+                if eddi_sign == "dry_negative":
+                    np.negative(z, out=z)
+                arrays[("eddi", s)][:, sl] = z
 
     if len(slices) == 1:
         run(0, slices[0])

@@ -528,25 +528,47 @@ def standardize_empirical(
         )
     a = PLOTTING_POSITIONS[plotting_position]
     x = np.asarray(x, dtype=float)
-    samples, n = calibration_samples(x, period, calib, n_periods)
     z = np.full(x.shape, np.nan)
+    denom_shift = 1.0 - 2.0 * a
     for g in range(n_periods):  # loop over periods of the year; each step covers all counties
-        rows = np.flatnonzero(period == g)
-        if rows.size == 0:
+        rows_cal = np.flatnonzero((period == g) & calib)
+        rows_out = np.flatnonzero((period == g) & ~calib)
+        if rows_cal.size == 0:
             continue
-        xs = x[rows]  # (r, C)
-        less = np.zeros(xs.shape, dtype=np.int32)
-        eq = np.zeros(xs.shape, dtype=np.int32)
-        for sj in samples[g][: int(n[g].max(initial=0))]:  # calibration values (<= ~35)
-            less += sj < xs
-            eq += sj == xs
-        in_cal = calib[rows][:, None]
-        ng = n[g][None, :].astype(float)
-        tie = np.where(in_cal, eq, eq + 1)
-        r = less + (tie + 1) / 2.0
-        n_eff = np.where(in_cal, ng, ng + 1.0)
+        # calibration values: ranks from one sort (ties -> mid-rank)
+        raw = x[rows_cal]  # (m, C)
+        order = np.argsort(raw, axis=0, kind="stable")  # NaN last
+        srt = np.take_along_axis(raw, order, axis=0)
+        n = np.sum(~np.isnan(srt), axis=0).astype(float)  # (C,)
+        m = srt.shape[0]
+        j = np.arange(m)[:, None]
+        same = srt[1:] == srt[:-1]
+        start = np.vstack([np.ones((1, srt.shape[1]), bool), ~same])
+        stop = np.vstack([~same, np.ones((1, srt.shape[1]), bool)])
+        less = np.maximum.accumulate(np.where(start, j, 0), axis=0)
+        leq = np.minimum.accumulate(np.where(stop, j, m)[::-1], axis=0)[::-1] + 1
+        r_sorted = (less + leq + 1) / 2.0  # 1-based mid-rank
+        r = np.empty_like(r_sorted)
+        np.put_along_axis(r, order, r_sorted, axis=0)
         with np.errstate(invalid="ignore", divide="ignore"):
-            p = (r - a) / (n_eff + 1.0 - 2.0 * a)
-        p = np.where(np.isnan(xs) | (ng < min_samples), np.nan, p)
-        z[rows] = _finish(p, clip)
+            p = (r - a) / (n + denom_shift)
+        p[np.isnan(raw) | (n < min_samples)[None, :]] = np.nan
+        z[rows_cal] = _finish(p, clip)
+        if rows_out.size == 0:
+            continue
+        # other values: ranked as if added to the calibration sample (n + 1 values)
+        xs = x[rows_out]
+        cnt_less = np.zeros(xs.shape, dtype=np.int16)
+        cnt_leq = np.zeros(xs.shape, dtype=np.int16)
+        hit = np.empty(xs.shape, dtype=bool)
+        for sj in srt[: int(n.max(initial=0))]:  # sorted calibration values (<= ~35)
+            np.less(sj, xs, out=hit)
+            cnt_less += hit
+            np.less_equal(sj, xs, out=hit)
+            cnt_leq += hit
+        r = (cnt_less + cnt_leq + 2) / 2.0  # mid-rank among ties incl. the value itself
+        with np.errstate(invalid="ignore", divide="ignore"):
+            p = (r - a) / (n + 1.0 + denom_shift)
+        p[np.isnan(xs) | (n < min_samples)[None, :]] = np.nan
+        z[rows_out] = _finish(p, clip)
     return z
