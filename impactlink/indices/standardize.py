@@ -276,7 +276,7 @@ def standardize_gamma(
     Parameters
     ----------
     x : ndarray, shape (T, C)
-        Accumulated precipitation (any unit; >= 0). NaN = missing.
+        Accumulated precipitation (any unit; must be >= 0). NaN = missing.
     period : ndarray of int, shape (T,)
         Period of the year of each row (0 .. n_periods-1).
     calib : ndarray of bool, shape (T,)

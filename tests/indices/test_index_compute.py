@@ -177,7 +177,7 @@ def test_unknown_index_name():
 
 
 def test_threads_do_not_change_results():
-    clim, lat = _weekly(n_years=31)
+    clim, lat = _weekly(n_years=33)
     a = compute_indices(clim, latitude_deg=lat, scales_weeks=(4, 26), n_threads=1)
     b = compute_indices(clim, latitude_deg=lat, scales_weeks=(4, 26), n_threads=3)
     for key in a.keys:  # equal up to floating-point summation order
