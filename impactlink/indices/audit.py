@@ -315,8 +315,7 @@ def _bootstrap_local_thresholds(x, yidx, ny, cum_p, mult, n_bins: int = 256,
     valid = ~np.isnan(x)
     lo, hi = np.nanmin(x), np.nanmax(x)
     width = (hi - lo) / n_bins if hi > lo else 1.0
-    b = np.clip(((x - lo) / width).astype(np.int64, copy=False) if hi > lo
-                else np.zeros(x.shape, np.int64), 0, n_bins - 1)
+    b = np.clip(((np.where(valid, x, lo) - lo) / width).astype(np.int64), 0, n_bins - 1)
     flat = (yidx[:, None] * nc + np.arange(nc)[None, :]) * n_bins + b
     hist = np.bincount(flat[valid], minlength=ny * nc * n_bins).astype(float)
     hist = hist.reshape(ny, nc * n_bins)
