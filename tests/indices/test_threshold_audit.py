@@ -146,3 +146,19 @@ def test_histogram_bootstrap_quantiles_match_exact_weighted_quantiles():
     approx = _bootstrap_local_thresholds(x, yidx, 12, cum_p, mult)
     width = (x.max() - x.min()) / 256
     assert np.max(np.abs(exact - approx)) <= width
+
+
+def test_missing_weeks_are_left_out():
+    # Spin-up weeks (NaN) count neither as weeks nor as stage weeks; no numpy warnings.
+    import warnings
+
+    rng = np.random.default_rng(9)
+    x = rng.normal(size=(52 * 10, 2))
+    x[:25] = np.nan
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        f = threshold_audit(_cube(x), index="spi", scale_weeks=13, thresholds=[-1.0],
+                            stage_names=["dry"], n_boot=50).to_frame()
+    assert f["weeks"].tolist() == [52 * 10 - 25] * 2
+    expected = np.mean(x[25:] <= -1.0, axis=0)
+    np.testing.assert_allclose(f["observed_share"], expected)
