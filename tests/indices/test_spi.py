@@ -173,3 +173,32 @@ def test_compute_indices_error_short_record():
     with pytest.warns(IndexCalibrationWarning, match="full record"):
         with pytest.raises(IndexInputError, match="min_calibration_years"):
             compute_indices(clim, latitude_deg=pd.Series({"A": 40.0}), indices=("spi",))
+
+
+def test_weekly_spi_matches_scipy_per_week_fits():
+    # Cross-implementation check of the weekly path on our own week grouping: per ISO week
+    # of year (week 53 pooled with 52) fit scipy.stats.gamma.fit(positive, floc=0) over the
+    # 1991-2020 calibration weeks, H = q + (1 - q) G, zeros at q / 2, clip +-3.09.
+    # Same estimator (MLE) and definitions, so 1e-5 covers scipy's optimiser tolerance.
+    rng = np.random.default_rng(21)
+    weeks = pd.date_range("1988-01-04", "2022-12-26", freq="7D")
+    p = rng.gamma(0.7, 15.0, len(weeks))
+    p[rng.random(len(weeks)) < 0.3] = 0.0
+    clim = pd.DataFrame({"county_id": "X", "date": weeks, "precip_mm": p})
+    cube = compute_indices(clim, latitude_deg=pd.Series({"X": 35.0}), scales_weeks=(4,),
+                           indices=("spi",))
+    acc = pd.Series(p, index=weeks).rolling(4).sum().to_numpy().copy()
+    acc[np.abs(acc) < 1e-9] = 0.0
+    iso = weeks.isocalendar()
+    woy = np.minimum(iso.week.to_numpy(), 52)
+    cal = (iso.year.to_numpy() >= 1991) & (iso.year.to_numpy() <= 2020)
+    ref = np.full(len(weeks), np.nan)
+    for w in range(1, 53):
+        sample = acc[(woy == w) & cal & np.isfinite(acc)]
+        q = np.mean(sample == 0)
+        a, _, scale = stats.gamma.fit(sample[sample > 0], floc=0)
+        rows = (woy == w) & np.isfinite(acc)
+        h = q + (1 - q) * stats.gamma.cdf(acc[rows], a, scale=scale)
+        h = np.where(acc[rows] == 0, q / 2, h)
+        ref[rows] = np.clip(stats.norm.ppf(h), -3.09, 3.09)
+    np.testing.assert_allclose(cube.get("spi", 4)[:, 0], ref, atol=1e-5, equal_nan=True)
