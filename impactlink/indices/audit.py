@@ -313,13 +313,15 @@ def _bootstrap_local_thresholds(x, yidx, ny, cum_p, mult, n_bins: int = 256,
     """
     nt, nc = x.shape
     valid = ~np.isnan(x)
-    lo, hi = np.nanmin(x), np.nanmax(x)
+    nb = mult.shape[0]
+    if not valid.any():
+        return np.full((nb, nc, cum_p.size), np.nan)
+    lo, hi = float(x[valid].min()), float(x[valid].max())
     width = (hi - lo) / n_bins if hi > lo else 1.0
     b = np.clip(((np.where(valid, x, lo) - lo) / width).astype(np.int64), 0, n_bins - 1)
     flat = (yidx[:, None] * nc + np.arange(nc)[None, :]) * n_bins + b
     hist = np.bincount(flat[valid], minlength=ny * nc * n_bins).astype(float)
     hist = hist.reshape(ny, nc * n_bins)
-    nb = mult.shape[0]
     out = np.full((nb, nc, cum_p.size), np.nan)
     chunk = max(1, int(max_cells // max(nc * n_bins, 1)))
     edges = lo + width * np.arange(n_bins)

@@ -477,9 +477,13 @@ def _pet_grid(clim, grid, tpos, cpos, latitude_deg, pet_method, use_supplied_pet
             tmean, _ = grid_values(tm, tpos, cpos, grid.shape, how="mean", unique=uniq)
         month = (grid.times + pd.Timedelta(days=3)).month.to_numpy() if grid.step == "weekly" \
             else grid.times.month.to_numpy()
-        monthly = np.vstack([np.nanmean(np.where((month == m)[:, None], tmean, np.nan), axis=0)
-                             for m in range(1, 13)])  # 12 calendar months, vectorised over counties
-        heat, expo = thornthwaite_heat_index(monthly)
+        okt = ~np.isnan(tmean)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            monthly = np.vstack([  # 12 calendar months, vectorised over counties
+                np.where(okt & (month == m)[:, None], tmean, 0.0).sum(axis=0)
+                / (okt & (month == m)[:, None]).sum(axis=0)
+                for m in range(1, 13)])
+            heat, expo = thornthwaite_heat_index(monthly)
         n_mean, ndays = _period_day_mean(_day_table(lat, daylight_hours), grid)
         arr = thornthwaite(tmean, heat[None, :], expo[None, :], n_mean, ndays[:, None])
         return arr, {"method": "Thornthwaite (1948); day length from FAO-56 eq. 34; heat index "

@@ -143,8 +143,10 @@ def fit_gamma(positive, *, estimator: Literal["mle", "thom"] = "mle", iterations
     distribution by maximum likelihood. Technometrics 2(1), 55-65.
     """
     with np.errstate(invalid="ignore", divide="ignore"):
-        mean = np.nanmean(positive, axis=1) if positive.shape[1] else np.nan
-        meanlog = np.nanmean(np.log(positive), axis=1)
+        ok = ~np.isnan(positive)
+        cnt = ok.sum(axis=1)
+        mean = np.where(ok, positive, 0.0).sum(axis=1) / cnt
+        meanlog = np.where(ok, np.log(np.where(ok, positive, 1.0)), 0.0).sum(axis=1) / cnt
         a = np.log(mean) - meanlog
         a = np.where(a > 1e-12, a, np.nan)
         alpha = (1.0 + np.sqrt(1.0 + 4.0 * a / 3.0)) / (4.0 * a)

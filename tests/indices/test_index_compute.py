@@ -202,3 +202,17 @@ def test_daily_input_end_to_end():
     assert cube_d.provenance["input_cadence"] == "daily"
     np.testing.assert_allclose(cube_d.get("spi", 4), cube_w.get("spi", 4), atol=1e-9)
     assert np.isfinite(cube_d.get("spei", 4)[3:]).all()
+
+
+def test_county_without_precipitation_is_nan_without_numpy_warnings():
+    clim, lat = _weekly(n_years=33)
+    clim.loc[clim["county_id"] == "01003", "precip_mm"] = np.nan
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        cube = compute_indices(clim, latitude_deg=lat, scales_weeks=(4,),
+                               pet_method="thornthwaite")
+    j = cube.county_ids.index("01003")
+    assert np.isnan(cube.get("spi", 4)[:, j]).all()
+    assert np.isnan(cube.get("spei", 4)[:, j]).all()
+    assert np.isfinite(cube.get("eddi", 4)[3:, j]).all()  # PET needs temperature only
+    assert np.isfinite(cube.get("spi", 4)[3:, 0]).all()
