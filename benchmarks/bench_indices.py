@@ -122,7 +122,6 @@ def part_ours_weekly(n):
 
 
 def _monthly_inputs(n):
-    from impactlink.indices.compute import _day_table  # noqa: F401  (same PET as the pipeline)
     from impactlink.indices.pet import extraterrestrial_radiation, hargreaves_samani
 
     weeks, p, tmin, tmax, lat = weekly_panel(n)
