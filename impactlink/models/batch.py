@@ -215,7 +215,9 @@ def _log_sigmoid(z: np.ndarray) -> np.ndarray:
 
 def _logit_objective(X, y, w, beta, pen) -> np.ndarray:
     eta = _mv(X, beta)
-    ll = (w * (y * _log_sigmoid(eta) + (1 - y) * _log_sigmoid(-eta))).sum(1)
+    # y log s(eta) + (1 - y) log s(-eta) = y eta - log(1 + e^eta)
+    softplus = np.maximum(eta, 0.0) + np.log1p(np.exp(-np.abs(eta)))
+    ll = (w * (y * eta - softplus)).sum(1)
     return ll - 0.5 * (pen * beta**2).sum(1)
 
 

@@ -231,6 +231,11 @@ def predict_blocks(h: Hist, coef: np.ndarray, *, use_cells: bool, n_levels: int,
 def block_losses(P: np.ndarray, N: np.ndarray) -> dict[str, np.ndarray]:
     """Per-block sums of RPS, event Brier and log loss; P (..., G, R, K), N (G, R, K)."""
     K = P.shape[-1]
+    if K == 2:  # binary: RPS is the Brier score of the event
+        q = P[..., 1]
+        sse = (N[..., 1] * (1 - q) ** 2 + N[..., 0] * q**2).sum(-1)
+        ll = -(N[..., 1] * np.log(P[..., 1]) + N[..., 0] * np.log(P[..., 0])).sum(-1)
+        return {"rps": sse, "sse": sse, "ll": ll}
     cumP = np.cumsum(P, -1)[..., : K - 1]  # (..., G, R, K-1)
     obs = (np.arange(K)[:, None] <= np.arange(K - 1)[None, :]).astype(float)  # (K, K-1)
     # RPS of a row observed at level k: sum_m (cumP_m - obs[k, m])^2
@@ -290,8 +295,22 @@ def auc_replicates(q: np.ndarray, n1: np.ndarray, n0: np.ndarray, block: np.ndar
     Pg = np.bincount(key, weights=n1[order], minlength=ng * G).reshape(ng, G)
     Ng = np.bincount(key, weights=n0[order], minlength=ng * G).reshape(ng, G)
     below = np.cumsum(Ng, 0) - Ng
-    A = Pg.T @ (below + 0.5 * Ng)  # (G, G)
+    with _one_blas_thread():  # a small product: BLAS threads only contend here
+        A = Pg.T @ (below + 0.5 * Ng)  # (G, G)
     num = np.einsum("rg,gh,rh->r", W, A, W)
     den = (W @ Pg.sum(0)) * (W @ Ng.sum(0))
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(den > 0, num / den, np.nan)
+
+
+_CONTROLLER = None
+
+
+def _one_blas_thread():
+    """Context limiting BLAS to one thread (threadpoolctl, a scikit-learn dependency)."""
+    global _CONTROLLER
+    if _CONTROLLER is None:
+        from threadpoolctl import ThreadpoolController
+
+        _CONTROLLER = ThreadpoolController()
+    return _CONTROLLER.limit(limits=1, user_api="blas")

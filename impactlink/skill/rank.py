@@ -467,7 +467,7 @@ def _fit_all(ctx, units, *, jobs, dask_address, progress, chunk=8) -> list[dict]
     for i, u in enumerate(units):
         groups.setdefault((u.kind, u.hist.n_cells, u.use_cells), []).append(i)
     tasks, where = [], []
-    for (kind, _, use_cells), idx in groups.items():
+    for (kind, _, _use_cells), idx in groups.items():
         for s in range(0, len(idx), chunk):
             part = idx[s: s + chunk]
             if kind == "single":
@@ -559,7 +559,7 @@ def _table(ctx, base, records):
     def interval(a):
         if not has_boot:
             return np.full(a.shape[0], np.nan), np.full(a.shape[0], np.nan)
-        return np.nanquantile(a[:, 1:], lo_q, axis=1), np.nanquantile(a[:, 1:], hi_q, axis=1)
+        return _quantile(a[:, 1:], lo_q), _quantile(a[:, 1:], hi_q)
 
     df = pd.DataFrame({k: [r.get(k) for r in recs] for k in _ID})
     df.insert(0, "role", t.role)
@@ -592,7 +592,7 @@ def _table(ctx, base, records):
         b = idx[np.nanargmax(df.loc[idx, "rpss"].to_numpy())]
         if has_boot:
             diff = rpss[b, 1:][None, :] - rpss[idx, 1:]
-            df.loc[idx, "indistinguishable_from_best"] = np.nanquantile(diff, lo_q, axis=1) <= 0
+            df.loc[idx, "indistinguishable_from_best"] = _quantile(diff, lo_q) <= 0
         else:
             df.loc[idx, "indistinguishable_from_best"] = idx == b
     df.loc[cand, "indistinguishable_from_best"] = df.loc[cand, "indistinguishable_from_best"]
@@ -602,7 +602,7 @@ def _table(ctx, base, records):
             return np.full(len(rows_idx), pd.NA)
         d = rpss[rows_idx] - rpss[ref_row][None, :]
         if has_boot:
-            return np.nanquantile(d[:, 1:], lo_q, axis=1) > 0
+            return _quantile(d[:, 1:], lo_q) > 0
         return d[:, 0] > 0
 
     seas = int(np.flatnonzero(df["model"].to_numpy() == "seasonal")[0])
@@ -623,6 +623,18 @@ def _table(ctx, base, records):
     for c in ("scale_weeks", "lag_weeks", "scale2_weeks"):
         df[c] = pd.array(df[c], dtype="Int64")
     return df, {"rpss": rpss, "records": recs}
+
+
+def _quantile(a: np.ndarray, q: float) -> np.ndarray:
+    """Row quantiles; the slow NaN-aware path only where a row has NaN (e.g. ROC area of a
+    replicate without events)."""
+    out = np.quantile(a, q, axis=1)
+    bad = np.isnan(out)
+    if bad.any():
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            out[bad] = np.nanquantile(a[bad], q, axis=1)
+    return out
 
 
 def _best_single(table) -> int | None:
@@ -710,7 +722,7 @@ def _boost_fold(task) -> np.ndarray:
 def _nested(ctx, records, base) -> dict:
     """Selection-aware skill: pick the best ``index`` candidate inside each outer fold."""
     singles = [r for r in records if r["model"] == "index" and "inner" in r]
-    if not singles:
+    if not singles or ctx.layout.excl.shape[0] == ctx.layout.n_main:
         return {}
     inner = np.array([r["inner"] for r in singles])  # (S, F)
     chosen = np.argmin(inner, axis=0)  # (F,)
