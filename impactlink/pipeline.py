@@ -512,7 +512,7 @@ def _best_single(table: pd.DataFrame):
     """The best single-index candidate (index, scale, lag) of a skill table, or None."""
     if table is None or table.empty:
         return None
-    single = table[table["model"].isin(["logistic", "ordinal_logit", "ordinal_probit"])]
+    single = table[table["model"] == "index"]
     single = single.dropna(subset=["rank"]) if "rank" in single else single
     if single.empty:
         return None

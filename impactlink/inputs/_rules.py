@@ -176,8 +176,35 @@ class TableCheck:
             out[c] = s[keep].reset_index(drop=True)
         frame = pd.DataFrame(out)
         # file row numbers of the kept rows, so later stages can name the row they reject
-        frame.attrs["source_rows"] = self.rows[np.asarray(keep, dtype=bool)]
+        frame.attrs["source_rows"] = SourceRows(self.rows[np.asarray(keep, dtype=bool)])
         return frame
+
+
+class SourceRows:
+    """File row numbers (1-based, header excluded) of a clean frame's rows.
+
+    Kept in ``frame.attrs["source_rows"]``; wrapped so that pandas can compare attrs
+    (a bare array is ambiguous in ``==``).
+    """
+
+    __slots__ = ("rows",)
+
+    def __init__(self, rows: np.ndarray) -> None:
+        self.rows = np.asarray(rows, dtype=np.int64)
+
+    def __array__(self, dtype=None, copy=None):
+        return self.rows if dtype is None else self.rows.astype(dtype)
+
+    def __len__(self) -> int:
+        return len(self.rows)
+
+    def __eq__(self, other: object) -> bool:
+        return isinstance(other, SourceRows) and np.array_equal(self.rows, other.rows)
+
+    __hash__ = None  # type: ignore[assignment]
+
+    def __deepcopy__(self, memo):
+        return self
 
 
 # -------------------------------------------------------------------- column converters

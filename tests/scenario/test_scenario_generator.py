@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from pathlib import Path
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -29,25 +31,16 @@ def test_extraterrestrial_radiation_fao56_example_8():
     assert ra[0, 0] == pytest.approx(32.2, abs=0.05)
 
 
-def test_hargreaves_matches_pyet():
-    # Cross-implementation check against pyet (test dependency). pyet divides by a
-    # temperature-dependent latent heat lambda (MJ/kg) where we use the fixed FAO-56
-    # factor 0.408 = 1 / 2.45; multiplying pyet by lambda / 2.45 removes that difference,
-    # leaving only floating-point and Ra-formula differences (rtol 1e-3). pyet takes
-    # latitude in radians.
-    pyet = pytest.importorskip("pyet")
-    idx = pd.date_range("2021-01-01", "2021-12-31", freq="D")
-    rng = np.random.default_rng(0)
-    tmin = pd.Series(5 + 10 * np.sin(np.arange(idx.size) / 58.0) + rng.normal(0, 2, idx.size),
-                     index=idx)
-    tmax = tmin + rng.uniform(6, 16, idx.size)
-    tmean = 0.5 * (tmin + tmax)
-    lat = 41.0
-    ref = pyet.hargreaves(tmean, tmax, tmin, np.deg2rad(lat))
-    lam = pyet.calc_lambda(tmean)
-    ours = hargreaves_pet(tmin.to_numpy()[:, None], tmax.to_numpy()[:, None],
-                          idx.day_of_year.to_numpy(), np.array([lat]))[:, 0]
-    np.testing.assert_allclose(ours, (ref * lam / 2.45).to_numpy(), rtol=1e-3)
+def test_hargreaves_matches_climate_indices():
+    # Cross-implementation check: climate-indices 3.1.0 eto.eto_hargreaves (FAO-56 eq. 52),
+    # one leap year of daily temperatures at 35 N, stored by
+    # tests/reference/indices_make_reference.py. Same equations; rtol 1e-6 covers the
+    # rounding of the stored values.
+    ref = pd.read_csv(Path(__file__).parents[1] / "reference" / "indices_hargreaves_reference.csv",
+                      parse_dates=["date"])
+    ours = hargreaves_pet(ref["tmin_c"].to_numpy()[:, None], ref["tmax_c"].to_numpy()[:, None],
+                          ref["date"].dt.day_of_year.to_numpy(), np.array([35.0]))[:, 0]
+    np.testing.assert_allclose(ours, ref["et0_mm"].to_numpy(), rtol=1e-6, atol=1e-6)
 
 
 # ------------------------------------------------------------------ hand-computed cases
