@@ -237,14 +237,18 @@ def block_losses(P: np.ndarray, N: np.ndarray) -> dict[str, np.ndarray]:
         ll = -(N[..., 1] * np.log(P[..., 1]) + N[..., 0] * np.log(P[..., 0])).sum(-1)
         return {"rps": sse, "sse": sse, "ll": ll}
     cumP = np.cumsum(P, -1)[..., : K - 1]  # (..., G, R, K-1)
-    obs = (np.arange(K)[:, None] <= np.arange(K - 1)[None, :]).astype(float)  # (K, K-1)
-    # RPS of a row observed at level k: sum_m (cumP_m - obs[k, m])^2
-    rps_k = ((cumP[..., None, :] - obs) ** 2).sum(-1)  # (..., G, R, K)
+    # RPS of a row observed at level k: sum_m (C_m - [k <= m])^2
+    #   = sum_m C_m^2 - 2 sum_{m >= k} C_m + (K - 1 - k)
+    s2 = (cumP**2).sum(-1)
+    tail = np.cumsum(cumP[..., ::-1], -1)[..., ::-1]  # T_k = sum_{m >= k} C_m, k < K-1
+    n = N.sum(-1)
+    rps = (s2 * n + (N * (K - 1 - np.arange(K))).sum(-1)
+           - 2.0 * (N[..., : K - 1] * tail).sum(-1)).sum(-1)
     q = 1.0 - P[..., 0]  # event chance
     n1 = N[..., 1:].sum(-1)
     n0 = N[..., 0]
     return {
-        "rps": (rps_k * N).sum((-1, -2)),
+        "rps": rps,
         "sse": (n1 * (1 - q) ** 2 + n0 * q**2).sum(-1),
         "ll": -(N * np.log(P)).sum((-1, -2)),
     }

@@ -108,3 +108,17 @@ def test_rate_predictions_hand_case():
     layout = E.make_layout(np.arange(2), np.arange(2), 2, 2, k_inner=0, n_boot=0, seed=0)
     P = E.rate_predictions(N, layout, shrink=0.0)
     np.testing.assert_allclose(P[:, 0, 1], [0.5, 0.25])
+
+
+def test_block_rps_equals_scores_module_for_ordinal():
+    # per-block RPS sums of the fast path (closed form) against ranked_probability_score
+    # applied row by row (tiny hand-checkable case: 2 blocks, 3 rows, 4 levels)
+    rng = np.random.default_rng(4)
+    P = rng.dirichlet(np.ones(4), size=(2, 3))
+    N = rng.integers(0, 3, size=(2, 3, 4)).astype(float)
+    got = E.block_losses(P, N)["rps"]
+    for g in range(2):
+        y = np.repeat(np.tile(np.arange(4), 3), N[g].ravel().astype(int))
+        rows = np.repeat(np.repeat(np.arange(3), 4), N[g].ravel().astype(int))
+        ref = S.ranked_probability_score(y, P[g][rows]) * y.size
+        assert got[g] == pytest.approx(ref, rel=1e-12)
