@@ -19,8 +19,9 @@ import numpy as np
 import pandas as pd
 from matplotlib.figure import Figure
 
+from impactlink.report._select import BASELINE_MODELS, PERSISTENCE_COMBOS, single_candidates
 from impactlink.report.palette import CATEGORICAL, NEUTRAL, category_colours, sequential_cmap
-from impactlink.report.text import candidate_label, index_name, score_label
+from impactlink.report.text import candidate_label, index_name, score_label, target_label
 
 __all__ = [
     "FigureInputError",
@@ -38,12 +39,6 @@ __all__ = [
     "trigger_timeline",
     "odds_ratio_chart",
 ]
-
-#: Models that are baselines, not index candidates.
-BASELINE_MODELS = ("climatology", "seasonal", "persistence")
-
-#: Models that combine an index with the persistence baseline (both spellings accepted).
-PERSISTENCE_COMBOS = ("index_plus_persistence", "index_persistence")
 
 _MARKERS = ("o", "s", "^", "D", "v", "P")
 _LINESTYLES = ("-", "--", "-.", ":", (0, (5, 1, 1, 1)), (0, (1, 1)))
@@ -130,11 +125,7 @@ def figure_png(fig: Figure, *, dpi: int = 110) -> bytes:
 
 def _candidates(skill: pd.DataFrame) -> pd.DataFrame:
     """Single-index candidate rows (no baselines, no second index)."""
-    keep = ~skill["model"].isin(BASELINE_MODELS + PERSISTENCE_COMBOS).fillna(False)
-    keep &= skill["index"].notna()
-    if "index2" in skill.columns:
-        keep &= skill["index2"].isna()
-    return skill.loc[keep.to_numpy(dtype=bool)]
+    return single_candidates(skill)
 
 
 # ------------------------------------------------------------------------ skill heat map
@@ -254,7 +245,7 @@ def skill_heatmap(skill: pd.DataFrame, *, impact: str, target: str, score: str =
     if image is not None:
         bar = fig.colorbar(image, ax=axes.ravel().tolist(), shrink=0.9)
         bar.set_label(f"{score_label(score)} (0 = climatology)")
-    fig.suptitle(f"{impact} \u2014 {target}: skill by time scale and lag", fontsize=10)
+    fig.suptitle(f"{impact} \u2014 {target_label(impact, target)}: skill by time scale and lag", fontsize=10)
     return fig
 
 
@@ -328,7 +319,7 @@ def candidate_intervals(
             ax.axvline(float(vals.max()), color=CATEGORICAL["rust"], lw=1.2, ls=style,
                        label=f"{model} baseline")
     ax.set_xlabel(f"{score_label(score)} (higher is better; 0 = climatology)")
-    ax.set_title(f"{impact} \u2014 {target}: best candidates with intervals")
+    ax.set_title(f"{impact} \u2014 {target_label(impact, target)}: best candidates with intervals")
     fig.legend(*ax.get_legend_handles_labels(), loc="outside lower center", ncol=2)
     return fig
 
@@ -408,7 +399,7 @@ def impact_curves(
     )
     ax.set_ylabel("chance of impact (0\u20131)")
     ax.set_ylim(0, 1)
-    ax.set_title(f"{impact} \u2014 {target}: impact curve")
+    ax.set_title(f"{impact} \u2014 {target_label(impact, target)}: impact curve")
     ax.legend(loc="best")
     return fig
 
@@ -463,7 +454,7 @@ def reliability_diagram(reliability: pd.DataFrame, *, impact: str, target: str) 
     ax.set_xlim(0, 1)
     ax.set_ylim(0, 1)
     ax.set_ylabel("observed frequency (0\u20131)")
-    ax.set_title(f"{impact} \u2014 {target}: reliability")
+    ax.set_title(f"{impact} \u2014 {target_label(impact, target)}: reliability")
     ax.legend(loc="upper left")
     axc.set_xlabel("forecast chance (0\u20131)")
     axc.set_ylabel("forecasts (count)")

@@ -157,6 +157,8 @@ def _read_table(folder: Path, name: str, needed: tuple[str, ...], problems: list
             frame = pd.read_parquet(parquet)
         else:
             return None
+    except pd.errors.EmptyDataError:
+        return None  # a stage that had nothing to write: "not computed", not a fault
     except Exception as exc:  # noqa: BLE001 - any reader failure means "unusable", reported
         _problem(problems, f"{name}: could not be read ({type(exc).__name__}: {exc})")
         return None

@@ -28,6 +28,7 @@ from impactlink.report.text import (
     fmt_num,
     index_name,
     score_label,
+    target_label,
 )
 from impactlink.schema import COUNTY
 
@@ -72,6 +73,10 @@ class FigureSink:
 def _slug(text: str) -> str:
     keep = "".join(ch if ch.isalnum() else "_" for ch in str(text).lower())
     return "_".join(part for part in keep.split("_") if part)[:80] or "figure"
+
+
+def _title(impact, target) -> str:
+    return f"{impact} \u2014 {target_label(impact, target)}"
 
 
 def _absent(what: str = NOT_COMPUTED) -> Markup:
@@ -182,11 +187,11 @@ def answer_cards(run: RunFolder, figs: FigureSink | None = None) -> Markup:
                 el("dt", "Evidence"), el("dd", main.rests_on),
                 *( [el("dt", "Beyond persistence"), el("dd", main.persistence)]
                    if main.persistence else []))
-        extra = [el("li", el("strong", f"{a.target}: "), f"{a.which}. {a.verdict} "
+        extra = [el("li", el("strong", f"{target_label(a.impact, a.target)}: "), f"{a.which}. {a.verdict} "
                     f"{a.how_sure} {a.persistence}".strip()) for a in others]
         cards.append(el(
             "article",
-            el("h3", f"{impact} \u2014 {main.target}"),
+            el("h3", _title(impact, main.target)),
             paragraph(main.verdict, class_="verdict"),
             dl,
             el("ul", *extra, class_="others") if extra else Markup(""),
@@ -270,7 +275,7 @@ def curves_section(run: RunFolder, figs: FigureSink) -> Markup:
     for impact, target in _pairs(curves):
         sub = _sel(curves, impact=impact, target=target)
         first = sub.iloc[0]
-        parts.append(el("h3", f"{impact} \u2014 {target}"))
+        parts.append(el("h3", _title(impact, target)))
         cr = None
         if crossings is not None:
             cr = _sel(crossings, impact=impact, target=target)
@@ -311,7 +316,7 @@ def skill_section(run: RunFolder, figs: FigureSink) -> Markup:
         if cand.empty:
             continue
         best = cand.loc[cand[score].idxmax()]
-        parts.append(el("h3", f"{impact} \u2014 {target}"))
+        parts.append(el("h3", _title(impact, target)))
         label = candidate_label(best["index"], best["scale_weeks"], best["lag_weeks"])
         parts.append(figs.add(
             f"skill_{impact}_{target}",
@@ -395,7 +400,7 @@ def reliability_section(run: RunFolder, figs: FigureSink) -> Markup:
     for impact, target in _pairs(rel):
         sub = _sel(rel, impact=impact, target=target)
         models = ", ".join(dict.fromkeys(sub["model"].astype(str)))
-        parts.append(el("h3", f"{impact} \u2014 {target}"))
+        parts.append(el("h3", _title(impact, target)))
         parts.append(figs.add(
             f"reliability_{impact}_{target}",
             lambda s=sub, i=impact, t=target: F.reliability_diagram(s, impact=i, target=t),

@@ -12,6 +12,8 @@ from dataclasses import dataclass
 
 import pandas as pd
 
+from impactlink.report._select import single_candidates
+
 __all__ = [
     "index_name",
     "score_label",
@@ -23,6 +25,7 @@ __all__ = [
     "verdict",
     "CAUTIONS",
     "CAUTIONS_SHORT",
+    "target_label",
 ]
 
 _INDEX_NAMES = {
@@ -119,10 +122,13 @@ def fmt_num(value, digits: int = 2) -> str:
     '0.20'
     >>> fmt_num(float("nan"))
     'n/a'
+    >>> fmt_num(-0.0004)
+    '0.00'
     """
     if not _present(value):
         return "n/a"
-    return f"{float(value):.{digits}f}"
+    text = f"{float(value):.{digits}f}"
+    return text[1:] if text.startswith("-") and float(text) == 0 else text  # no "-0.00"
 
 
 def fmt_interval(estimate, lo, hi, *, digits: int = 2) -> str:
@@ -211,47 +217,39 @@ def answer_card(summary: pd.Series, skill: pd.DataFrame | None = None) -> Answer
         "rate, 1 = perfect."
     )
     baselines, flags, ties = "", {}, []
+    best_label = candidate_label(g("best_index"), g("best_scale_weeks"), g("best_lag_weeks"),
+                                 short=True)
     if skill is not None and not skill.empty and score in skill.columns:
         rows = skill[((skill["impact"] == g("impact")) & (skill["target"] == g("target")))
                      .fillna(False).to_numpy(dtype=bool)]
-        parts = []
-        for model in ("seasonal", "persistence"):
-            # persistence has one row per lag: quote the one at the best lag, else the best
-            base = rows[(rows["model"] == model).fillna(False).to_numpy(bool)].dropna(
-                subset=[score])
-            at_lag = base[(base["lag_weeks"] == g("best_lag_weeks")).fillna(False).to_numpy(bool)]
-            pick = at_lag if not at_lag.empty else base
-            if not pick.empty:
-                parts.append(f"{model} {fmt_num(pick[score].max())}")
-        best = rows[((rows["index"] == g("best_index"))
-                     & (rows["scale_weeks"] == g("best_scale_weeks"))
-                     & (rows["lag_weeks"] == g("best_lag_weeks"))).fillna(False).to_numpy(bool)]
-        if not best.empty:
-            b = best.loc[best[score].idxmax()] if best[score].notna().any() else best.iloc[0]
+        baselines = _baseline_text(rows, score, g("best_lag_weeks"))
+        singles = single_candidates(rows)
+        b = _best_row(singles, score, g("best_index"), g("best_scale_weeks"),
+                      g("best_lag_weeks"), g("best_model"))
+        if b is not None:
             flags = {k: b.get(k) for k in ("beats_climatology", "beats_seasonal",
                                            "beats_persistence") if k in b.index}
         beaten = [k.removeprefix("beats_") for k, v in flags.items() if _present(v) and _truthy(v)]
         missed = [k.removeprefix("beats_") for k, v in flags.items()
                   if _present(v) and not _truthy(v)]
-        baselines = "Baseline scores: " + (", ".join(parts) if parts else "none in this run") + "."
         if beaten:
             baselines += " Beats " + ", ".join(beaten) + "."
         if missed:
             baselines += " Does not beat " + ", ".join(missed) + "."
-        if "indistinguishable_from_best" in rows.columns:
-            tie_rows = rows[rows["indistinguishable_from_best"].astype("boolean").fillna(False)
-                            .to_numpy(bool)]
-            tie_rows = tie_rows.sort_values(score, ascending=False)
-            ties = [candidate_label(r["index"], r["scale_weeks"], r["lag_weeks"], short=True)
-                    for _, r in tie_rows.iterrows()
-                    if not (r["index"] == g("best_index") and r["scale_weeks"] == g(
-                        "best_scale_weeks") and r["lag_weeks"] == g("best_lag_weeks"))]
+        if "indistinguishable_from_best" in singles.columns:
+            tie_rows = singles[singles["indistinguishable_from_best"].astype("boolean")
+                               .fillna(False).to_numpy(bool)].sort_values(score, ascending=False)
+            labels = [candidate_label(r["index"], r["scale_weeks"], r["lag_weeks"], short=True)
+                      for _, r in tie_rows.iterrows()]
+            ties = [lab for lab in dict.fromkeys(labels) if lab != best_label]
     n_ind = g("n_indistinguishable")
-    n_other = int(n_ind) - 1 if _present(n_ind) and int(n_ind) >= 1 else len(ties)
+    n_other = max(int(n_ind) - 1, 0) if _present(n_ind) else len(ties)
     if n_other <= 0:
         how_sure = "No other candidate is statistically as good as the best."
     else:
-        shown = "; ".join(ties[:5]) + ("; ..." if len(ties) > 5 else "")
+        shown = "; ".join(ties[:5])
+        if len(ties) > 5:
+            shown += f"; and {len(ties) - 5} more"
         how_sure = (f"{n_other} other candidate{'s are' if n_other != 1 else ' is'} statistically "
                     f"as good as the best" + (f": {shown}." if ties else "."))
     share = g("nested_most_picked_share")
@@ -259,7 +257,8 @@ def answer_card(summary: pd.Series, skill: pd.DataFrame | None = None) -> Answer
         picks = g("nested_distinct_picks")
         how_sure += (f" Re-running the search without each year's data picked the same "
                      f"candidate {100 * float(share):.0f} % of the time"
-                     + (f" ({int(picks)} different picks)." if _present(picks) else "."))
+                     + (f" ({int(picks)} different candidates were picked)."
+                        if _present(picks) and int(picks) > 1 else "."))
     years = f" in {int(g('n_years'))} years" if _present(g("n_years")) else ""
     rests_on = (f"Rests on {_int(g('events'))} events among {_int(g('n'))} scored cases{years}.")
     persistence = ""
@@ -285,6 +284,47 @@ def answer_card(summary: pd.Series, skill: pd.DataFrame | None = None) -> Answer
                         beats_persistence=flags.get("beats_persistence")),
         persistence=persistence,
     )
+
+
+def _baseline_text(rows: pd.DataFrame, score: str, best_lag) -> str:
+    parts = []
+    for model in ("seasonal", "persistence"):
+        # persistence has one row per lag: quote the one at the best lag, else the best
+        base = rows[(rows["model"] == model).fillna(False).to_numpy(bool)].dropna(subset=[score])
+        at_lag = base[(base["lag_weeks"] == best_lag).fillna(False).to_numpy(bool)]
+        pick = at_lag if not at_lag.empty else base
+        if not pick.empty:
+            parts.append(f"{model} {fmt_num(pick[score].max())}")
+    return "Baseline scores: " + (", ".join(parts) if parts else "none in this run") + "."
+
+
+def _best_row(singles: pd.DataFrame, score: str, index, scale, lag, model):
+    """The row of the best candidate: its own model if named, else the plain index model."""
+    match = singles[((singles["index"] == index) & (singles["scale_weeks"] == scale)
+                     & (singles["lag_weeks"] == lag)).fillna(False).to_numpy(bool)]
+    if match.empty:
+        return None
+    for wanted in (model, "index"):
+        if _present(wanted):
+            same = match[(match["model"] == wanted).fillna(False).to_numpy(bool)]
+            if not same.empty:
+                return same.iloc[0]
+    return match.loc[match[score].idxmax()] if match[score].notna().any() else match.iloc[0]
+
+
+def target_label(impact, target) -> str:
+    """A target name without its impact prefix ("restrictions:onset:4w" -> "onset:4w").
+
+    Examples
+    --------
+    >>> target_label("restrictions", "restrictions:onset:4w")
+    'onset:4w'
+    >>> target_label("crop", "class")
+    'class'
+    """
+    impact, target = str(impact), str(target)
+    prefix = impact + ":"
+    return target[len(prefix):] if target.startswith(prefix) and len(target) > len(prefix) else target
 
 
 def _present(value) -> bool:

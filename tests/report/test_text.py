@@ -12,6 +12,7 @@ from impactlink.report.text import (
     fmt_num,
     index_name,
     score_label,
+    target_label,
     verdict,
 )
 
@@ -23,6 +24,9 @@ def test_labels_and_numbers():
     assert index_name(None) == "no index" and index_name("EDDI") == "EDDI"
     assert score_label("rpss") == "ranked probability skill score"
     assert fmt_num(0.2049) == "0.20" and fmt_num(None) == "n/a" and fmt_num(pd.NA) == "n/a"
+    assert fmt_num(-0.0008) == "0.00" and fmt_num(-0.006) == "-0.01"
+    assert target_label("restrictions", "restrictions:onset:4w") == "onset:4w"
+    assert target_label("crop", "crop:") == "crop:" and target_label("a", "b") == "b"
     assert fmt_interval(0.214, 0.12, 0.3) == "0.21 (0.12 to 0.30)"
     assert fmt_interval(0.214, np.nan, 0.3) == "0.21"
 
@@ -78,7 +82,8 @@ def test_answer_card_without_skill_table_still_answers():
     assert a.how_sure == "No other candidate is statistically as good as the best."
     a3 = answer_card(pd.concat([summary, pd.Series(dict(
         nested_most_picked_share=0.6, nested_distinct_picks=4, n_years=31))]))
-    assert a3.how_sure.endswith("picked the same candidate 60 % of the time (4 different picks).")
+    assert a3.how_sure.endswith("picked the same candidate 60 % of the time (4 different "
+                                "candidates were picked).")
     assert a3.rests_on == "Rests on 27 events among 900 scored cases in 31 years."
     a2 = answer_card(summary.drop(labels=["events", "n"]))
     assert a2.rests_on == "Rests on an unknown number of events among an unknown number of scored cases."
@@ -109,3 +114,25 @@ def test_baselines_quote_persistence_at_the_best_lag():
     skill = pd.concat([skill[skill["model"] != "persistence"], per_lag], ignore_index=True)
     a = answer_card(summary, skill)
     assert "persistence 0.20" in a.baselines  # the best candidate's lag is 4 weeks
+
+
+def test_ties_are_single_candidates_listed_once_and_flags_come_from_the_index_model():
+    # The skill stage scores several models on the same index, time scale and lag
+    # ("index", "boosted", "index_persistence"): ties are listed once, the combination with
+    # persistence is not a candidate, and the flags are those of the plain index model.
+    summary, _ = _rows()
+    summary = summary.drop(labels=["best_model"])
+    skill = pd.DataFrame([
+        ("spi", 13, 4, "index", 0.31, True, True, True, False),
+        ("spi", 13, 4, "index_persistence", 0.40, False, False, False, False),
+        ("spi", 13, 4, "boosted", 0.32, True, True, True, False),
+        ("spei", 8, 0, "index", 0.30, True, True, True, False),
+        ("spei", 8, 0, "boosted", 0.30, True, True, True, False),
+    ], columns=["index", "scale_weeks", "lag_weeks", "model", "bss",
+                "indistinguishable_from_best", "beats_climatology", "beats_seasonal",
+                "beats_persistence"])
+    skill["impact"], skill["target"] = "restrictions", "onset"
+    summary["n_indistinguishable"] = 2
+    a = answer_card(summary, skill)
+    assert a.how_sure == "1 other candidate is statistically as good as the best: SPEI 8w lag 0w."
+    assert a.baselines.endswith("Beats climatology, seasonal. Does not beat persistence.")
