@@ -79,7 +79,7 @@ def index_name(index) -> str:
     """Display name of an index ("spi" -> "SPI"); unknown names are kept as given."""
     if index is None or (isinstance(index, float) and math.isnan(index)) or index is pd.NA:
         return "no index"
-    return _INDEX_NAMES.get(str(index).lower(), str(index))
+    return _INDEX_NAMES.get(str(index).lower(), str(index).replace("_", " "))
 
 
 def score_label(score: str) -> str:
@@ -106,7 +106,10 @@ def candidate_label(index, scale_weeks, lag_weeks, *, short: bool = False) -> st
     'SPEI 26w lag 0w'
     """
     parts = [index_name(index)]
-    if _present(scale_weeks):
+    if _present(scale_weeks) and float(scale_weeks) == 0:
+        parts.append("as supplied" if not short else "")  # a supplied indicator, not summed
+        parts = [p for p in parts if p]
+    elif _present(scale_weeks):
         parts.append(f"{int(scale_weeks)}w" if short else f"{int(scale_weeks)}-week time scale")
     if _present(lag_weeks):
         parts.append(f"lag {int(lag_weeks)}w" if short else f"{int(lag_weeks)}-week lag")
@@ -267,7 +270,8 @@ def answer_card(summary: pd.Series, skill: pd.DataFrame | None = None) -> Answer
         persistence = str(g("persistence_sentence"))
     elif _present(g("index_adds_skill")) and _present(g("persistence_gain")):
         word = "adds" if _truthy(g("index_adds_skill")) else "does not clearly add"
-        persistence = (f"For {g('target')}, the index {word} warning beyond persistence "
+        persistence = (f"For {target_label(g('impact'), g('target'))}, the index {word} "
+                       "warning beyond persistence "
                        f"(knowing the current impact level): skill gain {gain}.")
     elif _present(g("persistence_gain")):
         persistence = f"Gain over persistence: {gain}."

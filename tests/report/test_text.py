@@ -20,7 +20,9 @@ from impactlink.report.text import (
 def test_labels_and_numbers():
     assert candidate_label("spi", 13, 4) == "SPI, 13-week time scale, 4-week lag"
     assert candidate_label("spei", 26.0, 0.0, short=True) == "SPEI 26w lag 0w"
-    assert candidate_label("my_gauge", np.nan, 2) == "my_gauge, 2-week lag"
+    assert candidate_label("my_gauge", np.nan, 2) == "my gauge, 2-week lag"
+    assert candidate_label("soil_moisture", 0, 4) == "soil moisture, as supplied, 4-week lag"
+    assert candidate_label("soil_moisture", 0, 4, short=True) == "soil moisture lag 4w"
     assert index_name(None) == "no index" and index_name("EDDI") == "EDDI"
     assert score_label("rpss") == "ranked probability skill score"
     assert fmt_num(0.2049) == "0.20" and fmt_num(None) == "n/a" and fmt_num(pd.NA) == "n/a"
@@ -102,7 +104,7 @@ def test_summary_with_stage_specific_score_columns_is_normalised():
                    ].tolist() == ["rpss", 0.3, 0.2, 0.1, 0.28]
     a = answer_card(out.iloc[0])
     assert a.how_good.startswith("Ranked probability skill score 0.20 (0.10 to 0.28)")
-    assert a.persistence == ("For r:onset, the index does not clearly add warning beyond "
+    assert a.persistence == ("For onset, the index does not clearly add warning beyond "
                              "persistence (knowing the current impact level): skill gain "
                              "0.01 (-0.02 to 0.04).")
 
