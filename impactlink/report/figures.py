@@ -171,82 +171,92 @@ def skill_heatmap(skill: pd.DataFrame, *, impact: str, target: str, score: str =
         best_cell = best_cell.merge(ties.reset_index(), on=["index", "scale_weeks", "lag_weeks"])
     else:
         best_cell["_tie"] = False
-    indices = sorted(best_cell["index"].unique(), key=str)
-    scales = np.sort(best_cell["scale_weeks"].unique())
     lags = np.sort(best_cell["lag_weeks"].unique())
     top = best_cell.loc[best_cell[score].idxmax()]
     vmax = max(float(best_cell[score].max()), 0.05)
-    vmin = 0.0
-    cmap = sequential_cmap()
-
-    n = len(indices)
+    panels = _heatmap_panels(best_cell, score)
+    n = len(panels)
     ncol = min(n, 3)
     nrow = int(np.ceil(n / ncol))
+    tallest = max(len(p[1]) for p in panels)
     fig = Figure(
-        figsize=(2.6 * ncol + 1.2, 0.32 * len(scales) * nrow + 1.3 * nrow + 0.4),
-        layout="constrained",
+        figsize=(2.6 * ncol + 1.2, (0.32 * tallest + 1.3) * nrow + 0.4), layout="constrained"
     )
-    axes = fig.subplots(nrow, ncol, squeeze=False, sharey=True)
+    axes = fig.subplots(nrow, ncol, squeeze=False)
     image = None
     for k, ax in enumerate(axes.ravel()):
         if k >= n:
             ax.set_visible(False)
             continue
-        ix = indices[k]
-        cell = best_cell[best_cell["index"] == ix]
-        grid = (
-            cell.pivot(index="scale_weeks", columns="lag_weeks", values=score)
-            .reindex(index=scales, columns=lags)
-        )
-        values = grid.to_numpy(dtype=float)
-        image = ax.imshow(
-            np.ma.masked_invalid(np.clip(values, vmin, vmax)), cmap=cmap, vmin=vmin, vmax=vmax,
-            aspect="auto", origin="lower",
-        )
-        ax.grid(False)
+        title, row_keys, row_labels, ylabel, cell = panels[k]
+        values = cell.pivot(index="_row", columns="lag_weeks", values=score).reindex(
+            index=row_keys, columns=lags).to_numpy(dtype=float)
+        ties = cell.pivot(index="_row", columns="lag_weeks", values="_tie").reindex(
+            index=row_keys, columns=lags).fillna(False).to_numpy(dtype=bool)
+        image = _heat_cells(ax, values, ties, vmax)
         ax.set_xticks(range(len(lags)), [str(int(v)) for v in lags])
-        ax.set_yticks(range(len(scales)), [str(int(v)) for v in scales])
-        ax.set_title(index_name(ix))
+        ax.set_yticks(range(len(row_keys)), row_labels)
+        ax.set_title(title)
         ax.set_xlabel("lag (weeks)")
-        if k % ncol == 0:
-            ax.set_ylabel("time scale (weeks)")
-        ties = (
-            cell.pivot(index="scale_weeks", columns="lag_weeks", values="_tie")
-            .reindex(index=scales, columns=lags)
-            .fillna(False)
-            .to_numpy(dtype=bool)
-        )
-        rgba = cmap(np.clip((np.nan_to_num(values) - vmin) / (vmax - vmin), 0, 1))
-        light = (rgba[..., :3] @ np.array([0.2126, 0.7152, 0.0722])) > 0.35
-        for i in range(len(scales)):  # a few dozen cells: annotating in a loop is fine
-            for j in range(len(lags)):
-                v = values[i, j]
-                if np.isnan(v):
-                    continue
-                colour = NEUTRAL["text"] if light[i, j] else "white"
-                mark = "\u2022" if ties[i, j] else ""
-                ax.text(j, i, f"{v:.2f}{mark}", ha="center", va="center", fontsize=7, color=colour)
-                if v <= 0:
-                    ax.add_patch(
-                        matplotlib.patches.Rectangle(
-                            (j - 0.5, i - 0.5), 1, 1, fill=False, hatch="///",
-                            edgecolor=NEUTRAL["baseline"], linewidth=0,
-                        )
-                    )
-        if ix == top["index"]:
-            i = int(np.searchsorted(scales, top["scale_weeks"]))
-            j = int(np.searchsorted(lags, top["lag_weeks"]))
-            ax.add_patch(
-                matplotlib.patches.Rectangle(
-                    (j - 0.5, i - 0.5), 1, 1, fill=False, edgecolor=CATEGORICAL["marigold"],
-                    linewidth=2.5,
-                )
-            )
+        ax.set_ylabel(ylabel)
+        is_top = cell[(cell["index"] == top["index"]) & (cell["scale_weeks"] == top["scale_weeks"])
+                      & (cell["lag_weeks"] == top["lag_weeks"])]
+        if not is_top.empty:
+            i = row_keys.index(is_top["_row"].iloc[0])
+            jj = int(np.searchsorted(lags, top["lag_weeks"]))
+            ax.add_patch(matplotlib.patches.Rectangle(
+                (jj - 0.5, i - 0.5), 1, 1, fill=False, edgecolor=CATEGORICAL["marigold"],
+                linewidth=2.5))
     if image is not None:
         bar = fig.colorbar(image, ax=axes.ravel().tolist(), shrink=0.9)
         bar.set_label(f"{score_label(score)} (0 = climatology)")
-    fig.suptitle(f"{impact} \u2014 {target_label(impact, target)}: skill by time scale and lag", fontsize=10)
+    fig.suptitle(f"{impact} \u2014 {target_label(impact, target)}: skill by time scale and lag",
+                 fontsize=10)
     return fig
+
+
+def _heatmap_panels(best_cell: pd.DataFrame, score: str) -> list:
+    """One panel per computed index (rows = time scales); supplied indicators, which have no
+    time scale (``scale_weeks == 0``), share one panel with a row each."""
+    supplied_mask = (best_cell["scale_weeks"] == 0).to_numpy()
+    computed = best_cell[~supplied_mask].assign(_row=lambda f: f["scale_weeks"].astype(float))
+    supplied = best_cell[supplied_mask].assign(_row=lambda f: f["index"].astype(str))
+    panels = []
+    scales = sorted(computed["_row"].unique())
+    for ix in sorted(computed["index"].unique(), key=str):
+        cell = computed[(computed["index"] == ix).to_numpy()]
+        panels.append((index_name(ix), scales, [str(int(v)) for v in scales],
+                       "time scale (weeks)", cell))
+    if not supplied.empty:
+        names = sorted(supplied["_row"].unique())
+        panels.append(("supplied indicators", names, [index_name(v) for v in names], "",
+                       supplied))
+    return panels
+
+
+def _heat_cells(ax, values: np.ndarray, ties: np.ndarray, vmax: float):
+    """Colour, annotate and hatch the cells of one heat-map panel."""
+    cmap = sequential_cmap()
+    image = ax.imshow(np.ma.masked_invalid(np.clip(values, 0.0, vmax)), cmap=cmap, vmin=0.0,
+                      vmax=vmax, aspect="auto", origin="lower")
+    ax.grid(False)
+    rgba = cmap(np.clip(np.nan_to_num(values) / vmax, 0, 1))
+    light = (rgba[..., :3] @ np.array([0.2126, 0.7152, 0.0722])) > 0.35
+    rows, cols = values.shape
+    for i in range(rows):  # a few dozen cells: annotating in a loop is fine
+        for j in range(cols):
+            v = values[i, j]
+            if np.isnan(v):
+                continue
+            text = f"{v:.2f}"
+            text = text[1:] if text == "-0.00" else text
+            ax.text(j, i, text + ("\u2022" if ties[i, j] else ""), ha="center", va="center",
+                    fontsize=7, color=NEUTRAL["text"] if light[i, j] else "white")
+            if v <= 0:
+                ax.add_patch(matplotlib.patches.Rectangle(
+                    (j - 0.5, i - 0.5), 1, 1, fill=False, hatch="///",
+                    edgecolor=NEUTRAL["grid"], linewidth=0))
+    return image
 
 
 # ------------------------------------------------------------------ candidate intervals

@@ -222,3 +222,19 @@ def test_many_map_panels_wrap_onto_rows():
     assert len(rows) == 2
     with pytest.raises(F.FigureInputError, match="max_columns must be >= 1, got 0"):
         M.county_panels(_counties(), panels, max_columns=0)
+
+
+def test_supplied_indicators_share_one_heatmap_panel():
+    f = _skill()
+    extra = pd.DataFrame(dict(index=["soil_moisture", "streamflow"], scale_weeks=[0, 0],
+                              lag_weeks=[0, 2], model="index", bss=[0.05, 0.15],
+                              indistinguishable_from_best=False, impact="restrictions",
+                              target="state"))
+    fig = F.skill_heatmap(pd.concat([f, extra], ignore_index=True), impact="restrictions",
+                          target="state")
+    titles = [ax.get_title() for ax in fig.axes if ax.get_visible() and ax.get_title()]
+    assert titles == ["SPI", "supplied indicators"]
+    spi, sup = fig.axes[0], fig.axes[1]
+    assert [t.get_text() for t in spi.get_yticklabels()] == ["4", "13"]  # no 0 row
+    assert [t.get_text() for t in sup.get_yticklabels()] == ["soil moisture", "streamflow"]
+    assert sorted(t.get_text() for t in sup.texts) == ["0.05", "0.15"]
