@@ -51,6 +51,7 @@ class Hist:
     S: np.ndarray
     cell: np.ndarray
     n_cells: int
+    keep: np.ndarray | None = None  # (NB * C,) which (bin, cell) rows are kept
 
 
 def make_layout(block_fold, block_year, n_years, n_levels, *, k_inner, n_boot, seed):
@@ -92,16 +93,30 @@ def bin_codes(x: np.ndarray, n_bins: int) -> np.ndarray:
     return np.clip(b, 0, n_bins - 1)
 
 
-def build_hist(block, level, xs, bins, cell, *, n_blocks, n_bins_total, n_cells, n_levels):
-    """Counts and sums for one candidate (one pass over the rows)."""
+def build_hist(block, level, xs, bins, cell, *, n_blocks, n_bins_total, n_cells, n_levels,
+               marginal: bool = False):
+    """Counts and sums for one candidate (one pass over the rows).
+
+    With ``marginal=True`` also returns the histogram summed over cells (the same candidate
+    without the persistence split), computed from the histogram instead of the rows.
+    """
     G, NB, C, K = n_blocks, n_bins_total, n_cells, n_levels
     row = (block * NB + bins) * C + cell
     N = np.bincount(row * K + level, minlength=G * NB * C * K).reshape(G, NB * C, K)
     S = np.stack([np.bincount(row, weights=x, minlength=G * NB * C) for x in xs], axis=-1)
     S = S.reshape(G, NB * C, len(xs))
+    h = _compress(N, S, NB, C)
+    if not marginal:
+        return h
+    Nm = N.reshape(G, NB, C, K).sum(2)
+    Sm = S.reshape(G, NB, C, len(xs)).sum(2)
+    return h, _compress(Nm, Sm, NB, 1)
+
+
+def _compress(N, S, NB, C) -> Hist:
     keep = N.sum(axis=(0, 2)) > 0
     cells = np.tile(np.arange(C), NB)[keep]
-    return Hist(N=N[:, keep].astype(float), S=S[:, keep], cell=cells, n_cells=C)
+    return Hist(N=N[:, keep].astype(float), S=S[:, keep], cell=cells, n_cells=C, keep=keep)
 
 
 # --------------------------------------------------------------------------- fitting

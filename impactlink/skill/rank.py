@@ -200,24 +200,33 @@ def rank_candidates(
     frame = target.frame
     level_all = frame["level"].to_numpy(dtype=float)
     ok = np.isfinite(level_all)
-    for c in cands:  # pass 1: the rows every candidate can score
-        ok &= np.isfinite(_feature(features, c, len(frame)))
-    rows = np.flatnonzero(ok)
-    if rows.size == 0:
-        raise ValueError(
-            f"target {target.name!r}: no row where every candidate is defined; drop candidates "
-            "whose time scale or lag runs past the index record"
-        )
+    # one pass in the usual case: assume every candidate is defined wherever the level is;
+    # the histogram pass stops at the first candidate with a gap, and then a first pass
+    # finds the rows every candidate can score
+    units = None
+    for attempt in range(2):
+        rows = np.flatnonzero(ok)
+        if rows.size == 0:
+            raise ValueError(
+                f"target {target.name!r}: no row where every candidate is defined; drop "
+                "candidates whose time scale or lag runs past the index record"
+            )
+        ctx = _Context.build(target, rows, cv=cv, k_folds=k_folds, n_boot=n_boot, ci=ci,
+                             seed=seed, k_inner=k_inner)
+        units = _histograms(ctx, features, cands, n_bins=n_bins, pairs=pairs,
+                            pair_bins=pair_bins)
+        if units is not None or attempt == 1:
+            break
+        for c in cands:  # pass 1: the rows every candidate can score
+            ok &= np.isfinite(_feature(features, c, len(frame)))
     if rows.size < len(frame):
         warnings.warn(
             f"target {target.name!r}: {len(frame) - rows.size} of {len(frame)} rows dropped "
-            "because some candidate is undefined there (spin-up of long time scales or lags)",
+            "because the level or some candidate is undefined there (spin-up of long time "
+            "scales or lags)",
             SkillWarning, stacklevel=2,
         )
-    ctx = _Context.build(target, rows, cv=cv, k_folds=k_folds, n_boot=n_boot, ci=ci,
-                         seed=seed, k_inner=k_inner)
     base = _baselines(ctx, cands)
-    units = _histograms(ctx, features, cands, n_bins=n_bins, pairs=pairs, pair_bins=pair_bins)
     records = _fit_all(ctx, units, jobs=jobs, dask_address=dask_address, progress=progress)
     table, reps = _table(ctx, base, records)
     best = _best_single(table)
@@ -405,58 +414,59 @@ class _Unit:
     n_bins: int
 
 
-def _histograms(ctx, features, cands, *, n_bins, pairs, pair_bins) -> list[_Unit]:
+def _histograms(ctx, features, cands, *, n_bins, pairs, pair_bins) -> list[_Unit] | None:
     by_group: dict[tuple[str, int], list[int]] = {}
     for ix, sc, lg in cands:
         by_group.setdefault((ix, lg), []).append(sc)
     units = []
     n_full = len(ctx.target.frame)
-    G, K = ctx.layout.n_blocks, ctx.layout.n_levels
+    K = ctx.layout.n_levels
+    zero = np.zeros(ctx.rows.size, dtype=np.int64)
     for (ix, lg), scales in by_group.items():  # one pass per (index, lag) group
         cell = ctx.pers_cells.get(lg)
-        C = K + 1 if cell is not None else 1
-        cell_codes = cell if cell is not None else np.zeros(ctx.rows.size, dtype=np.int64)
         xs = {}
         for sc in sorted(set(scales)):
             x = _feature(features, (ix, sc, lg), n_full)[ctx.rows]
+            if not np.isfinite(x).all():
+                return None  # a gap: the caller finds the common rows first
             mu, sd = float(x.mean()), float(x.std())
-            z = (x - mu) / (sd if sd > 0 else 1.0)
-            xs[sc] = (z, mu, sd if sd > 0 else 1.0)
+            sd = sd if sd > 0 else 1.0
+            z = (x - mu) / sd
+            xs[sc] = (z, mu, sd, E.bin_codes(z, pair_bins) if pairs else None)
             b = E.bin_codes(z, n_bins)
-            tr = ((mu, xs[sc][2], float(z.min()), float(z.max())),)
-            h, rmap = _hist(ctx, [z], b, np.zeros_like(b), n_bins, 1)
-            units.append(_Unit("single", (ix, sc, lg), h, lg, False, tr, rmap, n_bins))
-            if cell is not None:  # the index-plus-persistence variant: rows by bin x level known
-                h, rmap = _hist(ctx, [z], b, cell_codes, n_bins, C)
-                units.append(_Unit("single_pers", (ix, sc, lg), h, lg, True, tr, rmap, n_bins))
+            tr = ((mu, sd, float(z.min()), float(z.max())),)
+            if cell is None:
+                h = _hist(ctx, [z], b, zero, n_bins, 1)
+            else:  # the index-plus-persistence variant: rows by bin x level known
+                hc, h = _hist(ctx, [z], b, cell, n_bins, K + 1, marginal=True)
+                units.append(_Unit("single_pers", (ix, sc, lg), hc, lg, True, tr,
+                                   _row_map(hc), n_bins))
+            units.append(_Unit("single", (ix, sc, lg), h, lg, False, tr, _row_map(h), n_bins))
         if pairs:
             shorts = [s for s in sorted(xs) if s <= SHORT_MAX_WEEKS]
             longs = [s for s in sorted(xs) if s >= LONG_MIN_WEEKS]
             for s1 in shorts:
                 for s2 in longs:
-                    z1, z2 = xs[s1][0], xs[s2][0]
-                    b = E.bin_codes(z1, pair_bins) * pair_bins + E.bin_codes(z2, pair_bins)
-                    h, rmap = _hist(ctx, [z1, z2], b, np.zeros_like(b), pair_bins**2, 1)
+                    b = xs[s1][3] * pair_bins + xs[s2][3]
+                    h = _hist(ctx, [xs[s1][0], xs[s2][0]], b, zero, pair_bins**2, 1)
                     tr = tuple((xs[s][1], xs[s][2], float(xs[s][0].min()),
                                 float(xs[s][0].max())) for s in (s1, s2))
-                    units.append(_Unit("pair", (ix, s1, s2, lg), h, lg, False, tr, rmap,
+                    units.append(_Unit("pair", (ix, s1, s2, lg), h, lg, False, tr, _row_map(h),
                                        pair_bins))
-    del G
     return units
 
 
-def _hist(ctx, xs, bins, cell, n_bins_total, C):
-    K = ctx.layout.n_levels
-    h = E.build_hist(ctx.block, ctx.level, xs, bins, cell, n_blocks=ctx.layout.n_blocks,
-                     n_bins_total=n_bins_total, n_cells=C, n_levels=K)
-    # the compressed row of every (bin, cell), for mapping data rows back to predictions
-    G = ctx.layout.n_blocks
-    full = np.bincount(((ctx.block * n_bins_total + bins) * C + cell) % (n_bins_total * C),
-                       minlength=n_bins_total * C) > 0
-    del G
-    rmap = np.full(n_bins_total * C, -1, dtype=np.int64)
-    rmap[full] = np.arange(int(full.sum()))
-    return h, rmap
+def _hist(ctx, xs, bins, cell, n_bins_total, C, *, marginal=False):
+    return E.build_hist(ctx.block, ctx.level, xs, bins, cell, n_blocks=ctx.layout.n_blocks,
+                        n_bins_total=n_bins_total, n_cells=C, n_levels=ctx.layout.n_levels,
+                        marginal=marginal)
+
+
+def _row_map(h: E.Hist) -> np.ndarray:
+    """The compressed row of every (bin, cell), -1 where empty (data rows -> predictions)."""
+    rmap = np.full(h.keep.size, -1, dtype=np.int64)
+    rmap[h.keep] = np.arange(int(h.keep.sum()))
+    return rmap
 
 
 # --------------------------------------------------------------------------- fitting
