@@ -421,11 +421,11 @@ def _stage_triggers(project, st, out_dir, progress, warnings):
             exit_weeks=project.triggers.exit_weeks,
             seed=project.seed,
         )
-        f = res.to_frame()
+        f = res.to_frame().drop(columns=["impact", "target"], errors="ignore")
         f.insert(0, "target", target.name)
         f.insert(0, "impact", target.impact)
         frames.append(f)
-        tl = res.timeline_frame()
+        tl = res.timeline_frame().drop(columns=["target"], errors="ignore")
         tl.insert(0, "target", target.name)
         timelines.append(tl)
     st["triggers"] = _concat(frames)
@@ -462,7 +462,7 @@ def _stage_contrast(project, st, out_dir, progress, warnings):
         for frame, bucket in [(res.to_frame(), rows), (res.county_excess, excess), (res.pairs, pairs)]:
             if frame is None or len(frame) == 0:
                 continue
-            frame = frame.copy()
+            frame = frame.drop(columns=[k for k in meta if k in frame.columns])
             for i, (k, v) in enumerate(meta.items()):
                 frame.insert(i, k, v)
             bucket.append(frame)
