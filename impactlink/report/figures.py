@@ -27,6 +27,7 @@ __all__ = [
     "FigureInputError",
     "BASELINE_MODELS",
     "PERSISTENCE_COMBOS",
+    "persistence_picks",
     "skill_heatmap",
     "candidate_intervals",
     "impact_curves",
@@ -566,8 +567,9 @@ def persistence_comparison(skill: pd.DataFrame, *, impact: str, score: str = "bs
     Parameters
     ----------
     skill : DataFrame
-        ``skill.csv`` rows; the best single-index candidate, the ``persistence`` baseline and
-        the best ``index_plus_persistence`` model of each target are drawn.
+        ``skill.csv`` rows; for each target the best single-index candidate, the
+        ``persistence`` baseline and the best index-plus-persistence model, all at one lag
+        (see :func:`persistence_picks`).
     impact : str
     score : str, default "bss"
         Higher is better.
@@ -593,29 +595,60 @@ def persistence_comparison(skill: pd.DataFrame, *, impact: str, score: str = "bs
              ("index + persistence", CATEGORICAL["ink"], "D")]
     fig = Figure(figsize=(6.4, 0.8 * len(targets) + 1.6), layout="constrained")
     ax = fig.subplots()
+    ticks = []
     for t, tgt in enumerate(targets):
         g = sub[(sub["target"].astype(str) == tgt).to_numpy()]
-        picks = [
-            _candidates(g).dropna(subset=[score]),
-            g[(g["model"] == "persistence").to_numpy(dtype=bool)].dropna(subset=[score]),
-            g[g["model"].isin(PERSISTENCE_COMBOS).fillna(False).to_numpy(bool)].dropna(
-                subset=[score]),
-        ]
-        for k, (pick, (label, colour, marker)) in enumerate(zip(picks, kinds, strict=True)):
-            if pick.empty:
+        lag, picks = persistence_picks(g, score)
+        ticks.append(target_label(impact, tgt) + (f" (lag {lag}w)" if lag is not None else ""))
+        for k, (r, (label, colour, marker)) in enumerate(zip(picks, kinds, strict=True)):
+            if r is None:
                 continue
-            r = pick.loc[pick[score].idxmax()]
             y = len(targets) - 1 - t + (1 - k) * 0.22
             est = float(r[score])
             err = np.nan_to_num(np.clip([[est - float(r[lo])], [float(r[hi]) - est]], 0, None))
             ax.errorbar([est], [y], xerr=err, fmt=marker, color=colour, capsize=2,
                         label=label if t == 0 else None, markeredgecolor=CATEGORICAL["ink"])
     ax.axvline(0, color=NEUTRAL["baseline"], lw=1)
-    ax.set_yticks(range(len(targets))[::-1], targets)
+    ax.set_yticks(range(len(targets))[::-1], ticks)
     ax.set_xlabel(f"{score_label(score)} (higher is better; 0 = climatology)")
     ax.set_title(f"{impact}: does the index add warning beyond persistence?")
     fig.legend(*ax.get_legend_handles_labels(), loc="outside lower center", ncol=3)
     return fig
+
+
+def persistence_picks(rows: pd.DataFrame, score: str):
+    """The like-for-like rows of a persistence comparison for one target.
+
+    Persistence gets much stronger at short lags, so the three models are compared at one
+    lag: the shortest lag that has both a persistence baseline and an index-plus-persistence
+    row (the lag the skill stage's own comparison sentence uses). Without persistence rows
+    at a shared lag, each model's best row is used.
+
+    Parameters
+    ----------
+    rows : DataFrame
+        ``skill.csv`` rows of one target.
+    score : str
+        Higher is better.
+
+    Returns
+    -------
+    (int or None, list)
+        The lag in weeks (None when no shared lag), and the rows (Series or None) of: the
+        best single index, persistence, the best index plus persistence.
+    """
+    scored = rows.dropna(subset=[score])
+    pers = scored[(scored["model"] == "persistence").fillna(False).to_numpy(bool)]
+    combo = scored[scored["model"].isin(PERSISTENCE_COMBOS).fillna(False).to_numpy(bool)]
+    single = _candidates(scored)
+    shared = sorted(set(pers["lag_weeks"].dropna()) & set(combo["lag_weeks"].dropna()))
+    lag = None
+    if shared:
+        lag = int(shared[0])
+        pers, combo, single = (f[(f["lag_weeks"] == lag).fillna(False).to_numpy(bool)]
+                               for f in (pers, combo, single))
+    picks = [f.loc[f[score].idxmax()] if not f.empty else None for f in (single, pers, combo)]
+    return lag, picks
 
 
 # ----------------------------------------------------------------------- record timeline

@@ -358,18 +358,16 @@ def _persistence_part(run: RunFolder, figs: FigureSink) -> Markup:
         rows = []
         for tgt in targets:
             g = _sel(skill, impact=impact, target=tgt)
-            for label, pick in (("index alone", F._candidates(g)),
-                                ("persistence alone", g[(g["model"] == "persistence")
-                                                        .fillna(False).to_numpy(bool)]),
-                                ("index + persistence", g[g["model"].isin(F.PERSISTENCE_COMBOS)
-                                                          .fillna(False).to_numpy(bool)])):
-                pick = pick.dropna(subset=[score])
-                if pick.empty:
+            lag, picks = F.persistence_picks(g, score)
+            labels = ("index alone", "persistence alone", "index + persistence")
+            for label, r in zip(labels, picks, strict=True):
+                if r is None:
                     continue
-                r = pick.loc[pick[score].idxmax()]
                 what = (candidate_label(r["index"], r["scale_weeks"], r["lag_weeks"], short=True)
                         if pd.notna(r["index"]) else "")
-                rows.append({"target": tgt, "model": label, "candidate": what,
+                rows.append({"target": target_label(impact, tgt),
+                             "lag_weeks": lag if lag is not None else r.get("lag_weeks"),
+                             "model": label, "candidate": what,
                              score_label(score): fmt_interval(r[score], r[f"{score}_lo"],
                                                               r[f"{score}_hi"])})
         parts.append(figs.add(

@@ -238,3 +238,19 @@ def test_supplied_indicators_share_one_heatmap_panel():
     assert [t.get_text() for t in spi.get_yticklabels()] == ["4", "13"]  # no 0 row
     assert [t.get_text() for t in sup.get_yticklabels()] == ["soil moisture", "streamflow"]
     assert sorted(t.get_text() for t in sup.texts) == ["0.05", "0.15"]
+
+
+def test_persistence_comparison_is_made_at_one_shared_lag():
+    rows = pd.DataFrame([
+        ("spi", 13, 0, "index", 0.30), ("spi", 13, 2, "index", 0.20), ("spei", 4, 2, "index", 0.25),
+        (None, None, 2, "persistence", 0.70), (None, None, 8, "persistence", 0.20),
+        ("spi", 13, 2, "index_persistence", 0.72), ("spi", 13, 8, "index_persistence", 0.30),
+    ], columns=["index", "scale_weeks", "lag_weeks", "model", "bss"])
+    lag, (single, pers, combo) = F.persistence_picks(rows, "bss")
+    # lag 2 is the shortest lag with both persistence and index + persistence; the best
+    # single index there is SPEI 4w (0.25), not the overall best SPI 13w lag 0 (0.30).
+    assert lag == 2
+    assert (single["index"], single["bss"]) == ("spei", 0.25)
+    assert pers["bss"] == 0.70 and combo["bss"] == 0.72
+    lag, picks = F.persistence_picks(rows[rows["model"] != "index_persistence"], "bss")
+    assert lag is None and picks[2] is None and picks[0]["bss"] == 0.30
