@@ -182,6 +182,8 @@ h3 { font-size: 1.05rem; margin: 1.2rem 0 0.4rem; color: var(--ink); }
 .card dd { margin: 0; }
 .verdict { font-weight: 700; }
 .others { font-size: 0.9rem; margin: 0.5rem 0 0; padding-left: 1.1rem; }
+.glance { padding-left: 1.1rem; margin: 0.4rem 0 0.6rem; }
+.glance li { margin: 0.15rem 0; }
 nav ol { columns: 2 14rem; font-size: 0.9rem; padding-left: 1.3rem; }
 figure { margin: 0.8rem 0; break-inside: avoid; }
 figure img { display: block; max-width: 100%; height: auto; border: 1px solid var(--grid); }
@@ -200,6 +202,8 @@ pre { white-space: pre-wrap; word-break: break-word; font-size: 0.8rem; backgrou
 a { color: var(--ink); }
 @media (max-width: 40rem) {
   body { font-size: 15px; }
+  .cautions { font-size: 0.9rem; padding: 0.4rem 0.6rem; }
+  h2 { margin-top: 1.2rem; }
   main { padding: 0.5rem 0.6rem 2rem; }
   h1 { font-size: 1.25rem; }
 }

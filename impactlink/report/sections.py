@@ -172,13 +172,14 @@ def answer_cards(run: RunFolder, figs: FigureSink | None = None) -> Markup:
             "Not computed in this run: no skill summary was written, so no index can be "
             "recommended."))
     skill = run.table("skill")
-    cards = []
+    cards, glance = [], []
     for impact, rows in summary.groupby("impact", sort=False):
         if "role" in rows.columns:
             rows = rows.assign(_p=(rows["role"] != "primary").fillna(True)).sort_values(
                 "_p", kind="stable")
         answers = [answer_card(r, skill) for _, r in rows.iterrows()]
         main, others = answers[0], answers[1:]
+        glance.append(el("li", el("strong", f"{impact}: "), _glance(rows.iloc[0], main)))
         dl = el("dl",
                 el("dt", "Best predictor"), el("dd", main.which),
                 el("dt", "How good"), el("dd", main.how_good),
@@ -198,11 +199,23 @@ def answer_cards(run: RunFolder, figs: FigureSink | None = None) -> Markup:
             class_="card",
         ))
     return _section("summary", "What this run found",
-                    paragraph("For each impact: the index, time scale and lag that predicted it "
-                              "best out of sample, how much better than the baselines, and how "
-                              "sure we can be."),
+                    el("ul", *glance, class_="glance", aria_label="at a glance"),
+                    paragraph("Each card below gives, for one impact, the index, time scale and "
+                              "lag that predicted it best out of sample, how much better than "
+                              "the baselines, and how sure we can be.", class_="note"),
                     el("div", *cards, class_="cards"),
                     _files(run, "skill_summary"))
+
+
+def _glance(row: pd.Series, answer) -> str:
+    """One line per impact for the top of the page: best candidate, skill, verdict, events."""
+    label = candidate_label(row.get("best_index"), row.get("best_scale_weeks"),
+                            row.get("best_lag_weeks"), short=True)
+    skill = fmt_interval(row.get("nested_skill"), row.get("nested_lo"), row.get("nested_hi"))
+    events = row.get("events")
+    tail = f", {int(events)} events" if pd.notna(events) else ""
+    short = answer.verdict.split(":")[0].rstrip(".")
+    return f"{label} \u2014 skill {skill}; {short[:1].lower() + short[1:]}{tail}."
 
 
 def contents(entries: list[tuple[str, str]]) -> Markup:

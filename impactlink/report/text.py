@@ -148,6 +148,11 @@ def fmt_interval(estimate, lo, hi, *, digits: int = 2) -> str:
     return text
 
 
+#: Skill below this (out of 1) is called "small" in the verdict (our own wording
+#: convention, not a published cut-off).
+SMALL_SKILL = 0.05
+
+
 def verdict(nested, nested_lo, *, beats_seasonal=None, beats_persistence=None) -> str:
     """One-line plain-language verdict on a selection-aware skill estimate.
 
@@ -167,8 +172,13 @@ def verdict(nested, nested_lo, *, beats_seasonal=None, beats_persistence=None) -
         return "Not scored in this run."
     others = [b for b in (beats_seasonal, beats_persistence) if b is not None and _present(b)]
     if _present(nested_lo) and nested_lo > 0:
+        small = nested < SMALL_SKILL
         if others and all(bool(b) for b in others):
+            if small:
+                return "Clear but small signal: the index beats every baseline by a little."
             return "Clear signal: the index beats every baseline out of sample."
+        if small:
+            return "Small signal, and it does not beat every baseline."
         return "Real signal, but it does not beat every baseline."
     if nested > 0:
         return "Weak signal: the interval reaches down to no skill."

@@ -106,6 +106,13 @@ def test_first_screen_has_cautions_then_an_answer_per_impact(built):
         assert words in summary
     # The restriction card carries the persistence sentence of skill_summary.csv.
     assert "the index adds warning beyond persistence" in summary
+    # At a glance: one line per impact before the cards.
+    for impact in ("crop_shortfall", "restrictions"):
+        line = re.search(rf"{impact}: (SPI|SPEI|EDDI) \d+w lag \d+w \u2014 skill "
+                         r"[-\d.]+ \([-\d.]+ to [-\d.]+\); [a-z ]+signal[^.]*, 40 events\.",
+                         summary)
+        assert line, impact
+        assert line.start() < summary.index("Best predictor")
 
 
 def test_data_section_shows_inputs_rejections_and_event_counts(built):

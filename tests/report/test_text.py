@@ -36,6 +36,9 @@ def test_labels_and_numbers():
 def test_verdict_branches():
     assert verdict(0.2, 0.05, beats_seasonal=True, beats_persistence=True).startswith("Clear")
     assert verdict(0.2, 0.05, beats_seasonal=True, beats_persistence=False).startswith("Real")
+    assert verdict(0.03, 0.01, beats_seasonal=True, beats_persistence=True).startswith(
+        "Clear but small")
+    assert verdict(0.03, 0.01, beats_seasonal=False).startswith("Small signal")
     assert verdict(0.1, -0.02).startswith("Weak")
     assert verdict(-0.1, -0.3).startswith("No usable signal")
     assert verdict(np.nan, np.nan) == "Not scored in this run."
