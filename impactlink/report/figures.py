@@ -468,7 +468,13 @@ def reliability_diagram(reliability: pd.DataFrame, *, impact: str, target: str) 
     ax.set_title(f"{impact} \u2014 {target_label(impact, target)}: reliability")
     ax.legend(loc="upper left")
     axc.set_xlabel("forecast chance (0\u20131)")
-    axc.set_ylabel("forecasts (count)")
+    counts = sub["count"].to_numpy(float)
+    counts = counts[counts > 0]
+    if counts.size and counts.max() > 100 * counts.min():
+        axc.set_yscale("log")  # a few crowded low-chance bins would flatten the rest
+        axc.set_ylabel("forecasts (count, log)")
+    else:
+        axc.set_ylabel("forecasts (count)")
     return fig
 
 
