@@ -198,7 +198,7 @@ def rank_candidates(
     _check_options(target, candidates, cv=cv, ci=ci, n_boot=n_boot, n_bins=n_bins)
     cands = list(dict.fromkeys((str(i), int(s), int(lg)) for i, s, lg in candidates))
     frame = target.frame
-    level_all = frame["level"].to_numpy(dtype=float)
+    level_all = _as_float(frame["level"])
     ok = np.isfinite(level_all)
     # one pass in the usual case: assume every candidate is defined wherever the level is;
     # the histogram pass stops at the first candidate with a gap, and then a first pass
@@ -279,6 +279,12 @@ def _check_options(target, candidates, *, cv, ci, n_boot, n_bins):
         raise ValueError(f"n_bins={n_bins} must be >= 2")
 
 
+def _as_float(s: pd.Series) -> np.ndarray:
+    """A column as float64 with NaN for missing (nullable integer columns included)."""
+    return pd.to_numeric(s, errors="coerce").astype("Float64").to_numpy(dtype=float,
+                                                                       na_value=np.nan)
+
+
 def _feature(features, cand, n_rows) -> np.ndarray:
     x = np.asarray(features(*cand), dtype=float)
     if x.shape != (n_rows,):
@@ -307,7 +313,7 @@ class _Context:
     def build(cls, target, rows, *, cv, k_folds, n_boot, ci, seed, k_inner):
         fr = target.frame
         K = target.n_levels
-        level = fr["level"].to_numpy()[rows].astype(np.int64)
+        level = _as_float(fr["level"])[rows].astype(np.int64)
         if level.min() < 0 or level.max() > K - 1:
             raise ValueError(
                 f"target {target.name!r}: level values run {level.min()}..{level.max()}; "
@@ -331,7 +337,7 @@ class _Context:
             for col in fr.columns:
                 if col.startswith("persistence_"):
                     lag = int(col.split("_", 1)[1])
-                    v = fr[col].to_numpy(dtype=float)[rows]
+                    v = _as_float(fr[col])[rows]
                     cell = np.where(np.isfinite(v), np.clip(np.nan_to_num(v), 0, K - 1), K)
                     pers[lag] = cell.astype(np.int64)
         if "season" in fr:
@@ -605,7 +611,6 @@ def _table(ctx, base, records):
             df.loc[idx, "indistinguishable_from_best"] = _quantile(diff, lo_q) <= 0
         else:
             df.loc[idx, "indistinguishable_from_best"] = idx == b
-    df.loc[cand, "indistinguishable_from_best"] = df.loc[cand, "indistinguishable_from_best"]
 
     def beats(ref_row, rows_idx):
         if ref_row is None:

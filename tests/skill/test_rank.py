@@ -172,3 +172,17 @@ def test_rank_errors_name_the_problem():
         rank_candidates(bad, feats, synth.candidates())
     with pytest.raises(ValueError, match="ci=1.5 must lie strictly between 0 and 1"):
         rank_candidates(tgt, feats, synth.candidates(), ci=1.5)
+
+
+def test_missing_levels_in_a_nullable_column_are_dropped_with_a_warning():
+    # an impact unknown in some rows (outside a source's coverage) arrives as <NA>
+    tgt, feats = synth.planted_target(0)
+    fr = tgt.frame.copy()
+    fr["level"] = fr["level"].astype("Int64")
+    fr.loc[:4, "level"] = pd.NA
+    t2 = Target(name=tgt.name, impact=tgt.impact, kind=tgt.kind, grain=tgt.grain,
+                role=tgt.role, frame=fr, levels=tgt.levels)
+    with pytest.warns(SkillWarning, match="5 of .* rows dropped"):
+        res = rank_candidates(t2, feats, synth.candidates()[:3], n_boot=0, pairs=False,
+                              challenger=False)
+    assert res.provenance["rows_scored"] == len(fr) - 5
