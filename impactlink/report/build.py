@@ -24,7 +24,7 @@ __all__ = ["build_report", "render_html"]
 #: Tables that also get a Parquet copy beside their CSV.
 PARQUET_TABLES = ("skill", "skill_summary", "skill_local", "reliability", "curves", "crossings", "audit",
                   "outlook", "triggers", "trigger_timeline", "contrast", "county_excess",
-                  "contrast_pairs", "reconciliation", "rejected_rows")
+                  "contrast_pairs", "reconciliation", "link_summary", "rejected_rows")
 
 
 def build_report(run_dir: str | Path, *, progress: Callable[[str], None] | None = None) -> Path:

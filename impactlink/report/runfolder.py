@@ -50,6 +50,7 @@ TABLE_COLUMNS: dict[str, tuple[str, ...]] = {
     "county_excess": (COUNTY,),
     "contrast_pairs": (),
     "reconciliation": ("impact", "records", "used", "rejected"),
+    "link_summary": ("target", "events"),
     "rejected_rows": ("table", "reason"),
 }
 
@@ -63,7 +64,7 @@ _ALIASES: dict[str, dict[str, str]] = {
 #: Columns read as strings whatever they look like (ids keep their leading zeros).
 _STRING_COLUMNS = (COUNTY, "county_name", "region", "impact", "target", "index", "index2",
                    "model", "stage", "ladder", "level_label", "table", "file", "reason",
-                   "scope", "term", "unit", "level")
+                   "scope", "term", "unit", "level", "grain", "events_by_level")
 
 
 @dataclass(frozen=True)

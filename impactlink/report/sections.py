@@ -250,7 +250,13 @@ def data_section(run: RunFolder, figs: FigureSink) -> Markup:
         parts.append(el("h3", "Impact records"))
         parts.append(table(rec, caption="Impact records: used, rejected, outside coverage "
                            "(outside coverage = unknown, not impact-free)"))
+    link_summary = run.table("link_summary")
     targets = pd.DataFrame(man.get("targets") or [])
+    if link_summary is not None and not link_summary.empty:
+        cols = [c for c in ("target", "grain", "rows", "events", "events_by_level", "years",
+                            "first_year", "last_year", "units", "episodes")
+                if c in link_summary.columns]
+        targets = link_summary[cols]
     if not targets.empty:
         parts.append(table(targets, caption="Impact targets: scored rows and the events they "
                            "hold (few events = fragile estimates)"))
@@ -272,7 +278,7 @@ def data_section(run: RunFolder, figs: FigureSink) -> Markup:
     if run.problems:
         parts.append(el("h3", "Files that could not be used"))
         parts.append(el("ul", *[el("li", p) for p in run.problems]))
-    parts.append(_files(run, "reconciliation", "rejected_rows", "manifest"))
+    parts.append(_files(run, "reconciliation", "link_summary", "rejected_rows", "manifest"))
     return _section("data", "Data and coverage", *parts)
 
 
@@ -863,6 +869,15 @@ def provenance_section(run: RunFolder, figs: FigureSink) -> Markup:
         cols = [c for c in ("table", "file", "sha256", "rows_read", "rows_used", "rows_rejected")
                 if c in inputs.columns]
         parts.append(table(inputs[cols], caption="Inputs with SHA-256 checksums"))
+    indices = man.get("indices") or {}
+    if isinstance(indices, dict) and indices:
+        rows = []
+        for name, prov in indices.items():
+            prov = prov if isinstance(prov, dict) else {"method": prov}
+            rows.append({"index": name, **{k: v for k, v in prov.items() if k in (
+                "method", "estimator", "distribution", "calibration", "calibration_note",
+                "zero_handling", "scales")}})
+        parts.append(table(pd.DataFrame(rows), caption="How each index was computed"))
     versions = man.get("versions") or {}
     if versions:
         parts.append(table(pd.DataFrame(sorted(versions.items()), columns=["package", "version"]),

@@ -237,6 +237,8 @@ def make_fake_run(folder: Path, *, county_names=None, issuer="Tallow Creek Water
         "impacts": [{"impact": "restrictions", "table": "notices", "records": 140, "used": 120,
                      "rejected": 5, "outside_coverage": 15}],
         "targets": [{"target": "restrictions:state", "rows": 600, "events": 40}],
+        "indices": {"spi": {"method": "SPI, gamma", "calibration": [1991, 2020]},
+                    "eddi": {"method": "EDDI, <non-parametric>"}},
         "versions": {"numpy": "2.0", "pandas": "3.0"},
         "timings_s": {"indices": 1.5, "skill": 20.1},
         "warnings": ["3 weeks of climate data missing in county 90001"],

@@ -158,6 +158,8 @@ def test_provenance_lists_checksums_versions_seed(built):
     prov = p.section("provenance")
     assert "ab" * 32 in prov and "cd" * 32 in prov
     assert "numpy" in prov and "seed" in prov and "skill" in prov
+    assert "How each index was computed" in prov and "EDDI, <non-parametric>" in prov
+    assert "[1991, 2020]" in prov
 
 
 def test_rebuilding_gives_the_same_page(built):
@@ -317,3 +319,16 @@ def test_every_reference_is_cited_and_every_citation_listed():
     missing_in_list = {c for c in cited if c not in listed and c[0] != "ISO"}  # ISO 8601 weeks
     uncited = {item for item in listed if item not in cited}
     assert missing_in_list == set() and uncited == set(), (missing_in_list, uncited)
+
+
+def test_link_summary_gives_record_lengths_and_events_per_target(tmp_path, make_run):
+    folder = make_run(tmp_path / "run")
+    pd.DataFrame(dict(target=["restrictions:onset"], impact="restrictions", grain="county_week",
+                      rows=[5000], events=[77], events_by_level=["0:4923;1:77"], years=[31],
+                      first_year=[1994], last_year=[2024], units=[6])).to_csv(
+        folder / "link_summary.csv", index=False)
+    run = read_run_folder(folder)
+    _, p = _parse_markup(S.data_section(run, S.FigureSink()))
+    data = p.section("data")
+    assert "restrictions:onset" in data and "0:4923;1:77" in data and "1994" in data
+    assert "restrictions:state" not in data.split("Impact targets")[1].split("Rejected")[0]
