@@ -17,7 +17,7 @@ import pandas as pd
 
 from impactlink.report import figures as F
 from impactlink.report import maps as M
-from impactlink.report.html import Markup, details, el, esc, image, join, link, paragraph, table
+from impactlink.report.html import Markup, details, el, image, join, link, paragraph, table
 from impactlink.report.runfolder import ReportInputWarning, RunFolder
 from impactlink.report.text import (
     CAUTIONS,
@@ -32,7 +32,8 @@ from impactlink.report.text import (
 )
 from impactlink.schema import COUNTY
 
-__all__ = ["FigureSink", "SECTIONS", "cautions_banner", "answer_cards", "REFERENCES"]
+__all__ = ["FigureSink", "SECTIONS", "cautions_banner", "answer_cards", "contents", "not_drawn",
+           "REFERENCES"]
 
 NOT_COMPUTED = "Not computed in this run."
 
@@ -916,5 +917,3 @@ def not_drawn(sid: str, title: str, exc: Exception) -> Markup:
         f"This section could not be built from this run's tables ({type(exc).__name__}: "
         f"{exc})."))
 
-
-__all__ += ["contents", "not_drawn", "esc"]
