@@ -15,6 +15,8 @@ from __future__ import annotations
 import functools
 
 import matplotlib
+import matplotlib.dates as mdates
+import matplotlib.patches as mpatches
 import numpy as np
 import pandas as pd
 from matplotlib.figure import Figure
@@ -205,7 +207,7 @@ def skill_heatmap(skill: pd.DataFrame, *, impact: str, target: str, score: str =
         if not is_top.empty:
             i = row_keys.index(is_top["_row"].iloc[0])
             jj = int(np.searchsorted(lags, top["lag_weeks"]))
-            ax.add_patch(matplotlib.patches.Rectangle(
+            ax.add_patch(mpatches.Rectangle(
                 (jj - 0.5, i - 0.5), 1, 1, fill=False, edgecolor=CATEGORICAL["marigold"],
                 linewidth=2.5))
     if image is not None:
@@ -254,7 +256,7 @@ def _heat_cells(ax, values: np.ndarray, ties: np.ndarray, vmax: float):
             ax.text(j, i, text + ("\u2022" if ties[i, j] else ""), ha="center", va="center",
                     fontsize=7, color=NEUTRAL["text"] if light[i, j] else "white")
             if v <= 0:
-                ax.add_patch(matplotlib.patches.Rectangle(
+                ax.add_patch(mpatches.Rectangle(
                     (j - 0.5, i - 0.5), 1, 1, fill=False, hatch="///",
                     edgecolor=NEUTRAL["grid"], linewidth=0))
     return image
@@ -687,8 +689,8 @@ def record_timeline(inputs: pd.DataFrame) -> Figure:
     fig = Figure(figsize=(6.4, 0.36 * len(d) + 1.2), layout="constrained")
     ax = fig.subplots()
     y = np.arange(len(d))[::-1]
-    start = matplotlib.dates.date2num(d["start"])
-    span = matplotlib.dates.date2num(d["end"]) - start
+    start = mdates.date2num(d["start"])
+    span = mdates.date2num(d["end"]) - start
     ax.barh(y, span, left=start, color=CATEGORICAL["harbour"], edgecolor=CATEGORICAL["ink"],
             height=0.55)
     ax.set_yticks(y, d["table"].astype(str))

@@ -361,6 +361,8 @@ def skill_section(run: RunFolder, figs: FigureSink) -> Markup:
 
 def _persistence_part(run: RunFolder, figs: FigureSink) -> Markup:
     skill = run.table("skill")
+    if skill is None:
+        return Markup("")
     combo = skill["model"].isin(F.PERSISTENCE_COMBOS).fillna(False).to_numpy(bool)
     impacts = list(dict.fromkeys(skill.loc[combo, "impact"].astype(str)))
     if not impacts:
