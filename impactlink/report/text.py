@@ -223,8 +223,11 @@ def answer_card(summary: pd.Series, skill: pd.DataFrame | None = None) -> Answer
     which = candidate_label(g("best_index"), g("best_scale_weeks"), g("best_lag_weeks"))
     if _present(g("best_model")):
         which += f" ({g('best_model')} model)"
+    # For a yes/no target the ranked probability skill score equals the Brier skill score
+    # (Epstein 1969 with two categories); use the name readers know.
+    shown = "bss" if score == "rpss" and str(g("kind", "")) == "binary" else score
     how_good = (
-        f"{score_label(score).capitalize()} {fmt_interval(g('nested_skill'), g('nested_lo'), g('nested_hi'))} "
+        f"{score_label(shown).capitalize()} {fmt_interval(g('nested_skill'), g('nested_lo'), g('nested_hi'))} "
         f"after allowing for the search over {_int(g('n_candidates'))} candidates "
         f"(best candidate's own score {fmt_num(g('naive_skill'))}); 0 = climatological base "
         "rate, 1 = perfect."

@@ -141,3 +141,11 @@ def test_ties_are_single_candidates_listed_once_and_flags_come_from_the_index_mo
     a = answer_card(summary, skill)
     assert a.how_sure == "1 other candidate is statistically as good as the best: SPEI 8w lag 0w."
     assert a.baselines.endswith("Beats climatology, seasonal. Does not beat persistence.")
+
+
+def test_binary_target_scored_by_rpss_is_called_a_brier_skill_score():
+    summary, _ = _rows()
+    summary["score_name"], summary["kind"] = "rpss", "binary"
+    assert answer_card(summary).how_good.startswith("Brier skill score 0.22")
+    summary["kind"] = "ordinal"
+    assert answer_card(summary).how_good.startswith("Ranked probability skill score 0.22")
