@@ -698,26 +698,36 @@ def outlook_section(run: RunFolder, figs: FigureSink) -> Markup:
     parts = [paragraph(f"Chance of each impact now and some weeks ahead, from index values up "
                        f"to the week of {as_of}. These are chances, not predictions of "
                        "certainty.")]
-    keys = [k for k in ("impact", "target", "level_label") if k in out.columns]
+    keys = [k for k in ("impact", "target") if k in out.columns]
+    # One map per target, for its first impact level (the most likely to be reached); the
+    # tables carry every level.
     for key, sub in out.groupby(keys, sort=False):
         key = key if isinstance(key, tuple) else (key,)
-        title = " \u2014 ".join(str(k) for k in key)
-        horizons = sorted(pd.to_numeric(sub["horizon_weeks"], errors="coerce").dropna().unique())
+        title = _title(*key) if len(key) == 2 else str(key[0])
         parts.append(el("h3", title))
-        if run.counties is not None:
-            panels = [M.MapPanel(_sel(sub, horizon_weeks=h), "prob",
+        first = sub
+        what = title
+        if "level_k" in sub.columns and sub["level_k"].notna().any():
+            k1 = sub["level_k"].min()
+            first = sub[(sub["level_k"] == k1).fillna(False).to_numpy(bool)]
+            if "level_label" in first.columns and first["level_label"].notna().any():
+                what = f"{title}: at least '{first['level_label'].dropna().iloc[0]}'"
+        horizons = sorted(pd.to_numeric(first["horizon_weeks"], errors="coerce").dropna().unique())
+        if run.counties is not None and horizons:
+            panels = [M.MapPanel(_sel(first, horizon_weeks=h), "prob",
                                  title="now" if h == 0 else f"{int(h)} weeks ahead",
                                  label="chance (0\u20131)", vmin=0.0, vmax=1.0) for h in horizons]
-            prob = pd.to_numeric(sub["prob"], errors="coerce")
+            prob = pd.to_numeric(first["prob"], errors="coerce")
             parts.append(figs.add(
                 f"outlook_{'_'.join(map(str, key))}",
-                lambda p=panels, t=title: M.county_panels(run.counties, p, suptitle=t),
-                alt=(f"County maps of the chance of {title} at horizons "
+                lambda p=panels, t=what: M.county_panels(run.counties, p, suptitle=t),
+                alt=(f"County maps of the chance of {what} at horizons "
                      f"{', '.join(str(int(h)) for h in horizons)} weeks; chances range from "
                      f"{fmt_num(prob.min())} to {fmt_num(prob.max())}.")))
-        cols = [c for c in (COUNTY, "horizon_weeks", "prob", "prob_lo", "prob_hi", "index",
-                            "scale_weeks", "lag_weeks") if c in sub.columns]
-        ranked = sub[cols].sort_values(["horizon_weeks", "prob"], ascending=[True, False])
+        cols = [c for c in (COUNTY, "horizon_weeks", "level_label", "prob", "prob_lo", "prob_hi",
+                            "index", "scale_weeks", "lag_weeks", "note") if c in sub.columns]
+        order = [c for c in ("horizon_weeks", "level_k", "prob") if c in sub.columns]
+        ranked = sub.sort_values(order, ascending=[True] * (len(order) - 1) + [False])[cols]
         parts.append(details("Per-county chances", table(_with_names(run, ranked))))
     parts.append(_files(run, "outlook"))
     return _section("outlook", "Outlook", *parts)

@@ -332,3 +332,19 @@ def test_link_summary_gives_record_lengths_and_events_per_target(tmp_path, make_
     data = p.section("data")
     assert "restrictions:onset" in data and "0:4923;1:77" in data and "1994" in data
     assert "restrictions:state" not in data.split("Impact targets")[1].split("Rejected")[0]
+
+
+def test_outlook_maps_the_first_level_and_tabulates_all(tmp_path, make_run):
+    folder = make_run(tmp_path / "run")
+    ids = ["90000", "90001"]
+    rows = [dict(county_id=c, impact="crop", target="crop:class", horizon_weeks=h, level_k=k,
+                 level_label=lab, prob=p, as_of_week="2025-06-02")
+            for c in ids for h in (0, 4) for k, lab, p in ((1, "minor", 0.6), (2, "major", 0.2))]
+    pd.DataFrame(rows).to_csv(folder / "outlook.csv", index=False)
+    run = read_run_folder(folder)
+    sink = S.FigureSink()
+    _, p = _parse_markup(S.outlook_section(run, sink))
+    assert list(sink.files) == ["outlook_crop_crop_class.png"]
+    assert "at least 'minor'" in sink.alts["outlook_crop_crop_class.png"]
+    text = p.section("outlook")
+    assert "crop \u2014 class" in text and "major" in text and "2025-06-02" in text
