@@ -3,8 +3,11 @@
 The browser is driven over the Chrome DevTools Protocol on a pipe
 (``--remote-debugging-pipe``: JSON messages separated by NUL bytes on file descriptors 3 and
 4), so no extra package and no network port is needed. The test records console errors and
-uncaught exceptions, checks that every image decoded, checks that a phone-width viewport
-needs no sideways scrolling, and saves screenshots to ``test-artifacts/``.
+uncaught exceptions, checks that every image decoded, that a phone-width viewport needs no
+sideways scrolling and shows every impact's one-line answer on its first screen, that the
+page prints to several PDF pages, and saves screenshots and the PDF to ``test-artifacts/``.
+One test opens a fake run's page (with a planted script that must not run); another opens
+the page ``impactlink demo`` wrote, when it exists (or ``IMPACTLINK_DEMO_REPORT``).
 
 Without Chromium the test is skipped locally but fails when ``CI`` is ``"true"``.
 """
@@ -174,41 +177,67 @@ def chromium() -> str:
     return _chromium()
 
 
-def test_report_renders_in_headless_chromium(chromium, built, tmp_path):
-    exe = chromium
-    _, html, _ = built  # holds a planted <script> county name: it must not run
-    client = _Pipe(exe, tmp_path / "profile")
+_GLANCE_IN_VIEW = """(() => { const items = document.querySelectorAll('.glance li');
+  if (!items.length) return false;
+  return items[items.length - 1].getBoundingClientRect().bottom <= window.innerHeight; })()"""
+
+
+def _visit(exe: str, html: Path, profile: Path, name: str) -> dict:
+    """Open a page on a desktop and a phone viewport; return what the checks need."""
+    client = _Pipe(exe, profile)
+    out: dict = {}
     try:
         session = _open(client, html.resolve().as_uri(), 1200, 1600)
-        images = json.loads(_eval(client, session, _IMAGES))
+        out["images"] = json.loads(_eval(client, session, _IMAGES))
         shot = client.send("Page.captureScreenshot", {"format": "png"}, session=session)
         ARTIFACTS.mkdir(exist_ok=True)
-        (ARTIFACTS / "report.png").write_bytes(base64.b64decode(shot["data"]))
-
-        pdf = base64.b64decode(client.send("Page.printToPDF", {"printBackground": False},
-                                           session=session, timeout=60)["data"])
+        (ARTIFACTS / f"{name}.png").write_bytes(base64.b64decode(shot["data"]))
+        out["pdf"] = base64.b64decode(client.send("Page.printToPDF", {"printBackground": False},
+                                                  session=session, timeout=120)["data"])
+        (ARTIFACTS / f"{name}.pdf").write_bytes(out["pdf"])
 
         phone = _open(client, html.resolve().as_uri(), 390, 844)
-        overflow = _eval(client, phone, _OVERFLOW)
-        first_screen = _eval(client, phone, "document.querySelector('.card h3') !== null")
+        out["overflow"] = _eval(client, phone, _OVERFLOW)
+        out["glance_in_first_screen"] = _eval(client, phone, _GLANCE_IN_VIEW)
         shot = client.send("Page.captureScreenshot", {"format": "png"}, session=phone)
-        (ARTIFACTS / "report-phone.png").write_bytes(base64.b64decode(shot["data"]))
-        dialogs = [e for e in client.events if e.get("method") == "Page.javascriptDialogOpening"]
-        errors = _errors(client.events)
+        (ARTIFACTS / f"{name}-phone.png").write_bytes(base64.b64decode(shot["data"]))
+        out["dialogs"] = [e for e in client.events
+                          if e.get("method") == "Page.javascriptDialogOpening"]
+        out["errors"] = _errors(client.events)
     finally:
         client.close()
+    return out
 
-    assert errors == [], f"console errors or exceptions in the page: {errors}"
-    assert dialogs == [], "a planted script ran (an alert dialog opened)"
-    assert len(images) >= 10, "the fake run should produce at least ten figures"
+
+def _check(page: dict, *, min_images: int) -> None:
+    assert page["errors"] == [], f"console errors or exceptions in the page: {page['errors']}"
+    assert page["dialogs"] == [], "a script ran (an alert dialog opened)"
+    images = page["images"]
+    assert len(images) >= min_images
     broken = [i["alt"][:60] for i in images if not i["ok"]]
     assert broken == [], f"images that did not load: {broken}"
     assert all(i["alt"].strip() for i in images), "every image needs alt text"
     # Phone width: figures and tables scale or scroll inside their box, not the page.
-    assert overflow <= 0, f"page is {overflow}px wider than a 390px phone screen"
-    assert first_screen
+    assert page["overflow"] <= 0, f"page is {page['overflow']}px wider than a 390px screen"
+    # Every impact's one-line answer is on the phone's first screen.
+    assert page["glance_in_first_screen"], "the at-a-glance answers do not fit the first screen"
     # Printable: the print stylesheet yields a multi-page PDF.
-    pages = len(re.findall(rb"/Type\s*/Page[^s]", pdf))
-    assert pdf[:5] == b"%PDF-" and pages >= 2, f"printed to {pages} page(s)"
-    (ARTIFACTS / "report.pdf").write_bytes(pdf)
+    pages = len(re.findall(rb"/Type\s*/Page[^s]", page["pdf"]))
+    assert page["pdf"][:5] == b"%PDF-" and pages >= 2, f"printed to {pages} page(s)"
+
+
+def test_report_renders_in_headless_chromium(chromium, built, tmp_path):
+    _, html, _ = built  # holds a planted <script> county name: it must not run
+    page = _visit(chromium, html, tmp_path / "profile", "report")
+    _check(page, min_images=10)
     assert (ARTIFACTS / "report.png").stat().st_size > 10_000
+
+
+def test_demo_report_renders_in_headless_chromium(chromium, tmp_path):
+    """The page `impactlink demo` wrote (or IMPACTLINK_DEMO_REPORT), when it exists."""
+    default = Path(__file__).resolve().parents[2] / "reports" / "demo" / "report.html"
+    html = Path(os.environ.get("IMPACTLINK_DEMO_REPORT", default))
+    if not html.exists():
+        pytest.skip(f"no demo report at {html}; run `impactlink demo` first")
+    page = _visit(chromium, html, tmp_path / "profile", "demo-report")
+    _check(page, min_images=1)
