@@ -18,6 +18,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from impactlink.errors import StageError
 from impactlink.schema import COUNTY
 
 __all__ = [
@@ -30,8 +31,11 @@ class ReportInputWarning(UserWarning):
     """A run-folder table could not be used; its section is shown as not computed."""
 
 
-class ReportError(ValueError):
-    """The run folder itself is unusable (missing or not a folder)."""
+class ReportError(StageError):
+    """The run folder itself is unusable (missing or not a folder).
+
+    A :class:`~impactlink.errors.StageError`, so the command line reports it as one line.
+    """
 
 
 #: Columns the report needs from each CSV table (other columns are ignored).
