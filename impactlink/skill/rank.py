@@ -492,7 +492,8 @@ def _fit_all(ctx, units, *, jobs, dask_address, progress, chunk=8) -> list[dict]
                 variants = [("index_persistence", True, False)]
             else:
                 variants = [("index_pair", False, False)]
-            tasks.append(([units[i].hist for i in part], ctx.layout, variants, ctx.boot_w))
+            tasks.append(([units[i].hist for i in part], ctx.layout, variants, ctx.boot_w,
+                          jobs > 1 or dask_address is not None))
             where.append(part)
     results = map_tasks(_score_chunk, tasks, jobs=jobs, dask_address=dask_address,
                         progress=progress, label=f"skill {ctx.target.name}")
@@ -522,7 +523,10 @@ def _fit_all(ctx, units, *, jobs, dask_address, progress, chunk=8) -> list[dict]
 
 def _score_chunk(task) -> list[list[dict]]:
     """Worker: fit and score every CV job of a chunk of same-shaped candidates."""
-    hists, layout, variants, W = task
+    hists, layout, variants, W, parallel = task
+    if parallel:  # one BLAS thread per worker process: workers already fill the cores
+        with E._one_blas_thread():
+            return _score_chunk((hists, layout, variants, W, False))
     out: list[list[dict]] = [[] for _ in hists]
     for model, use_cells, nested in variants:
         coef, conv = E.fit_chunk(hists, layout, use_cells=use_cells,
