@@ -238,7 +238,7 @@ def rank_candidates(
     pers = _persistence_gain(ctx, table, reps)
     local, preds, rel = _local_and_predictions(ctx, features, units, records, base, table,
                                                n_local=n_local, keep=keep_predictions)
-    summary = _summary(ctx, table, nested, pers)
+    summary = _summary(ctx, table, nested, pers, reps)
     prov = {
         "method": "histogram fast path, batched cumulative-logit fits",
         "cv": cv, "k_folds": k_folds if cv == "blocked_k_fold" else None,
@@ -913,7 +913,16 @@ def _local_and_predictions(ctx, features, units, records, base, table, *, n_loca
 
 
 # --------------------------------------------------------------------------- summary
-def _summary(ctx, table, nested, pers) -> pd.DataFrame:
+def _paired_gain(rpss: np.ndarray, i: int, j: int, ci: float) -> tuple[float, float, float]:
+    """Skill of row i minus row j, with the paired bootstrap interval (same replicates)."""
+    d = rpss[i] - rpss[j]
+    if d.size < 2:
+        return float(d[0]), float("nan"), float("nan")
+    lo, hi = np.quantile(d[1:], [(1 - ci) / 2, 1 - (1 - ci) / 2])
+    return float(d[0]), float(lo), float(hi)
+
+
+def _summary(ctx, table, nested, pers, reps) -> pd.DataFrame:
     t = ctx.target
     model = table["model"].to_numpy()
     singles = table[model == "index"]
@@ -937,10 +946,13 @@ def _summary(ctx, table, nested, pers) -> pd.DataFrame:
         p = pairs.loc[pairs["rpss"].idxmax()]
         row["best_pair"] = f"{p['index']} {p['scale_weeks']}w + {p['scale2_weeks']}w lag {p['lag_weeks']}w"
         row["best_pair_rpss"] = p["rpss"]
+        g = _paired_gain(reps["rpss"], int(p.name), int(b.name), ctx.ci)
+        row.update(best_pair_gain=g[0], best_pair_gain_lo=g[1], best_pair_gain_hi=g[2])
     boosted = table[model == "boosted"]
     if len(boosted):
         row["boosted_rpss"] = boosted["rpss"].iloc[0]
-        row["boosted_gain"] = boosted["rpss"].iloc[0] - b["rpss"]
+        g = _paired_gain(reps["rpss"], int(boosted.index[0]), int(b.name), ctx.ci)
+        row.update(boosted_gain=g[0], boosted_gain_lo=g[1], boosted_gain_hi=g[2])
     if len(pers):
         p0 = pers.sort_values("lag_weeks").iloc[0]
         row.update(persistence_lag_weeks=p0["lag_weeks"], persistence_gain=p0["gain"],

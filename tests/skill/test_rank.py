@@ -109,7 +109,13 @@ def test_table_has_the_contract_columns_and_baselines():
     assert res.reliability["n"].sum() == len(tgt.frame)
     assert set(res.local["level"]) == {"region", "unit"}
     assert res.local.groupby("level")["events"].sum().nunique() == 1
-    assert "not proof of cause" in res.summary.iloc[0]["sentence"]
+    s = res.summary.iloc[0]
+    assert "not proof of cause" in s["sentence"]
+    # the challenger and pair rows are compared with the best single candidate, paired
+    boosted = t[t["model"] == "boosted"]["rpss"].iloc[0]
+    assert s["boosted_gain"] == pytest.approx(boosted - s["naive_rpss"])
+    assert s["boosted_gain_lo"] <= s["boosted_gain"] <= s["boosted_gain_hi"]
+    assert s["best_pair_gain_lo"] <= s["best_pair_gain"] <= s["best_pair_gain_hi"]
 
 
 def test_scores_in_table_match_scores_module_on_predictions():
