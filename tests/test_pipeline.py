@@ -11,37 +11,15 @@ from pathlib import Path
 
 import pandas as pd
 import pytest
+from scenario_runs import quick_scenario_project
 
 from impactlink.pipeline import init_project, run_project
-from impactlink.project import project_from_dict
 
-ROOT = Path(__file__).resolve().parents[1]
-SCENARIO = ROOT / "scenario_data"
+SCENARIO = Path(__file__).resolve().parents[1] / "scenario_data"
 
 
-def _quick_project(out: Path):
-    raw = tomllib.loads((SCENARIO / "impactlink.toml").read_text())
-    raw["project"]["output_dir"] = str(out)
-    raw["indices"]["scales_weeks"] = [4, 13, 26]
-    raw["link"]["lags_weeks"] = [0, 4]
-    raw["skill"].update(n_boot=20, challenger=False, pairs=False)
-    for lad in raw["audit"]:
-        lad["n_boot"] = 20
-    raw["impacts"] = {k: v for k, v in raw["impacts"].items() if k in ("restrictions", "maize_shortfall")}
-    raw["impacts"]["restrictions"]["horizon_weeks"] = [13]
-    return project_from_dict(raw, base=SCENARIO, path=SCENARIO / "impactlink.toml")
-
-
-@pytest.fixture(scope="module")
-def quick_run(tmp_path_factory):
-    out = tmp_path_factory.mktemp("run")
-    project = _quick_project(out)
-    result = run_project(project, until="run", out=out, quiet=True)
-    return out, result
-
-
-def test_run_folder_is_complete(quick_run):
-    out, result = quick_run
+def test_run_folder_is_complete(scenario_run):
+    out, result = scenario_run
     for name in ("manifest.json", "rejected_rows.csv", "indices.parquet", "audit.csv",
                  "panel.parquet", "reconciliation.csv", "skill.csv", "skill_summary.csv",
                  "curves.csv", "outlook.csv", "triggers.csv", "contrast.csv", "counties.gpkg",
@@ -50,8 +28,8 @@ def test_run_folder_is_complete(quick_run):
     assert set(result.timings_s) >= {"inputs", "indices", "link", "rank", "report"}
 
 
-def test_manifest_counts_reconcile(quick_run):
-    out, _ = quick_run
+def test_manifest_counts_reconcile(scenario_run):
+    out, _ = scenario_run
     m = json.loads((out / "manifest.json").read_text())
     assert m["inputs"], "no inputs listed"
     for row in m["inputs"]:
@@ -66,16 +44,16 @@ def test_manifest_counts_reconcile(quick_run):
     assert m["seed"] == 20261202 and m["versions"]["numpy"]
 
 
-def test_notice_panel_has_one_row_per_county_week_in_coverage(quick_run):
-    out, _ = quick_run
+def test_notice_panel_has_one_row_per_county_week_in_coverage(scenario_run):
+    out, _ = scenario_run
     panel = pd.read_parquet(out / "panel.parquet")
     state = panel[panel["target"] == "restrictions:state"]
     assert not state.duplicated(["unit_id", "time"]).any()
     assert state["level"].between(0, 3).all()
 
 
-def test_report_answers_and_cautions(quick_run):
-    out, _ = quick_run
+def test_report_answers_and_cautions(scenario_run):
+    out, _ = scenario_run
     html = (out / "report.html").read_text()
     assert "statistical association" in html and "not cause" in html
     assert "responsible authorities" in html
@@ -83,9 +61,9 @@ def test_report_answers_and_cautions(quick_run):
     assert {"restrictions:state", "restrictions:onset:13w"} <= set(summary["target"])
 
 
-def test_same_seed_same_numbers(quick_run, tmp_path):
-    out, _ = quick_run
-    project = _quick_project(tmp_path)
+def test_same_seed_same_numbers(scenario_run, tmp_path):
+    out, _ = scenario_run
+    project = quick_scenario_project(tmp_path)
     run_project(project, until="rank", out=tmp_path, quiet=True)
     a = pd.read_csv(out / "skill.csv")
     b = pd.read_csv(tmp_path / "skill.csv")
