@@ -274,6 +274,7 @@ def _stage_rank(project, st, out_dir, progress, warnings):
         for lag in project.link.lags_weeks
     ]
     tables, summaries, reliab, curves, cross = [], [], [], [], []
+    local, persistence = [], []
     best_models = {}
     for target in st["targets"]:
         progress(f"rank {target.name}: {len(candidates)} candidates, {target.events} events")
@@ -299,8 +300,9 @@ def _stage_rank(project, st, out_dir, progress, warnings):
         )
         tables.append(res.table)
         summaries.append(res.summary)
-        if getattr(res, "reliability", None) is not None:
-            reliab.append(res.reliability)
+        reliab.append(res.reliability)
+        local.append(res.local)
+        persistence.append(res.persistence)
         best = _best_single(res.table)
         if best is None:
             continue
@@ -329,6 +331,8 @@ def _stage_rank(project, st, out_dir, progress, warnings):
         ("skill.csv", st["skill"]),
         ("skill_summary.csv", st["skill_summary"]),
         ("reliability.csv", _concat(reliab)),
+        ("skill_local.csv", _concat(local)),
+        ("skill_persistence.csv", _concat(persistence)),
         ("curves.csv", _concat(curves)),
         ("crossings.csv", _concat(cross)),
     ]:
