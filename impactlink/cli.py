@@ -117,9 +117,10 @@ def _dispatch(args: argparse.Namespace) -> int:
         ok = check_project(args.project, out=args.out)
         return 0 if ok else 1
     if cmd == "report":
+        from impactlink.progress import Reporter
         from impactlink.report import build_report
 
-        path = build_report(args.run_dir)
+        path = build_report(args.run_dir, progress=Reporter())
         print(f"report: {path}")
         return 0
     if cmd == "demo":
