@@ -913,6 +913,12 @@ def _local_and_predictions(ctx, features, units, records, base, table, *, n_loca
 
 
 # --------------------------------------------------------------------------- summary
+def _signed(row: dict, key: str, pct: int) -> str:
+    lo, hi = row[f"{key}_lo"], row[f"{key}_hi"]
+    iv = f" ({pct}% interval {lo:+.3f} to {hi:+.3f})" if np.isfinite(lo) else ""
+    return f"{row[key]:+.3f}{iv}"
+
+
 def _paired_gain(rpss: np.ndarray, i: int, j: int, ci: float) -> tuple[float, float, float]:
     """Skill of row i minus row j, with the paired bootstrap interval (same replicates)."""
     d = rpss[i] - rpss[j]
@@ -963,11 +969,21 @@ def _summary(ctx, table, nested, pers, reps) -> pd.DataFrame:
     s = (f"For {t.name}, {str(b['index']).upper()} over {b['scale_weeks']} weeks, "
          f"{b['lag_weeks']} week(s) ahead, predicts best out of sample: ranked probability "
          f"skill {b['rpss']:.3f}{iv} against the base rate, resting on {row['events']} "
-         f"impact rows in {ctx.n_years} years; {row['n_indistinguishable']} of "
-         f"{row['n_candidates']} candidates are statistically indistinguishable from it.")
+         f"impact rows in {ctx.n_years} years; {max(row['n_indistinguishable'] - 1, 0)} "
+         f"of the other {row['n_candidates'] - 1} candidates are statistically "
+         "indistinguishable from it.")
     if nested:
         s += (f" Choosing the best afresh in each fold, the fairer selection-aware estimate "
               f"is {nested['nested_rpss']:.3f}.")
+    extras = []
+    if "best_pair_gain" in row:
+        extras.append(f"the best two-scale pair ({row['best_pair']}) changes skill by "
+                      f"{_signed(row, 'best_pair_gain', pct)}")
+    if "boosted_gain" in row:
+        extras.append(f"a flexible boosted curve on the best candidate changes it by "
+                      f"{_signed(row, 'boosted_gain', pct)}")
+    if extras:
+        s += " Compared with the best single candidate, " + "; ".join(extras) + "."
     if len(pers):
         s += " " + pers.sort_values("lag_weeks").iloc[0]["sentence"]
     s += " This is a statistical association, not proof of cause."
