@@ -410,7 +410,7 @@ def _score_oof(P, N, layout, W) -> dict:
 # --------------------------------------------------------------------------- histograms
 @dataclass
 class _Unit:
-    kind: str  # "single" | "pair"
+    kind: str  # "single" | "single_pers" | "pair"
     key: tuple  # (index, scale, lag) or (index, short, long, lag)
     hist: E.Hist
     lag: int
