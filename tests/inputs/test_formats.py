@@ -7,7 +7,14 @@ import warnings
 import numpy as np
 import pandas as pd
 import pytest
-from inputs_fixtures import COUNTY_IDS, climate_frame, counties_frame, make_project, write_csv, write_text
+from inputs_fixtures import (
+    COUNTY_IDS,
+    climate_frame,
+    counties_frame,
+    make_project,
+    write_csv,
+    write_text,
+)
 
 from impactlink.inputs import InputWarning, discover_tables, read_inputs, summary_frame
 

@@ -12,9 +12,9 @@ from pathlib import Path
 
 import pandas as pd
 import pytest
-from inputs_fixtures import COUNTY_IDS, counties_frame, make_project, write_csv
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
+from inputs_fixtures import COUNTY_IDS, counties_frame, make_project, write_csv
 
 from impactlink.inputs import read_inputs
 
