@@ -29,7 +29,7 @@ _LINKERS = {
 
 #: Words in an impact's own text columns that suggest it is keyed to an index.
 _INDEX_WORDS = ("spi", "spei", "eddi", "drought category", "drought class", "drought index",
-                "drought monitor", "percentile")
+                "drought map", "percentile")
 
 
 def build_targets(spec, tables: dict[str, pd.DataFrame], *, counties, weeks: pd.DatetimeIndex,

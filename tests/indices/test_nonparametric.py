@@ -41,7 +41,7 @@ def test_eddi_matches_climate_indices_in_calibration(county):
     # Reference: climate-indices 3.1.0 ci.eddi(PET, 3, monthly, calibration 1991-2020)
     # (tests/reference/indices_make_reference.py), published sign (positive = high demand).
     # Both rank within calendar month with Tukey plotting positions. Systematic differences:
-    # the library uses NOAA's constants (r + 0.66)/(n + 0.33) for zero-based r (ours: exact
+    # the library uses rounded constants (r + 0.66)/(n + 0.33) for zero-based r (ours: exact
     # 1/3) and the Hastings inverse-normal approximation (|error| < 4.5e-4, Abramowitz &
     # Stegun 26.2.23) instead of the exact inverse: together < 0.01 on the normal scale.
     # Outside the calibration period the library scores a value above every calibration value
