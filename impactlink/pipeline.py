@@ -601,9 +601,11 @@ def _write_manifest(out_dir: Path, project: Project, st: dict, timings: dict, wa
             {k: _jsonable(v) for k, v in r.items()} for r in recon.to_dict("records")
         ],
         "targets": [
-            {"target": t.name, "rows": len(t.frame), "events": t.events,
-             **{k: _jsonable(v) for k, v in t.provenance.items() if k in (
-                 "rows_in_coverage", "rows_at_risk", "onsets", "circularity")}}
+            {"target": t.name, "role": t.role, "grain": t.grain, "rows": len(t.frame),
+             "events": t.events,
+             # onset / escalation targets: the explicit risk set (county-weeks at risk)
+             "rows_at_risk": _jsonable(t.provenance.get("at_risk")),
+             "flags": _jsonable(t.provenance.get("flags", []))}
             for t in st.get("targets", [])
         ],
         "indices": {str(k): _jsonable(v) for k, v in getattr(st.get("cube"), "provenance", {}).items()},
