@@ -208,8 +208,10 @@ def _stage_audit(project, st, out_dir, progress, warnings):
             n_boot=lad.n_boot,
             seed=project.seed,
         )
-        f = res.to_frame()
+        f = res.to_frame().drop(columns=["ladder", "index", "scale_weeks"], errors="ignore")
         f.insert(1, "ladder", lad.name)
+        f.insert(2, "index", lad.index)
+        f.insert(3, "scale_weeks", lad.scale_weeks)
         frames.append(f)
     audit = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
     st["audit"] = audit
@@ -549,9 +551,10 @@ def _write_layers(out_dir: Path, st: dict) -> None:
     base.to_file(path, layer="counties", driver="GPKG")
     audit = st.get("audit")
     if audit is not None and len(audit):
-        rec = audit[audit["period"] == "record"]
-        wide = rec.pivot_table(index="county_id", columns="stage", values="ratio", aggfunc="first")
-        wide.columns = [f"ratio_{c}" for c in wide.columns]
+        rec = audit[audit["period"].isin(["full", "record"])]
+        wide = rec.pivot_table(index="county_id", columns=["ladder", "stage"], values="ratio",
+                               aggfunc="first")
+        wide.columns = [f"ratio_{lad}_{stage}" for lad, stage in wide.columns]
         layer = base.merge(wide.reset_index(), on="county_id", how="left")
         layer.to_file(path, layer="audit", driver="GPKG")
     outlook = st.get("outlook")
