@@ -9,7 +9,6 @@ regression on person-period rows) must put the true hazard inside its 90 % inter
 from __future__ import annotations
 
 import numpy as np
-import pytest
 
 from impactlink.models import fit_impact_model, impact_curves
 
