@@ -338,6 +338,8 @@ def render_project_file(
             impacts["restrictions"] = {"source": "notices"}
         if "field_reports" in tables:
             impacts["field_reports"] = {"source": "field_reports"}
+    if a.early is None or a.late is None:
+        raise AssertionError("AuditLadder(): the default early and late periods must be set")
     lines = [
         "# impactlink project file. Paths are relative to this file's folder.",
         "# Every setting below is at its documented default; edit what you need.",

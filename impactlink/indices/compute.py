@@ -221,7 +221,7 @@ def compute_pet(
 
 
 def standardized_indices(
-    precip: np.ndarray | None,
+    precip: np.ndarray,
     pet: np.ndarray | None,
     times: pd.DatetimeIndex,
     *,
@@ -242,7 +242,8 @@ def standardized_indices(
     Parameters
     ----------
     precip, pet : ndarray, shape (T, C)
-        Precipitation and PET totals per step [mm]; NaN = missing.
+        Precipitation and PET totals per step [mm]; NaN = missing. ``pet`` may be None
+        when ``indices`` asks for neither SPEI nor EDDI.
     times : pandas.DatetimeIndex, length T
         ISO-week Mondays (``step="weekly"``) or month starts (``step="monthly"``).
     n_threads : int, optional
@@ -256,6 +257,12 @@ def standardized_indices(
     provenance : dict
         Per index: method, estimator, zero handling, calibration, clip range.
     """
+    lacking_pet = [i for i in indices if i in ("spei", "eddi")]
+    if pet is None and lacking_pet:
+        raise IndexInputError(
+            f"pet: None, but indices {lacking_pet} need PET totals; pass pet as an array of "
+            "shape (T, C) [mm] or leave SPEI and EDDI out of indices"
+        )
     say = progress or (lambda _msg: None)
     period, n_periods = period_of_year(times, step)
     years = grid_years(times, step)
@@ -301,13 +308,15 @@ def standardized_indices(
         sl = slice(int(cols[0]), int(cols[-1]) + 1)
         tell = say if chunk_no == 0 else (lambda _msg: None)
         p = np.ascontiguousarray(precip[:, sl])
-        e = np.ascontiguousarray(pet[:, sl]) if pet is not None else None
         if "spi" in indices:
             for s, acc in accumulate_many(p, scales, nonnegative=True):
                 tell(f"indices: SPI {s} {unit}")
                 arrays[("spi", s)][:, sl] = standardize_gamma(
                     acc, period, calib, n_periods=n_periods, estimator=spi_estimator,
                     zero_handling=spi_zero_handling, clip=clip)
+        if pet is None:  # checked above: then neither SPEI nor EDDI was asked for
+            return
+        e = np.ascontiguousarray(pet[:, sl])
         if "spei" in indices:
             fn = standardize_loglogistic if spei_distribution == "log-logistic" else standardize_gev
             for s, acc in accumulate_many(p - e, scales):

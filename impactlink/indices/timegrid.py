@@ -71,6 +71,7 @@ def build_grid(county: pd.Series, dates: pd.Series, cadence: Cadence) -> tuple[G
     d = pd.DatetimeIndex(pd.to_datetime(dates))
     codes, uniques = pd.factorize(county.astype(str), sort=True)
     county_ids = tuple(str(u) for u in uniques)
+    step: Literal["weekly", "monthly"]
     if cadence == "monthly":
         mi = (d.year * 12 + d.month - 1).to_numpy()
         m0, m1 = int(mi.min()), int(mi.max())

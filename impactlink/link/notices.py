@@ -28,6 +28,8 @@ only when two further covered weeks follow it in the record.
 
 from __future__ import annotations
 
+from typing import Any
+
 import numpy as np
 import pandas as pd
 
@@ -202,7 +204,6 @@ def link_notices(spec, tables: dict[str, pd.DataFrame], *, counties, weeks: pd.D
     labels = ("none", *ladder)
     lags = tuple(sorted({int(x) for x in lags_weeks}))
     base = _grid_columns(weeks, county_ids, region_of, level, mask, lags)
-    base["_meta"] = (weeks, county_ids, region_of)
     state_extra = {"open_end": open_flag, "notices_in_force": n_force}
     flags = _flags(opts)
     state = _target_from_grid(
@@ -524,11 +525,14 @@ def _rejected_only_counts(ledger: Ledger, iv, notices, snaps) -> dict[str, int]:
 
 
 # --------------------------------------------------------------------------- frames
-def _grid_columns(weeks, county_ids, region_of, level, mask, lags) -> dict[str, np.ndarray]:
+def _grid_columns(weeks, county_ids, region_of, level, mask, lags) -> dict[str, Any]:
+    """Per-week columns of the grid (persistence, weeks since end, episode weeks), each (W, C),
+    and under ``"_meta"`` the tuple ``(weeks, county_ids, region_of)`` that
+    :func:`_target_from_grid` needs to label rows."""
     nw, nc = level.shape
     t = np.arange(nw)[:, None]
     known = np.where(mask, level.astype(float), np.nan)
-    cols: dict[str, np.ndarray] = {}
+    cols: dict[str, Any] = {"_meta": (weeks, county_ids, region_of)}
     for L in lags:
         p = np.full((nw, nc), np.nan)
         if L < nw:

@@ -131,7 +131,6 @@ def link_field_reports(spec, tables, *, counties, weeks, lags_weeks=(0,),
     flags += ["effort_trend"] if np.isfinite(pval) and pval < alpha else []
     lags = tuple(sorted({int(x) for x in lags_weeks}))
     base = _grid_columns(weeks, county_ids, region_of, top, mask, lags)
-    base["_meta"] = (weeks, county_ids, region_of)
     t = _target_from_grid(
         spec.name, f"{spec.name}:count", "count", "ordinal" if has_sev else "binary", labels,
         base, mask, values=top, extra={"report_count": count},

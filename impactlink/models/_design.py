@@ -73,7 +73,7 @@ class DesignSpec:
                 raise ValueError(f"x[{f!r}] has {v.shape[0]} values; expected {n}")
             cols[f] = v
         need = self.needs
-        if need:
+        if need:  # covariates, season or traits: all read from frame
             if frame is None:
                 raise ValueError(
                     f"this model needs frame columns {list(need)} (covariates, season or "
@@ -86,6 +86,15 @@ class DesignSpec:
                 )
             if len(frame) != n:
                 raise ValueError(f"frame has {len(frame)} rows; expected {n} (one per x value)")
+            cols.update(self._frame_columns(frame))
+        out = pd.DataFrame(cols)
+        if self.columns:
+            out = out[list(self.columns)]
+        return out
+
+    def _frame_columns(self, frame: pd.DataFrame) -> dict[str, np.ndarray]:
+        """Covariate, seasonal-harmonic and trait columns read from ``frame``, in that order."""
+        cols: dict[str, np.ndarray] = {}
         for c in self.covariates:
             cols[c] = pd.to_numeric(frame[c], errors="coerce").to_numpy(dtype=float)
         if self.seasonal != "none":
@@ -95,13 +104,15 @@ class DesignSpec:
             cols[SEASON_COLUMNS[1]] = np.cos(2.0 * np.pi * s / period)
         if self.traits:
             tt = self.trait_table
+            if tt is None:
+                raise ValueError(
+                    f"DesignSpec has traits {list(self.traits)} but no trait_table; build the "
+                    "spec with the standardised trait table it was fitted on"
+                )
             ids = frame["county_id"].astype(str)
             for t in self.traits:
                 cols[t] = ids.map(tt[t]).to_numpy(dtype=float)
-        out = pd.DataFrame(cols)
-        if self.columns:
-            out = out[list(self.columns)]
-        return out
+        return cols
 
 
 def as_feature_dict(x, n: int | None = None, *, name: str = "x") -> dict[str, np.ndarray]:

@@ -269,8 +269,8 @@ def _unit_predictors(model: ImpactModel, x: np.ndarray, *, counties: bool):
 
 
 def _reference_lp(m: ImpactModel, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    ref = m.design.reference or {}
-    primary = m.design.features[0]
+    ref = m.spec.reference or {}
+    primary = m.spec.features[0]
     Xd = np.column_stack([
         x if c == primary else np.full(x.size, ref.get(c, 0.0)) for c in m.predictors
     ])

@@ -137,6 +137,16 @@ class ImpactModel:
     def cuts(self) -> np.ndarray:
         return self.params.to_numpy()[len(self.predictors):]
 
+    @property
+    def spec(self) -> DesignSpec:
+        """The :class:`DesignSpec` of the fit; an error when the model was built without one."""
+        if self.design is None:
+            raise ValueError(
+                f"model {self.target or self.impact or '(unnamed)'!r} has design=None; it "
+                "cannot build predictors for new rows. Fit it with fit_impact_model."
+            )
+        return self.design
+
     # ------------------------------------------------------------ prediction
     def predict(self, x_new, *, frame: pd.DataFrame | None = None) -> np.ndarray:
         """P(level >= k) for k = 1..K.
@@ -191,7 +201,7 @@ class ImpactModel:
         if self.pooling == "all" or not self.members:
             if not self.ok:
                 return np.full((n, K), np.nan), np.full((n, K), np.nan)
-            Xd = self.design.build(xd, frame, n).to_numpy(dtype=float)
+            Xd = self.spec.build(xd, frame, n).to_numpy(dtype=float)
             return _lp_var(self, Xd)
         if frame is None or "region" not in frame.columns:
             raise ValueError(
@@ -212,6 +222,11 @@ class ImpactModel:
         if self.pooling == "county":
             if "county_id" not in frame.columns:
                 raise ValueError("a model with pooling='county' needs a 'county_id' column in frame")
+            if self.groups is None:
+                raise ValueError(
+                    "a model with pooling='county' has groups=None; it cannot add county "
+                    "deviations. Fit it with fit_impact_model(..., pooling='county')."
+                )
             g = self.groups.set_index("county_id")
             ids = frame["county_id"].astype(str)
             u = np.array(ids.map(g["deviation"]).to_numpy(dtype=float))

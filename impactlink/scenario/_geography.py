@@ -111,8 +111,8 @@ def _county_seeds(outline: Polygon, rng: np.random.Generator):
     xs = np.linspace(30.0, 592.0, N_COLS)
     ys = np.linspace(22.0, 305.0, N_ROWS)
     dx, dy = xs[1] - xs[0], ys[1] - ys[0]
-    cols, rows = np.meshgrid(np.arange(N_COLS), np.arange(N_ROWS), indexing="ij")
-    cols, rows = cols.ravel(), rows.ravel()  # west -> east, then south -> north
+    col_grid, row_grid = np.meshgrid(np.arange(N_COLS), np.arange(N_ROWS), indexing="ij")
+    cols, rows = col_grid.ravel(), row_grid.ravel()  # west -> east, then south -> north
     px = xs[cols] + rng.uniform(-0.3, 0.3, cols.size) * dx
     py = ys[rows] + rng.uniform(-0.3, 0.3, rows.size) * dy
     inner = outline.buffer(-10.0)

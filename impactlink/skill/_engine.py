@@ -51,7 +51,7 @@ class Hist:
     S: np.ndarray
     cell: np.ndarray
     n_cells: int
-    keep: np.ndarray | None = None  # (NB * C,) which (bin, cell) rows are kept
+    keep: np.ndarray  # (NB * C,) which (bin, cell) rows are kept
 
 
 def make_layout(block_fold, block_year, n_years, n_levels, *, k_inner, n_boot, seed):
@@ -182,10 +182,10 @@ def fit_chunk(hists: list[Hist], layout: Layout, *, use_cells: bool, jobs_subset
     Xl[:, :, n_max:] = xm.reshape(U, J, 1, p)
     yl[:, :, n_max:] = np.arange(K)
     wl[:, :, n_max:] = prior / K
-    Xl, yl, wl = Xl.reshape(U * J, n_max + K, p), yl.reshape(U * J, -1), wl.reshape(U * J, -1)
+    Xc, yc, wc = Xl.reshape(U * J, n_max + K, p), yl.reshape(U * J, -1), wl.reshape(U * J, -1)
     start = _warm_start(lambda *a, **k: fit_cumlogit_batch(*a, n_levels=K, **k),
-                        Xl, yl, wl, U, J, ridge=ridge)
-    fit = fit_cumlogit_batch(Xl, yl, wl, n_levels=K, ridge=ridge, max_iter=max_iter, tol=tol,
+                        Xc, yc, wc, U, J, ridge=ridge)
+    fit = fit_cumlogit_batch(Xc, yc, wc, n_levels=K, ridge=ridge, max_iter=max_iter, tol=tol,
                              start=start)
     return fit.coef.reshape(U, J, -1), fit.converged.reshape(U, J)
 

@@ -440,7 +440,8 @@ def _histograms(ctx, features, cands, *, n_bins, pairs, pair_bins) -> list[_Unit
             z = (x - mu) / sd
             xs[sc] = (z, mu, sd, E.bin_codes(z, pair_bins) if pairs else None)
             b = E.bin_codes(z, n_bins)
-            tr = ((mu, sd, float(z.min()), float(z.max())),)
+            tr: tuple[tuple[float, float, float, float], ...] = (
+                (mu, sd, float(z.min()), float(z.max())),)
             if cell is None:
                 h = _hist(ctx, [z], b, zero, n_bins, 1)
             else:  # the index-plus-persistence variant: rows by bin x level known
