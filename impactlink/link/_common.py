@@ -138,6 +138,27 @@ class Ledger:
         cols = RECONCILIATION_COLUMNS + ["not_selected"]
         return pd.DataFrame(rows, columns=cols)
 
+    def result(self, targets: list[Target], summary: pd.DataFrame) -> LinkResult:
+        """The :class:`LinkResult` of ``targets`` with this ledger's rejections, record counts
+        and warnings."""
+        return LinkResult(targets=tuple(targets), rejected=self.rejected(),
+                          reconciliation=self.reconciliation(), summary=summary,
+                          warnings=self.warnings)
+
+
+def binary_variant(target: Target, label: str, event: np.ndarray) -> Target:
+    """A binary target on the rows of ``target``: level 1 where ``event`` is true.
+
+    Named ``<target.name>:<label>`` with levels ``("no", label)``; grain, role, rule and
+    horizon are those of ``target``, and its provenance is copied.
+    """
+    frame = target.frame.copy()
+    frame["level"] = np.asarray(event).astype(np.int64)
+    return Target(name=f"{target.name}:{label}", impact=target.impact, kind="binary",
+                  grain=target.grain, role=target.role, frame=frame, levels=("no", label),
+                  rule=target.rule, horizon_weeks=target.horizon_weeks,
+                  provenance=dict(target.provenance))
+
 
 # --------------------------------------------------------------------------- time helpers
 def monday(dates) -> pd.DatetimeIndex:

@@ -215,10 +215,7 @@ def link_notices(spec, tables: dict[str, pd.DataFrame], *, counties, weeks: pd.D
     if bool(opts.get("episodic", True)):
         targets += episodic_targets(spec.name, level, mask, base, opts=opts, top_level=K,
                                     lags=lags, flags=flags)
-    summary = summarize(targets)
-    return LinkResult(targets=tuple(targets), rejected=ledger.rejected(),
-                      reconciliation=ledger.reconciliation(), summary=summary,
-                      warnings=ledger.warnings)
+    return ledger.result(targets, summarize(targets))
 
 
 # --------------------------------------------------------------------------- core arrays

@@ -9,6 +9,7 @@ from impactlink.link._common import (
     Ledger,
     LinkError,
     LinkResult,
+    binary_variant,
     check_options,
     coverage_rows,
     interval_covered,
@@ -150,20 +151,15 @@ def link_prices(spec, tables, *, counties, weeks=None, lags_weeks=(),
                 "class_pct": edges, "rows": len(fr), "flags": flags,
                 "weights": "trait:" + opts["weight_trait"] if trait is not None else "area"}
         labels = ("none", *[f"spike_{e:g}pct" for e in edges])
-        targets.append(Target(name=f"{spec.name}:{com}", impact=spec.name, kind="ordinal",
-                              grain="region_month", role="monthly", frame=fr, levels=labels,
-                              rule=rule, provenance=prov))
+        ordinal = Target(name=f"{spec.name}:{com}", impact=spec.name, kind="ordinal",
+                         grain="region_month", role="monthly", frame=fr, levels=labels,
+                         rule=rule, provenance=prov)
+        targets.append(ordinal)
         if opts.get("binary_pct") is not None:
             b = float(opts["binary_pct"])
-            fb = fr.copy()
-            fb["level"] = (fb["anomaly_pct"].to_numpy() >= b).astype(np.int64)
-            targets.append(Target(name=f"{spec.name}:{com}:spike_{b:g}pct", impact=spec.name,
-                                  kind="binary", grain="region_month", role="monthly", frame=fb,
-                                  levels=("no", f"spike_{b:g}pct"), rule=rule,
-                                  provenance=dict(prov)))
-    return LinkResult(targets=tuple(targets), rejected=ledger.rejected(),
-                      reconciliation=ledger.reconciliation(), summary=summarize(targets),
-                      warnings=ledger.warnings)
+            targets.append(binary_variant(ordinal, f"spike_{b:g}pct",
+                                          fr["anomaly_pct"].to_numpy() >= b))
+    return ledger.result(targets, summarize(targets))
 
 
 def deflate(price: np.ndarray, month, price_index: pd.DataFrame, *, base_years=None

@@ -141,9 +141,7 @@ def link_field_reports(spec, tables, *, counties, weeks, lags_weeks=(0,),
     if bool(opts.get("episodic", False)):
         targets += episodic_targets(spec.name, top, mask, base, opts=opts,
                                     top_level=len(labels) - 1, lags=lags, flags=flags)
-    return LinkResult(targets=tuple(targets), rejected=ledger.rejected(),
-                      reconciliation=ledger.reconciliation(), summary=summarize(targets),
-                      warnings=ledger.warnings)
+    return ledger.result(targets, summarize(targets))
 
 
 def effort_trend(years: np.ndarray, rate: np.ndarray) -> tuple[float, float]:

@@ -9,6 +9,7 @@ from impactlink.link._common import (
     Ledger,
     LinkError,
     LinkResult,
+    binary_variant,
     check_options,
     coverage_rows,
     expand_to_counties,
@@ -171,17 +172,12 @@ def link_yields(spec, tables, *, counties, weeks=None, lags_weeks=(), equal_area
         prov = {"trend": trend, "robust": robust, "class_pct": edges, "binary_pct": bin_pct,
                 "rows": len(fr), "missing_years": gaps, "flags": flags}
         labels = ("none", *[f"shortfall_{e:g}pct" for e in edges])
-        targets.append(Target(name=base, impact=spec.name, kind="ordinal", grain="county_year",
-                              role="annual", frame=fr, levels=labels, rule=rule, provenance=prov))
-        fb = fr.copy()
-        fb["level"] = (-fb["departure_pct"].to_numpy() >= bin_pct).astype(np.int64)
-        targets.append(Target(name=f"{base}:shortfall_{bin_pct:g}pct", impact=spec.name,
-                              kind="binary", grain="county_year", role="annual", frame=fb,
-                              levels=("no", f"shortfall_{bin_pct:g}pct"), rule=rule,
-                              provenance=dict(prov)))
-    return LinkResult(targets=tuple(targets), rejected=ledger.rejected(),
-                      reconciliation=ledger.reconciliation(), summary=summarize(targets),
-                      warnings=ledger.warnings)
+        ordinal = Target(name=base, impact=spec.name, kind="ordinal", grain="county_year",
+                         role="annual", frame=fr, levels=labels, rule=rule, provenance=prov)
+        targets.append(ordinal)
+        targets.append(binary_variant(ordinal, f"shortfall_{bin_pct:g}pct",
+                                      -fr["departure_pct"].to_numpy() >= bin_pct))
+    return ledger.result(targets, summarize(targets))
 
 
 def loo_trend(years: np.ndarray, values: np.ndarray, *, trend: str = "linear",
