@@ -106,12 +106,9 @@ def brier_skill_score(y_true, y_prob, *, reference, sample_weight=None) -> float
     """
     y, p, w = _binary_inputs(y_true, y_prob, sample_weight, "brier_skill_score")
     ref = np.broadcast_to(np.asarray(reference, float), y.shape)
-    bs = brier_score(y, p, sample_weight=w)
-    bs_ref = brier_score(y, ref, sample_weight=w)
-    if bs_ref == 0:
-        raise ValueError("brier_skill_score: the reference forecast is perfect (BS_ref = 0); "
-                         "the skill score is undefined")
-    return 1.0 - bs / bs_ref
+    return _skill(brier_score(y, p, sample_weight=w), brier_score(y, ref, sample_weight=w),
+                  "brier_skill_score: the reference forecast is perfect (BS_ref = 0); the "
+                  "skill score is undefined")
 
 
 def ranked_probability_score(y_true, y_prob, *, sample_weight=None) -> float:
@@ -157,11 +154,18 @@ def rps_skill_score(y_true, y_prob, *, reference, sample_weight=None) -> float:
     """
     y, P, w = _ordinal_inputs(y_true, y_prob, sample_weight, "rps_skill_score")
     ref = np.broadcast_to(np.asarray(reference, float), P.shape)
-    r = ranked_probability_score(y, P, sample_weight=w)
-    r_ref = ranked_probability_score(y, ref, sample_weight=w)
-    if r_ref == 0:
-        raise ValueError("rps_skill_score: the reference forecast is perfect (RPS_ref = 0)")
-    return 1.0 - r / r_ref
+    return _skill(ranked_probability_score(y, P, sample_weight=w),
+                  ranked_probability_score(y, ref, sample_weight=w),
+                  "rps_skill_score: the reference forecast is perfect (RPS_ref = 0)")
+
+
+def _skill(score: float, score_ref: float, perfect_reference: str) -> float:
+    """Skill score ``1 - score / score_ref`` of a score whose perfect value is 0 (the form of
+    Wilks 2011, eqs. 8.37 and 8.53); ``perfect_reference`` is the error message when
+    ``score_ref`` is 0."""
+    if score_ref == 0:
+        raise ValueError(perfect_reference)
+    return 1.0 - score / score_ref
 
 
 def log_loss(y_true, y_prob, *, sample_weight=None) -> float:
