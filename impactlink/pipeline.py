@@ -313,8 +313,8 @@ def _stage_rank(project, st, out_dir, progress, warnings):
         meta = {"impact": target.impact, "target": target.name, "index": idx,
                 "scale_weeks": scale, "lag_weeks": lag}
         model = fit_impact_model(
-            target, x, link=project.models.link, pooling="all",
-            seasonal=project.models.seasonal, meta=meta,
+            target, x, link=project.models.link, **_model_options(project, st, target),
+            meta=meta,
         )
         best_models[target.name] = (model, (idx, scale, lag))
         st.setdefault("skill_tables", {})[target.name] = res.table
@@ -374,8 +374,8 @@ def _stage_outlook(project, st, out_dir, progress, warnings):
                     "scale_weeks": scale, "lag_weeks": lag_}
             x = feature_values(target, cube, idx, scale, lag_)
             models[(target.name, idx, scale, lag_)] = fit_impact_model(
-                target, x, link=project.models.link, pooling="all",
-                seasonal=project.models.seasonal, meta=meta,
+                target, x, link=project.models.link, **_model_options(project, st, target),
+                meta=meta,
             )
         if not models:
             continue
@@ -514,6 +514,31 @@ _STAGES = {
 
 
 # ----------------------------------------------------------------------------- helpers
+def _model_options(project: Project, st: dict, target) -> dict[str, Any]:
+    """Final-fit options from ``[models]``: pooling, seasonal terms, county traits.
+
+    County pooling and traits need a county grain; region-month targets fall back to one
+    model for all units.
+    """
+    county_grain = target.grain != "region_month"
+    opts: dict[str, Any] = {
+        "pooling": project.models.pooling if county_grain else "all",
+        "seasonal": project.models.seasonal,
+    }
+    traits = st["bundle"].tables.get("traits")
+    if project.models.traits and county_grain and traits is not None:
+        missing = set(project.models.traits) - set(traits.columns)
+        if missing:
+            from impactlink.errors import StageError
+
+            raise StageError(
+                f"[models] traits names {sorted(missing)}, which the traits table lacks; "
+                f"its columns are {sorted(c for c in traits.columns if c != 'county_id')}"
+            )
+        opts["traits"] = traits[["county_id", *project.models.traits]]
+    return opts
+
+
 def _best_single(table: pd.DataFrame):
     """The best single-index candidate (index, scale, lag) of a skill table, or None."""
     if table is None or table.empty:
