@@ -136,28 +136,17 @@ def fit_logistic_batch(
     if start is not None:
         beta = _start(start, (B, p), "fit_logistic_batch")
     obj = _logit_objective(X, y, w, beta, pen)
-    converged = np.zeros(B, dtype=bool)
-    it = 0
-    for it in range(1, max_iter + 1):
-        active = ~converged
-        if not active.any():
-            it -= 1
-            break
-        A = slice(None) if active.mean() > 0.5 else np.flatnonzero(active)
-        Xa, ya, wa, ba, pa = X[A], y[A], w[A], beta[A], pen[A]
+
+    def newton_step(A, ba):
+        Xa, ya, wa, pa = X[A], y[A], w[A], pen[A]
         eta = _mv(Xa, ba)
         mu = _sigmoid(eta)
         grad = _tv(Xa, wa * (ya - mu)) - pa * ba
         H = _quad(Xa, wa * mu * (1 - mu), Xa)
         H[:, np.arange(p), np.arange(p)] += pa + 1e-12
-        step = _solve(H, grad)
-        step[converged[A]] = 0.0
-        new, new_obj = _halve(
-            lambda bb, Xa=Xa, ya=ya, wa=wa, pa=pa: _logit_objective(Xa, ya, wa, bb, pa),
-            ba, step, obj[A])
-        beta[A] = new
-        obj[A] = new_obj
-        converged[A] |= np.abs(step).max(1) < tol
+        return _solve(H, grad), lambda bb: _logit_objective(Xa, ya, wa, bb, pa)
+
+    converged, it = _newton(newton_step, beta, obj, max_iter=max_iter, tol=tol)
     ll = _logit_objective(X, y, w, beta, np.zeros_like(pen))
     return BatchFit(coef=beta, converged=converged, n_iter=it, loglik=ll)
 
@@ -226,6 +215,35 @@ def _solve(H: np.ndarray, g: np.ndarray) -> np.ndarray:
         return np.linalg.solve(H, g[..., None])[..., 0]
     except np.linalg.LinAlgError:
         return (np.linalg.pinv(H) @ g[..., None])[..., 0]
+
+
+def _newton(newton_step, beta, obj, *, max_iter: int, tol: float, valid=None
+            ) -> tuple[np.ndarray, int]:
+    """Newton-Raphson with step-halving on a batch of fits, updating ``beta`` (B, q) and
+    ``obj`` (B,) in place.
+
+    ``newton_step(A, beta[A])`` returns the Newton step of the fits ``A`` and their
+    objective as a function of candidate coefficients. Fits stop once their largest
+    absolute step is below ``tol``. Returns the converged flags (B,) and the iterations used.
+    """
+    converged = np.zeros(beta.shape[0], dtype=bool)
+    it = 0
+    for it in range(1, max_iter + 1):
+        active = ~converged
+        if not active.any():
+            it -= 1
+            break
+        # compute on views of all fits while most are active (no copies); on the
+        # remaining few once most have converged
+        A = slice(None) if active.mean() > 0.5 else np.flatnonzero(active)
+        ba = beta[A]
+        step, objective = newton_step(A, ba)
+        step[converged[A]] = 0.0
+        new, new_obj = _halve(objective, ba, step, obj[A], valid=valid)
+        beta[A] = new
+        obj[A] = new_obj
+        converged[A] |= np.abs(step).max(1) < tol
+    return converged, it
 
 
 def _halve(objective, beta, step, obj_old, *, max_halvings: int = 30, valid=None):
@@ -357,17 +375,8 @@ def fit_cumlogit_batch(
         return (np.diff(par[:, : K - 1], axis=1) > 0).all(1)
 
     obj = objective(theta)
-    converged = np.zeros(B, dtype=bool)
-    it = 0
-    for it in range(1, max_iter + 1):
-        active = ~converged
-        if not active.any():
-            it -= 1
-            break
-        # compute on views of all fits while most are active (no copies); on the
-        # remaining few once most have converged
-        A = slice(None) if active.mean() > 0.5 else np.flatnonzero(active)
-        par = theta[A]
+
+    def newton_step(A, par):
         du, dl, hu, hl, wa, pa = Du[A], Dl[A], has_u[A], has_l[A], w[A], pen[A]
         au = np.where(hu, _mv(du, par), np.inf)
         al = np.where(hl, _mv(dl, par), -np.inf)
@@ -384,16 +393,13 @@ def fit_cumlogit_batch(
         H = (_quad(du, wa * huu, du) + _quad(dl, wa * hll, dl)
              + cross + cross.transpose(0, 2, 1))
         H[:, np.arange(q), np.arange(q)] -= pa + 1e-12
-        step = _solve(-H, grad)
-        step[converged[A]] = 0.0
 
-        def obj_a(pp, du=du, dl=dl, hu=hu, hl=hl, wa=wa, pa=pa):
+        def obj_a(pp):
             return _cum_loglik(pp, du, dl, hu, hl, wa) - 0.5 * (pa * pp**2).sum(1)
 
-        new, new_obj = _halve(obj_a, par, step, obj[A], valid=ordered)
-        theta[A] = new
-        obj[A] = new_obj
-        converged[A] |= np.abs(step).max(1) < tol
+        return _solve(-H, grad), obj_a
+
+    converged, it = _newton(newton_step, theta, obj, max_iter=max_iter, tol=tol, valid=ordered)
     ll = _cum_loglik(theta, Du, Dl, has_u, has_l, w)
     return BatchFit(coef=theta, converged=converged, n_iter=it, loglik=ll)
 
