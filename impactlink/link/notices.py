@@ -391,6 +391,22 @@ def _place(frame: pd.DataFrame, *, counties, tables, crs, issuer_county=None) ->
     return out
 
 
+def _place_or_reject(frame: pd.DataFrame, table: str, ledger: Ledger, ok: np.ndarray, *,
+                     reason: str, column: str, **place) -> np.ndarray:
+    """County of each row (:func:`_place` with ``place``). Rows still ``ok`` that cannot be
+    placed are rejected with ``reason`` (naming ``column``), and rows placed in a county
+    missing from the counties layer are rejected too; both are cleared from ``ok`` in place."""
+    county = _place(frame, **place)
+    unplaced = pd.isna(county)
+    ledger.reject(table, frame, unplaced & ok, reason, column=column)
+    ok &= ~unplaced
+    unknown = np.array([isinstance(c, str) and c.startswith("?") for c in county])
+    ledger.reject(table, frame, unknown & ok, "county_id not in the counties layer",
+                  column="county_id")
+    ok &= ~unknown
+    return county
+
+
 def _prepare_notices(nt: pd.DataFrame, ledger: Ledger, *, opts, K, counties, tables, crs
                      ) -> pd.DataFrame:
     ok = np.ones(len(nt), dtype=bool)
@@ -414,16 +430,11 @@ def _prepare_notices(nt: pd.DataFrame, ledger: Ledger, *, opts, K, counties, tab
     bad = start.isna().to_numpy()
     ledger.reject("notices", nt, bad & ok, "start_date is missing", column="start_date")
     ok &= ~bad
-    county = _place(nt, counties=counties, tables=tables, crs=crs)
-    unplaced = pd.isna(county)
-    ledger.reject("notices", nt, unplaced & ok,
-                  "cannot place notice: no county_id, lon/lat outside every county, and issuer "
-                  "not in water_systems", column="notice_id")
-    ok &= ~unplaced
-    unknown = np.array([isinstance(c, str) and c.startswith("?") for c in county])
-    ledger.reject("notices", nt, unknown & ok, "county_id not in the counties layer",
-                  column="county_id")
-    ok &= ~unknown
+    county = _place_or_reject(
+        nt, "notices", ledger, ok, column="notice_id",
+        reason="cannot place notice: no county_id, lon/lat outside every county, and issuer "
+               "not in water_systems",
+        counties=counties, tables=tables, crs=crs)
     return pd.DataFrame({
         "table": "notices",
         "row": nt.index[ok],
@@ -453,16 +464,11 @@ def _snapshots_to_intervals(sn: pd.DataFrame, ledger: Ledger, *, opts, K, counti
         g = nt.dropna(subset=["county_id"])
         issuer_county = g.groupby(g["issuer"].astype(str))["county_id"].agg(
             lambda s: str(s.astype(str).mode().iloc[0]))
-    county = _place(sn, counties=counties, tables=tables, crs=crs, issuer_county=issuer_county)
-    unplaced = pd.isna(county)
-    ledger.reject("notice_snapshots", sn, unplaced & ok,
-                  "cannot place snapshot: no county_id or lon/lat, and issuer not in "
-                  "water_systems or notices", column="issuer")
-    ok &= ~unplaced
-    unknown = np.array([isinstance(c, str) and c.startswith("?") for c in county])
-    ledger.reject("notice_snapshots", sn, unknown & ok, "county_id not in the counties layer",
-                  column="county_id")
-    ok &= ~unknown
+    county = _place_or_reject(
+        sn, "notice_snapshots", ledger, ok, column="issuer",
+        reason="cannot place snapshot: no county_id or lon/lat, and issuer not in "
+               "water_systems or notices",
+        counties=counties, tables=tables, crs=crs, issuer_county=issuer_county)
     d = pd.DataFrame({
         "row": sn.index[ok], "issuer": sn["issuer"].astype(str).to_numpy()[ok],
         "county_id": county[ok].astype(str),
