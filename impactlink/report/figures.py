@@ -102,6 +102,14 @@ def _rows(frame: pd.DataFrame, where: str, **equal) -> pd.DataFrame:
     return sub
 
 
+def _row_chart(n_rows: int, *, row_height: float, pad: float):
+    """A figure 6.4 in wide with one axes for ``n_rows`` horizontal rows: ``(fig, ax, y)``,
+    ``y`` the row positions with the first row at the top. Height ``row_height * n_rows +
+    pad`` [in]."""
+    fig = Figure(figsize=(6.4, row_height * n_rows + pad), layout="constrained")
+    return fig, fig.subplots(), np.arange(n_rows)[::-1]
+
+
 def figure_png(fig: Figure, *, dpi: int = 110) -> bytes:
     """Render a Figure to PNG bytes with the Agg canvas.
 
@@ -299,9 +307,7 @@ def candidate_intervals(
     if cand.empty:
         raise FigureInputError(f"{where}: no scored candidates for {impact!r} / {target!r}")
     base = rows[rows["model"].isin(BASELINE_MODELS).fillna(False).to_numpy(dtype=bool)]
-    fig = Figure(figsize=(6.4, 0.34 * len(cand) + 1.4), layout="constrained")
-    ax = fig.subplots()
-    y = np.arange(len(cand))[::-1]
+    fig, ax, y = _row_chart(len(cand), row_height=0.34, pad=1.4)
     tie = (
         cand["indistinguishable_from_best"].astype("boolean").fillna(False).to_numpy(dtype=bool)
         if "indistinguishable_from_best" in cand.columns
@@ -686,9 +692,7 @@ def record_timeline(inputs: pd.DataFrame) -> Figure:
     ).dropna(subset=["start", "end"])
     if d.empty:
         raise FigureInputError(f"{where}: no input has both date_min and date_max")
-    fig = Figure(figsize=(6.4, 0.36 * len(d) + 1.2), layout="constrained")
-    ax = fig.subplots()
-    y = np.arange(len(d))[::-1]
+    fig, ax, y = _row_chart(len(d), row_height=0.36, pad=1.2)
     start = mdates.date2num(d["start"])
     span = mdates.date2num(d["end"]) - start
     ax.barh(y, span, left=start, color=CATEGORICAL["harbour"], edgecolor=CATEGORICAL["ink"],
@@ -822,9 +826,7 @@ def odds_ratio_chart(contrast: pd.DataFrame, *, target: str | None = None) -> Fi
     sub = sub.dropna(subset=["odds_ratio_per_sd"])
     if sub.empty:
         raise FigureInputError(f"{where}: no odds ratios to draw")
-    fig = Figure(figsize=(6.4, 0.4 * len(sub) + 1.3), layout="constrained")
-    ax = fig.subplots()
-    y = np.arange(len(sub))[::-1]
+    fig, ax, y = _row_chart(len(sub), row_height=0.4, pad=1.3)
     est = sub["odds_ratio_per_sd"].to_numpy(float)
     err = np.nan_to_num(np.clip(np.vstack([est - sub["or_lo"].to_numpy(float),
                                            sub["or_hi"].to_numpy(float) - est]), 0, None))
