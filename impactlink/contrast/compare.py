@@ -231,7 +231,8 @@ def poisson_ratio_interval(
 
 
 # --------------------------------------------------------------------------- private steps
-def _prepare(target, x, traits, link, cluster, ci, n_pairs, n_boot):
+def _prepare(target, x, traits, link, cluster, ci, n_pairs, n_boot
+             ) -> tuple[pd.DataFrame, list[str], np.ndarray, dict]:
     if link != "logit":
         raise StageError(
             f"link must be 'logit' (odds ratios per SD need it); got {link!r}."
