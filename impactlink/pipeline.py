@@ -328,6 +328,7 @@ def _stage_rank(project, st, out_dir, progress, warnings):
     st["best_models"] = best_models
     st["skill"] = _concat(tables)
     st["skill_summary"] = _concat(summaries)
+    st["skill_local"] = _concat(local)
     written = []
     for name, frame in [
         ("skill.csv", st["skill"]),
@@ -582,6 +583,14 @@ def _write_layers(out_dir: Path, st: dict) -> None:
         wide.columns = [f"ratio_{lad}_{stage}" for lad, stage in wide.columns]
         layer = base.merge(wide.reset_index(), on="county_id", how="left")
         layer.to_file(path, layer="audit", driver="GPKG")
+    local = st.get("skill_local")
+    if local is not None and len(local):
+        # one row per county and target: best candidate, its skill and the events it rests on
+        unit = local[local["level"] == "unit"].rename(columns={"unit": "county_id"})
+        unit = unit.drop(columns=["level"])
+        layer = base.merge(unit, on="county_id", how="inner")
+        if len(layer):
+            layer.to_file(path, layer="best_candidate", driver="GPKG")
     outlook = st.get("outlook")
     if outlook is not None and len(outlook):
         o = outlook.copy()

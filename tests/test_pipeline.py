@@ -20,7 +20,7 @@ SCENARIO = Path(__file__).resolve().parents[1] / "scenario_data"
 
 def test_run_folder_is_complete(scenario_run):
     out, result = scenario_run
-    for name in ("manifest.json", "rejected_rows.csv", "indices.parquet", "audit.csv",
+    for name in ("manifest.json", "rejected_rows.csv", "indices.parquet", "audit.csv", "skill_local.csv",
                  "panel.parquet", "reconciliation.csv", "skill.csv", "skill_summary.csv",
                  "curves.csv", "outlook.csv", "triggers.csv", "contrast.csv", "counties.gpkg",
                  "report.html"):
@@ -100,3 +100,16 @@ def test_unknown_trait_names_in_models_section_are_a_clear_error(tmp_path):
     # region-month targets fall back to one model for all units
     assert _model_options(dataclasses.replace(project, models=dataclasses.replace(
         project.models, traits=())), st, SimpleNamespace(grain="region_month"))["pooling"] == "all"
+
+
+def test_geopackage_has_per_county_layers(scenario_run):
+    import pyogrio
+
+    out, _ = scenario_run
+    layers = {name for name, _geom in pyogrio.list_layers(out / "counties.gpkg")}
+    assert {"counties", "audit", "best_candidate", "outlook"} <= layers
+    import geopandas as gpd
+
+    best = gpd.read_file(out / "counties.gpkg", layer="best_candidate")
+    assert {"county_id", "target", "index", "scale_weeks", "lag_weeks", "events"} <= set(best.columns)
+    assert best["county_id"].isin(gpd.read_file(out / "counties.gpkg", layer="counties")["county_id"]).all()
