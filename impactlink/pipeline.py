@@ -173,6 +173,7 @@ def _stage_indices(project, st, out_dir, progress, warnings):
         latitude_deg=lat,
         indicators=tables.get("indicators"),
         scales_weeks=tuple(cfg.scales_weeks),
+        scales_months=tuple(cfg.scales_months),
         indices=tuple(cfg.indices),
         pet_method=cfg.pet_method,
         calibration=(cal.start_year, cal.end_year),
@@ -183,9 +184,20 @@ def _stage_indices(project, st, out_dir, progress, warnings):
     if cfg.indicators:
         keep = {k: v for k, v in cube.arrays.items() if k[0] in set(cfg.indices) | set(cfg.indicators)}
         cube = type(cube)(cube.weeks, cube.county_ids, keep, cube.provenance)
-    st["cube"] = cube
     path = out_dir / "indices.parquet"
-    cube.to_frame().to_parquet(path, index=False)
+    if cube.provenance.get("cadence") == "monthly":
+        # indices.parquet keeps the monthly cadence (scales in months); later stages work on
+        # ISO weeks, so they get the cube expanded to weeks (see indices.cadence)
+        from impactlink.indices.cadence import monthly_to_weekly
+
+        frame = cube.to_frame().rename(columns={"week": "month", "scale_weeks": "scale_months"})
+        frame.to_parquet(path, index=False)
+        cube = monthly_to_weekly(cube)
+        progress("monthly climate input: indices at monthly cadence, expanded to ISO weeks "
+                 "for linking (scale labels converted from months to weeks)")
+    else:
+        cube.to_frame().to_parquet(path, index=False)
+    st["cube"] = cube
     return [path]
 
 

@@ -52,6 +52,8 @@ class Calibration:
 @dataclass(frozen=True)
 class IndexSettings:
     scales_weeks: tuple[int, ...] = (4, 8, 13, 26, 39, 52, 104)
+    # used instead of scales_weeks when the climate input is monthly (monthly cadence)
+    scales_months: tuple[int, ...] = (1, 2, 3, 6, 9, 12, 24)
     indices: tuple[str, ...] = ("spi", "spei", "eddi")
     pet_method: str = "hargreaves"  # "hargreaves" | "thornthwaite" | "supplied"
     min_valid_days: int = 6
@@ -267,8 +269,11 @@ def _check_choices(p: Project, where: str) -> None:
             f"{where}: [calibration] end_year {p.calibration.end_year} is before "
             f"start_year {p.calibration.start_year}"
         )
-    if any(s <= 0 for s in p.indices.scales_weeks):
-        raise ProjectError(f"{where}: [indices] scales_weeks must be positive, got {p.indices.scales_weeks}")
+    if any(s <= 0 for s in (*p.indices.scales_weeks, *p.indices.scales_months)):
+        raise ProjectError(
+            f"{where}: [indices] scales must be positive, got weeks {p.indices.scales_weeks} "
+            f"and months {p.indices.scales_months}"
+        )
     if any(lag < 0 for lag in p.link.lags_weeks):
         raise ProjectError(f"{where}: [link] lags_weeks must be >= 0, got {p.link.lags_weeks}")
 
@@ -363,6 +368,7 @@ def render_project_file(
         "",
         "[indices]",
         f"scales_weeks = {_toml(list(i.scales_weeks))}",
+        f"scales_months = {_toml(list(i.scales_months))}   # used when climate rows are monthly",
         f"indices = {_toml(list(i.indices))}",
         f"pet_method = {_toml(i.pet_method)}   # hargreaves | thornthwaite | supplied",
         f"min_valid_days = {i.min_valid_days}       # fewer valid days makes the week missing",

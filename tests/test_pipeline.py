@@ -113,3 +113,28 @@ def test_geopackage_has_per_county_layers(scenario_run):
     best = gpd.read_file(out / "counties.gpkg", layer="best_candidate")
     assert {"county_id", "target", "index", "scale_weeks", "lag_weeks", "events"} <= set(best.columns)
     assert best["county_id"].isin(gpd.read_file(out / "counties.gpkg", layer="counties")["county_id"]).all()
+
+
+def test_monthly_climate_runs_through_linking(tmp_path):
+    # monthly climate rows keep a monthly cadence in indices.parquet (scales in months) and
+    # reach the weekly targets through the month-to-week expansion
+    import shutil
+
+    clim = pd.read_parquet(SCENARIO / "climate.parquet")
+    clim["date"] = pd.to_datetime(clim["date"]).dt.to_period("M").dt.to_timestamp()
+    monthly = clim.groupby(["county_id", "date"], as_index=False).agg(
+        precip_mm=("precip_mm", "sum"), tmin_c=("tmin_c", "mean"), tmax_c=("tmax_c", "mean"))
+    monthly.to_parquet(tmp_path / "climate.parquet", index=False)
+    for f in ("counties.geojson", "notices.csv", "coverage.csv"):
+        shutil.copy(SCENARIO / f, tmp_path / f)
+    path = init_project(tmp_path)
+    text = path.read_text().replace("scales_months = [1, 2, 3, 6, 9, 12, 24]", "scales_months = [3, 6]")
+    path.write_text(text)
+    result = run_project(path, until="link", out=tmp_path / "out", quiet=True)
+    idx = pd.read_parquet(tmp_path / "out" / "indices.parquet")
+    assert set(idx["scale_months"]) == {3, 6} and "month" in idx.columns
+    cube = result.state["cube"]
+    assert ("spi", 13) in cube.keys and ("spei", 26) in cube.keys  # 3 and 6 months in weeks
+    assert (pd.DatetimeIndex(cube.weeks).day_of_week == 0).all()
+    panel = pd.read_parquet(tmp_path / "out" / "panel.parquet")
+    assert (panel["target"] == "restrictions:state").any()
