@@ -93,7 +93,7 @@ def render_html(run: RunFolder, *, progress: Callable[[str], None] | None = None
     man = run.manifest or {}
     project = man.get("project") or {}
     name = project.get("name") if isinstance(project, dict) else None
-    title = f"Drought impact report \u2014 {name}" if name else "Drought impact report"
+    title = f"Dryness and its impacts \u2014 {name}" if name else "Dryness and its impacts"
     subtitle = " \u00b7 ".join(str(p) for p in (
         f"run of {man['created_utc']}" if man.get("created_utc") else None,
         f"impactlink {man['impactlink_version']}" if man.get("impactlink_version") else None,
