@@ -99,6 +99,7 @@ def rank_candidates(
     pair_bins: int = 16,
     n_local: int = 10,
     keep_predictions: bool = True,
+    seasonal: bool = False,
 ) -> SkillResult:
     """Score every candidate predictor of ``target`` out of sample and rank them.
 
@@ -139,6 +140,10 @@ def rank_candidates(
         Leading candidates compared per region and unit for ``local``.
     keep_predictions : bool, default True
         Return the row-level out-of-fold predictions.
+    seasonal : bool, default False
+        Add one pair of annual harmonics of the season to the ``index`` and
+        ``index_persistence`` models (see Notes). Ignored (with the result unchanged) when
+        the target's ``season`` column is absent or takes a single value (annual targets).
 
     Returns
     -------
@@ -165,6 +170,15 @@ def rank_candidates(
     (``persistence_<lag>``, with "unknown" as its own category); ``boosted``: histogram
     gradient boosting, monotone in the index (Chen & Guestrin 2016; scikit-learn's
     ``HistGradientBoostingClassifier``), one classifier per exceedance level.
+
+    *Seasonal terms* (``seasonal=True``). The ``index`` and ``index_persistence`` models
+    gain :math:`\\beta_s \\sin(2\\pi s/P) + \\beta_c \\cos(2\\pi s/P)` with :math:`P` = 52.1775
+    weeks (weekly seasons) or 12 months. The histograms gain a season dimension: 13
+    four-week classes of ISO weeks or the 12 months, and every row of a class uses the
+    harmonics at the class midpoint (for weeks at most 1.5 weeks, 0.18 rad, from the row's
+    own week; exact for months; see :func:`impactlink.skill._engine.season_classes`).
+    The fits then run on up to 13 times as many histogram rows. ``index_pair`` and
+    ``boosted`` ignore the season (index values only), and the baselines are unchanged.
 
     *Baselines.* ``climatology``: level frequencies of the training folds;
     ``seasonal``: the same per season (4-week blocks of ISO weeks for weekly targets,
@@ -195,7 +209,8 @@ def rank_candidates(
     model selection. BMC Bioinformatics 7, 91. https://doi.org/10.1186/1471-2105-7-91
     Chen, T., Guestrin, C. (2016). XGBoost: a scalable tree boosting system. KDD '16, 785-794.
     """
-    _check_options(target, candidates, cv=cv, ci=ci, n_boot=n_boot, n_bins=n_bins)
+    _check_options(target, candidates, cv=cv, ci=ci, n_boot=n_boot, n_bins=n_bins,
+                   seasonal=seasonal)
     cands = list(dict.fromkeys((str(i), int(s), int(lg)) for i, s, lg in candidates))
     frame = target.frame
     level_all = _as_float(frame["level"])
@@ -212,7 +227,7 @@ def rank_candidates(
                 "candidates whose time scale or lag runs past the index record"
             )
         ctx = _Context.build(target, rows, cv=cv, k_folds=k_folds, n_boot=n_boot, ci=ci,
-                             seed=seed, k_inner=k_inner)
+                             seed=seed, k_inner=k_inner, seasonal=seasonal)
         units = _histograms(ctx, features, cands, n_bins=n_bins, pairs=pairs,
                             pair_bins=pair_bins)
         if units is not None or attempt == 1:
@@ -246,13 +261,20 @@ def rank_candidates(
         "pair_bins": pair_bins, "k_inner": k_inner, "seed": seed,
         "rows_in_target": len(frame), "rows_scored": int(rows.size),
         "candidates": len(cands), "ranking_score": "rpss",
+        "seasonal": bool(seasonal), "seasonal_terms": ctx.seasons is not None,
     }
+    if ctx.seasons is not None:
+        prov.update(
+            seasonal_models=["index", "index_persistence"],
+            season_classes=ctx.seasons.n_classes, season_period=ctx.seasons.period,
+            season_harmonics="one sin/cos pair at the season-class midpoints",
+        )
     return SkillResult(table=table, summary=summary, persistence=pers, reliability=rel,
                        predictions=preds, local=local, provenance=prov)
 
 
 # --------------------------------------------------------------------------- checks
-def _check_options(target, candidates, *, cv, ci, n_boot, n_bins):
+def _check_options(target, candidates, *, cv, ci, n_boot, n_bins, seasonal=False):
     if not isinstance(target, Target):
         raise ValueError(f"target must be an impactlink Target; got {type(target).__name__}")
     need = {"year", "level", "unit_id"}
@@ -277,6 +299,11 @@ def _check_options(target, candidates, *, cv, ci, n_boot, n_bins):
         raise ValueError(f"n_boot={n_boot} must be >= 0")
     if n_bins < 2:
         raise ValueError(f"n_bins={n_bins} must be >= 2")
+    if not isinstance(seasonal, (bool, np.bool_)):
+        raise ValueError(
+            f"seasonal={seasonal!r} must be True or False (add annual harmonics of the "
+            "season to the index models, or not)"
+        )
 
 
 def _as_float(s: pd.Series) -> np.ndarray:
@@ -308,9 +335,10 @@ class _Context:
     pers_cells: dict  # lag -> cell codes (rows,) or absent
     season: np.ndarray
     boot_w: np.ndarray  # (1 + R, G): point weights then replicates
+    seasons: E.SeasonClasses | None = None  # season classes of the seasonal terms, if used
 
     @classmethod
-    def build(cls, target, rows, *, cv, k_folds, n_boot, ci, seed, k_inner):
+    def build(cls, target, rows, *, cv, k_folds, n_boot, ci, seed, k_inner, seasonal=False):
         fr = target.frame
         K = target.n_levels
         level = _as_float(fr["level"])[rows].astype(np.int64)
@@ -347,9 +375,14 @@ class _Context:
             season = np.unique(s, return_inverse=True)[1]
         else:
             season = np.zeros(rows.size, dtype=np.int64)
+        seasons = None
+        if seasonal and "season" in fr:
+            sc = E.season_classes(fr["season"].to_numpy()[rows],
+                                  weekly=target.grain != "region_month")
+            seasons = sc if sc.n_classes > 1 else None
         boot_w = np.vstack([np.ones((1, layout.n_blocks)), layout.boot])
         return cls(target, rows, level, block.astype(np.int64), layout, uy.size, ci, pers,
-                   season, boot_w)
+                   season, boot_w, seasons)
 
 
 # --------------------------------------------------------------------------- baselines
@@ -418,6 +451,8 @@ class _Unit:
     transform: tuple  # per predictor (mean, sd, lo, hi) for mapping rows to bins
     row_map: np.ndarray  # (NB * C,) compressed row of each (bin, cell), -1 if empty
     n_bins: int
+    n_season: int = 1  # season classes crossed with the bins (bin * n_season + class)
+    plain: E.Hist | None = None  # the index-only histogram without seasons (challenger)
 
 
 def _histograms(ctx, features, cands, *, n_bins, pairs, pair_bins) -> list[_Unit] | None:
@@ -428,6 +463,8 @@ def _histograms(ctx, features, cands, *, n_bins, pairs, pair_bins) -> list[_Unit
     n_full = len(ctx.target.frame)
     K = ctx.layout.n_levels
     zero = np.zeros(ctx.rows.size, dtype=np.int64)
+    sea = ctx.seasons
+    n_sea = sea.n_classes if sea is not None else 1
     for (ix, lg), scales in by_group.items():  # one pass per (index, lag) group
         cell = ctx.pers_cells.get(lg)
         xs = {}
@@ -442,13 +479,21 @@ def _histograms(ctx, features, cands, *, n_bins, pairs, pair_bins) -> list[_Unit
             b = E.bin_codes(z, n_bins)
             tr: tuple[tuple[float, float, float, float], ...] = (
                 (mu, sd, float(z.min()), float(z.max())),)
+            plain = None
+            if sea is None:
+                cols, bs = [z], b
+            else:  # seasonal terms: rows by bin x season class, harmonics at class midpoints
+                cols = [z, sea.harmonics[sea.code, 0], sea.harmonics[sea.code, 1]]
+                bs = b * n_sea + sea.code
+                plain = _hist(ctx, [z], b, zero, n_bins, 1)
             if cell is None:
-                h = _hist(ctx, [z], b, zero, n_bins, 1)
+                h = _hist(ctx, cols, bs, zero, n_bins * n_sea, 1)
             else:  # the index-plus-persistence variant: rows by bin x level known
-                hc, h = _hist(ctx, [z], b, cell, n_bins, K + 1, marginal=True)
+                hc, h = _hist(ctx, cols, bs, cell, n_bins * n_sea, K + 1, marginal=True)
                 units.append(_Unit("single_pers", (ix, sc, lg), hc, lg, True, tr,
-                                   _row_map(hc), n_bins))
-            units.append(_Unit("single", (ix, sc, lg), h, lg, False, tr, _row_map(h), n_bins))
+                                   _row_map(hc), n_bins, n_sea))
+            units.append(_Unit("single", (ix, sc, lg), h, lg, False, tr, _row_map(h), n_bins,
+                               n_sea, plain))
         if pairs:
             shorts = [s for s in sorted(xs) if s <= SHORT_MAX_WEEKS]
             longs = [s for s in sorted(xs) if s >= LONG_MIN_WEEKS]
@@ -668,7 +713,7 @@ def _best_single(table) -> int | None:
 def _challenger(ctx, units, best_rec, *, seed, jobs=1, dask_address=None) -> dict:
     """Monotone histogram gradient boosting on the best single candidate, same folds."""
     u = units[best_rec["unit"]]
-    h = u.hist
+    h = u.plain if u.plain is not None else u.hist  # the index only, no season classes
     K = ctx.layout.n_levels
     layout = ctx.layout
     N = h.N.sum(-1)
@@ -842,6 +887,8 @@ def _row_probs(ctx, features, units, rec) -> np.ndarray:
     x = _feature(features, u.key, len(ctx.target.frame))[ctx.rows]
     mu, sd = u.transform[0][:2]
     b = E.bin_codes((x - mu) / sd, u.n_bins)
+    if u.n_season > 1:
+        b = b * u.n_season + ctx.seasons.code
     cell = ctx.pers_cells[u.lag] if u.hist.n_cells > 1 else np.zeros_like(b)
     r = u.row_map[b * u.hist.n_cells + cell]
     return P_oof[ctx.block, r]
