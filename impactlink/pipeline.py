@@ -307,6 +307,7 @@ def _stage_rank(project, st, out_dir, progress, warnings):
             n_bins=sk.n_bins,
             pairs=sk.pairs,
             challenger=sk.challenger,
+            seasonal=project.models.seasonal,
             seed=project.seed,
             jobs=st["jobs"],
             dask_address=st["dask"],
