@@ -386,6 +386,10 @@ def _stage_outlook(project, st, out_dir, progress, warnings):
             idx, scale, lag_ = best
             meta = {"impact": target.impact, "target": target.name, "index": idx,
                     "scale_weeks": scale, "lag_weeks": lag_}
+            fitted = st.get("best_models", {}).get(target.name)
+            if fitted is not None and fitted[1] == (idx, scale, lag_):
+                models[(target.name, idx, scale, lag_)] = fitted[0]  # already fitted for curves
+                continue
             x = feature_values(target, cube, idx, scale, lag_)
             models[(target.name, idx, scale, lag_)] = fit_impact_model(
                 target, x, link=project.models.link, **_model_options(project, st, target),
@@ -578,7 +582,11 @@ def _concat(frames) -> pd.DataFrame:
 
 
 def _write_layers(out_dir: Path, st: dict) -> None:
-    """Per-county result layers in counties.gpkg for GIS users."""
+    """The ``counties`` and ``best_candidate`` layers of counties.gpkg for GIS users.
+
+    The report stage adds the ``audit`` and ``outlook`` layers from their tables, so a run
+    folder rebuilt with ``impactlink report`` gets them too.
+    """
     bundle = st.get("bundle")
     if bundle is None:
         return
@@ -588,14 +596,6 @@ def _write_layers(out_dir: Path, st: dict) -> None:
         path.unlink()
     base = counties[[c for c in ("county_id", "county_name", "region", "geometry") if c in counties]]
     base.to_file(path, layer="counties", driver="GPKG")
-    audit = st.get("audit")
-    if audit is not None and len(audit):
-        rec = audit[audit["period"].isin(["full", "record"])]
-        wide = rec.pivot_table(index="county_id", columns=["ladder", "stage"], values="ratio",
-                               aggfunc="first")
-        wide.columns = [f"ratio_{lad}_{stage}" for lad, stage in wide.columns]
-        layer = base.merge(wide.reset_index(), on="county_id", how="left")
-        layer.to_file(path, layer="audit", driver="GPKG")
     local = st.get("skill_local")
     if local is not None and len(local):
         # one row per county and target: best candidate, its skill and the events it rests on
@@ -604,13 +604,6 @@ def _write_layers(out_dir: Path, st: dict) -> None:
         layer = base.merge(unit, on="county_id", how="inner")
         if len(layer):
             layer.to_file(path, layer="best_candidate", driver="GPKG")
-    outlook = st.get("outlook")
-    if outlook is not None and len(outlook):
-        o = outlook.copy()
-        o["col"] = o["target"].astype(str) + "_h" + o["lag_weeks"].astype(str) + "_k" + o["level_k"].astype(str)
-        wide = o.pivot_table(index="county_id", columns="col", values="prob", aggfunc="first")
-        layer = base.merge(wide.reset_index(), on="county_id", how="left")
-        layer.to_file(path, layer="outlook", driver="GPKG")
 
 
 def _versions() -> dict[str, str]:
