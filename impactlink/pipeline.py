@@ -27,8 +27,6 @@ __all__ = ["run_project", "run_demo", "check_project", "init_project", "RunResul
 
 ORDER = ("inputs", "indices", "audit", "link", "rank", "outlook", "triggers", "contrast", "report")
 NEEDS = {
-    "inputs": ("inputs",),
-    "check": ("inputs",),
     "indices": ("inputs", "indices"),
     "audit": ("inputs", "indices", "audit"),
     "link": ("inputs", "indices", "link"),
@@ -72,8 +70,11 @@ def init_project(folder: str | Path, *, force: bool = False) -> Path:
 
 
 def check_project(path: str | Path, *, out: str | Path | None = None) -> bool:
-    """Read and validate every table; print a per-table summary. False if rows were rejected
-    from a required table or a fatal problem occurred (the fatal error is raised)."""
+    """Read and validate every table and print a per-table summary with rejection reasons.
+
+    Returns True when every table was read; a fatal problem raises (the CLI turns it into
+    one error line and exit code 2). Rejected rows are reported, not fatal.
+    """
     project = load_project(path)
     from impactlink.inputs import read_inputs, summary_frame
 
