@@ -81,18 +81,23 @@ def main(argv: list[str] | None = None) -> int:
     if not args.command:
         parser.print_help()
         return 0
+    import warnings
+
+    from impactlink.errors import ImpactlinkError, user_message, warning_line
+
+    def _one_line(message, category, filename, lineno, file=None, line=None):  # noqa: ANN001
+        print(warning_line(message, category), file=sys.stderr)
+
+    warnings.showwarning = _one_line  # a warning is one line in the tool's voice
     try:
         return _dispatch(args)
     except KeyboardInterrupt:  # pragma: no cover
-        print("interrupted", file=sys.stderr)
+        print("impactlink: interrupted; earlier results are left as they were", file=sys.stderr)
         return 130
-    except Exception as exc:  # user-facing errors: one clear line, no traceback
-        from impactlink.errors import USER_ERRORS
-
-        if isinstance(exc, USER_ERRORS):
-            print(f"impactlink: error: {exc}", file=sys.stderr)
-            return 2
-        raise
+    except ImpactlinkError as exc:  # a user's mistake: one line, no traceback
+        print(user_message(exc), file=sys.stderr)
+        return 2
+    # any other exception is a bug and keeps its traceback
 
 
 def _dispatch(args: argparse.Namespace) -> int:

@@ -11,13 +11,11 @@ from __future__ import annotations
 from collections.abc import Callable, Iterable, Sequence
 from typing import Any, TypeVar
 
+from impactlink.errors import ExecutionError
+
 __all__ = ["map_tasks", "ExecutionError"]
 
 T = TypeVar("T")
-
-
-class ExecutionError(RuntimeError):
-    """A task failed on a worker; the message names the task."""
 
 
 def map_tasks(

@@ -20,6 +20,7 @@ import numpy as np
 import pandas as pd
 
 from impactlink import __version__
+from impactlink.errors import ProjectError
 from impactlink.progress import Reporter
 from impactlink.project import Project, load_project, render_project_file
 
@@ -55,10 +56,10 @@ def init_project(folder: str | Path, *, force: bool = False) -> Path:
 
     folder = Path(folder)
     if not folder.is_dir():
-        raise FileNotFoundError(f"{folder} is not a folder; give the folder that holds your tables")
+        raise ProjectError(f"{folder} is not a folder; give the folder that holds your tables")
     target = folder / "impactlink.toml"
     if target.exists() and not force:
-        raise FileExistsError(f"{target} exists; use --force to overwrite it")
+        raise ProjectError(f"{target} exists; use --force to overwrite it")
     tables = discover_tables(folder)
     text = render_project_file(
         {k: Path(v).name for k, v in tables.items()},
@@ -548,9 +549,9 @@ def _model_options(project: Project, st: dict, target) -> dict[str, Any]:
     if project.models.traits and county_grain and traits is not None:
         missing = set(project.models.traits) - set(traits.columns)
         if missing:
-            from impactlink.errors import StageError
+            from impactlink.errors import ContrastError
 
-            raise StageError(
+            raise ContrastError(
                 f"[models] traits names {sorted(missing)}, which the traits table lacks; "
                 f"its columns are {sorted(c for c in traits.columns if c != 'county_id')}"
             )
@@ -685,7 +686,7 @@ def _repo_root() -> Path:
     cwd = Path.cwd()
     if (cwd / "scenario_data").is_dir():
         return cwd
-    raise FileNotFoundError(
+    raise ProjectError(
         "cannot find scenario_data/; run `impactlink demo` from the project's source folder, "
         "or generate the scenario with `impactlink scenario --out DIR` and run "
         "`impactlink run DIR/impactlink.toml`"

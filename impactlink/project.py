@@ -12,6 +12,8 @@ from dataclasses import asdict, dataclass, field, fields
 from pathlib import Path
 from typing import Any
 
+from impactlink.errors import ProjectError
+
 __all__ = [
     "ProjectError",
     "Project",
@@ -32,8 +34,6 @@ __all__ = [
 IMPACT_SOURCES = ("yields", "prices", "notices", "field_reports")
 
 
-class ProjectError(ValueError):
-    """The project file is missing, unreadable, or holds an impossible setting."""
 
 
 @dataclass(frozen=True)

@@ -78,7 +78,9 @@ def test_init_writes_a_project_that_loads(tmp_path):
     assert raw["tables"] == {"climate": "climate.parquet", "counties": "counties.geojson",
                              "notices": "notices.csv", "traits": "traits.csv"}
     assert raw["impacts"]["restrictions"]["source"] == "notices"
-    with pytest.raises(FileExistsError, match="--force"):
+    from impactlink.errors import ProjectError
+
+    with pytest.raises(ProjectError, match="--force"):
         init_project(tmp_path)
 
 
@@ -86,7 +88,7 @@ def test_unknown_trait_names_in_models_section_are_a_clear_error(tmp_path):
     import dataclasses
     from types import SimpleNamespace
 
-    from impactlink.errors import StageError
+    from impactlink.errors import ContrastError
     from impactlink.pipeline import _model_options
 
     project = quick_scenario_project(tmp_path)
@@ -95,7 +97,7 @@ def test_unknown_trait_names_in_models_section_are_a_clear_error(tmp_path):
     traits = pd.DataFrame({"county_id": ["90001"], "soil_whc_mm": [120.0]})
     st = {"bundle": SimpleNamespace(tables={"traits": traits})}
     target = SimpleNamespace(grain="county_week")
-    with pytest.raises(StageError, match=r"\['aquifer_depth_m'\], which the traits table lacks"):
+    with pytest.raises(ContrastError, match=r"\['aquifer_depth_m'\], which the traits table lacks"):
         _model_options(project, st, target)
     # region-month targets fall back to one model for all units
     assert _model_options(dataclasses.replace(project, models=dataclasses.replace(

@@ -10,17 +10,13 @@ import numpy as np
 import pandas as pd
 from scipy.stats import chi2
 
-from impactlink.errors import ImpactlinkWarning, StageError
+from impactlink.errors import ContrastError, ContrastWarning
 from impactlink.link.target import Target
 
 __all__ = ["ContrastResult", "ContrastWarning", "county_contrast", "poisson_ratio_interval"]
 
 #: Quantile levels summarising each county's exposure (the index values in impact seasons).
 _EXPOSURE_Q = np.linspace(0.05, 0.95, 19)
-
-
-class ContrastWarning(ImpactlinkWarning):
-    """Rows, traits or counties were left out of a county contrast, or the fit is fragile."""
 
 
 @dataclass(frozen=True)
@@ -112,7 +108,7 @@ def county_contrast(
 
     Raises
     ------
-    StageError
+    ContrastError
         If the target is not on a county grain, ``x`` does not match its rows, the traits table
         has no ``county_id`` or no usable numeric column, an option is unknown, or too few rows
         or events remain to fit.
@@ -234,37 +230,37 @@ def poisson_ratio_interval(
 def _prepare(target, x, traits, link, cluster, ci, n_pairs, n_boot
              ) -> tuple[pd.DataFrame, list[str], np.ndarray, dict]:
     if link != "logit":
-        raise StageError(
+        raise ContrastError(
             f"link must be 'logit' (odds ratios per SD need it); got {link!r}."
         )
     if cluster not in ("county", "year"):
-        raise StageError(f"cluster must be 'county' or 'year'; got {cluster!r}.")
+        raise ContrastError(f"cluster must be 'county' or 'year'; got {cluster!r}.")
     if not 0.5 <= float(ci) < 1.0:
-        raise StageError(f"ci must be a confidence level in [0.5, 1); got {ci!r}.")
+        raise ContrastError(f"ci must be a confidence level in [0.5, 1); got {ci!r}.")
     if int(n_pairs) < 0 or int(n_boot) < 0:
-        raise StageError(f"n_pairs and n_boot must be >= 0; got {n_pairs!r}, {n_boot!r}.")
+        raise ContrastError(f"n_pairs and n_boot must be >= 0; got {n_pairs!r}, {n_boot!r}.")
     frame = target.frame
     if target.grain not in ("county_week", "county_year") or "county_id" not in frame.columns:
-        raise StageError(
+        raise ContrastError(
             f"target {target.name!r} is on the {target.grain!r} grain; county contrasts need a "
             "county grain (county_week or county_year) with a county_id column."
         )
     for col in ("year", "level"):
         if col not in frame.columns:
-            raise StageError(f"target {target.name!r} frame lacks the {col!r} column.")
+            raise ContrastError(f"target {target.name!r} frame lacks the {col!r} column.")
     xv = np.asarray(x, dtype=np.float64)
     if xv.shape != (len(frame),):
-        raise StageError(
+        raise ContrastError(
             f"x has shape {xv.shape}; expected ({len(frame)},), one feature value per row of "
             f"target {target.name!r}."
         )
     if not isinstance(traits, pd.DataFrame) or "county_id" not in traits.columns:
-        raise StageError(
+        raise ContrastError(
             "traits must be a DataFrame with a county_id column and numeric trait columns."
         )
     if traits["county_id"].astype(str).duplicated().any():
         dup = traits.loc[traits["county_id"].astype(str).duplicated(), "county_id"].tolist()[:5]
-        raise StageError(f"traits has repeated county_id values {dup}; one row per county.")
+        raise ContrastError(f"traits has repeated county_id values {dup}; one row per county.")
     prov: dict = {"target": target.name, "warnings": [], "rows_in": int(len(frame))}
     numeric = [c for c in traits.columns
                if c != "county_id" and pd.api.types.is_numeric_dtype(traits[c])
@@ -273,7 +269,7 @@ def _prepare(target, x, traits, link, cluster, ci, n_pairs, n_boot
     if other:
         _warn(prov, f"non-numeric trait columns left out: {other}")
     if not numeric:
-        raise StageError(
+        raise ContrastError(
             "traits has no numeric column besides county_id; add county characteristics such as "
             "irrigated_share or storage_days."
         )
@@ -308,13 +304,13 @@ def _prepare(target, x, traits, link, cluster, ci, n_pairs, n_boot
         _warn(prov, f"traits constant across counties left out: "
                     f"{[c for c in numeric if c not in keep]}")
     if not keep:
-        raise StageError("no trait varies across the counties with data; nothing to contrast.")
+        raise ContrastError("no trait varies across the counties with data; nothing to contrast.")
     mean = county_traits[keep].mean().to_numpy()
     sd_keep = county_traits[keep].std(ddof=1).to_numpy()
     data[keep] = (data[keep].to_numpy() - mean) / sd_keep
     n_events = int(data["y"].sum())
     if len(data) < 20 or n_events < 5 or n_events > len(data) - 5:
-        raise StageError(
+        raise ContrastError(
             f"{len(data)} usable rows with {n_events} events: too few rows, events or non-events "
             "to fit a county contrast (need >= 20 rows and >= 5 of each outcome)."
         )
@@ -343,7 +339,7 @@ def _fit(y, design, groups=None):
             return model.fit(cov_type="cluster", cov_kwds={"groups": codes, "use_correction": True},
                              use_t=True)
         except (PerfectSeparationWarning, np.linalg.LinAlgError) as err:
-            raise StageError(
+            raise ContrastError(
                 "the impact is perfectly separated by the index or traits (some trait or index "
                 "range has only events or only non-events); the odds ratios are not estimable. "
                 f"Use fewer traits or more counties. ({type(err).__name__})"

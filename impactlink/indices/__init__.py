@@ -44,7 +44,7 @@ from .compute import (
     standardized_indices,
 )
 from .cube import IndexCube
-from .errors import IndexCalibrationWarning, IndexFitWarning, IndexInputError, IndexInputWarning
+from .errors import IndexCalibrationWarning, IndexFitWarning, IndicesError, IndicesWarning
 from .standardize import to_percentile
 
 __all__ = [
@@ -55,8 +55,8 @@ __all__ = [
     "to_percentile",
     "threshold_audit",
     "AuditResult",
-    "IndexInputError",
-    "IndexInputWarning",
+    "IndicesError",
+    "IndicesWarning",
     "IndexCalibrationWarning",
     "IndexFitWarning",
     "DEFAULT_SCALES_WEEKS",

@@ -12,7 +12,7 @@ import pandas as pd
 from scipy import special
 
 from .cube import IndexCube
-from .errors import IndexInputError
+from .errors import IndicesError
 from .timegrid import grid_years
 
 __all__ = ["threshold_audit", "AuditResult"]
@@ -134,7 +134,7 @@ def threshold_audit(
     cum_p = special.ndtr(sign * z_thr)  # cumulative nominal probability of x' <= t'
     expected = cum_p - np.append(cum_p[1:], 0.0)
     if np.any(expected <= 0):
-        raise IndexInputError(
+        raise IndicesError(
             f"thresholds: {list(thresholds)} are not strictly ordered from the mildest to the "
             f"most severe stage for direction={direction!r}"
         )
@@ -142,12 +142,12 @@ def threshold_audit(
     years = grid_years(cube.weeks, "monthly" if step == "monthly" else "weekly")
     valid_years = years[np.any(~np.isnan(x_all), axis=1)]
     if valid_years.size == 0:
-        raise IndexInputError(f"index {index!r} at scale {scale_weeks}: no valid values")
+        raise IndicesError(f"index {index!r} at scale {scale_weeks}: no valid values")
     periods = [("full", (int(valid_years.min()), int(valid_years.max())))]
     for label, per in (("early", early), ("late", late)):
         if per is not None:
             if len(per) != 2 or per[0] > per[1]:
-                raise IndexInputError(f"{label}: {per!r}; expected (first_year, last_year)")
+                raise IndicesError(f"{label}: {per!r}; expected (first_year, last_year)")
             periods.append((label, (int(per[0]), int(per[1]))))
     rng = np.random.default_rng(seed)
     parts = []
@@ -167,28 +167,28 @@ def threshold_audit(
 def _check_audit_args(cube, index, scale_weeks, thresholds, stage_names, kind, direction,
                       n_boot, ci):
     if kind not in ("value", "percentile"):
-        raise IndexInputError(f"kind={kind!r}; expected 'value' or 'percentile'")
+        raise IndicesError(f"kind={kind!r}; expected 'value' or 'percentile'")
     if direction not in ("below", "above"):
-        raise IndexInputError(f"direction={direction!r}; expected 'below' or 'above'")
+        raise IndicesError(f"direction={direction!r}; expected 'below' or 'above'")
     try:
         x = cube.get(index, scale_weeks)
     except KeyError as exc:
-        raise IndexInputError(str(exc.args[0])) from None
+        raise IndicesError(str(exc.args[0])) from None
     thr = np.asarray(list(thresholds), dtype=float)
     names = [str(s) for s in stage_names]
     if thr.size == 0 or thr.size != len(names):
-        raise IndexInputError(
+        raise IndicesError(
             f"thresholds ({thr.size}) and stage_names ({len(names)}) must be non-empty and of "
             "equal length: one name per threshold"
         )
     if len(set(names)) != len(names):
-        raise IndexInputError(f"stage_names: {names} contains duplicates")
+        raise IndicesError(f"stage_names: {names} contains duplicates")
     if kind == "percentile" and np.any((thr <= 0) | (thr >= 100)):
-        raise IndexInputError(f"thresholds: percentiles must lie strictly in (0, 100); got {thr}")
+        raise IndicesError(f"thresholds: percentiles must lie strictly in (0, 100); got {thr}")
     if not np.all(np.isfinite(thr)):
-        raise IndexInputError(f"thresholds: must be finite numbers; got {thr}")
+        raise IndicesError(f"thresholds: must be finite numbers; got {thr}")
     if int(n_boot) < 0 or not (0 < ci < 1):
-        raise IndexInputError(f"n_boot={n_boot}, ci={ci}; expected n_boot >= 0 and 0 < ci < 1")
+        raise IndicesError(f"n_boot={n_boot}, ci={ci}; expected n_boot >= 0 and 0 < ci < 1")
     return x, thr, names
 
 

@@ -13,6 +13,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from impactlink.errors import IndicesError
 from impactlink.indices.cube import IndexCube
 
 __all__ = ["monthly_to_weekly", "months_to_weeks"]
@@ -49,7 +50,7 @@ def monthly_to_weekly(cube: IndexCube) -> IndexCube:
     """
     months = pd.DatetimeIndex(cube.weeks)
     if len(months) == 0 or not (months.day == 1).all():
-        raise ValueError(
+        raise IndicesError(
             "monthly_to_weekly needs a cube whose time axis holds the first day of each month; "
             f"got {months[:3].tolist()}"
         )

@@ -12,7 +12,7 @@ import numpy as np
 import pandas as pd
 
 from .cube import IndexCube
-from .errors import IndexCalibrationWarning, IndexInputError, IndexInputWarning
+from .errors import IndexCalibrationWarning, IndicesError, IndicesWarning
 from .pet import (
     daylight_hours,
     extraterrestrial_radiation,
@@ -98,7 +98,7 @@ def compute_indices(
         First and last calibration year (inclusive). When the record does not cover it,
         the full record is used and :class:`IndexCalibrationWarning` is issued.
     min_calibration_years : int
-        Fewer calibration years is an :class:`IndexInputError`.
+        Fewer calibration years is an :class:`IndicesError`.
     min_valid_days : int
         Daily input: a week with fewer valid days is missing (NaN), never zero. Weekly
         totals from 6 of 7 days are scaled by 7/6.
@@ -128,7 +128,7 @@ def compute_indices(
 
     Raises
     ------
-    IndexInputError
+    IndicesError
         Missing columns, negative precipitation, duplicate rows, too short a record, no
         latitude for a county.
     """
@@ -136,7 +136,7 @@ def compute_indices(
     indices = tuple(indices)
     unknown = [i for i in indices if i not in KNOWN_INDICES]
     if unknown:
-        raise IndexInputError(f"indices: unknown {unknown}; expected a subset of {KNOWN_INDICES}")
+        raise IndicesError(f"indices: unknown {unknown}; expected a subset of {KNOWN_INDICES}")
     clim = _check_climate(climate)
     cadence = detect_cadence(clim.loc[clim["county_id"] == clim["county_id"].iloc[0], "date"])
     grid, tpos, cpos = build_grid(clim["county_id"], clim["date"], cadence)
@@ -144,7 +144,7 @@ def compute_indices(
         f"{grid.shape[1]} counties")
     scales = tuple(int(s) for s in (scales_months if grid.step == "monthly" else scales_weeks))
     if not scales or min(scales) < 1:
-        raise IndexInputError(f"scales: {scales}; expected positive integers")
+        raise IndicesError(f"scales: {scales}; expected positive integers")
 
     precip = _precip_grid(clim, grid, tpos, cpos, min_valid_days)
     needs_pet = any(i in indices for i in ("spei", "eddi"))
@@ -156,7 +156,7 @@ def compute_indices(
             warnings.warn(
                 "climate: no pet_mm and no temperature columns (tmin_c/tmax_c/tmean_c); SPEI "
                 "and EDDI are skipped. Supply temperatures or pet_mm to compute them.",
-                IndexInputWarning, stacklevel=2,
+                IndicesWarning, stacklevel=2,
             )
             indices = tuple(i for i in indices if i == "spi")
     say(f"indices: PET {pet_info['method']}")
@@ -208,7 +208,7 @@ def compute_pet(
     pet, _ = _pet_grid(clim, grid, tpos, cpos, latitude_deg, pet_method, use_supplied_pet,
                        min_valid_days)
     if pet is None:
-        raise IndexInputError(
+        raise IndicesError(
             "climate: no temperature columns (tmin_c/tmax_c/tmean_c) and no pet_mm; PET "
             "cannot be computed"
         )
@@ -259,7 +259,7 @@ def standardized_indices(
     """
     lacking_pet = [i for i in indices if i in ("spei", "eddi")]
     if pet is None and lacking_pet:
-        raise IndexInputError(
+        raise IndicesError(
             f"pet: None, but indices {lacking_pet} need PET totals; pass pet as an array of "
             "shape (T, C) [mm] or leave SPEI and EDDI out of indices"
         )
@@ -346,29 +346,29 @@ _NUMERIC = ("precip_mm", "tmin_c", "tmax_c", "tmean_c", "pet_mm")
 
 def _check_climate(climate: pd.DataFrame) -> pd.DataFrame:
     if not isinstance(climate, pd.DataFrame):
-        raise IndexInputError(f"climate: got {type(climate).__name__}; expected a DataFrame")
+        raise IndicesError(f"climate: got {type(climate).__name__}; expected a DataFrame")
     missing = [c for c in _REQUIRED if c not in climate.columns]
     if missing:
-        raise IndexInputError(
+        raise IndicesError(
             f"climate: missing column(s) {missing}; found {list(climate.columns)}. The climate "
             "table needs county_id, date, precip_mm (optional tmin_c, tmax_c, tmean_c, pet_mm)."
         )
     if len(climate) == 0:
-        raise IndexInputError("climate: the table has no rows")
+        raise IndicesError("climate: the table has no rows")
     cols = [c for c in ("county_id", "date", *_NUMERIC) if c in climate.columns]
     out = climate[cols].copy()
     out["county_id"] = out["county_id"].astype(str)
     try:
         out["date"] = pd.to_datetime(out["date"])
     except (ValueError, TypeError) as exc:
-        raise IndexInputError(f"climate: column 'date' could not be read as dates ({exc})") from None
+        raise IndicesError(f"climate: column 'date' could not be read as dates ({exc})") from None
     for c in _NUMERIC:
         if c in out.columns:
             out[c] = pd.to_numeric(out[c], errors="coerce").astype(float)
     p = out["precip_mm"].to_numpy()
     if np.any(p < 0):
         bad = int(np.sum(p < 0))
-        raise IndexInputError(
+        raise IndicesError(
             f"climate: {bad} negative precip_mm value(s) (min {np.nanmin(p)}); precipitation "
             "must be >= 0 and missing values empty (NaN), not sentinels such as -999"
         )
@@ -392,7 +392,7 @@ def _check_unique(tpos, cpos, grid):
     if counts.max(initial=0) > 1:
         k = int(np.argmax(counts))
         t, c = divmod(k, grid.shape[1])
-        raise IndexInputError(
+        raise IndicesError(
             f"climate: {int(np.sum(counts > 1))} {grid.step} step(s) have more than one "
             f"{grid.cadence} row, e.g. county {grid.county_ids[c]!r} at "
             f"{grid.times[t].date()} ({int(counts[k])} rows). Remove duplicate rows."
@@ -401,19 +401,19 @@ def _check_unique(tpos, cpos, grid):
 
 def _latitudes(latitude_deg, county_ids):
     if latitude_deg is None:
-        raise IndexInputError("latitude_deg: required to compute PET (county_id -> degrees)")
+        raise IndicesError("latitude_deg: required to compute PET (county_id -> degrees)")
     lat = pd.Series(latitude_deg)
     lat.index = lat.index.astype(str)
     lat = lat[~lat.index.duplicated()]
     missing = [c for c in county_ids if c not in lat.index]
     if missing:
-        raise IndexInputError(
+        raise IndicesError(
             f"latitude_deg: no latitude for {len(missing)} county id(s), e.g. {missing[:3]}; "
             "every county in the climate table needs a latitude in degrees"
         )
     out = lat.reindex(list(county_ids)).to_numpy(dtype=float)
     if np.any(~np.isfinite(out)) or np.any(np.abs(out) > 90):
-        raise IndexInputError(
+        raise IndicesError(
             f"latitude_deg: values must be finite degrees in [-90, 90]; found range "
             f"[{np.nanmin(out)}, {np.nanmax(out)}]"
         )
@@ -446,7 +446,7 @@ def _pet_grid(clim, grid, tpos, cpos, latitude_deg, pet_method, use_supplied_pet
     if use_supplied_pet and has["pet_mm"]:
         vals = clim["pet_mm"].to_numpy(dtype=float)
         if np.any(vals < 0):
-            raise IndexInputError("climate: negative pet_mm values; PET must be >= 0 [mm]")
+            raise IndicesError("climate: negative pet_mm values; PET must be >= 0 [mm]")
         if grid.cadence == "daily":
             arr, _ = grid_values(vals, tpos, cpos, grid.shape, how="sum",
                                  min_count=min_valid_days, scale_to=7.0)
@@ -458,7 +458,7 @@ def _pet_grid(clim, grid, tpos, cpos, latitude_deg, pet_method, use_supplied_pet
     lat = _latitudes(latitude_deg, grid.county_ids)
     if pet_method == "hargreaves":
         if not (has["tmin_c"] and has["tmax_c"]):
-            raise IndexInputError(
+            raise IndicesError(
                 "pet_method='hargreaves' needs tmin_c and tmax_c in the climate table; only "
                 "tmean_c was found. Use pet_method='thornthwaite' or supply pet_mm."
             )
@@ -497,19 +497,19 @@ def _pet_grid(clim, grid, tpos, cpos, latitude_deg, pet_method, use_supplied_pet
         arr = thornthwaite(tmean, heat[None, :], expo[None, :], n_mean, ndays[:, None])
         return arr, {"method": "Thornthwaite (1948); day length from FAO-56 eq. 34; heat index "
                                "from the full-record monthly mean temperatures"}
-    raise IndexInputError(
+    raise IndicesError(
         f"pet_method={pet_method!r}; expected 'hargreaves' or 'thornthwaite'"
     )
 
 
 def _resolve_calibration(precip, grid, calibration, min_years):
     if len(calibration) != 2 or int(calibration[0]) > int(calibration[1]):
-        raise IndexInputError(f"calibration: {calibration!r}; expected (first_year, last_year)")
+        raise IndicesError(f"calibration: {calibration!r}; expected (first_year, last_year)")
     years = grid_years(grid.times, grid.step)
     has_data = np.any(~np.isnan(precip), axis=1)
     yrs = np.unique(years[has_data])
     if yrs.size == 0:
-        raise IndexInputError("climate: precip_mm has no valid value")
+        raise IndicesError("climate: precip_mm has no valid value")
     c0, c1 = int(calibration[0]), int(calibration[1])
     if c0 >= yrs.min() and c1 <= yrs.max():
         cal, note = (c0, c1), f"calibration {c0}-{c1} as requested"
@@ -520,7 +520,7 @@ def _resolve_calibration(precip, grid, calibration, min_years):
         warnings.warn(f"calibration: {note}", IndexCalibrationWarning, stacklevel=3)
     n_years = int(np.sum((yrs >= cal[0]) & (yrs <= cal[1])))
     if n_years < min_years:
-        raise IndexInputError(
+        raise IndicesError(
             f"calibration: only {n_years} year(s) with data in {cal[0]}-{cal[1]}; at least "
             f"{min_years} are needed (min_calibration_years). Supply a longer climate record "
             "or lower min_calibration_years (fits on short records are unreliable)."
@@ -531,7 +531,7 @@ def _resolve_calibration(precip, grid, calibration, min_years):
 def _indicator_arrays(indicators, grid, cal, scales, clip, say):
     missing = [c for c in ("county_id", "date", "indicator", "value") if c not in indicators.columns]
     if missing:
-        raise IndexInputError(
+        raise IndicesError(
             f"indicators: missing column(s) {missing}; expected county_id, date, indicator, value"
         )
     ind = indicators[["county_id", "date", "indicator", "value"]].copy()

@@ -11,6 +11,8 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from impactlink.errors import IndicesError
+
 __all__ = ["IndexCube"]
 
 
@@ -44,7 +46,7 @@ class IndexCube:
         shape = (len(self.weeks), len(self.county_ids))
         for key, arr in self.arrays.items():
             if arr.shape != shape:
-                raise ValueError(
+                raise IndicesError(
                     f"IndexCube array {key} has shape {arr.shape}; expected {shape} "
                     "(weeks, counties)"
                 )

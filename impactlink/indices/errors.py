@@ -1,30 +1,20 @@
-"""Errors and warnings of the ``indices`` stage."""
+"""Errors and warnings of the ``indices`` stage (members of the one tree in ``impactlink.errors``)."""
 
 from __future__ import annotations
 
+from impactlink.errors import IndicesError, IndicesWarning
+
 __all__ = [
-    "IndexInputError",
+    "IndicesError",
+    "IndicesWarning",
     "IndexCalibrationWarning",
     "IndexFitWarning",
-    "IndexInputWarning",
 ]
 
 
-class IndexInputError(ValueError):
-    """Fatal problem with the input of an index computation.
-
-    The message names the argument or column, what was found, what was expected and
-    what to do about it.
-    """
-
-
-class IndexInputWarning(UserWarning):
-    """Recoverable surprise in the input (an index skipped, a column ignored)."""
-
-
-class IndexCalibrationWarning(UserWarning):
+class IndexCalibrationWarning(IndicesWarning):
     """The requested calibration period could not be used as given (e.g. not covered)."""
 
 
-class IndexFitWarning(UserWarning):
+class IndexFitWarning(IndicesWarning):
     """Some week-of-year distribution fits failed; the affected values are NaN."""

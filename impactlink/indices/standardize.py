@@ -16,6 +16,8 @@ from typing import Literal
 import numpy as np
 from scipy import special
 
+from impactlink.errors import IndicesError
+
 from .errors import IndexFitWarning
 
 __all__ = [
@@ -524,7 +526,7 @@ def standardize_empirical(
     Hydrometeorology 17(6), 1745-1761. https://doi.org/10.1175/JHM-D-15-0121.1
     """
     if plotting_position not in PLOTTING_POSITIONS:
-        raise ValueError(
+        raise IndicesError(
             f"plotting_position={plotting_position!r}; expected one of "
             f"{sorted(PLOTTING_POSITIONS)}"
         )

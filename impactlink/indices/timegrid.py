@@ -8,7 +8,7 @@ from typing import Literal
 import numpy as np
 import pandas as pd
 
-from .errors import IndexInputError
+from .errors import IndicesError
 
 __all__ = ["Grid", "detect_cadence", "build_grid", "grid_values", "period_of_year",
            "accumulate", "accumulate_many", "calibration_mask"]
@@ -38,7 +38,7 @@ def detect_cadence(dates: pd.Series) -> Cadence:
     """Cadence of climate rows from the median spacing of one county's distinct dates."""
     d = pd.DatetimeIndex(pd.to_datetime(dates)).unique().sort_values()
     if len(d) < 3:
-        raise IndexInputError(
+        raise IndicesError(
             f"climate: only {len(d)} distinct dates; expected a daily, weekly or monthly "
             "series of several years per county"
         )
@@ -50,7 +50,7 @@ def detect_cadence(dates: pd.Series) -> Cadence:
         return "weekly"
     if 27.0 <= gap <= 32.0:
         return "monthly"
-    raise IndexInputError(
+    raise IndicesError(
         f"climate: median spacing of dates is {gap:.1f} days; expected about 1 (daily), "
         "7 (weekly) or 30 (monthly) days. Resample the series to one of these cadences."
     )

@@ -2,21 +2,9 @@
 
 from __future__ import annotations
 
-from impactlink.errors import ImpactlinkWarning
+from impactlink.errors import InputError, InputWarning
 
 __all__ = ["InputError", "InputWarning", "REASONS"]
-
-
-class InputError(ValueError):
-    """A fatal problem with the input data.
-
-    The message names the file (and the column or row where relevant), says what was found,
-    what was expected, and what to do about it.
-    """
-
-
-class InputWarning(ImpactlinkWarning):
-    """A recoverable surprise in the input data (the run goes on; the bundle keeps the text)."""
 
 
 #: Stable reason texts for rejected rows. Details (which column, which value) live in the

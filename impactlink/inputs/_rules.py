@@ -13,6 +13,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from impactlink.errors import InputError
 from impactlink.inputs._errors import REASONS
 from impactlink.schema import SENTINELS
 
@@ -145,7 +146,7 @@ class TableCheck:
         elif kind == "level":
             values, missing = text_column(raw)  # mapped to integers by the table's rule
         else:  # pragma: no cover - schema guard
-            raise ValueError(f"unknown column kind {kind!r}")
+            raise InputError(f"unknown column kind {kind!r}")
         if required:
             self.reject(missing, column, "", REASONS["missing"], only_alive=False)
         self.clean[column] = values

@@ -9,6 +9,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from impactlink.errors import LinkError, LinkWarning
 from impactlink.link.target import Target
 
 __all__ = [
@@ -24,14 +25,6 @@ __all__ = [
 
 REJECTED_COLUMNS = ["table", "file", "row", "column", "value", "reason"]
 RECONCILIATION_COLUMNS = ["impact", "table", "records", "used", "rejected", "outside_coverage"]
-
-
-class LinkError(ValueError):
-    """An impact cannot be linked as requested (missing table, impossible option)."""
-
-
-class LinkWarning(UserWarning):
-    """A recoverable surprise while linking an impact."""
 
 
 class OpenNoticeWarning(LinkWarning):

@@ -11,6 +11,8 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from impactlink.errors import ModelError
+
 #: Mean length of the year in ISO weeks (365.2425 / 7), the period of weekly harmonics.
 WEEKS_PER_YEAR = 365.2425 / 7.0
 
@@ -63,29 +65,29 @@ class DesignSpec:
         """Predictor columns for ``n`` rows (NaN where a value is missing)."""
         missing = [f for f in self.features if f not in x]
         if missing:
-            raise ValueError(
+            raise ModelError(
                 f"x lacks feature(s) {missing}; the model was fitted on {list(self.features)}"
             )
         cols: dict[str, np.ndarray] = {}
         for f in self.features:
             v = np.asarray(x[f], dtype=float).reshape(-1)
             if v.shape[0] != n:
-                raise ValueError(f"x[{f!r}] has {v.shape[0]} values; expected {n}")
+                raise ModelError(f"x[{f!r}] has {v.shape[0]} values; expected {n}")
             cols[f] = v
         need = self.needs
         if need:  # covariates, season or traits: all read from frame
             if frame is None:
-                raise ValueError(
+                raise ModelError(
                     f"this model needs frame columns {list(need)} (covariates, season or "
                     "county_id for traits); pass frame=..."
                 )
             lacking = [c for c in need if c not in frame.columns]
             if lacking:
-                raise ValueError(
+                raise ModelError(
                     f"frame lacks column(s) {lacking}; the model needs {list(need)}"
                 )
             if len(frame) != n:
-                raise ValueError(f"frame has {len(frame)} rows; expected {n} (one per x value)")
+                raise ModelError(f"frame has {len(frame)} rows; expected {n} (one per x value)")
             cols.update(self._frame_columns(frame))
         out = pd.DataFrame(cols)
         if self.columns:
@@ -105,7 +107,7 @@ class DesignSpec:
         if self.traits:
             tt = self.trait_table
             if tt is None:
-                raise ValueError(
+                raise ModelError(
                     f"DesignSpec has traits {list(self.traits)} but no trait_table; build the "
                     "spec with the standardised trait table it was fitted on"
                 )
@@ -119,19 +121,19 @@ def as_feature_dict(x, n: int | None = None, *, name: str = "x") -> dict[str, np
     """Normalise ``x`` (1-D array or mapping name -> 1-D array) to a dict of float arrays."""
     if isinstance(x, dict):
         if not x:
-            raise ValueError("x is an empty dict; expected at least one feature array")
+            raise ModelError("x is an empty dict; expected at least one feature array")
         out = {str(k): np.asarray(v, dtype=float).reshape(-1) for k, v in x.items()}
     else:
         arr = np.asarray(x, dtype=float)
         if arr.ndim != 1:
-            raise ValueError(
+            raise ModelError(
                 f"x has shape {arr.shape}; expected a 1-D array or a dict of 1-D arrays"
             )
         out = {name: arr}
     if n is not None:
         for k, v in out.items():
             if v.shape[0] != n:
-                raise ValueError(
+                raise ModelError(
                     f"feature {k!r} has {v.shape[0]} values but the target frame has {n} rows"
                 )
     return out
@@ -143,7 +145,7 @@ def standardise_traits(traits: pd.DataFrame, county_ids: pd.Series) -> tuple[pd.
     Returns the table and a note on dropped columns (non-numeric or constant).
     """
     if "county_id" not in traits.columns:
-        raise ValueError(
+        raise ModelError(
             f"traits has columns {list(traits.columns)}; expected a 'county_id' column"
         )
     t = traits.copy()

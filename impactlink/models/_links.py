@@ -13,6 +13,8 @@ from __future__ import annotations
 import numpy as np
 from scipy import special
 
+from impactlink.errors import ModelError
+
 _SQRT_2PI = np.sqrt(2.0 * np.pi)
 
 LINKS = ("logit", "probit")
@@ -20,7 +22,7 @@ LINKS = ("logit", "probit")
 
 def check_link(link: str) -> str:
     if link not in LINKS:
-        raise ValueError(f"link must be one of {LINKS}; got {link!r}")
+        raise ModelError(f"link must be one of {LINKS}; got {link!r}")
     return link
 
 

@@ -14,6 +14,8 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from impactlink.errors import ModelError
+
 __all__ = ["BatchFit", "fit_logistic_batch", "fit_cumlogit_batch", "predict_logistic",
            "predict_cumlogit"]
 
@@ -48,16 +50,16 @@ def _check_batch(X, y, w, name: str) -> tuple[np.ndarray, np.ndarray, np.ndarray
     y = np.asarray(y, dtype=float)
     w = np.ones_like(y) if w is None else np.asarray(w, dtype=float)
     if X.ndim != 3:
-        raise ValueError(f"{name}: X must have shape (B, n, p); got shape {X.shape}")
+        raise ModelError(f"{name}: X must have shape (B, n, p); got shape {X.shape}")
     if y.shape != X.shape[:2] or w.shape != X.shape[:2]:
-        raise ValueError(
+        raise ModelError(
             f"{name}: y and w must have shape (B, n) = {X.shape[:2]}; got y {y.shape}, "
             f"w {w.shape}"
         )
     if not (np.isfinite(X).all() and np.isfinite(y).all() and np.isfinite(w).all()):
-        raise ValueError(f"{name}: X, y and w must be finite; drop or fill NaN rows first")
+        raise ModelError(f"{name}: X, y and w must be finite; drop or fill NaN rows first")
     if (w < 0).any():
-        raise ValueError(f"{name}: weights w must be >= 0; found {w.min()}")
+        raise ModelError(f"{name}: weights w must be >= 0; found {w.min()}")
     return X, y, w
 
 
@@ -118,7 +120,7 @@ def fit_logistic_batch(
     """
     X, y, w = _check_batch(X, y, w, "fit_logistic_batch")
     if ((y < 0) | (y > 1)).any():
-        raise ValueError("fit_logistic_batch: y must lie in [0, 1] (event proportions)")
+        raise ModelError("fit_logistic_batch: y must lie in [0, 1] (event proportions)")
     X, y, w = _drop_empty_rows(X, y, w)
     B, n, p = X.shape
     pen = np.full((B, p), float(ridge))
@@ -167,7 +169,7 @@ def _constant_columns(X: np.ndarray, w: np.ndarray) -> np.ndarray:
 def _start(start, shape, name) -> np.ndarray:
     s = np.array(start, dtype=float)
     if s.shape != shape or not np.isfinite(s).all():
-        raise ValueError(f"{name}: start must be finite with shape {shape}; got {s.shape}")
+        raise ModelError(f"{name}: start must be finite with shape {shape}; got {s.shape}")
     return s
 
 
@@ -332,12 +334,12 @@ def fit_cumlogit_batch(
     """
     X, yf, w = _check_batch(X, y, w, "fit_cumlogit_batch")
     if np.any(yf != np.round(yf)) or (yf < 0).any():
-        raise ValueError("fit_cumlogit_batch: y must hold integer levels 0..K-1")
+        raise ModelError("fit_cumlogit_batch: y must hold integer levels 0..K-1")
     K = int(yf.max()) + 1 if n_levels is None else int(n_levels)
     if K < 2:
-        raise ValueError(f"fit_cumlogit_batch: need at least 2 levels; got n_levels={K}")
+        raise ModelError(f"fit_cumlogit_batch: need at least 2 levels; got n_levels={K}")
     if yf.max() > K - 1:
-        raise ValueError(f"fit_cumlogit_batch: y has level {int(yf.max())} >= n_levels={K}")
+        raise ModelError(f"fit_cumlogit_batch: y has level {int(yf.max())} >= n_levels={K}")
     X, yf, w = _drop_empty_rows(X, yf, w)
     yi = yf.astype(np.int64)
     B, n, p = X.shape
@@ -364,7 +366,7 @@ def fit_cumlogit_batch(
     if start is not None:
         theta = _start(start, (B, q), "fit_cumlogit_batch")
         if K > 2 and not (np.diff(theta[:, : K - 1], axis=1) > 0).all():
-            raise ValueError("fit_cumlogit_batch: start cut-points must be increasing")
+            raise ModelError("fit_cumlogit_batch: start cut-points must be increasing")
 
     def objective(par, Du=Du, Dl=Dl, hu=has_u, hl=has_l, w=w, pen=pen):
         return _cum_loglik(par, Du, Dl, hu, hl, w) - 0.5 * (pen * par**2).sum(1)

@@ -9,6 +9,7 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from impactlink.errors import ModelError
 from impactlink.models import _links
 from impactlink.models.fit import ImpactModel, _check_ci, _lp_var
 
@@ -147,7 +148,7 @@ def crossings(
         raise TypeError(f"model must be an ImpactModel; got {type(model).__name__}")
     probs = tuple(float(p) for p in probs)
     if not probs or any(not (0.0 < p < 1.0) for p in probs):
-        raise ValueError(f"probs must be probabilities strictly between 0 and 1; got {probs}")
+        raise ModelError(f"probs must be probabilities strictly between 0 and 1; got {probs}")
     info = {**model.meta, **(meta or {})}
     if not model.ok:
         return pd.DataFrame(columns=list(CROSSING_COLUMNS))
@@ -203,7 +204,7 @@ def plot_impact_curves(curves: pd.DataFrame, *, title: str | None = None, max_un
     need = {"unit", "level_k", "level_label", "x", "prob", "prob_lo", "prob_hi"}
     lacking = sorted(need - set(curves.columns))
     if lacking:
-        raise ValueError(f"curves lacks column(s) {lacking}; pass the output of impact_curves")
+        raise ModelError(f"curves lacks column(s) {lacking}; pass the output of impact_curves")
     from matplotlib.figure import Figure
 
     units = sorted(curves["unit"].astype(str).unique())[:max_units]
@@ -241,11 +242,11 @@ def _grid(model: ImpactModel, grid, *, n: int = N_GRID) -> np.ndarray:
     if grid is not None:
         g = np.asarray(grid, dtype=float).reshape(-1)
         if g.size == 0 or not np.all(np.isfinite(g)):
-            raise ValueError("grid must be a non-empty array of finite index values")
+            raise ModelError("grid must be a non-empty array of finite index values")
         return np.sort(g)
     lo, hi = model.x_range
     if not (np.isfinite(lo) and np.isfinite(hi)) or hi <= lo:
-        raise ValueError(f"model has no usable range of its index feature ({model.x_range}); "
+        raise ModelError(f"model has no usable range of its index feature ({model.x_range}); "
                          "pass grid=...")
     return np.linspace(lo, hi, n)
 

@@ -14,6 +14,7 @@ from dataclasses import dataclass, field, replace
 import numpy as np
 import pandas as pd
 
+from impactlink.errors import ModelError
 from impactlink.link.target import FeatureRule, Target
 from impactlink.models import _links
 from impactlink.models._design import (
@@ -141,7 +142,7 @@ class ImpactModel:
     def spec(self) -> DesignSpec:
         """The :class:`DesignSpec` of the fit; an error when the model was built without one."""
         if self.design is None:
-            raise ValueError(
+            raise ModelError(
                 f"model {self.target or self.impact or '(unnamed)'!r} has design=None; it "
                 "cannot build predictors for new rows. Fit it with fit_impact_model."
             )
@@ -204,7 +205,7 @@ class ImpactModel:
             Xd = self.spec.build(xd, frame, n).to_numpy(dtype=float)
             return _lp_var(self, Xd)
         if frame is None or "region" not in frame.columns:
-            raise ValueError(
+            raise ModelError(
                 f"a model with pooling={self.pooling!r} needs frame with a 'region' column"
             )
         lp = np.full((n, K), np.nan)
@@ -221,9 +222,9 @@ class ImpactModel:
             lp[rows], var[rows] = _lp_var(member, Xd)
         if self.pooling == "county":
             if "county_id" not in frame.columns:
-                raise ValueError("a model with pooling='county' needs a 'county_id' column in frame")
+                raise ModelError("a model with pooling='county' needs a 'county_id' column in frame")
             if self.groups is None:
-                raise ValueError(
+                raise ModelError(
                     "a model with pooling='county' has groups=None; it cannot add county "
                     "deviations. Fit it with fit_impact_model(..., pooling='county')."
                 )
@@ -306,7 +307,7 @@ def _lp_var(m: ImpactModel, Xd: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
 
 def _check_ci(ci: float) -> None:
     if not (0.0 < float(ci) < 1.0):
-        raise ValueError(f"ci must be strictly between 0 and 1 (e.g. 0.90); got {ci!r}")
+        raise ModelError(f"ci must be strictly between 0 and 1 (e.g. 0.90); got {ci!r}")
 
 
 # ====================================================================== fitting
@@ -421,21 +422,21 @@ def fit_impact_model(
         raise TypeError(f"target must be an impactlink.link.Target; got {type(target).__name__}")
     _links.check_link(link)
     if pooling not in POOLINGS:
-        raise ValueError(f"pooling must be one of {POOLINGS}; got {pooling!r}")
+        raise ModelError(f"pooling must be one of {POOLINGS}; got {pooling!r}")
     frame = target.frame
     if "level" not in frame.columns:
-        raise ValueError(f"target {target.name!r} frame lacks the 'level' column")
+        raise ModelError(f"target {target.name!r} frame lacks the 'level' column")
     covariates = tuple(covariates)
     lacking = [c for c in covariates if c not in frame.columns]
     if lacking:
-        raise ValueError(
+        raise ModelError(
             f"covariates {lacking} are not columns of target {target.name!r}; "
             f"available: {list(frame.columns)}"
         )
     if pooling in ("region", "county") and "region" not in frame.columns:
-        raise ValueError(f"pooling={pooling!r} needs a 'region' column in the target frame")
+        raise ModelError(f"pooling={pooling!r} needs a 'region' column in the target frame")
     if pooling == "county" and "county_id" not in frame.columns:
-        raise ValueError("pooling='county' needs a 'county_id' column in the target frame")
+        raise ModelError("pooling='county' needs a 'county_id' column in the target frame")
     xd = as_feature_dict(x, len(frame))
 
     notes = []
@@ -450,7 +451,7 @@ def fit_impact_model(
     trait_table, trait_names = None, ()
     if traits is not None:
         if "county_id" not in frame.columns:
-            raise ValueError("traits need a 'county_id' column in the target frame")
+            raise ModelError("traits need a 'county_id' column in the target frame")
         trait_table, note = standardise_traits(traits, frame["county_id"])
         trait_names = tuple(trait_table.columns)
         if note:
@@ -474,13 +475,13 @@ def fit_impact_model(
         return _failed(spec, f"target has {target.n_levels} level(s); need at least 2",
                        pooling=pooling, **common)
     if target.kind == "binary" and K != 1:
-        raise ValueError(
+        raise ModelError(
             f"target {target.name!r} is binary but has {target.n_levels} levels "
             f"{target.levels}; expected 2 (or kind='ordinal')"
         )
     bad = np.isfinite(y) & ((y < 0) | (y > K) | (y != np.round(y)))
     if bad.any():
-        raise ValueError(
+        raise ModelError(
             f"target {target.name!r} has levels {sorted(set(y[bad]))} outside 0..{K} "
             f"(levels {target.levels})"
         )

@@ -15,6 +15,7 @@ from collections.abc import Mapping
 import numpy as np
 import pandas as pd
 
+from impactlink.errors import OutlookError
 from impactlink.models.fit import ImpactModel, _check_ci
 
 __all__ = ["impact_outlook", "plot_outlook_map", "OUTLOOK_COLUMNS"]
@@ -123,13 +124,13 @@ def plot_outlook_map(outlook: pd.DataFrame, counties, *, level_k: int = 1,
     need = {"county_id", "lag_weeks", "level_k", "prob"}
     lacking = sorted(need - set(outlook.columns))
     if lacking:
-        raise ValueError(f"outlook lacks column(s) {lacking}; pass the output of impact_outlook")
+        raise OutlookError(f"outlook lacks column(s) {lacking}; pass the output of impact_outlook")
     if "county_id" not in getattr(counties, "columns", []):
-        raise ValueError("counties must be a GeoDataFrame with a 'county_id' column")
+        raise OutlookError("counties must be a GeoDataFrame with a 'county_id' column")
     sel = outlook[outlook["level_k"] == level_k]
     dup = sel.duplicated(["county_id", "lag_weeks"])
     if dup.any():
-        raise ValueError(
+        raise OutlookError(
             "outlook has several rows per county and lag for level_k="
             f"{level_k} (several targets or candidates); filter it to one target and one "
             "candidate per lag before mapping"
@@ -171,7 +172,7 @@ def _county_table(cube, counties: pd.DataFrame | None) -> pd.DataFrame:
     if counties is None:
         return pd.DataFrame({"county_id": list(cube.county_ids), "region": pd.NA})
     if "county_id" not in counties.columns:
-        raise ValueError(f"counties has columns {list(counties.columns)}; expected 'county_id' "
+        raise OutlookError(f"counties has columns {list(counties.columns)}; expected 'county_id' "
                          "(and 'region')")
     out = pd.DataFrame({"county_id": counties["county_id"].astype(str).to_numpy()})
     out["region"] = (counties["region"].astype(str).to_numpy() if "region" in counties.columns
@@ -185,7 +186,7 @@ def _feature_specs(key, model: ImpactModel) -> dict[str, tuple[str, int, int]]:
         return {str(k): (str(v[0]), int(v[1]), int(v[2])) for k, v in meta["features"].items()}
     missing = [k for k in ("index", "scale_weeks", "lag_weeks") if k not in meta]
     if missing:
-        raise ValueError(
+        raise OutlookError(
             f"models[{key!r}].meta lacks {missing}; fit it with meta={{'index': ..., "
             "'scale_weeks': ..., 'lag_weeks': ...}} (or meta['features'] for several)"
         )
@@ -222,13 +223,13 @@ def _one_model(key, model, cube, units, have_counties, state, as_of_week, ci) ->
     n = len(units)
     note = np.full(n, "", dtype=object)
     if model.members and not have_counties:
-        raise ValueError(f"models[{key!r}] uses pooling={model.pooling!r}; pass counties= with "
+        raise OutlookError(f"models[{key!r}] uses pooling={model.pooling!r}; pass counties= with "
                          "'county_id' and 'region'")
 
     # one forecast row per unit of the target grain, for the valid week
     if model.grain == "region_month":
         if not have_counties:
-            raise ValueError(f"models[{key!r}] is a region target; pass counties= with "
+            raise OutlookError(f"models[{key!r}] is a region target; pass counties= with "
                              "'county_id' and 'region'")
         unit_ids = units["region"].astype(str).to_numpy()
     else:
@@ -333,7 +334,7 @@ def _add_state(frame: pd.DataFrame, model, state, unit_ids) -> dict[str, str]:
 
 def _state_column(state: pd.DataFrame, column: str, county_ids: pd.Series) -> np.ndarray:
     if "county_id" not in state.columns:
-        raise ValueError(f"state has columns {list(state.columns)}; expected 'county_id'")
+        raise OutlookError(f"state has columns {list(state.columns)}; expected 'county_id'")
     s = state.assign(county_id=state["county_id"].astype(str)).drop_duplicates(
         "county_id", keep="last").set_index("county_id")[column]
     return pd.to_numeric(county_ids.astype(str).map(s), errors="coerce").to_numpy(dtype=float)

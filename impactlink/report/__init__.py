@@ -8,7 +8,7 @@ escaping in :mod:`impactlink.report.html`; the colour scheme in
 """
 
 from impactlink.report.build import build_report, render_html
-from impactlink.report.runfolder import ReportError, ReportInputWarning, RunFolder, read_run_folder
+from impactlink.report.runfolder import ReportError, ReportWarning, RunFolder, read_run_folder
 
 __all__ = ["build_report", "render_html", "read_run_folder", "RunFolder", "ReportError",
-           "ReportInputWarning"]
+           "ReportWarning"]

@@ -16,7 +16,7 @@ import pandas as pd
 
 from impactlink.report import sections as S
 from impactlink.report.html import Markup, page
-from impactlink.report.runfolder import ReportInputWarning, RunFolder, read_run_folder
+from impactlink.report.runfolder import ReportWarning, RunFolder, read_run_folder
 from impactlink.schema import COUNTY
 
 __all__ = ["build_report", "render_html"]
@@ -53,7 +53,7 @@ def build_report(run_dir: str | Path, *, progress: Callable[[str], None] | None 
 
     Warns
     -----
-    ReportInputWarning
+    ReportWarning
         For each table that is present but unusable, and each figure or section that could
         not be drawn from the data; the page says the same in words.
     """
@@ -110,7 +110,7 @@ def render_html(run: RunFolder, *, progress: Callable[[str], None] | None = None
         # the section and raised as a warning.
         except Exception as exc:  # noqa: BLE001
             warnings.warn(f"report section {sid!r} failed: {type(exc).__name__}: {exc}",
-                          ReportInputWarning, stacklevel=2)
+                          ReportWarning, stacklevel=2)
             body.append(S.not_drawn(sid, stitle, exc))
     return page(title=title, subtitle=subtitle, body=body), sink
 
@@ -133,7 +133,7 @@ def _write_parquet_copies(run: RunFolder) -> None:
         try:
             frame.to_parquet(pq, index=False)
         except (ValueError, TypeError, ImportError, OSError) as exc:
-            warnings.warn(f"{pq.name}: could not be written ({exc})", ReportInputWarning,
+            warnings.warn(f"{pq.name}: could not be written ({exc})", ReportWarning,
                           stacklevel=3)
 
 
@@ -156,4 +156,4 @@ def _write_layers(run: RunFolder) -> None:
             joined.to_file(gpkg, layer=layer, driver="GPKG")
         except Exception as exc:  # noqa: BLE001 - the GIS copy is a convenience, not the report
             warnings.warn(f"counties.gpkg: layer {layer!r} could not be written ({exc})",
-                          ReportInputWarning, stacklevel=3)
+                          ReportWarning, stacklevel=3)

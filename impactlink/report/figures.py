@@ -21,12 +21,13 @@ import numpy as np
 import pandas as pd
 from matplotlib.figure import Figure
 
+from impactlink.errors import ReportError
 from impactlink.report._select import BASELINE_MODELS, PERSISTENCE_COMBOS, single_candidates
 from impactlink.report.palette import CATEGORICAL, NEUTRAL, category_colours, sequential_cmap
 from impactlink.report.text import candidate_label, index_name, score_label, target_label
 
 __all__ = [
-    "FigureInputError",
+    "ReportError",
     "BASELINE_MODELS",
     "PERSISTENCE_COMBOS",
     "persistence_picks",
@@ -67,10 +68,6 @@ _RC = {
 }
 
 
-class FigureInputError(ValueError):
-    """A figure function was handed a frame it cannot draw (missing columns or no rows)."""
-
-
 def _styled(func):
     """Run a figure function inside the report's matplotlib style."""
 
@@ -85,7 +82,7 @@ def _styled(func):
 def _need(frame: pd.DataFrame, columns, where: str) -> None:
     missing = [c for c in columns if c not in frame.columns]
     if missing:
-        raise FigureInputError(
+        raise ReportError(
             f"{where}: frame lacks column(s) {missing}; it has {list(frame.columns)}. "
             "Pass the table the run folder holds under that name."
         )
@@ -98,7 +95,7 @@ def _rows(frame: pd.DataFrame, where: str, **equal) -> pd.DataFrame:
     sub = frame.loc[mask]
     if sub.empty:
         what = ", ".join(f"{k}={v!r}" for k, v in equal.items())
-        raise FigureInputError(f"{where}: no rows with {what}; nothing to draw")
+        raise ReportError(f"{where}: no rows with {what}; nothing to draw")
     return sub
 
 
@@ -164,7 +161,7 @@ def skill_heatmap(skill: pd.DataFrame, *, impact: str, target: str, score: str =
 
     Raises
     ------
-    FigureInputError
+    ReportError
         Missing columns or no candidate rows for ``impact`` / ``target``.
     """
     where = "skill_heatmap"
@@ -172,7 +169,7 @@ def skill_heatmap(skill: pd.DataFrame, *, impact: str, target: str, score: str =
     sub = _candidates(_rows(skill, where, impact=impact, target=target))
     sub = sub.dropna(subset=[score])
     if sub.empty:
-        raise FigureInputError(f"{where}: no scored candidates for {impact!r} / {target!r}")
+        raise ReportError(f"{where}: no scored candidates for {impact!r} / {target!r}")
     best_cell = (
         sub.groupby(["index", "scale_weeks", "lag_weeks"], observed=True)[score].max().reset_index()
     )
@@ -293,19 +290,19 @@ def candidate_intervals(
 
     Raises
     ------
-    FigureInputError
+    ReportError
         Missing columns, no rows, or ``top < 1``.
     """
     where = "candidate_intervals"
     if top < 1:
-        raise FigureInputError(f"{where}: top must be >= 1, got {top}")
+        raise ReportError(f"{where}: top must be >= 1, got {top}")
     lo, hi = f"{score}_lo", f"{score}_hi"
     _need(skill, ["impact", "target", "index", "scale_weeks", "lag_weeks", "model", score, lo, hi],
           where)
     rows = _rows(skill, where, impact=impact, target=target)
     cand = _candidates(rows).dropna(subset=[score]).sort_values(score, ascending=False).head(top)
     if cand.empty:
-        raise FigureInputError(f"{where}: no scored candidates for {impact!r} / {target!r}")
+        raise ReportError(f"{where}: no scored candidates for {impact!r} / {target!r}")
     base = rows[rows["model"].isin(BASELINE_MODELS).fillna(False).to_numpy(dtype=bool)]
     fig, ax, y = _row_chart(len(cand), row_height=0.34, pad=1.4)
     tie = (
@@ -371,7 +368,7 @@ def impact_curves(
 
     Raises
     ------
-    FigureInputError
+    ReportError
         Missing columns or no rows.
     """
     where = "impact_curves"
@@ -446,7 +443,7 @@ def reliability_diagram(reliability: pd.DataFrame, *, impact: str, target: str) 
 
     Raises
     ------
-    FigureInputError
+    ReportError
         Missing columns or no rows.
     """
     where = "reliability_diagram"
@@ -509,7 +506,7 @@ def audit_shares(audit: pd.DataFrame, *, ladder: str) -> Figure:
 
     Raises
     ------
-    FigureInputError
+    ReportError
         Missing columns or no rows.
     """
     where = "audit_shares"
@@ -594,7 +591,7 @@ def persistence_comparison(skill: pd.DataFrame, *, impact: str, score: str = "bs
 
     Raises
     ------
-    FigureInputError
+    ReportError
         Missing columns, or no persistence rows for ``impact``.
     """
     where = "persistence_comparison"
@@ -602,7 +599,7 @@ def persistence_comparison(skill: pd.DataFrame, *, impact: str, score: str = "bs
     _need(skill, ["impact", "target", "model", score, lo, hi], where)
     sub = _rows(skill, where, impact=impact)
     if not sub["model"].isin(("persistence",) + PERSISTENCE_COMBOS).any():
-        raise FigureInputError(f"{where}: no persistence rows for {impact!r}")
+        raise ReportError(f"{where}: no persistence rows for {impact!r}")
     targets = list(dict.fromkeys(sub["target"].astype(str)))
     kinds = [("index alone", CATEGORICAL["harbour"], "o"),
              ("persistence alone", CATEGORICAL["marigold"], "s"),
@@ -681,7 +678,7 @@ def record_timeline(inputs: pd.DataFrame) -> Figure:
 
     Raises
     ------
-    FigureInputError
+    ReportError
         Missing columns or no dated rows.
     """
     where = "record_timeline"
@@ -691,7 +688,7 @@ def record_timeline(inputs: pd.DataFrame) -> Figure:
         end=pd.to_datetime(inputs["date_max"], errors="coerce"),
     ).dropna(subset=["start", "end"])
     if d.empty:
-        raise FigureInputError(f"{where}: no input has both date_min and date_max")
+        raise ReportError(f"{where}: no input has both date_min and date_max")
     fig, ax, y = _row_chart(len(d), row_height=0.36, pad=1.2)
     start = mdates.date2num(d["start"])
     span = mdates.date2num(d["end"]) - start
@@ -733,19 +730,19 @@ def trigger_timeline(timeline: pd.DataFrame, *, target: str | None = None,
 
     Raises
     ------
-    FigureInputError
+    ReportError
         Missing columns, no rows, or ``last_years < 1``.
     """
     where = "trigger_timeline"
     _need(timeline, ["week", "county_id", "scope", "index_value", "threshold", "trigger_on"],
           where)
     if last_years is not None and last_years < 1:
-        raise FigureInputError(f"{where}: last_years must be >= 1 or None, got {last_years}")
+        raise ReportError(f"{where}: last_years must be >= 1 or None, got {last_years}")
     sub = timeline
     if target is not None and "target" in timeline.columns:
         sub = _rows(timeline, where, target=target)
     if sub.empty:
-        raise FigureInputError(f"{where}: the timeline has no rows")
+        raise ReportError(f"{where}: the timeline has no rows")
     sub = sub.assign(week=pd.to_datetime(sub["week"], errors="coerce")).dropna(subset=["week"])
     if last_years is not None and not sub.empty:
         start = sub["week"].max() - pd.DateOffset(years=last_years)
@@ -817,7 +814,7 @@ def odds_ratio_chart(contrast: pd.DataFrame, *, target: str | None = None) -> Fi
 
     Raises
     ------
-    FigureInputError
+    ReportError
         Missing columns or no rows.
     """
     where = "odds_ratio_chart"
@@ -825,7 +822,7 @@ def odds_ratio_chart(contrast: pd.DataFrame, *, target: str | None = None) -> Fi
     sub = _rows(contrast, where, target=target) if target is not None else contrast
     sub = sub.dropna(subset=["odds_ratio_per_sd"])
     if sub.empty:
-        raise FigureInputError(f"{where}: no odds ratios to draw")
+        raise ReportError(f"{where}: no odds ratios to draw")
     fig, ax, y = _row_chart(len(sub), row_height=0.4, pad=1.3)
     est = sub["odds_ratio_per_sd"].to_numpy(float)
     err = np.nan_to_num(np.clip(np.vstack([est - sub["or_lo"].to_numpy(float),

@@ -23,6 +23,7 @@ from string import Template
 
 import pandas as pd
 
+from impactlink.errors import ReportError
 from impactlink.report.palette import CATEGORICAL, NEUTRAL, SEQUENCE
 
 __all__ = [
@@ -75,7 +76,7 @@ def el(tag: str, *children, **attrs) -> Markup:
         If ``tag`` is not a plain lower-case tag name.
     """
     if not tag.isalnum() or not tag.islower():
-        raise ValueError(f"el: tag must be a lower-case alphanumeric name, got {tag!r}")
+        raise ReportError(f"el: tag must be a lower-case alphanumeric name, got {tag!r}")
     parts = []
     for key, value in attrs.items():
         if value is None or value is False:
@@ -144,7 +145,7 @@ def table(frame: pd.DataFrame, *, caption: str | None = None, digits: int = 3,
 def image(png: bytes, *, alt: str, caption: str | None = None, name: str | None = None) -> Markup:
     """A figure with the PNG embedded as a base64 data URI and its alt text."""
     if not alt:
-        raise ValueError("image: alt text is required for every image")
+        raise ReportError("image: alt text is required for every image")
     uri = "data:image/png;base64," + base64.b64encode(png).decode("ascii")
     cap = el("figcaption", caption) if caption else Markup("")
     return el("figure", el("img", src=uri, alt=alt, loading="eager", data_name=name), cap)

@@ -11,7 +11,7 @@ import numpy as np
 import pandas as pd
 from matplotlib.figure import Figure
 
-from impactlink.report.figures import FigureInputError, _styled
+from impactlink.report.figures import ReportError, _styled
 from impactlink.report.palette import NEUTRAL, category_colours, sequential_cmap
 from impactlink.schema import COUNTY
 
@@ -45,12 +45,12 @@ class MapPanel:
                  kind: str = "sequential", vmin: float | None = None,
                  vmax: float | None = None) -> None:
         if kind not in ("sequential", "categorical"):
-            raise FigureInputError(
+            raise ReportError(
                 f"MapPanel: kind must be 'sequential' or 'categorical', got {kind!r}"
             )
         for col in (COUNTY, column):
             if col not in values.columns:
-                raise FigureInputError(
+                raise ReportError(
                     f"MapPanel {title!r}: values lack column {col!r}; have {list(values.columns)}"
                 )
         self.values, self.column, self.title, self.label = values, column, title, label
@@ -77,7 +77,7 @@ def county_map(counties, values: pd.DataFrame, column: str, *, title: str, label
 
     Raises
     ------
-    FigureInputError
+    ReportError
         Missing columns, or ``counties`` without geometry.
     """
     panel = MapPanel(values, column, title=title, label=label, kind=kind, vmin=vmin, vmax=vmax)
@@ -104,15 +104,15 @@ def county_panels(counties, panels: list[MapPanel], *, suptitle: str | None = No
 
     Raises
     ------
-    FigureInputError
+    ReportError
         No panels, or ``counties`` lacks ``county_id`` / geometry.
     """
     if not panels:
-        raise FigureInputError("county_panels: panels is empty; pass at least one MapPanel")
+        raise ReportError("county_panels: panels is empty; pass at least one MapPanel")
     if max_columns < 1:
-        raise FigureInputError(f"county_panels: max_columns must be >= 1, got {max_columns}")
+        raise ReportError(f"county_panels: max_columns must be >= 1, got {max_columns}")
     if counties is None or COUNTY not in counties.columns or not hasattr(counties, "geometry"):
-        raise FigureInputError(
+        raise ReportError(
             f"county_panels: counties must be a GeoDataFrame with {COUNTY!r} and geometry"
         )
     minx, miny, maxx, maxy = counties.total_bounds

@@ -32,6 +32,8 @@ from types import MappingProxyType
 
 import numpy as np
 
+from impactlink.errors import ReportError
+
 __all__ = [
     "PALETTE_NAME",
     "CATEGORICAL",
@@ -99,7 +101,7 @@ def category_colours(n: int) -> list[str]:
         If ``n`` is negative.
     """
     if n < 0:
-        raise ValueError(f"category_colours: n must be >= 0, got {n}")
+        raise ReportError(f"category_colours: n must be >= 0, got {n}")
     values = list(CATEGORICAL.values())
     return [values[i % len(values)] for i in range(n)]
 

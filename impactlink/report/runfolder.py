@@ -2,7 +2,7 @@
 
 The report is a pure function of the run folder. A file that is missing becomes ``None``
 (its section then says it was not computed in this run); a file that cannot be read or
-lacks a column the report needs also becomes ``None``, with a :class:`ReportInputWarning`
+lacks a column the report needs also becomes ``None``, with a :class:`ReportWarning`
 and a note kept in :attr:`RunFolder.problems`, so that one damaged table never stops the
 page from being written.
 """
@@ -18,24 +18,13 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
-from impactlink.errors import StageError
+from impactlink.errors import ReportError, ReportWarning
 from impactlink.schema import COUNTY
 
 __all__ = [
-    "ReportInputWarning", "ReportError", "RunFolder", "read_run_folder", "TABLE_COLUMNS",
+    "ReportWarning", "ReportError", "RunFolder", "read_run_folder", "TABLE_COLUMNS",
     "normalise_summary",
 ]
-
-
-class ReportInputWarning(UserWarning):
-    """A run-folder table could not be used; its section is shown as not computed."""
-
-
-class ReportError(StageError):
-    """The run folder itself is unusable (missing or not a folder).
-
-    A :class:`~impactlink.errors.StageError`, so the command line reports it as one line.
-    """
 
 
 #: Columns the report needs from each CSV table (other columns are ignored).
@@ -136,7 +125,7 @@ def read_run_folder(run_dir: str | Path) -> RunFolder:
 
 def _problem(problems: list[str], message: str) -> None:
     problems.append(message)
-    warnings.warn(message, ReportInputWarning, stacklevel=3)
+    warnings.warn(message, ReportWarning, stacklevel=3)
 
 
 def _read_manifest(file: Path, problems: list[str]) -> dict[str, Any] | None:

@@ -2,7 +2,7 @@
 
 Every section is a function ``(run, figs) -> Markup``. A section whose inputs are missing
 says so in one line; a figure that cannot be drawn from the data at hand is replaced by a
-note (and a :class:`ReportInputWarning`), so one odd table never stops the page.
+note (and a :class:`ReportWarning`), so one odd table never stops the page.
 """
 
 from __future__ import annotations
@@ -18,7 +18,7 @@ import pandas as pd
 from impactlink.report import figures as F
 from impactlink.report import maps as M
 from impactlink.report.html import Markup, details, el, image, join, link, paragraph, table
-from impactlink.report.runfolder import ReportInputWarning, RunFolder
+from impactlink.report.runfolder import ReportWarning, RunFolder
 from impactlink.report.text import (
     CAUTIONS,
     CAUTIONS_SHORT,
@@ -60,9 +60,9 @@ class FigureSink:
         """
         try:
             fig = draw()
-        except (F.FigureInputError, ValueError, KeyError, TypeError, IndexError) as exc:
+        except (F.ReportError, ValueError, KeyError, TypeError, IndexError) as exc:
             message = f"Figure {name!r} could not be drawn: {exc}"
-            warnings.warn(message, ReportInputWarning, stacklevel=2)
+            warnings.warn(message, ReportWarning, stacklevel=2)
             return paragraph(message, class_="absent")
         png = F.figure_png(fig)
         file = _slug(name) + ".png"

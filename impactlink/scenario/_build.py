@@ -9,6 +9,8 @@ import numpy as np
 import pyarrow as pa
 import shapely
 
+from impactlink.errors import ProjectError
+
 from ._geography import Geography, build_geography, km_to_lonlat
 from ._hydrology import Hydrology, Traits, draw_traits, simulate_hydrology, weekly_sum
 from ._impacts import Impacts, simulate_impacts
@@ -74,11 +76,11 @@ def generate(out_dir: str | Path, *, seed: int = DEFAULT_SEED,
     ['climate.parquet', 'counties.geojson']
     """
     if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0:
-        raise ValueError(f"generate: seed must be a non-negative integer; got {seed!r}. "
+        raise ProjectError(f"generate: seed must be a non-negative integer; got {seed!r}. "
                          "Pass e.g. seed=20261202.")
     out = Path(out_dir)
     if out.exists() and not out.is_dir():
-        raise NotADirectoryError(f"generate: out_dir {str(out)!r} exists and is not a folder; "
+        raise ProjectError(f"generate: out_dir {str(out)!r} exists and is not a folder; "
                                  "pass a folder path")
     out.mkdir(parents=True, exist_ok=True)
     say = progress or (lambda msg: None)

@@ -10,6 +10,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from impactlink.errors import ProjectError
+
 #: The fictional state (used in the README and the project file only).
 STATE_NAME = "Vellmora"
 
@@ -53,7 +55,7 @@ def invent_names(n: int, rng: np.random.Generator, *, exclude: frozenset[str] = 
     pool = [h + t for h in _HEADS for t in _TAILS]
     pool = [p for p in pool if p not in _BLOCKED and p not in exclude]
     if n > len(pool):
-        raise ValueError(f"invent_names: asked for n={n} names; only {len(pool)} available")
+        raise ProjectError(f"invent_names: asked for n={n} names; only {len(pool)} available")
     order = rng.permutation(len(pool))
     # Avoid two names in a row sharing a head so neighbouring counties read differently.
     chosen: list[str] = []
@@ -68,7 +70,7 @@ def invent_names(n: int, rng: np.random.Generator, *, exclude: frozenset[str] = 
         if len(chosen) == n:
             break
     if len(chosen) < n:
-        raise ValueError(f"invent_names: asked for n={n} names; at most {len(chosen)} can be "
+        raise ProjectError(f"invent_names: asked for n={n} names; at most {len(chosen)} can be "
                          "made with three names per head syllable; add syllables")
     return chosen
 

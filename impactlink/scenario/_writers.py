@@ -17,6 +17,8 @@ import pandas as pd
 import pyarrow as pa
 import pyarrow.parquet as pq
 
+from impactlink.errors import ProjectError
+
 PARQUET_OPTIONS = dict(
     compression="zstd",
     compression_level=9,
@@ -60,11 +62,11 @@ def write_csv(path: Path, columns: dict[str, object]) -> Path:
     n = len(cols[0]) if cols else 0
     for name, c in zip(names, cols):
         if len(c) != n:
-            raise ValueError(f"write_csv({path.name}): column {name!r} has {len(c)} rows; "
+            raise ProjectError(f"write_csv({path.name}): column {name!r} has {len(c)} rows; "
                              f"expected {n}")
         bad = [v for v in c if "," in v or '"' in v or "\n" in v]
         if bad:
-            raise ValueError(f"write_csv({path.name}): column {name!r} holds a comma, quote "
+            raise ProjectError(f"write_csv({path.name}): column {name!r} holds a comma, quote "
                              f"or newline ({bad[0]!r}); the scenario writer does not quote")
     lines = [",".join(names)]
     lines += [",".join(row) for row in zip(*cols)]

@@ -5,6 +5,8 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from impactlink.errors import SkillError
+
 __all__ = ["skill_grid", "plot_skill_heatmap"]
 
 
@@ -34,7 +36,7 @@ def skill_grid(table: pd.DataFrame, target: str, *, model: str = "index") -> pd.
     """
     t = table[(table["target"] == target) & (table["model"] == model)]
     if t.empty:
-        raise ValueError(f"skill table has no rows for target={target!r} and model={model!r}; "
+        raise SkillError(f"skill table has no rows for target={target!r} and model={model!r}; "
                          f"targets present: {sorted(table['target'].unique())}")
     best = t.sort_values("rpss", ascending=False).drop_duplicates(["index", "scale_weeks"])
     grid = best.pivot(index="index", columns="scale_weeks", values="rpss").sort_index()

@@ -6,6 +6,8 @@ from typing import Literal
 
 import numpy as np
 
+from impactlink.errors import SkillError
+
 __all__ = ["year_folds", "CV_CHOICES"]
 
 CV_CHOICES = ("leave_one_year_out", "blocked_k_fold", "leave_one_region_out")
@@ -61,26 +63,26 @@ def year_folds(
     del seed
     y = np.asarray(years)
     if cv not in CV_CHOICES:
-        raise ValueError(f"cv={cv!r} is not one of {CV_CHOICES}")
+        raise SkillError(f"cv={cv!r} is not one of {CV_CHOICES}")
     if cv == "leave_one_region_out":
         if regions is None:
-            raise ValueError("cv='leave_one_region_out' needs regions (one per row); got None")
+            raise SkillError("cv='leave_one_region_out' needs regions (one per row); got None")
         r = np.asarray(regions).astype(str)
         if r.shape != y.shape:
-            raise ValueError(f"regions has {r.shape[0]} values; expected {y.shape[0]} (one per row)")
+            raise SkillError(f"regions has {r.shape[0]} values; expected {y.shape[0]} (one per row)")
         uniq, fold = np.unique(r, return_inverse=True)
         if uniq.size < 2:
-            raise ValueError(
+            raise SkillError(
                 f"cv='leave_one_region_out' needs at least 2 regions; found {uniq.size}")
         return fold.astype(np.int64)
     uniq, inv = np.unique(y, return_inverse=True)
     if uniq.size < 2:
-        raise ValueError(f"cross-validation needs at least 2 years; found {uniq.size}")
+        raise SkillError(f"cross-validation needs at least 2 years; found {uniq.size}")
     if cv == "leave_one_year_out":
         return inv.astype(np.int64)
     k = int(k_folds)
     if k < 2 or k > uniq.size:
-        raise ValueError(f"k_folds={k_folds} must be between 2 and the number of years ({uniq.size})")
+        raise SkillError(f"k_folds={k_folds} must be between 2 and the number of years ({uniq.size})")
     block = np.zeros(uniq.size, dtype=np.int64)
     for i, part in enumerate(np.array_split(np.arange(uniq.size), k)):
         block[part] = i

@@ -17,6 +17,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from impactlink.errors import SkillError, SkillWarning
 from impactlink.link.target import Target
 from impactlink.skill import _engine as E
 from impactlink.skill.folds import CV_CHOICES, year_folds
@@ -35,10 +36,6 @@ TABLE_COLUMNS = [
     "rpss_hi", "calibration_slope", "rank", "rank_overall", "indistinguishable_from_best",
     "beats_climatology", "beats_seasonal", "beats_persistence",
 ]
-
-
-class SkillWarning(UserWarning):
-    """A recoverable surprise while scoring (rows dropped, a fit that did not converge)."""
 
 
 @dataclass(frozen=True)
@@ -222,7 +219,7 @@ def rank_candidates(
     for attempt in range(2):
         rows = np.flatnonzero(ok)
         if rows.size == 0:
-            raise ValueError(
+            raise SkillError(
                 f"target {target.name!r}: no row where every candidate is defined; drop "
                 "candidates whose time scale or lag runs past the index record"
             )
@@ -276,31 +273,31 @@ def rank_candidates(
 # --------------------------------------------------------------------------- checks
 def _check_options(target, candidates, *, cv, ci, n_boot, n_bins, seasonal=False):
     if not isinstance(target, Target):
-        raise ValueError(f"target must be an impactlink Target; got {type(target).__name__}")
+        raise SkillError(f"target must be an impactlink Target; got {type(target).__name__}")
     need = {"year", "level", "unit_id"}
     missing = sorted(need - set(target.frame.columns))
     if missing:
-        raise ValueError(
+        raise SkillError(
             f"target {target.name!r}: frame lacks columns {missing}; expected at least "
             f"{sorted(need)} (see impactlink.link.Target)"
         )
     if target.n_levels < 2:
-        raise ValueError(f"target {target.name!r} has {target.n_levels} level(s); need >= 2")
+        raise SkillError(f"target {target.name!r} has {target.n_levels} level(s); need >= 2")
     if len(candidates) == 0:
-        raise ValueError("candidates is empty; pass a list of (index, scale_weeks, lag_weeks)")
+        raise SkillError("candidates is empty; pass a list of (index, scale_weeks, lag_weeks)")
     for c in candidates:
         if len(c) != 3:
-            raise ValueError(f"candidate {c!r} is not a tuple (index, scale_weeks, lag_weeks)")
+            raise SkillError(f"candidate {c!r} is not a tuple (index, scale_weeks, lag_weeks)")
     if cv not in CV_CHOICES:
-        raise ValueError(f"cv={cv!r} is not one of {CV_CHOICES}")
+        raise SkillError(f"cv={cv!r} is not one of {CV_CHOICES}")
     if not 0 < ci < 1:
-        raise ValueError(f"ci={ci} must lie strictly between 0 and 1 (e.g. 0.90)")
+        raise SkillError(f"ci={ci} must lie strictly between 0 and 1 (e.g. 0.90)")
     if n_boot < 0:
-        raise ValueError(f"n_boot={n_boot} must be >= 0")
+        raise SkillError(f"n_boot={n_boot} must be >= 0")
     if n_bins < 2:
-        raise ValueError(f"n_bins={n_bins} must be >= 2")
+        raise SkillError(f"n_bins={n_bins} must be >= 2")
     if not isinstance(seasonal, (bool, np.bool_)):
-        raise ValueError(
+        raise SkillError(
             f"seasonal={seasonal!r} must be True or False (add annual harmonics of the "
             "season to the index models, or not)"
         )
@@ -315,7 +312,7 @@ def _as_float(s: pd.Series) -> np.ndarray:
 def _feature(features, cand, n_rows) -> np.ndarray:
     x = np.asarray(features(*cand), dtype=float)
     if x.shape != (n_rows,):
-        raise ValueError(
+        raise SkillError(
             f"features{cand} returned shape {x.shape}; expected ({n_rows},), one value per "
             "row of target.frame"
         )
@@ -343,14 +340,14 @@ class _Context:
         K = target.n_levels
         level = _as_float(fr["level"])[rows].astype(np.int64)
         if level.min() < 0 or level.max() > K - 1:
-            raise ValueError(
+            raise SkillError(
                 f"target {target.name!r}: level values run {level.min()}..{level.max()}; "
                 f"expected 0..{K - 1} for its {K} levels"
             )
         years = fr["year"].to_numpy()[rows].astype(np.int64)
         regions = fr["region"].to_numpy()[rows] if "region" in fr else None
         if cv == "leave_one_region_out" and regions is None:
-            raise ValueError(f"target {target.name!r}: cv='leave_one_region_out' needs a "
+            raise SkillError(f"target {target.name!r}: cv='leave_one_region_out' needs a "
                              "'region' column in the frame")
         fold = year_folds(years, cv=cv, k_folds=k_folds, regions=regions, seed=seed)
         uy, ypos = np.unique(years, return_inverse=True)

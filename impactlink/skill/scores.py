@@ -16,6 +16,8 @@ from dataclasses import asdict, dataclass
 import numpy as np
 import pandas as pd
 
+from impactlink.errors import SkillError
+
 __all__ = [
     "brier_score",
     "brier_skill_score",
@@ -34,16 +36,16 @@ def _binary_inputs(y_true, y_prob, sample_weight, name):
     y = np.asarray(y_true, dtype=float).ravel()
     p = np.asarray(y_prob, dtype=float).ravel()
     if y.shape != p.shape:
-        raise ValueError(
+        raise SkillError(
             f"{name}: inconsistent numbers of samples: y_true {y.shape[0]}, y_prob {p.shape[0]}"
         )
     if not np.isin(y, (0.0, 1.0)).all():
-        raise ValueError(f"{name}: y_true must hold 0/1 outcomes; found {np.unique(y)[:5]}")
+        raise SkillError(f"{name}: y_true must hold 0/1 outcomes; found {np.unique(y)[:5]}")
     if ((p < 0) | (p > 1)).any() or not np.isfinite(p).all():
-        raise ValueError(f"{name}: y_prob must be probabilities in [0, 1]")
+        raise SkillError(f"{name}: y_prob must be probabilities in [0, 1]")
     w = np.ones_like(y) if sample_weight is None else np.asarray(sample_weight, float).ravel()
     if w.shape != y.shape:
-        raise ValueError(f"{name}: sample_weight has {w.shape[0]} values; expected {y.shape[0]}")
+        raise SkillError(f"{name}: sample_weight has {w.shape[0]} values; expected {y.shape[0]}")
     return y, p, w
 
 
@@ -51,17 +53,17 @@ def _ordinal_inputs(y_true, y_prob, sample_weight, name):
     y = np.asarray(y_true).ravel()
     P = np.asarray(y_prob, dtype=float)
     if P.ndim != 2 or P.shape[0] != y.shape[0]:
-        raise ValueError(
+        raise SkillError(
             f"{name}: y_prob must have shape (n, K) with n = {y.shape[0]}; got {P.shape}"
         )
     K = P.shape[1]
     if np.any(y != np.round(y)) or (y < 0).any() or (y >= K).any():
-        raise ValueError(f"{name}: y_true must hold integer levels 0..{K - 1}")
+        raise SkillError(f"{name}: y_true must hold integer levels 0..{K - 1}")
     if not np.allclose(P.sum(1), 1.0, atol=1e-6):
-        raise ValueError(f"{name}: each row of y_prob must sum to 1")
+        raise SkillError(f"{name}: each row of y_prob must sum to 1")
     w = np.ones(y.shape[0]) if sample_weight is None else np.asarray(sample_weight, float).ravel()
     if w.shape != y.shape:
-        raise ValueError(f"{name}: sample_weight has {w.shape[0]} values; expected {y.shape[0]}")
+        raise SkillError(f"{name}: sample_weight has {w.shape[0]} values; expected {y.shape[0]}")
     return y.astype(int), P, w
 
 
@@ -164,7 +166,7 @@ def _skill(score: float, score_ref: float, perfect_reference: str) -> float:
     Wilks 2011, eqs. 8.37 and 8.53); ``perfect_reference`` is the error message when
     ``score_ref`` is 0."""
     if score_ref == 0:
-        raise ValueError(perfect_reference)
+        raise SkillError(perfect_reference)
     return 1.0 - score / score_ref
 
 
@@ -236,7 +238,7 @@ def reliability_table(y_true, y_prob, *, n_bins: int = 10, sample_weight=None) -
     """
     y, p, w = _binary_inputs(y_true, y_prob, sample_weight, "reliability_table")
     if int(n_bins) < 1:
-        raise ValueError(f"reliability_table: n_bins must be >= 1; got {n_bins}")
+        raise SkillError(f"reliability_table: n_bins must be >= 1; got {n_bins}")
     edges = np.linspace(0.0, 1.0, int(n_bins) + 1)
     b = np.clip(np.searchsorted(edges[1:-1], p, side="right"), 0, n_bins - 1)
     n = np.bincount(b, weights=w, minlength=n_bins)
@@ -327,10 +329,10 @@ class ContingencyScores:
     def from_counts(cls, hits, false_alarms, misses, correct_negatives) -> ContingencyScores:
         a, b, c, d = (float(v) for v in (hits, false_alarms, misses, correct_negatives))
         if min(a, b, c, d) < 0:
-            raise ValueError("contingency_scores: counts must be >= 0")
+            raise SkillError("contingency_scores: counts must be >= 0")
         n = a + b + c + d
         if n == 0:
-            raise ValueError("contingency_scores: the table is empty (n = 0)")
+            raise SkillError("contingency_scores: the table is empty (n = 0)")
 
         def div(x, y):
             return x / y if y != 0 else float("nan")
@@ -377,7 +379,7 @@ def contingency_scores(y_true, y_forecast, *, sample_weight=None) -> Contingency
     """
     y, f, w = _binary_inputs(y_true, y_forecast, sample_weight, "contingency_scores")
     if not np.isin(f, (0.0, 1.0)).all():
-        raise ValueError("contingency_scores: y_forecast must hold 0/1 (yes/no) forecasts")
+        raise SkillError("contingency_scores: y_forecast must hold 0/1 (yes/no) forecasts")
     a = w[(y == 1) & (f == 1)].sum()
     b = w[(y == 0) & (f == 1)].sum()
     c = w[(y == 1) & (f == 0)].sum()

@@ -8,7 +8,7 @@ from typing import Literal
 import numpy as np
 import pandas as pd
 
-from impactlink.errors import StageError
+from impactlink.errors import TriggerError
 from impactlink.link.target import Target
 from impactlink.triggers.replay import _check_values, _replay
 from impactlink.triggers.scores import TriggerScores, evaluate_trigger
@@ -178,7 +178,7 @@ def audit_triggers(
 
     Raises
     ------
-    StageError
+    TriggerError
         As :func:`tune_thresholds`; also for unknown timeline counties.
 
     Notes
@@ -191,12 +191,12 @@ def audit_triggers(
     """
     values = _check_values(index_values, "index_values")
     if len(county_ids) != values.shape[1]:
-        raise StageError(
+        raise TriggerError(
             f"county_ids has {len(county_ids)} entries; index_values has {values.shape[1]} "
             "counties."
         )
     if local_scope not in ("county", "region"):
-        raise StageError(f"local_scope must be 'county' or 'region'; got {local_scope!r}.")
+        raise TriggerError(f"local_scope must be 'county' or 'region'; got {local_scope!r}.")
     ids = tuple(str(c) for c in county_ids)
     regs = tuple("" for _ in ids) if regions is None else tuple(str(r) for r in regions)
     common = dict(
@@ -259,17 +259,17 @@ def impact_grid(
 
     Raises
     ------
-    StageError
+    TriggerError
         If the target is not on the county-week grain or lacks ``county_id``/``time``/``level``.
     """
     if target.grain != "county_week":
-        raise StageError(
+        raise TriggerError(
             f"target {target.name!r} is on the {target.grain!r} grain; trigger audits need a "
             "county_week target (the 'state' role of a weekly impact)."
         )
     missing = [c for c in ("county_id", "time", "level") if c not in target.frame.columns]
     if missing:
-        raise StageError(f"target {target.name!r} frame lacks columns {missing}.")
+        raise TriggerError(f"target {target.name!r} frame lacks columns {missing}.")
     f = target.frame
     w = pd.DatetimeIndex(weeks)
     t = pd.DatetimeIndex(pd.to_datetime(f["time"])).normalize()
@@ -305,7 +305,7 @@ def _timeline_counties(choice, ids, scores: TriggerScores, fire: pd.DataFrame) -
         return picked
     unknown = [c for c in choice if str(c) not in ids]
     if unknown:
-        raise StageError(f"timeline_counties {unknown} are not among the county_ids.")
+        raise TriggerError(f"timeline_counties {unknown} are not among the county_ids.")
     return [str(c) for c in choice]
 
 

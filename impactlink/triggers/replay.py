@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from impactlink.errors import StageError
+from impactlink.errors import TriggerError
 
 __all__ = ["replay_trigger"]
 
@@ -44,7 +44,7 @@ def replay_trigger(
 
     Raises
     ------
-    StageError
+    TriggerError
         If ``index_values`` is not 2-D, a threshold does not broadcast to the counties, a
         persistence rule is not a positive integer, or ``exit_threshold`` < ``threshold``.
 
@@ -76,7 +76,7 @@ def replay_trigger(
         exit_threshold, n_counties, "exit_threshold"
     )
     if np.any(np.broadcast_to(leave, enter.shape) < enter):
-        raise StageError(
+        raise TriggerError(
             "exit_threshold is below threshold for at least one county; the exit threshold must "
             "be at or above the entry threshold (equal = no hysteresis). Swap them or omit "
             "exit_threshold."
@@ -121,12 +121,12 @@ def _replay(
 def _check_values(values: np.ndarray, name: str) -> np.ndarray:
     arr = np.asarray(values)
     if arr.ndim != 2:
-        raise StageError(
+        raise TriggerError(
             f"{name} must be a 2-D array shaped (weeks, counties); got {arr.ndim}-D shape "
             f"{arr.shape}. Take one (index, scale) array from the IndexCube."
         )
     if not np.issubdtype(arr.dtype, np.number) or np.issubdtype(arr.dtype, np.complexfloating):
-        raise StageError(f"{name} must hold real numbers; got dtype {arr.dtype}.")
+        raise TriggerError(f"{name} must hold real numbers; got dtype {arr.dtype}.")
     return arr.astype(np.float64, copy=False)
 
 
@@ -135,18 +135,18 @@ def _check_threshold(value: float | np.ndarray, n_counties: int, name: str) -> n
     if arr.ndim == 0:
         arr = np.full(n_counties, float(arr))
     if arr.shape != (n_counties,):
-        raise StageError(
+        raise TriggerError(
             f"{name} must be a number or an array of one value per county (shape "
             f"({n_counties},)); got shape {arr.shape}."
         )
     if not np.all(np.isfinite(arr)):
-        raise StageError(f"{name} must be finite for every county; found NaN or inf.")
+        raise TriggerError(f"{name} must be finite for every county; found NaN or inf.")
     return arr
 
 
 def _check_persistence(value: int, name: str) -> int:
     if isinstance(value, bool) or not isinstance(value, (int, np.integer)) or value < 1:
-        raise StageError(
+        raise TriggerError(
             f"{name} must be a whole number of weeks >= 1; got {value!r}."
         )
     return int(value)

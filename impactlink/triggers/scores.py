@@ -7,7 +7,7 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
-from impactlink.errors import StageError
+from impactlink.errors import TriggerError
 
 __all__ = [
     "TriggerScores",
@@ -149,7 +149,7 @@ def evaluate_trigger(
 
     Raises
     ------
-    StageError
+    TriggerError
         On mismatched shapes, a non-boolean ``on``, or bad ``min_level``/``window_weeks``.
 
     Notes
@@ -300,22 +300,22 @@ def impact_arrays(impact_level: np.ndarray, min_level: int) -> tuple[np.ndarray,
 def _check_pair(on, impact_level, weeks, min_level, window_weeks):
     on_arr = np.asarray(on)
     if on_arr.ndim != 2:
-        raise StageError(
+        raise TriggerError(
             f"on must be a 2-D boolean array shaped (weeks, counties); got shape {on_arr.shape}."
         )
     if on_arr.dtype != bool:
-        raise StageError(
+        raise TriggerError(
             f"on must be boolean (the output of replay_trigger); got dtype {on_arr.dtype}."
         )
     lev = np.asarray(impact_level)
     if lev.shape != on_arr.shape:
-        raise StageError(
+        raise TriggerError(
             f"impact_level has shape {lev.shape} but on has shape {on_arr.shape}; both must be "
             "(weeks, counties) on the same grid."
         )
     if weeks is None or len(weeks) != on_arr.shape[0]:
         n = None if weeks is None else len(weeks)
-        raise StageError(
+        raise TriggerError(
             f"weeks has {n} entries but the arrays have {on_arr.shape[0]} rows; pass the "
             "IndexCube's weeks."
         )
@@ -326,13 +326,13 @@ def _check_pair(on, impact_level, weeks, min_level, window_weeks):
 
 def check_levels(min_level: int, window_weeks: int) -> None:
     if isinstance(min_level, bool) or not isinstance(min_level, (int, np.integer)) or min_level < 1:
-        raise StageError(f"min_level must be an integer >= 1; got {min_level!r}.")
+        raise TriggerError(f"min_level must be an integer >= 1; got {min_level!r}.")
     if (
         isinstance(window_weeks, bool)
         or not isinstance(window_weeks, (int, np.integer))
         or window_weeks < 0
     ):
-        raise StageError(f"window_weeks must be an integer >= 0; got {window_weeks!r}.")
+        raise TriggerError(f"window_weeks must be an integer >= 0; got {window_weeks!r}.")
 
 
 def _labels(county_ids, n: int) -> list[str]:
@@ -340,7 +340,7 @@ def _labels(county_ids, n: int) -> list[str]:
         return [str(i) for i in range(n)]
     labels = [str(c) for c in county_ids]
     if len(labels) != n:
-        raise StageError(f"county_ids has {len(labels)} entries; the arrays have {n} counties.")
+        raise TriggerError(f"county_ids has {len(labels)} entries; the arrays have {n} counties.")
     return labels
 
 

@@ -9,7 +9,7 @@ import numpy as np
 import pandas as pd
 from scipy.special import ndtr
 
-from impactlink.errors import StageError
+from impactlink.errors import TriggerError
 from impactlink.triggers.replay import _check_persistence, _check_values, _replay
 from impactlink.triggers.scores import (
     COUNT_NAMES,
@@ -150,7 +150,7 @@ def tune_thresholds(
 
     Raises
     ------
-    StageError
+    TriggerError
         On bad shapes or options, fewer than 3 years with ``cv="leave_one_year_out"``, or no
         known impact weeks at all.
 
@@ -184,7 +184,7 @@ def tune_thresholds(
     n_weeks, n_counties = values.shape
     lev = np.asarray(impact_level)
     if lev.shape != values.shape:
-        raise StageError(
+        raise TriggerError(
             f"impact_level has shape {lev.shape}; expected {values.shape} (weeks, counties) like "
             "index_values."
         )
@@ -195,29 +195,29 @@ def tune_thresholds(
     entry_weeks = _check_persistence(entry_weeks, "entry_weeks")
     exit_weeks = _check_persistence(exit_weeks, "exit_weeks")
     if not np.isfinite(exit_offset) or exit_offset < 0:
-        raise StageError(
+        raise TriggerError(
             f"exit_offset must be >= 0 (exit threshold at or above the entry threshold); got "
             f"{exit_offset!r}."
         )
     check_levels(min_level, window_weeks)
     if not 0.0 <= float(max_false_alarm_ratio) <= 1.0:
-        raise StageError(
+        raise TriggerError(
             f"max_false_alarm_ratio must be between 0 and 1; got {max_false_alarm_ratio!r}."
         )
     if not np.isfinite(shrink_events) or shrink_events < 0:
-        raise StageError(f"shrink_events must be >= 0; got {shrink_events!r}.")
+        raise TriggerError(f"shrink_events must be >= 0; got {shrink_events!r}.")
     group_of = _region_codes(regions, n_counties, required=scope == "region")
     year_labels = _year_labels(years, weeks, n_weeks, needed=cv != "none")
     labels = _labels(county_ids, n_counties)
 
     impact, known = impact_arrays(lev, int(min_level))
     if not known.any():
-        raise StageError(
+        raise TriggerError(
             "impact_level has no known week (all NaN or -1); check the impact record's coverage."
         )
     uniq_years, year_code = np.unique(year_labels, return_inverse=True)
     if cv != "none" and len(uniq_years) < 3:
-        raise StageError(
+        raise TriggerError(
             f"leave-one-year-out needs at least 3 years; found {len(uniq_years)}. Use cv='none' "
             "or a longer record."
         )
@@ -302,7 +302,7 @@ def firing_rate_audit(
 
     Raises
     ------
-    StageError
+    TriggerError
         On a bad shape, threshold or ``index_scale``.
 
     Notes
@@ -325,7 +325,7 @@ def firing_rate_audit(
     if thr.ndim == 0:
         thr = np.full(n_counties, float(thr))
     if thr.shape != (n_counties,) or not np.all(np.isfinite(thr)):
-        raise StageError(
+        raise TriggerError(
             f"threshold must be a finite number or one per county (shape ({n_counties},)); got "
             f"shape {thr.shape}."
         )
@@ -468,7 +468,7 @@ def _curve(total: dict[str, np.ndarray], cands: np.ndarray, values: np.ndarray) 
 def _check_candidates(candidates) -> np.ndarray:
     c = np.asarray(candidates, dtype=np.float64).ravel()
     if c.size == 0 or not np.all(np.isfinite(c)):
-        raise StageError(
+        raise TriggerError(
             "candidates must be a non-empty array of finite thresholds (index units); got "
             f"{c.size} values{' with NaN/inf' if c.size else ''}."
         )
@@ -477,24 +477,24 @@ def _check_candidates(candidates) -> np.ndarray:
 
 def _check_choice(value, allowed, name):
     if value not in allowed:
-        raise StageError(f"{name} must be one of {list(allowed)}; got {value!r}.")
+        raise TriggerError(f"{name} must be one of {list(allowed)}; got {value!r}.")
 
 
 def _region_codes(regions, n_counties: int, *, required: bool) -> np.ndarray:
     if regions is None:
         if required:
-            raise StageError(
+            raise TriggerError(
                 "scope='region' needs regions (one region name per county); pass regions= or "
                 "use scope='county'."
             )
         return np.zeros(n_counties, dtype=np.int64)
     r = np.asarray(regions, dtype=object)
     if r.shape != (n_counties,):
-        raise StageError(
+        raise TriggerError(
             f"regions must have one entry per county ({n_counties}); got shape {r.shape}."
         )
     if pd.isna(r).any():
-        raise StageError("regions has missing entries; every county needs a region.")
+        raise TriggerError("regions has missing entries; every county needs a region.")
     _, codes = np.unique(r.astype(str), return_inverse=True)
     return codes.astype(np.int64)
 
@@ -503,19 +503,19 @@ def _year_labels(years, weeks, n_weeks: int, *, needed: bool) -> np.ndarray:
     if years is not None:
         y = np.asarray(years)
         if y.shape != (n_weeks,):
-            raise StageError(
+            raise TriggerError(
                 f"years must have one label per week ({n_weeks}); got shape {y.shape}."
             )
         return y
     if weeks is not None:
         w = pd.DatetimeIndex(weeks)
         if len(w) != n_weeks:
-            raise StageError(
+            raise TriggerError(
                 f"weeks has {len(w)} entries but index_values has {n_weeks} rows."
             )
         return w.isocalendar().year.to_numpy(dtype=np.int64)
     if needed:
-        raise StageError(
+        raise TriggerError(
             "leave-one-year-out needs the year of each week: pass weeks= (the IndexCube's "
             "weeks) or years=."
         )

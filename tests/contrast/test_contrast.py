@@ -8,7 +8,7 @@ import pytest
 from scipy.stats import poisson
 
 from impactlink.contrast import ContrastWarning, county_contrast, poisson_ratio_interval
-from impactlink.errors import StageError
+from impactlink.errors import ContrastError
 from impactlink.link.target import Target
 
 
@@ -201,7 +201,7 @@ def test_errors(change, match):
     traits = change.pop("traits", traits)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", ContrastWarning)
-        with pytest.raises(StageError, match=match):
+        with pytest.raises(ContrastError, match=match):
             county_contrast(target, x, traits, **change)
 
 

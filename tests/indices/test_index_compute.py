@@ -9,8 +9,8 @@ import pytest
 
 from impactlink.indices import (
     IndexCalibrationWarning,
-    IndexInputError,
-    IndexInputWarning,
+    IndicesError,
+    IndicesWarning,
     compute_indices,
 )
 from impactlink.indices.standardize import standardize_empirical
@@ -150,7 +150,7 @@ def test_calibration_falls_back_to_full_record_with_warning():
 
 def test_no_temperature_skips_spei_with_warning():
     clim, lat = _weekly()
-    with pytest.warns(IndexInputWarning, match="skipped"):
+    with pytest.warns(IndicesWarning, match="skipped"):
         cube = compute_indices(clim.drop(columns=["tmin_c", "tmax_c"]), latitude_deg=lat,
                                scales_weeks=(4,))
     assert cube.index_names == ["spi"]
@@ -166,13 +166,13 @@ def test_compute_indices_error_messages(mutate, match):
     clim, lat = _weekly(n_years=31)
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
-        with pytest.raises(IndexInputError, match=match):
+        with pytest.raises(IndicesError, match=match):
             compute_indices(mutate(clim), latitude_deg=lat, scales_weeks=(4,))
 
 
 def test_unknown_index_name():
     clim, lat = _weekly(n_years=31)
-    with pytest.raises(IndexInputError, match="unknown"):
+    with pytest.raises(IndicesError, match="unknown"):
         compute_indices(clim, latitude_deg=lat, indices=("spx",))
 
 

@@ -6,7 +6,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from impactlink.indices import IndexInputError, compute_pet
+from impactlink.indices import IndicesError, compute_pet
 from impactlink.indices.pet import (
     _solar_geometry,
     daylight_hours,
@@ -96,7 +96,7 @@ def test_thornthwaite_hand_value():
 def test_compute_pet_needs_temperature():
     clim = pd.DataFrame({"county_id": "A", "date": pd.date_range("2000-01-03", periods=10,
                                                                   freq="7D"), "precip_mm": 1.0})
-    with pytest.raises(IndexInputError, match="temperature"):
+    with pytest.raises(IndicesError, match="temperature"):
         compute_pet(clim, latitude_deg=pd.Series({"A": 40.0}))
 
 
@@ -104,5 +104,5 @@ def test_compute_pet_names_missing_latitude():
     clim = pd.DataFrame({"county_id": "A", "date": pd.date_range("2000-01-03", periods=10,
                                                                   freq="7D"),
                          "precip_mm": 1.0, "tmin_c": 5.0, "tmax_c": 15.0})
-    with pytest.raises(IndexInputError, match="no latitude"):
+    with pytest.raises(IndicesError, match="no latitude"):
         compute_pet(clim, latitude_deg=pd.Series({"B": 40.0}))

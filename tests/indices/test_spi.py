@@ -10,7 +10,7 @@ from scipy import stats
 from impactlink.indices import (
     IndexCalibrationWarning,
     IndexFitWarning,
-    IndexInputError,
+    IndicesError,
     compute_indices,
 )
 from impactlink.indices.standardize import (
@@ -171,7 +171,7 @@ def test_compute_indices_error_short_record():
     weeks = pd.date_range("2010-01-04", periods=52 * 5, freq="7D")
     clim = pd.DataFrame({"county_id": "A", "date": weeks, "precip_mm": 1.0})
     with pytest.warns(IndexCalibrationWarning, match="full record"):
-        with pytest.raises(IndexInputError, match="min_calibration_years"):
+        with pytest.raises(IndicesError, match="min_calibration_years"):
             compute_indices(clim, latitude_deg=pd.Series({"A": 40.0}), indices=("spi",))
 
 

@@ -5,7 +5,7 @@ import pandas as pd
 import pytest
 from scipy import stats
 
-from impactlink.indices import IndexCube, IndexInputError, threshold_audit
+from impactlink.indices import IndexCube, IndicesError, threshold_audit
 
 STAGES = ["watch", "warning", "emergency"]
 
@@ -127,7 +127,7 @@ def test_audit_error_messages(kwargs, match):
     cube = _cube(np.zeros((60, 1)))
     args = dict(index="spi", scale_weeks=13, n_boot=0)
     args.update(kwargs)
-    with pytest.raises(IndexInputError, match=match):
+    with pytest.raises(IndicesError, match=match):
         threshold_audit(cube, **args)
 
 

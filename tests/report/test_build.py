@@ -10,7 +10,7 @@ import pandas as pd
 import pyogrio
 import pytest
 
-from impactlink.report import ReportError, ReportInputWarning, build_report, read_run_folder
+from impactlink.report import ReportError, ReportWarning, build_report, read_run_folder
 from impactlink.report import sections as S
 from impactlink.report.text import CAUTIONS
 
@@ -238,7 +238,7 @@ def test_trigger_and_contrast_sections_each_work_alone(tmp_path, make_run):
 def test_damaged_table_warns_and_is_named(tmp_path, make_run):
     folder = make_run(tmp_path / "run")
     pd.DataFrame({"impact": ["x"], "unexpected": [1]}).to_csv(folder / "skill.csv", index=False)
-    with pytest.warns(ReportInputWarning, match=r"skill: lacks column\(s\)"):
+    with pytest.warns(ReportWarning, match=r"skill: lacks column\(s\)"):
         run = read_run_folder(folder)
     _, p = _parse_markup(S.data_section(run, S.FigureSink()))
     assert "skill: lacks column(s)" in p.section("data")
@@ -252,7 +252,7 @@ def test_a_failing_section_is_replaced_by_a_note(tmp_path, make_run, monkeypatch
         raise KeyError("surprise")
 
     monkeypatch.setattr(S, "SECTIONS", (("methods", "Methods", broken),))
-    with pytest.warns(ReportInputWarning, match="report section 'methods' failed"):
+    with pytest.warns(ReportWarning, match="report section 'methods' failed"):
         html = build_report(folder)
     assert "could not be built from this run" in html.read_text(encoding="utf-8")
 

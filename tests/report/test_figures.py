@@ -62,28 +62,28 @@ def test_candidate_intervals_orders_by_score_and_draws_baselines():
                     and ln.get_xdata()[0] == ln.get_xdata()[1])
     assert vlines == [0.0, 0.05, 0.12]
     assert "Brier skill score" in ax.get_xlabel()
-    with pytest.raises(F.FigureInputError, match="top must be >= 1, got 0"):
+    with pytest.raises(F.ReportError, match="top must be >= 1, got 0"):
         F.candidate_intervals(_skill(), impact="restrictions", target="state", top=0)
 
 
 def test_figure_errors_name_the_missing_column_or_rows():
     bad = _skill().drop(columns="lag_weeks")
-    with pytest.raises(F.FigureInputError, match=r"skill_heatmap: frame lacks column\(s\) \['lag_weeks'\]"):
+    with pytest.raises(F.ReportError, match=r"skill_heatmap: frame lacks column\(s\) \['lag_weeks'\]"):
         F.skill_heatmap(bad, impact="restrictions", target="state")
-    with pytest.raises(F.FigureInputError, match="no rows with impact='yields'"):
+    with pytest.raises(F.ReportError, match="no rows with impact='yields'"):
         F.skill_heatmap(_skill(), impact="yields", target="state")
-    with pytest.raises(F.FigureInputError, match="no persistence rows for 'restrictions'"):
+    with pytest.raises(F.ReportError, match="no persistence rows for 'restrictions'"):
         F.persistence_comparison(_skill()[lambda f: f["model"] != "persistence"],
                                  impact="restrictions")
-    with pytest.raises(F.FigureInputError, match="reliability_diagram: frame lacks"):
+    with pytest.raises(F.ReportError, match="reliability_diagram: frame lacks"):
         F.reliability_diagram(pd.DataFrame({"impact": []}), impact="a", target="b")
-    with pytest.raises(F.FigureInputError, match="audit_shares: no rows with ladder='x'"):
+    with pytest.raises(F.ReportError, match="audit_shares: no rows with ladder='x'"):
         F.audit_shares(pd.DataFrame({"ladder": ["y"], "stage": ["s"], "period": ["record"],
                                      "expected_share": [0.1], "observed_share": [0.1]}),
                        ladder="x")
-    with pytest.raises(F.FigureInputError, match="no input has both date_min and date_max"):
+    with pytest.raises(F.ReportError, match="no input has both date_min and date_max"):
         F.record_timeline(pd.DataFrame({"table": ["a"], "date_min": [None], "date_max": [None]}))
-    with pytest.raises(F.FigureInputError, match="impact_curves: frame lacks"):
+    with pytest.raises(F.ReportError, match="impact_curves: frame lacks"):
         F.impact_curves(pd.DataFrame({"impact": ["a"]}), impact="a", target="b")
 
 
@@ -172,13 +172,13 @@ def test_sequential_map_has_a_labelled_colour_bar_with_given_limits():
 
 def test_map_errors_name_the_problem():
     vals = pd.DataFrame({"county_id": ["1"], "p": [0.1]})
-    with pytest.raises(F.FigureInputError, match="kind must be 'sequential' or 'categorical'"):
+    with pytest.raises(F.ReportError, match="kind must be 'sequential' or 'categorical'"):
         M.MapPanel(vals, "p", title="t", label="l", kind="diverging")
-    with pytest.raises(F.FigureInputError, match="values lack column 'q'"):
+    with pytest.raises(F.ReportError, match="values lack column 'q'"):
         M.MapPanel(vals, "q", title="t", label="l")
-    with pytest.raises(F.FigureInputError, match="panels is empty"):
+    with pytest.raises(F.ReportError, match="panels is empty"):
         M.county_panels(_counties(), [])
-    with pytest.raises(F.FigureInputError, match="must be a GeoDataFrame with 'county_id'"):
+    with pytest.raises(F.ReportError, match="must be a GeoDataFrame with 'county_id'"):
         M.county_map(None, vals, "p", title="t", label="l")
 
 
@@ -197,7 +197,7 @@ def test_trigger_timeline_marks_plans_and_names_counties():
     labels = [t.get_text() for t in fig.legends[0].get_texts()]
     assert labels == ["index value", "uniform threshold -1.00", "uniform plan on",
                       "local threshold -1.40", "local plan on", "impact recorded"]
-    with pytest.raises(F.FigureInputError, match="last_years must be >= 1 or None, got 0"):
+    with pytest.raises(F.ReportError, match="last_years must be >= 1 or None, got 0"):
         F.trigger_timeline(pd.concat(rows), last_years=0)
 
 
@@ -208,7 +208,7 @@ def test_odds_ratio_chart_uses_a_log_axis_centred_on_one():
     assert ax.get_xscale() == "log"
     vertical = [ln.get_xdata()[0] for ln in ax.get_lines() if list(ln.get_ydata()) == [0, 1]]
     assert vertical == [1]
-    with pytest.raises(F.FigureInputError, match=r"odds_ratio_chart: frame lacks column\(s\) \['or_lo'\]"):
+    with pytest.raises(F.ReportError, match=r"odds_ratio_chart: frame lacks column\(s\) \['or_lo'\]"):
         F.odds_ratio_chart(con.drop(columns="or_lo"))
 
 
@@ -220,7 +220,7 @@ def test_many_map_panels_wrap_onto_rows():
     assert [ax.get_title() for ax in maps] == ["h0", "h1", "h2", "h3"]
     rows = {round(ax.get_position().y0, 3) for ax in maps}
     assert len(rows) == 2
-    with pytest.raises(F.FigureInputError, match="max_columns must be >= 1, got 0"):
+    with pytest.raises(F.ReportError, match="max_columns must be >= 1, got 0"):
         M.county_panels(_counties(), panels, max_columns=0)
 
 

@@ -77,7 +77,7 @@ def test_generate_rejects_bad_seed(tmp_path):
 def test_generate_rejects_file_as_out_dir(tmp_path):
     f = tmp_path / "a_file.txt"
     f.write_text("x")
-    with pytest.raises(NotADirectoryError, match="exists and is not a folder"):
+    with pytest.raises(ValueError, match="exists and is not a folder"):
         generate(f)
 
 

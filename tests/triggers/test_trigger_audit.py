@@ -4,7 +4,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from impactlink.errors import StageError
+from impactlink.errors import TriggerError
 from impactlink.link.target import Target
 from impactlink.triggers import TRIGGER_COLUMNS, audit_triggers, impact_grid
 
@@ -74,15 +74,15 @@ def test_impact_grid_from_a_county_week_target():
     np.testing.assert_array_equal(grid, expected)
     yearly = Target(name="maize", impact="maize", kind="binary", grain="county_year",
                     role="annual", frame=rows, levels=("no", "yes"))
-    with pytest.raises(StageError, match="county_week target"):
+    with pytest.raises(TriggerError, match="county_week target"):
         impact_grid(yearly, WEEKS, IDS)
 
 
 def test_audit_errors():
     x, lev = _data()
-    with pytest.raises(StageError, match="county_ids has 3 entries"):
+    with pytest.raises(TriggerError, match="county_ids has 3 entries"):
         audit_triggers(x, lev, weeks=WEEKS, county_ids=IDS[:3])
-    with pytest.raises(StageError, match="local_scope"):
+    with pytest.raises(TriggerError, match="local_scope"):
         audit_triggers(x, lev, weeks=WEEKS, county_ids=IDS, local_scope="state")
-    with pytest.raises(StageError, match="not among the county_ids"):
+    with pytest.raises(TriggerError, match="not among the county_ids"):
         audit_triggers(x, lev, weeks=WEEKS, county_ids=IDS, timeline_counties=["zz"])

@@ -3,7 +3,7 @@
 import numpy as np
 import pytest
 
-from impactlink.errors import StageError
+from impactlink.errors import TriggerError
 from impactlink.triggers import replay_trigger
 
 
@@ -71,5 +71,5 @@ def test_per_county_thresholds_match_one_county_at_a_time():
 )
 def test_errors_name_the_argument(kwargs, match):
     values = kwargs.pop("index_values")
-    with pytest.raises(StageError, match=match):
+    with pytest.raises(TriggerError, match=match):
         replay_trigger(values, **kwargs)

@@ -4,7 +4,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from impactlink.errors import StageError
+from impactlink.errors import TriggerError
 from impactlink.triggers import (
     critical_success_index,
     evaluate_trigger,
@@ -131,5 +131,5 @@ def test_integer_levels_with_minus_one_unknown():
     ],
 )
 def test_errors(on, lev, weeks, kwargs, match):
-    with pytest.raises(StageError, match=match):
+    with pytest.raises(TriggerError, match=match):
         evaluate_trigger(on, lev, weeks=weeks, **kwargs)

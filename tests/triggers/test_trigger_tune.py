@@ -5,7 +5,7 @@ import pandas as pd
 import pytest
 from scipy.stats import norm
 
-from impactlink.errors import StageError
+from impactlink.errors import TriggerError
 from impactlink.triggers import (
     evaluate_trigger,
     firing_rate_audit,
@@ -154,14 +154,14 @@ def test_errors(kwargs, match):
     x = np.zeros((n, 2))
     lev = kwargs.pop("impact_level", np.zeros((n, 2)))
     kwargs.setdefault("weeks", WEEKS[:n])
-    with pytest.raises(StageError, match=match):
+    with pytest.raises(TriggerError, match=match):
         tune_thresholds(x, lev, **kwargs)
 
 
 def test_firing_audit_errors():
-    with pytest.raises(StageError, match="index_scale must be one of"):
+    with pytest.raises(TriggerError, match="index_scale must be one of"):
         firing_rate_audit(np.zeros((5, 2)), -1.0, index_scale="gamma")
-    with pytest.raises(StageError, match="threshold must be a finite number"):
+    with pytest.raises(TriggerError, match="threshold must be a finite number"):
         firing_rate_audit(np.zeros((5, 2)), [1.0, 2.0, 3.0])
 
 
@@ -191,5 +191,5 @@ def test_in_sample_counts_equal_a_replay_with_hysteresis():
     cols = ["hits", "false_alarms", "misses", "correct_negatives", "episodes", "episodes_hit",
             "activations_judged", "false_activations", "peirce_skill", "hit_rate"]
     pd.testing.assert_frame_equal(res.scores[cols], ref[cols])
-    with pytest.raises(StageError, match="exit_offset must be >= 0"):
+    with pytest.raises(TriggerError, match="exit_offset must be >= 0"):
         tune_thresholds(x, lev, weeks=WEEKS, exit_offset=-0.1)
