@@ -36,6 +36,7 @@ from .timegrid import (
     grid_values,
     grid_years,
     period_of_year,
+    week_monday,
 )
 
 __all__ = ["compute_indices", "compute_pet", "standardized_indices", "DEFAULT_SCALES_WEEKS",
@@ -541,7 +542,7 @@ def _indicator_arrays(indicators, grid, cal, scales, clip, say):
     cmap = {c: i for i, c in enumerate(grid.county_ids)}
     d = pd.DatetimeIndex(ind["date"]).normalize()
     if grid.step == "weekly":
-        mon = d - pd.to_timedelta(d.day_of_week, unit="D")
+        mon = week_monday(d)
         tpos = ((mon - grid.times[0]).days // 7).to_numpy()
     else:
         tpos = ((d.year - grid.times[0].year) * 12 + d.month - grid.times[0].month).to_numpy()

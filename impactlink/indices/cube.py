@@ -13,6 +13,8 @@ import pandas as pd
 
 from impactlink.errors import IndicesError
 
+from .timegrid import week_monday
+
 __all__ = ["IndexCube"]
 
 
@@ -72,8 +74,7 @@ class IndexCube:
 
     def week_position(self, dates: pd.Series | pd.DatetimeIndex | np.ndarray) -> np.ndarray:
         """Row position of the ISO week that contains each date (-1 if outside the grid)."""
-        d = pd.DatetimeIndex(pd.to_datetime(dates)).normalize()
-        monday = d - pd.to_timedelta(d.day_of_week, unit="D")
+        monday = week_monday(dates)
         pos = ((monday - self.weeks[0]).days // 7).to_numpy()
         pos = np.where((pos >= 0) & (pos < len(self.weeks)), pos, -1)
         return pos.astype(np.int64)

@@ -10,7 +10,7 @@ import pandas as pd
 
 from .errors import IndicesError
 
-__all__ = ["Grid", "detect_cadence", "build_grid", "grid_values", "period_of_year",
+__all__ = ["Grid", "week_monday", "iso_week_start", "detect_cadence", "build_grid", "grid_values", "period_of_year",
            "accumulate", "accumulate_many", "calibration_mask"]
 
 Cadence = Literal["daily", "weekly", "monthly"]
@@ -56,10 +56,42 @@ def detect_cadence(dates: pd.Series) -> Cadence:
     )
 
 
+def week_monday(dates) -> pd.DatetimeIndex:
+    """Monday of the ISO 8601 week holding each date (the one home of this rule).
+
+    Weeks are ISO 8601 weeks (Monday to Sunday) labelled by their Monday, at midnight.
+
+    Examples
+    --------
+    >>> week_monday(["2031-07-09", "2031-07-13", "2031-07-14"]).strftime("%m-%d").tolist()
+    ['07-07', '07-07', '07-14']
+    """
+    d = pd.DatetimeIndex(pd.to_datetime(dates)).normalize()
+    return d - pd.to_timedelta(d.day_of_week, unit="D")
+
+
+def iso_week_start(years, week: int) -> pd.DatetimeIndex:
+    """Monday of ISO 8601 week ``week`` of each year (week 53 -> 52 where the year has 52).
+
+    ISO week 1 is the week holding 4 January (ISO 8601-1:2019, 3.1.1.23 "calendar week").
+
+    Examples
+    --------
+    >>> iso_week_start([2020, 2021], 53).strftime("%Y-%m-%d").tolist()
+    ['2020-12-28', '2021-12-27']
+    """
+    if not 1 <= int(week) <= 53:
+        raise IndicesError(f"an ISO week must be 1..53; got {week}")
+    y = np.asarray(years, dtype=np.int64)
+    jan4 = pd.DatetimeIndex(pd.to_datetime(pd.DataFrame({"year": y, "month": 1, "day": 4})))
+    out = week_monday(jan4) + pd.to_timedelta((int(week) - 1) * 7, unit="D")
+    spill = out.isocalendar().year.to_numpy() != y
+    return pd.DatetimeIndex(np.where(spill, out - pd.Timedelta(days=7), out))
+
+
 def _monday_days(d: pd.DatetimeIndex) -> np.ndarray:
-    """Days since 1970-01-01 of the Monday of the ISO week of each date (int64)."""
-    days = d.values.astype("datetime64[D]").astype(np.int64)
-    return days - (days + 3) % 7  # 1970-01-01 was a Thursday; (days + 3) % 7 == 0 on Mondays
+    """Days since 1970-01-01 of each date's :func:`week_monday` (int64)."""
+    return week_monday(d).values.astype("datetime64[D]").astype(np.int64)
 
 
 def build_grid(county: pd.Series, dates: pd.Series, cadence: Cadence) -> tuple[Grid, np.ndarray, np.ndarray]:

@@ -14,7 +14,7 @@ from impactlink.link._common import (
     ReportingEffortWarning,
 )
 from impactlink.link.build import PANEL_COLUMNS, build_targets, circularity_flags, panel_frame
-from impactlink.link.features import feature_matrix, feature_values, iso_week_monday
+from impactlink.link.features import feature_matrix, feature_values
 from impactlink.link.notices import notice_levels, risk_set
 from impactlink.link.prices import deflate
 from impactlink.link.spatial import area_weights, points_to_counties
@@ -43,5 +43,4 @@ __all__ = [
     "deflate",
     "loo_trend",
     "shortfall_level",
-    "iso_week_monday",
 ]

@@ -10,6 +10,7 @@ import numpy as np
 import pandas as pd
 
 from impactlink.errors import LinkError, LinkWarning
+from impactlink.indices.timegrid import week_monday as monday
 from impactlink.link.target import Target
 
 __all__ = [
@@ -154,12 +155,6 @@ def binary_variant(target: Target, label: str, event: np.ndarray) -> Target:
 
 
 # --------------------------------------------------------------------------- time helpers
-def monday(dates) -> pd.DatetimeIndex:
-    """Monday of the ISO 8601 week holding each date."""
-    d = pd.DatetimeIndex(pd.to_datetime(dates)).normalize()
-    return d - pd.to_timedelta(d.day_of_week, unit="D")
-
-
 def check_weeks(weeks: pd.DatetimeIndex) -> pd.DatetimeIndex:
     """Validate the weekly grid: Mondays, 7 days apart, no gaps."""
     weeks = pd.DatetimeIndex(weeks)

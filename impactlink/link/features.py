@@ -11,10 +11,11 @@ import weakref
 import numpy as np
 import pandas as pd
 
+from impactlink.indices.timegrid import iso_week_start, week_monday
 from impactlink.link._common import LinkError
 from impactlink.link.target import Target
 
-__all__ = ["feature_values", "feature_matrix", "reference_weeks", "iso_week_monday"]
+__all__ = ["feature_values", "feature_matrix", "reference_weeks"]
 
 #: A region value needs index values for at least this share of the region's weight.
 MIN_REGION_WEIGHT = 0.5
@@ -98,43 +99,27 @@ def reference_weeks(target: Target) -> pd.DatetimeIndex:
     """Monday of the reference week of every row (before the lag)."""
     rule, fr = target.rule, target.frame
     if rule.reference == "row_week":
-        t = pd.DatetimeIndex(pd.to_datetime(fr["time"])).normalize()
-        return t - pd.to_timedelta(t.day_of_week, unit="D")
+        return week_monday(fr["time"])
     if rule.reference == "season_week":
         if rule.season_week is None:
             raise LinkError(f"target {target.name!r}: reference 'season_week' needs season_week")
-        return iso_week_monday(fr["year"].to_numpy(), int(rule.season_week))
+        return _season_start(fr["year"].to_numpy(), int(rule.season_week), target.name)
     if rule.reference == "month_end":
         t = pd.DatetimeIndex(pd.to_datetime(fr["time"]))
-        last = (t + pd.offsets.MonthEnd(0)).normalize()
-        return last - pd.to_timedelta(last.day_of_week, unit="D")
+        return week_monday(t + pd.offsets.MonthEnd(0))
     raise LinkError(
         f"target {target.name!r}: rule.reference must be row_week, season_week or month_end, "
         f"got {rule.reference!r}"
     )
 
 
-def iso_week_monday(years, week: int) -> pd.DatetimeIndex:
-    """Monday of ISO 8601 week ``week`` of each year (week 53 -> 52 where the year has 52).
-
-    ISO week 1 is the week holding 4 January (ISO 8601-1:2019, 3.1.1.23 "calendar week").
-
-    Examples
-    --------
-    >>> iso_week_monday([2020, 2021], 53).strftime("%Y-%m-%d").tolist()
-    ['2020-12-28', '2021-12-27']
-    """
-    if not 1 <= int(week) <= 53:
-        raise LinkError(f"season_week must be an ISO week 1..53, got {week}")
-    y = np.asarray(years, dtype=np.int64)
-    jan4 = pd.to_datetime(pd.DataFrame({"year": y, "month": 1, "day": 4}))
-    mon1 = pd.DatetimeIndex(jan4 - pd.to_timedelta(jan4.dt.day_of_week, unit="D"))
-    out = mon1 + pd.to_timedelta((int(week) - 1) * 7, unit="D")
-    spill = out.isocalendar().year.to_numpy() != y
-    return pd.DatetimeIndex(np.where(spill, out - pd.Timedelta(days=7), out))
-
-
 # --------------------------------------------------------------------------- private steps
+def _season_start(years, week: int, name: str) -> pd.DatetimeIndex:
+    if not 1 <= int(week) <= 53:
+        raise LinkError(f"target {name!r}: season_week must be an ISO week 1..53, got {week}")
+    return iso_week_start(years, week)
+
+
 #: (id of a target frame, cube grid) -> (reference week positions, county positions). Target
 #: frames are results and are not modified after construction; an entry is dropped when its
 #: frame is garbage-collected. Saves the date and id lookups when hundreds of candidates are

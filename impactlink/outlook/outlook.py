@@ -16,6 +16,7 @@ import numpy as np
 import pandas as pd
 
 from impactlink.errors import OutlookError
+from impactlink.indices.timegrid import week_monday
 from impactlink.models.fit import ImpactModel, _check_ci
 
 __all__ = ["impact_outlook", "plot_outlook_map", "OUTLOOK_COLUMNS"]
@@ -216,8 +217,7 @@ def _one_model(key, model, cube, units, have_counties, state, as_of_week, ci) ->
     if as_of_week is None:
         as_of = _latest_week(cube, specs)
     else:
-        as_of = pd.Timestamp(as_of_week).normalize()
-        as_of = as_of - pd.Timedelta(days=as_of.day_of_week)
+        as_of = week_monday([as_of_week])[0]
     valid = as_of + pd.Timedelta(weeks=lag) if pd.notna(as_of) else pd.NaT
     K = len(model.levels) - 1
     n = len(units)

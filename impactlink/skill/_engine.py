@@ -18,6 +18,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from impactlink.models.batch import fit_cumlogit_batch, fit_logistic_batch
+from impactlink.skill.folds import year_bootstrap_weights
 
 PRIOR_WEIGHT = 1.0  # total weight of the pseudo-rows that keep every fit finite
 
@@ -74,12 +75,7 @@ def make_layout(block_fold, block_year, n_years, n_levels, *, k_inner, n_boot, s
                 excl.append(e)
                 scored.append(np.isin(block_fold, grp).astype(float))
                 inner_of.append(f)
-    rng = np.random.default_rng(seed)
-    if n_boot > 0:
-        M = rng.multinomial(n_years, np.full(n_years, 1.0 / n_years), size=n_boot)
-        boot = M[:, block_year].astype(float)
-    else:
-        boot = np.zeros((0, G))
+    boot = year_bootstrap_weights(n_years, n_boot, seed=seed)[:, block_year]
     return Layout(G, block_fold, block_year, F, np.array(excl), np.array(scored), F,
                   np.array(inner_of), boot, n_levels)
 

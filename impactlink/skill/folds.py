@@ -8,7 +8,7 @@ import numpy as np
 
 from impactlink.errors import SkillError
 
-__all__ = ["year_folds", "CV_CHOICES"]
+__all__ = ["year_folds", "leave_one_year_out", "year_bootstrap_weights", "CV_CHOICES"]
 
 CV_CHOICES = ("leave_one_year_out", "blocked_k_fold", "leave_one_region_out")
 CVChoice = Literal["leave_one_year_out", "blocked_k_fold", "leave_one_region_out"]
@@ -87,3 +87,63 @@ def year_folds(
     for i, part in enumerate(np.array_split(np.arange(uniq.size), k)):
         block[part] = i
     return block[inv]
+
+
+def leave_one_year_out(years) -> np.ndarray:
+    """Fold number of every row with one fold per distinct year (sorted).
+
+    The one home of leave-one-year-out folds; the same as
+    ``year_folds(years, cv="leave_one_year_out")``.
+
+    Examples
+    --------
+    >>> leave_one_year_out([2001, 1999, 2001, 2000]).tolist()
+    [2, 0, 2, 1]
+    """
+    return year_folds(years, cv="leave_one_year_out")
+
+
+def year_bootstrap_weights(n_years: int, n_boot: int, *, seed: int) -> np.ndarray:
+    """Year-block bootstrap: how often each year is drawn in each replicate.
+
+    The one home of the year-block bootstrap. Whole years are resampled with replacement
+    (a block bootstrap with one block per year), so the dependence between weeks, counties
+    and seasons of one year is kept inside each block (Kunsch 1989; Wilks 2011, section 5.3.5).
+
+    Parameters
+    ----------
+    n_years : int
+        Number of distinct years (blocks).
+    n_boot : int
+        Number of bootstrap replicates (0 gives an empty (0, n_years) array).
+    seed : int
+        Seed of the generator: the same seed gives the same replicates.
+
+    Returns
+    -------
+    ndarray of float, shape (n_boot, n_years)
+        Multiplicity of each year in each replicate; every row sums to ``n_years``.
+        A statistic that is a sum over years is recomputed on replicate ``b`` as
+        ``weights[b] @ per_year``.
+
+    References
+    ----------
+    Kunsch, H. R. (1989). The jackknife and the bootstrap for general stationary
+    observations. Annals of Statistics 17(3), 1217-1241.
+    Wilks, D. S. (2011). Statistical Methods in the Atmospheric Sciences, 3rd ed.
+
+    Examples
+    --------
+    >>> w = year_bootstrap_weights(5, 3, seed=1)
+    >>> w.shape, w.sum(axis=1).tolist()
+    ((3, 5), [5.0, 5.0, 5.0])
+    """
+    n_years, n_boot = int(n_years), int(n_boot)
+    if n_years < 1 or n_boot < 0:
+        raise SkillError(
+            f"year bootstrap needs at least 1 year and n_boot >= 0; got {n_years} years, "
+            f"n_boot={n_boot}")
+    if n_boot == 0:
+        return np.zeros((0, n_years))
+    rng = np.random.default_rng(seed)
+    return rng.multinomial(n_years, np.full(n_years, 1.0 / n_years), size=n_boot).astype(float)

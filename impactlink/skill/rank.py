@@ -21,7 +21,7 @@ from impactlink.errors import SkillError, SkillWarning
 from impactlink.link.target import Target
 from impactlink.skill import _engine as E
 from impactlink.skill.folds import CV_CHOICES, year_folds
-from impactlink.skill.scores import reliability_table
+from impactlink.skill.scores import reliability_table, rps_per_row
 
 __all__ = ["rank_candidates", "SkillResult", "SkillWarning", "TABLE_COLUMNS"]
 
@@ -867,13 +867,6 @@ def _persistence_sentence(ctx, lag, index, scale, gain, lo, hi, adds) -> str:
 
 
 # --------------------------------------------------------------------------- local + rows
-def _row_rps(P: np.ndarray, level: np.ndarray) -> np.ndarray:
-    K = P.shape[1]
-    cum = np.cumsum(P, 1)[:, : K - 1]
-    obs = (level[:, None] <= np.arange(K - 1)[None, :]).astype(float)
-    return ((cum - obs) ** 2).sum(1)
-
-
 def _row_probs(ctx, features, units, rec) -> np.ndarray:
     """Out-of-fold level probabilities (rows, K) of one single candidate, row by row."""
     u = units[rec["unit"]]
@@ -900,14 +893,14 @@ def _local_and_predictions(ctx, features, units, records, base, table, *, n_loca
         return pd.DataFrame(), pd.DataFrame(), pd.DataFrame()
     lvl = ctx.level
     clim_P = base[0]["P_oof"][ctx.block, 0]
-    clim_loss = _row_rps(clim_P, lvl)
+    clim_loss = rps_per_row(clim_P, lvl)
     losses = []
     best_P = None
     for j, row in enumerate(order):
         P = _row_probs(ctx, features, units, recs[row])
         if j == 0:
             best_P = P
-        losses.append(_row_rps(P, lvl))
+        losses.append(rps_per_row(P, lvl))
     losses = np.array(losses)
     event = (lvl >= 1).astype(float)
     parts = []

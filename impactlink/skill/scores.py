@@ -133,11 +133,35 @@ def ranked_probability_score(y_true, y_prob, *, sample_weight=None) -> float:
     Meteorology 10(1), 155-156.
     """
     y, P, w = _ordinal_inputs(y_true, y_prob, sample_weight, "ranked_probability_score")
+    return float((w * rps_per_row(P, y)).sum() / w.sum())
+
+
+def rps_per_row(P: np.ndarray, level: np.ndarray) -> np.ndarray:
+    """Ranked probability score of each row (the one home of the RPS formula).
+
+    Parameters
+    ----------
+    P : ndarray, shape (n, K)
+        Forecast probability of each level 0..K-1 (rows sum to 1).
+    level : ndarray of int, shape (n,)
+        Observed level of each row.
+
+    Returns
+    -------
+    ndarray, shape (n,)
+        :math:`\\sum_{m<K-1} (C_m - [y \\le m])^2` with :math:`C_m` the cumulative forecast
+        probability of levels 0..m (Epstein 1969; Wilks 2011, eq. 8.52). Lower is better.
+
+    Examples
+    --------
+    >>> rps_per_row(np.array([[0.2, 0.8], [0.5, 0.5]]), np.array([1, 0])).round(2).tolist()
+    [0.04, 0.25]
+    """
+    P = np.asarray(P, dtype=float)
     K = P.shape[1]
-    cum_f = np.cumsum(P, axis=1)[:, : K - 1]
-    cum_o = (y[:, None] <= np.arange(K - 1)[None, :]).astype(float)
-    per_row = ((cum_f - cum_o) ** 2).sum(1)
-    return float((w * per_row).sum() / w.sum())
+    cum = np.cumsum(P, axis=1)[:, : K - 1]
+    obs = (np.asarray(level)[:, None] <= np.arange(K - 1)[None, :]).astype(float)
+    return ((cum - obs) ** 2).sum(1)
 
 
 def rps_skill_score(y_true, y_prob, *, reference, sample_weight=None) -> float:

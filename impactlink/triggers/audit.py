@@ -9,6 +9,7 @@ import numpy as np
 import pandas as pd
 
 from impactlink.errors import TriggerError
+from impactlink.indices.timegrid import week_monday
 from impactlink.link.target import Target
 from impactlink.triggers.replay import _check_values, _replay
 from impactlink.triggers.scores import TriggerScores, evaluate_trigger
@@ -272,8 +273,7 @@ def impact_grid(
         raise TriggerError(f"target {target.name!r} frame lacks columns {missing}.")
     f = target.frame
     w = pd.DatetimeIndex(weeks)
-    t = pd.DatetimeIndex(pd.to_datetime(f["time"])).normalize()
-    monday = t - pd.to_timedelta(t.day_of_week, unit="D")
+    monday = week_monday(f["time"])
     wp = np.asarray((monday - w[0]).days // 7, dtype=np.int64)
     lookup = {str(c): i for i, c in enumerate(county_ids)}
     cp = np.array([lookup.get(str(c), -1) for c in f["county_id"]], dtype=np.int64)

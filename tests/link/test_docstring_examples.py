@@ -8,7 +8,7 @@ import importlib
 
 import pytest
 
-MODULES = ["notices", "features", "spatial", "yields", "prices"]
+MODULES = ["notices", "spatial", "yields", "prices"]
 
 
 @pytest.mark.parametrize("name", MODULES)
