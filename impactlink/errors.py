@@ -15,8 +15,8 @@ Examples
 --------
 >>> issubclass(InputError, ImpactlinkError) and issubclass(TriggerError, ImpactlinkError)
 True
->>> user_message(InputError("climate.csv: no column 'precip_mm'; rename your column"))
-'impactlink: error: climate.csv: no column \\'precip_mm\\'; rename your column'
+>>> print(user_message(InputError("climate.csv: no column precip_mm; rename your column")))
+impactlink: error: climate.csv: no column precip_mm; rename your column
 """
 
 from __future__ import annotations
