@@ -97,10 +97,10 @@ def impact_target_pairs(frame: pd.DataFrame) -> list[tuple[str, str]]:
 
 def score_for(run: RunFolder, impact: str, target: str) -> str:
     summary = run.table("skill_summary")
-    if summary is not None and "score_name" in summary.columns:
+    if summary is not None:
         row = sel(summary, impact=impact, target=target)
-        if not row.empty and pd.notna(row["score_name"].iloc[0]):
-            return str(row["score_name"].iloc[0])
+        if not row.empty and pd.notna(row["ranking_score"].iloc[0]):
+            return str(row["ranking_score"].iloc[0])
     skill = run.table("skill")
     if skill is not None and "rpss" in skill.columns:
         if sel(skill, impact=impact, target=target)["rpss"].notna().any():

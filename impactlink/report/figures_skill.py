@@ -327,7 +327,8 @@ def reliability_diagram(reliability: pd.DataFrame, *, impact: str, target: str) 
     Parameters
     ----------
     reliability : DataFrame
-        ``reliability.csv``: target, forecast_mean, observed_freq, count, and optionally
+        ``reliability.csv``: target, mean_forecast, observed_frequency, n (forecasts in the
+        bin), and optionally
         impact and model (without ``model`` the rows are the best candidate's).
     impact, target : str
 
@@ -346,7 +347,7 @@ def reliability_diagram(reliability: pd.DataFrame, *, impact: str, target: str) 
         Missing columns or no rows.
     """
     where = "reliability_diagram"
-    need_columns(reliability, ["target", "forecast_mean", "observed_freq", "count"], where)
+    need_columns(reliability, ["target", "mean_forecast", "observed_frequency", "n"], where)
     if "model" not in reliability.columns:
         reliability = reliability.assign(model="best candidate")
     keys = {"impact": impact, "target": target} if "impact" in reliability.columns else {
@@ -359,12 +360,12 @@ def reliability_diagram(reliability: pd.DataFrame, *, impact: str, target: str) 
     ax.plot([0, 1], [0, 1], color=NEUTRAL["baseline"], lw=1, ls="--", label="perfectly reliable")
     width = 0.8 / max(len(models), 1) / 10
     for k, model in enumerate(models):
-        g = sub[(sub["model"].astype(str) == model).to_numpy()].sort_values("forecast_mean")
-        x = g["forecast_mean"].to_numpy(float)
-        ax.plot(x, g["observed_freq"].to_numpy(float), marker=MARKERS[k % len(MARKERS)],
+        g = sub[(sub["model"].astype(str) == model).to_numpy()].sort_values("mean_forecast")
+        x = g["mean_forecast"].to_numpy(float)
+        ax.plot(x, g["observed_frequency"].to_numpy(float), marker=MARKERS[k % len(MARKERS)],
                 ls=LINESTYLES[k % len(LINESTYLES)], color=colours[k], label=str(model),
                 markeredgecolor=CATEGORICAL["ink"])
-        axc.bar(x + (k - (len(models) - 1) / 2) * width, g["count"].to_numpy(float), width=width,
+        axc.bar(x + (k - (len(models) - 1) / 2) * width, g["n"].to_numpy(float), width=width,
                 color=colours[k], edgecolor=CATEGORICAL["ink"], lw=0.4)
     ax.set_xlim(0, 1)
     ax.set_ylim(0, 1)
@@ -372,7 +373,7 @@ def reliability_diagram(reliability: pd.DataFrame, *, impact: str, target: str) 
     ax.set_title(f"{impact} \u2014 {target_label(impact, target)}: reliability")
     ax.legend(loc="upper left")
     axc.set_xlabel("forecast chance (0\u20131)")
-    counts = sub["count"].to_numpy(float)
+    counts = sub["n"].to_numpy(float)
     counts = counts[counts > 0]
     if counts.size and counts.max() > 100 * counts.min():
         axc.set_yscale("log")  # a few crowded low-chance bins would flatten the rest

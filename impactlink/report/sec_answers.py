@@ -6,6 +6,7 @@ from __future__ import annotations
 
 import pandas as pd
 
+from impactlink.report._select import summary_skill
 from impactlink.report.common import (
     FigureSink,
     absent,
@@ -78,7 +79,8 @@ def _glance(row: pd.Series, answer) -> str:
     """One line per impact for the top of the page: best candidate, skill, verdict, events."""
     label = candidate_label(row.get("best_index"), row.get("best_scale_weeks"),
                             row.get("best_lag_weeks"), short=True)
-    skill = fmt_interval(row.get("nested_skill"), row.get("nested_lo"), row.get("nested_hi"))
+    nested = summary_skill(row)
+    skill = fmt_interval(nested.nested, nested.nested_lo, nested.nested_hi)
     events = row.get("events")
     tail = f", {int(events)} events" if pd.notna(events) else ""
     short = answer.verdict.split(":")[0].rstrip(".")

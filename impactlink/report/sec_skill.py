@@ -30,11 +30,11 @@ from impactlink.report.figures_skill import (
 from impactlink.report.html import Markup, details, el, join, link, paragraph, table
 from impactlink.report.runfolder import RunFolder
 from impactlink.report.text import (
-    answer_card,
     candidate_label,
     fmt_interval,
     fmt_num,
     index_name,
+    persistence_sentence,
     score_label,
     target_label,
 )
@@ -122,7 +122,7 @@ def _persistence_part(run: RunFolder, figs: FigureSink) -> Markup:
                  f"persistence alone and index plus persistence, for {', '.join(targets)}.")))
         parts.append(table(pd.DataFrame(rows), caption=f"{impact}: with and without persistence"))
         if summary is not None:
-            sentences = [answer_card(r).persistence
+            sentences = [persistence_sentence(r)
                          for _, r in sel(summary, impact=impact).iterrows()]
             parts.append(el("ul", *[el("li", s) for s in sentences if s]))
     return join(parts)

@@ -112,7 +112,8 @@ def test_first_screen_has_cautions_then_an_answer_per_impact(built):
     for words in ("13-week time scale", "skill score", "statistically as good",
                   "events among 600"):
         assert words in summary
-    # The restriction card carries the persistence sentence of skill_summary.csv.
+    # The restriction card says whether the index adds warning beyond persistence
+    # (index_adds_skill and persistence_gain of skill_summary.csv).
     assert "the index adds warning beyond persistence" in summary
     # At a glance: one line per impact before the cards.
     for impact in ("crop_shortfall", "restrictions"):
@@ -155,7 +156,7 @@ def test_persistence_comparison_for_restriction_targets(built):
     skill = p.section("skill")
     assert "Warning beyond persistence" in skill
     for target in ("state", "onset", "escalation"):
-        assert f"For {target}, the index adds warning beyond persistence." in skill
+        assert f"For {target}, the index adds warning beyond persistence (knowing" in skill
     for label in ("index alone", "persistence alone", "index + persistence"):
         assert label in skill
 

@@ -118,7 +118,7 @@ def test_impact_curves_draw_each_level_with_axes_in_units():
 
 def test_reliability_diagram_plots_the_given_points():
     rel = pd.DataFrame(dict(impact="a", target="b", model="logistic", bin=[0, 1],
-                            forecast_mean=[0.2, 0.7], observed_freq=[0.25, 0.6], count=[10, 5]))
+                            mean_forecast=[0.2, 0.7], observed_frequency=[0.25, 0.6], n=[10, 5]))
     fig = figures_skill.reliability_diagram(rel, impact="a", target="b")
     ax, axc = fig.axes
     diag, pts = ax.get_lines()[:2]
