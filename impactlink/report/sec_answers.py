@@ -23,6 +23,7 @@ from impactlink.report.text import (
     fmt_interval,
     target_label,
 )
+from impactlink.report.words_sections import ANSWERS_NOTE
 
 
 def cautions_banner() -> Markup:
@@ -68,9 +69,7 @@ def answer_cards(run: RunFolder, figs: FigureSink | None = None) -> Markup:
         ))
     return section("summary", "What this run found",
                     el("ul", *glance, class_="glance", aria_label="at a glance"),
-                    paragraph("Each card below gives, for one impact, the index, time scale and "
-                              "lag that predicted it best out of sample, how much better than "
-                              "the baselines, and how sure we can be.", class_="note"),
+                    paragraph(ANSWERS_NOTE, class_="note"),
                     el("div", *cards, class_="cards"),
                     data_files(run, "skill_summary"))
 

@@ -21,6 +21,7 @@ from impactlink.report.runfolder import RunFolder
 from impactlink.report.text import (
     fmt_num,
 )
+from impactlink.report.words_sections import AUDIT_INTRO
 from impactlink.schema import COUNTY
 
 
@@ -29,10 +30,7 @@ def audit_section(run: RunFolder, figs: FigureSink) -> Markup:
     if audit is None or audit.empty:
         return section("audit", "Threshold audit", absent())
     parts = [paragraph(
-        "Does each stage of a threshold ladder occur as often as its definition implies? A "
-        "ratio of observed to expected share of weeks above 1 means the stage is reached more "
-        "often than intended. The local threshold is the index value that would give the "
-        "expected share in that county. Drift compares an early and a late period.")]
+        AUDIT_INTRO)]
     for ladder, sub in audit.groupby("ladder", sort=False):
         parts.append(el("h3", f"Ladder {ladder}"))
         rec = sel(sub, period=record_period(sub))

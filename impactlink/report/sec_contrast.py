@@ -19,6 +19,7 @@ from impactlink.report.text import (
     fmt_interval,
     fmt_num,
 )
+from impactlink.report.words_sections import CONTRAST_INTRO
 
 
 def contrast_section(run: RunFolder, figs: FigureSink) -> Markup:
@@ -29,10 +30,7 @@ def contrast_section(run: RunFolder, figs: FigureSink) -> Markup:
     if con is None and excess is None:
         return section("contrast", title, absent())
     parts = [paragraph(
-        "Why did some counties suffer more than others at similar index values? County "
-        "traits are added to the index model; an odds ratio above 1 means more impacts than "
-        "the index alone predicts where the trait is higher. These are associations between "
-        "county characteristics and recorded impacts, not effects.")]
+        CONTRAST_INTRO)]
     if con is not None and not con.empty:
         targets = (list(dict.fromkeys(con["target"].astype(str)))
                    if "target" in con.columns else [None])

@@ -19,6 +19,7 @@ from impactlink.report.text import (
     candidate_label,
     fmt_num,
 )
+from impactlink.report.words_sections import CURVES_INTRO
 
 
 def curves_section(run: RunFolder, figs: FigureSink) -> Markup:
@@ -26,9 +27,7 @@ def curves_section(run: RunFolder, figs: FigureSink) -> Markup:
     if curves is None or curves.empty:
         return section("curves", "Impact curves", absent())
     crossings = run.table("crossings")
-    parts = [paragraph("How the chance of each impact level rises as the best index gets "
-                       "drier. Shaded bands are intervals; crosses mark where a curve passes a "
-                       "chance of 10, 25 or 50 %.")]
+    parts = [paragraph(CURVES_INTRO)]
     for impact, target in impact_target_pairs(curves):
         sub = sel(curves, impact=impact, target=target)
         first = sub.iloc[0]

@@ -38,6 +38,12 @@ from impactlink.report.text import (
     score_label,
     target_label,
 )
+from impactlink.report.words_sections import (
+    MAPS_INTRO,
+    PERSISTENCE_INTRO,
+    RELIABILITY_INTRO,
+    SKILL_INTRO,
+)
 from impactlink.schema import COUNTY
 
 
@@ -46,10 +52,7 @@ def skill_section(run: RunFolder, figs: FigureSink) -> Markup:
     if skill is None or skill.empty:
         return section("skill", "Skill by index, time scale and lag", absent())
     parts = [paragraph(
-        "Out-of-sample skill of every candidate, scored on years left out of the fit. Darker "
-        "cells are better; hatched cells are no better than the climatological base rate; "
-        "a dot marks candidates statistically as good as the best, and the framed cell is the "
-        "best.")]
+        SKILL_INTRO)]
     for impact, target in impact_target_pairs(skill):
         score = score_for(run, impact, target)
         if score not in skill.columns:
@@ -91,9 +94,7 @@ def _persistence_part(run: RunFolder, figs: FigureSink) -> Markup:
     if not impacts:
         return Markup("")
     parts = [el("h3", "Warning beyond persistence"),
-             paragraph("Where an impact tends to continue once it has started, simply "
-                       "assuming it continues (persistence) is a strong baseline. These "
-                       "charts compare the index alone, persistence alone, and both together.")]
+             paragraph(PERSISTENCE_INTRO)]
     summary = run.table("skill_summary")
     for impact in impacts:
         targets = list(dict.fromkeys(sel(skill, impact=impact)["target"].astype(str)))
@@ -132,9 +133,7 @@ def reliability_section(run: RunFolder, figs: FigureSink) -> Markup:
     rel = run.table("reliability")
     if rel is None or rel.empty:
         return section("reliability", "Reliability", absent())
-    parts = [paragraph("Do stated chances come true as often as they say? Points on the dashed "
-                       "diagonal are reliable; points below it mean the model over-warns, above "
-                       "it under-warns. Bars show how many forecasts fell in each bin.")]
+    parts = [paragraph(RELIABILITY_INTRO)]
     if "impact" not in rel.columns:
         rel = rel.assign(impact=rel["target"].map(impact_of(run)).fillna(""))
     if "model" not in rel.columns:
@@ -157,8 +156,7 @@ def maps_section(run: RunFolder, figs: FigureSink) -> Markup:
     best = _best_per_county(run)
     if run.counties is None or best is None or len(best) == 0:
         return section("maps", "County maps", absent())
-    parts = [paragraph("Per county: which candidate predicted best, how well, and how many "
-                       "events that estimate rests on. Few events mean a fragile estimate.")]
+    parts = [paragraph(MAPS_INTRO)]
     keys = ["impact", "target"] if "target" in best.columns else ["impact"]
     for key, sub in best.groupby(keys, sort=False):
         key = key if isinstance(key, tuple) else (key,)

@@ -21,6 +21,8 @@ from impactlink.report.runfolder import RunFolder
 from impactlink.report.text import (
     fmt_num,
 )
+from impactlink.report.words_sections import TRIGGERS_INTRO
+from impactlink.report.words_triggers import trigger_comparison_sentence
 from impactlink.schema import COUNTY
 
 
@@ -31,11 +33,7 @@ def triggers_section(run: RunFolder, figs: FigureSink) -> Markup:
     if trig is None and timeline is None:
         return section("triggers", title, absent())
     parts = [paragraph(
-        "How a trigger plan (switch on after the index stays beyond its threshold for the "
-        "entry weeks, off after the exit weeks) would have performed over the record: one "
-        "threshold for every county (uniform) against thresholds tuned per county (local). "
-        "Hit rate and false-alarm ratio are shares of impact episodes and activations; the "
-        "Peirce skill score is hit rate minus false-alarm rate (0 = no skill).")]
+        TRIGGERS_INTRO)]
     if trig is not None and not trig.empty:
         keys = [k for k in ("impact", "target") if k in trig.columns]
         groups = trig.groupby(keys, sort=False) if keys else [((), trig)]
@@ -50,7 +48,7 @@ def triggers_section(run: RunFolder, figs: FigureSink) -> Markup:
                                 "events") if c in pooled.columns]
             if not pooled.empty:
                 parts.append(table(pooled[cols], caption="All counties together"))
-                parts.append(paragraph(_trigger_sentence(pooled)))
+                parts.append(paragraph(trigger_comparison_sentence(pooled)))
             per = sub[(sub[COUNTY] != "all").fillna(True).to_numpy(bool)] if COUNTY in sub else sub
             if run.counties is not None and {"scope", "threshold", COUNTY} <= set(per.columns):
                 uni = sel(per, scope="uniform")
@@ -89,18 +87,3 @@ def triggers_section(run: RunFolder, figs: FigureSink) -> Markup:
                      "recorded impact.")))
     parts.append(data_files(run, "triggers", "trigger_timeline"))
     return section("triggers", title, *parts)
-
-
-def _trigger_sentence(pooled: pd.DataFrame) -> str:
-    if "scope" not in pooled.columns or "peirce_skill" not in pooled.columns:
-        return ""
-    by = {str(r["scope"]): r for _, r in pooled.iterrows()}
-    if not {"uniform", "local"} <= set(by):
-        return ""
-    u, loc = by["uniform"], by["local"]
-    text = (f"Replayed on the whole record, local thresholds score {fmt_num(loc['peirce_skill'])} "
-            f"against {fmt_num(u['peirce_skill'])} for one uniform threshold")
-    if "cv_peirce_skill" in pooled.columns and pd.notna(loc.get("cv_peirce_skill")):
-        text += (f"; on years held out of the tuning, {fmt_num(loc['cv_peirce_skill'])} against "
-                 f"{fmt_num(u.get('cv_peirce_skill'))}")
-    return text + ". Tuned thresholds always look better on the years they were tuned on."
