@@ -14,9 +14,7 @@ from impactlink.errors import ReportError, ReportWarning
 from impactlink.report.fig_style import figure_png
 from impactlink.report.html import Markup, el, image, join, link, paragraph
 from impactlink.report.runfolder import RunFolder
-from impactlink.report.text import (
-    target_label,
-)
+from impactlink.report.text import target_label
 from impactlink.schema import COUNTY
 
 NOT_COMPUTED = "Not computed in this run."

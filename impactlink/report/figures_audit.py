@@ -11,11 +11,7 @@ import numpy as np
 import pandas as pd
 from matplotlib.figure import Figure
 
-from impactlink.report.fig_style import (
-    need_columns,
-    rows_where,
-    styled,
-)
+from impactlink.report.fig_style import need_columns, rows_where, styled
 from impactlink.report.palette import CATEGORICAL, NEUTRAL, category_colours
 
 

@@ -10,12 +10,7 @@ from __future__ import annotations
 import pandas as pd
 from matplotlib.figure import Figure
 
-from impactlink.report.fig_style import (
-    LINESTYLES,
-    need_columns,
-    rows_where,
-    styled,
-)
+from impactlink.report.fig_style import LINESTYLES, need_columns, rows_where, styled
 from impactlink.report.palette import NEUTRAL, category_colours
 from impactlink.report.text import index_name, target_label
 

@@ -12,11 +12,7 @@ import pandas as pd
 from matplotlib.figure import Figure
 
 from impactlink.errors import ReportError
-from impactlink.report.fig_style import (
-    need_columns,
-    row_chart,
-    styled,
-)
+from impactlink.report.fig_style import need_columns, row_chart, styled
 from impactlink.report.palette import CATEGORICAL
 
 

@@ -7,13 +7,7 @@ from __future__ import annotations
 import pandas as pd
 
 from impactlink.report._select import summary_skill
-from impactlink.report.common import (
-    FigureSink,
-    absent,
-    data_files,
-    pair_title,
-    section,
-)
+from impactlink.report.common import FigureSink, absent, data_files, pair_title, section
 from impactlink.report.html import Markup, el, link, paragraph
 from impactlink.report.runfolder import RunFolder
 from impactlink.report.text import (

@@ -7,20 +7,11 @@ import numpy as np
 import pandas as pd
 
 from impactlink.report import maps as M
-from impactlink.report.common import (
-    FigureSink,
-    absent,
-    data_files,
-    section,
-    sel,
-    with_names,
-)
+from impactlink.report.common import FigureSink, absent, data_files, section, sel, with_names
 from impactlink.report.figures_audit import audit_shares, record_period
 from impactlink.report.html import Markup, details, el, paragraph, table
 from impactlink.report.runfolder import RunFolder
-from impactlink.report.text import (
-    fmt_num,
-)
+from impactlink.report.text import fmt_num
 from impactlink.report.words_sections import AUDIT_INTRO
 from impactlink.schema import COUNTY
 

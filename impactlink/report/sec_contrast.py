@@ -4,21 +4,11 @@
 from __future__ import annotations
 
 from impactlink.report import maps as M
-from impactlink.report.common import (
-    FigureSink,
-    absent,
-    data_files,
-    section,
-    sel,
-    with_names,
-)
+from impactlink.report.common import FigureSink, absent, data_files, section, sel, with_names
 from impactlink.report.figures_contrast import odds_ratio_chart
 from impactlink.report.html import Markup, details, el, paragraph, table
 from impactlink.report.runfolder import RunFolder
-from impactlink.report.text import (
-    fmt_interval,
-    fmt_num,
-)
+from impactlink.report.text import fmt_interval, fmt_num
 from impactlink.report.words_sections import CONTRAST_INTRO
 
 

@@ -15,10 +15,7 @@ from impactlink.report.common import (
 from impactlink.report.figures_curves import impact_curves
 from impactlink.report.html import Markup, el, paragraph, table
 from impactlink.report.runfolder import RunFolder
-from impactlink.report.text import (
-    candidate_label,
-    fmt_num,
-)
+from impactlink.report.text import candidate_label, fmt_num
 from impactlink.report.words_sections import CURVES_INTRO
 
 

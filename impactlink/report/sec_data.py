@@ -8,13 +8,7 @@ from pathlib import Path
 
 import pandas as pd
 
-from impactlink.report.common import (
-    FigureSink,
-    absent,
-    county_names,
-    data_files,
-    section,
-)
+from impactlink.report.common import FigureSink, absent, county_names, data_files, section
 from impactlink.report.figures_data import record_timeline
 from impactlink.report.html import Markup, details, el, paragraph, table
 from impactlink.report.runfolder import RunFolder

@@ -4,15 +4,10 @@
 
 from __future__ import annotations
 
-from impactlink.report.common import (
-    FigureSink,
-    section,
-)
+from impactlink.report.common import FigureSink, section
 from impactlink.report.html import Markup, el, paragraph
 from impactlink.report.runfolder import RunFolder
-from impactlink.report.text import (
-    CAUTIONS,
-)
+from impactlink.report.text import CAUTIONS
 from impactlink.report.words_methods import METHODS, REFERENCES
 
 

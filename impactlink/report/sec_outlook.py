@@ -17,9 +17,7 @@ from impactlink.report.common import (
 )
 from impactlink.report.html import Markup, details, el, paragraph, table
 from impactlink.report.runfolder import RunFolder
-from impactlink.report.text import (
-    fmt_num,
-)
+from impactlink.report.text import fmt_num
 from impactlink.schema import COUNTY
 
 

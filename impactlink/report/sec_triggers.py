@@ -18,9 +18,7 @@ from impactlink.report.common import (
 from impactlink.report.figures_triggers import trigger_timeline
 from impactlink.report.html import Markup, details, el, paragraph, table
 from impactlink.report.runfolder import RunFolder
-from impactlink.report.text import (
-    fmt_num,
-)
+from impactlink.report.text import fmt_num
 from impactlink.report.words_sections import TRIGGERS_INTRO
 from impactlink.report.words_triggers import trigger_comparison_sentence
 from impactlink.schema import COUNTY
