@@ -14,12 +14,39 @@ from pathlib import Path
 
 import pandas as pd
 
-from impactlink.report import sections as S
+from impactlink.report.common import FigureSink, not_drawn
+from impactlink.report.figures_audit import record_period
 from impactlink.report.html import Markup, page
 from impactlink.report.runfolder import ReportWarning, RunFolder, read_run_folder
+from impactlink.report.sec_answers import answer_cards, cautions_banner, contents
+from impactlink.report.sec_audit import audit_section
+from impactlink.report.sec_contrast import contrast_section
+from impactlink.report.sec_curves import curves_section
+from impactlink.report.sec_data import data_section, provenance_section
+from impactlink.report.sec_methods import cautions_section, methods_section
+from impactlink.report.sec_outlook import outlook_section
+from impactlink.report.sec_skill import maps_section, reliability_section, skill_section
+from impactlink.report.sec_triggers import triggers_section
 from impactlink.schema import COUNTY
 
-__all__ = ["build_report", "render_html"]
+__all__ = ["build_report", "render_html", "SECTIONS"]
+
+#: Sections after the first screen, in page order: (id, title, builder). Each builder is
+#: ``(run, figs) -> Markup`` and lives in the ``sec_*`` module of its stage.
+SECTIONS = (
+    ("data", "Data and coverage", data_section),
+    ("curves", "Impact curves", curves_section),
+    ("skill", "Skill by index, time scale and lag", skill_section),
+    ("reliability", "Reliability", reliability_section),
+    ("maps", "County maps", maps_section),
+    ("audit", "Threshold audit", audit_section),
+    ("triggers", "Trigger plan replay and tuning", triggers_section),
+    ("contrast", "County contrasts", contrast_section),
+    ("outlook", "Outlook", outlook_section),
+    ("methods", "Methods", methods_section),
+    ("cautions", "Cautions", cautions_section),
+    ("provenance", "Provenance", provenance_section),
+)
 
 #: Tables that also get a Parquet copy beside their CSV.
 PARQUET_TABLES = ("skill", "skill_summary", "skill_local", "reliability", "curves", "crossings", "audit",
@@ -89,7 +116,7 @@ def render_html(run: RunFolder, *, progress: Callable[[str], None] | None = None
     (str, FigureSink)
     """
     say = progress or (lambda _msg: None)
-    sink = S.FigureSink()
+    sink = FigureSink()
     man = run.manifest or {}
     project = man.get("project") or {}
     name = project.get("name") if isinstance(project, dict) else None
@@ -99,10 +126,10 @@ def render_html(run: RunFolder, *, progress: Callable[[str], None] | None = None
         f"impactlink {man['impactlink_version']}" if man.get("impactlink_version") else None,
         f"seed {man['seed']}" if man.get("seed") is not None else None,
     ) if p) or "run details not recorded"
-    body: list[Markup] = [S.cautions_banner(), S.answer_cards(run, sink)]
-    body.append(S.contents([("summary", "What this run found")]
-                           + [(sid, title) for sid, title, _ in S.SECTIONS]))
-    for sid, stitle, builder in S.SECTIONS:
+    body: list[Markup] = [cautions_banner(), answer_cards(run, sink)]
+    body.append(contents([("summary", "What this run found")]
+                           + [(sid, title) for sid, title, _ in SECTIONS]))
+    for sid, stitle, builder in SECTIONS:
         say(f"report: {stitle}")
         try:
             body.append(builder(run, sink))
@@ -111,7 +138,7 @@ def render_html(run: RunFolder, *, progress: Callable[[str], None] | None = None
         except Exception as exc:  # noqa: BLE001
             warnings.warn(f"report section {sid!r} failed: {type(exc).__name__}: {exc}",
                           ReportWarning, stacklevel=2)
-            body.append(S.not_drawn(sid, stitle, exc))
+            body.append(not_drawn(sid, stitle, exc))
     return page(title=title, subtitle=subtitle, body=body), sink
 
 
@@ -147,8 +174,6 @@ def _write_layers(run: RunFolder) -> None:
         if frame is None or frame.empty or layer in run.layers or COUNTY not in frame.columns:
             continue
         if layer == "audit" and "period" in frame.columns:
-            from impactlink.report.figures import record_period
-
             frame = frame[(frame["period"] == record_period(frame)).fillna(False).to_numpy(bool)]
         shapes = run.counties[[COUNTY, "geometry"]]
         joined = shapes.merge(pd.DataFrame(frame), on=COUNTY, how="inner")

@@ -72,7 +72,7 @@ def el(tag: str, *children, **attrs) -> Markup:
 
     Raises
     ------
-    ValueError
+    ReportError
         If ``tag`` is not a plain lower-case tag name.
     """
     if not tag.isalnum() or not tag.islower():

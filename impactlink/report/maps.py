@@ -11,7 +11,8 @@ import numpy as np
 import pandas as pd
 from matplotlib.figure import Figure
 
-from impactlink.report.figures import ReportError, _styled
+from impactlink.errors import ReportError
+from impactlink.report.fig_style import styled
 from impactlink.report.palette import NEUTRAL, category_colours, sequential_cmap
 from impactlink.schema import COUNTY
 
@@ -84,7 +85,7 @@ def county_map(counties, values: pd.DataFrame, column: str, *, title: str, label
     return county_panels(counties, [panel])
 
 
-@_styled
+@styled
 def county_panels(counties, panels: list[MapPanel], *, suptitle: str | None = None,
                   max_columns: int = 3) -> Figure:
     """Side-by-side county maps, one per :class:`MapPanel`.

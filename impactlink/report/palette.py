@@ -97,7 +97,7 @@ def category_colours(n: int) -> list[str]:
 
     Raises
     ------
-    ValueError
+    ReportError
         If ``n`` is negative.
     """
     if n < 0:

@@ -15,7 +15,6 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
-import numpy as np
 import pandas as pd
 
 from impactlink.errors import ReportError, ReportWarning
@@ -23,15 +22,16 @@ from impactlink.schema import COUNTY
 
 __all__ = [
     "ReportWarning", "ReportError", "RunFolder", "read_run_folder", "TABLE_COLUMNS",
-    "normalise_summary",
 ]
 
 
-#: Columns the report needs from each CSV table (other columns are ignored).
+#: Columns the report needs from each CSV table, named as the producing stage writes them
+#: (other columns are ignored; there is no renaming).
 TABLE_COLUMNS: dict[str, tuple[str, ...]] = {
     "skill": ("impact", "target", "index", "scale_weeks", "lag_weeks", "model"),
-    "skill_summary": ("impact", "target", "best_index", "best_scale_weeks", "best_lag_weeks"),
-    "reliability": ("target", "forecast_mean", "observed_freq", "count"),
+    "skill_summary": ("impact", "target", "best_index", "best_scale_weeks", "best_lag_weeks",
+                      "ranking_score"),
+    "reliability": ("target", "mean_forecast", "observed_frequency", "n"),
     "skill_local": ("target", "unit", "index", "scale_weeks", "lag_weeks"),
     "curves": ("impact", "target", "index", "scale_weeks", "x", "prob"),
     "crossings": ("impact", "target", "level_k", "prob_level", "x_cross"),
@@ -45,13 +45,6 @@ TABLE_COLUMNS: dict[str, tuple[str, ...]] = {
     "reconciliation": ("impact", "records", "used", "rejected"),
     "link_summary": ("target", "events"),
     "rejected_rows": ("table", "reason"),
-}
-
-#: Other spellings of contract columns, per table (e.g. the skill stage's reliability
-#: table names its columns after the score module).
-_ALIASES: dict[str, dict[str, str]] = {
-    "reliability": {"mean_forecast": "forecast_mean", "observed_frequency": "observed_freq",
-                    "n": "count"},
 }
 
 #: Columns read as strings whatever they look like (ids keep their leading zeros).
@@ -156,8 +149,6 @@ def _read_table(folder: Path, name: str, needed: tuple[str, ...], problems: list
     except Exception as exc:  # noqa: BLE001 - any reader failure means "unusable", reported
         _problem(problems, f"{name}: could not be read ({type(exc).__name__}: {exc})")
         return None
-    frame = frame.rename(columns={k: v for k, v in _ALIASES.get(name, {}).items()
-                                  if k in frame.columns and v not in frame.columns})
     missing = [c for c in needed if c not in frame.columns]
     if missing:
         _problem(
@@ -169,33 +160,7 @@ def _read_table(folder: Path, name: str, needed: tuple[str, ...], problems: list
     for col in _STRING_COLUMNS:
         if col in frame.columns:
             frame[col] = frame[col].astype("string")
-    if name == "skill_summary":
-        frame = normalise_summary(frame)
     return frame
-
-
-def normalise_summary(summary: pd.DataFrame) -> pd.DataFrame:
-    """Give a skill summary the generic score columns the report reads.
-
-    The skill stage may name its ranking score (``ranking_score`` = "rpss") and write
-    ``naive_rpss``, ``nested_rpss``, ``nested_rpss_lo`` ...; the report reads ``score_name``,
-    ``naive_skill``, ``nested_skill``, ``nested_lo``, ``nested_hi``. Existing generic columns
-    are kept; missing ones are filled from the score-specific ones.
-    """
-    out = summary.copy()
-    if "score_name" not in out.columns:
-        out["score_name"] = out["ranking_score"] if "ranking_score" in out.columns else pd.NA
-    score = out["score_name"].astype("string")
-    for generic, suffix in (("naive_skill", "naive_{}"), ("nested_skill", "nested_{}"),
-                            ("nested_lo", "nested_{}_lo"), ("nested_hi", "nested_{}_hi")):
-        values = out[generic] if generic in out.columns else pd.Series(np.nan, index=out.index)
-        for name in score.dropna().unique():
-            col = suffix.format(name)
-            if col in out.columns:
-                rows = (score == name).fillna(False).to_numpy(bool) & values.isna().to_numpy()
-                values = values.where(~rows, out[col])
-        out[generic] = pd.to_numeric(values, errors="coerce")
-    return out
 
 
 def _read_layers(file: Path, problems: list[str]):

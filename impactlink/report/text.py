@@ -12,7 +12,7 @@ from dataclasses import dataclass
 
 import pandas as pd
 
-from impactlink.report._select import single_candidates
+from impactlink.report._select import single_candidates, summary_skill
 
 __all__ = [
     "index_name",
@@ -26,6 +26,7 @@ __all__ = [
     "CAUTIONS",
     "CAUTIONS_SHORT",
     "target_label",
+    "persistence_sentence",
 ]
 
 _INDEX_NAMES = {
@@ -219,7 +220,8 @@ def answer_card(summary: pd.Series, skill: pd.DataFrame | None = None) -> Answer
     Answer
     """
     g = summary.get
-    score = str(g("score_name", "bss") or "bss")
+    sk = summary_skill(summary)
+    score = sk.score
     which = candidate_label(g("best_index"), g("best_scale_weeks"), g("best_lag_weeks"))
     if _present(g("best_model")):
         which += f" ({g('best_model')} model)"
@@ -227,9 +229,9 @@ def answer_card(summary: pd.Series, skill: pd.DataFrame | None = None) -> Answer
     # (Epstein 1969 with two categories); use the name readers know.
     shown = "bss" if score == "rpss" and str(g("kind", "")) == "binary" else score
     how_good = (
-        f"{score_label(shown).capitalize()} {fmt_interval(g('nested_skill'), g('nested_lo'), g('nested_hi'))} "
+        f"{score_label(shown).capitalize()} {fmt_interval(sk.nested, sk.nested_lo, sk.nested_hi)} "
         f"after allowing for the search over {_int(g('n_candidates'))} candidates "
-        f"(best candidate's own score {fmt_num(g('naive_skill'))}); 0 = climatological base "
+        f"(best candidate's own score {fmt_num(sk.naive)}); 0 = climatological base "
         "rate, 1 = perfect."
     )
     baselines, flags, ties = "", {}, []
@@ -277,17 +279,7 @@ def answer_card(summary: pd.Series, skill: pd.DataFrame | None = None) -> Answer
                         if _present(picks) and int(picks) > 1 else "."))
     years = f" in {int(g('n_years'))} years" if _present(g("n_years")) else ""
     rests_on = (f"Rests on {_int(g('events'))} events among {_int(g('n'))} scored cases{years}.")
-    persistence = ""
-    gain = fmt_interval(g("persistence_gain"), g("persistence_gain_lo"), g("persistence_gain_hi"))
-    if _present(g("persistence_sentence")):
-        persistence = str(g("persistence_sentence"))
-    elif _present(g("index_adds_skill")) and _present(g("persistence_gain")):
-        word = "adds" if _truthy(g("index_adds_skill")) else "does not clearly add"
-        persistence = (f"For {target_label(g('impact'), g('target'))}, the index {word} "
-                       "warning beyond persistence "
-                       f"(knowing the current impact level): skill gain {gain}.")
-    elif _present(g("persistence_gain")):
-        persistence = f"Gain over persistence: {gain}."
+    persistence = persistence_sentence(summary)
     return Answer(
         impact=str(g("impact")),
         target=str(g("target")),
@@ -296,11 +288,29 @@ def answer_card(summary: pd.Series, skill: pd.DataFrame | None = None) -> Answer
         baselines=baselines,
         how_sure=how_sure,
         rests_on=rests_on,
-        verdict=verdict(g("nested_skill"), g("nested_lo"),
+        verdict=verdict(sk.nested, sk.nested_lo,
                         beats_seasonal=flags.get("beats_seasonal"),
                         beats_persistence=flags.get("beats_persistence")),
         persistence=persistence,
     )
+
+
+def persistence_sentence(summary: pd.Series) -> str:
+    """Whether the index adds warning beyond persistence, from the numbers of one
+    ``skill_summary.csv`` row (``index_adds_skill``, ``persistence_gain`` and its interval).
+
+    The one place the report turns the skill stage's persistence comparison into words
+    (the answer cards and the skill section both call it); "" when the run lacks it.
+    """
+    g = summary.get
+    gain = fmt_interval(g("persistence_gain"), g("persistence_gain_lo"), g("persistence_gain_hi"))
+    if _present(g("index_adds_skill")) and _present(g("persistence_gain")):
+        word = "adds" if _truthy(g("index_adds_skill")) else "does not clearly add"
+        return (f"For {target_label(g('impact'), g('target'))}, the index {word} warning "
+                f"beyond persistence (knowing the current impact level): skill gain {gain}.")
+    if _present(g("persistence_gain")):
+        return f"Gain over persistence: {gain}."
+    return ""
 
 
 def _baseline_text(rows: pd.DataFrame, score: str, best_lag) -> str:

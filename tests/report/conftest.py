@@ -108,14 +108,16 @@ def make_fake_run(folder: Path, *, county_names=None, issuer="Tallow Creek Water
         summary.append(dict(
             impact=imp, target=tgt, role=role, kind=kind, best_index=b["index"],
             best_scale_weeks=b["scale_weeks"], best_lag_weeks=b["lag_weeks"], best_model=b["model"],
-            score_name=score, naive_skill=b["score"], nested_skill=b["score"] - 0.05,
-            nested_lo=b["score"] - 0.13, nested_hi=b["score"] + 0.03, n_candidates=len(sub),
+            ranking_score=score, **{f"naive_{score}": b["score"],
+                                    f"nested_{score}": b["score"] - 0.05,
+                                    f"nested_{score}_lo": b["score"] - 0.13,
+                                    f"nested_{score}_hi": b["score"] + 0.03},
+            n_candidates=len(sub),
             n_indistinguishable=int(sub["indistinguishable_from_best"].sum()), events=40, n=600,
             persistence_gain=0.06 if imp == "restrictions" else np.nan,
             persistence_gain_lo=0.01 if imp == "restrictions" else np.nan,
             persistence_gain_hi=0.11 if imp == "restrictions" else np.nan,
-            persistence_sentence=(f"For {tgt}, the index adds warning beyond persistence."
-                                  if imp == "restrictions" else np.nan),
+            index_adds_skill=True if imp == "restrictions" else pd.NA,
         ))
     write("skill_summary.csv", pd.DataFrame(summary))
 
@@ -124,9 +126,9 @@ def make_fake_run(folder: Path, *, county_names=None, issuer="Tallow Creek Water
         for model in ("logistic", "climatology"):
             for b in range(10):
                 f = (b + 0.5) / 10
-                rel.append(dict(impact=imp, target=tgt, model=model, bin=b, forecast_mean=f,
-                                observed_freq=float(np.clip(f + rng.normal(0, 0.05), 0, 1)),
-                                count=int(rng.integers(5, 80))))
+                rel.append(dict(impact=imp, target=tgt, model=model, bin=b, mean_forecast=f,
+                                observed_frequency=float(np.clip(f + rng.normal(0, 0.05), 0, 1)),
+                                n=int(rng.integers(5, 80))))
     write("reliability.csv", pd.DataFrame(rel))
 
     x = np.linspace(-3, 3, 41)

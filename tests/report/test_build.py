@@ -11,8 +11,16 @@ import pyogrio
 import pytest
 
 from impactlink.report import ReportError, ReportWarning, build_report, read_run_folder
-from impactlink.report import sections as S
+from impactlink.report import build as build_module
+from impactlink.report.build import SECTIONS
+from impactlink.report.common import FigureSink
+from impactlink.report.sec_contrast import contrast_section
+from impactlink.report.sec_data import data_section
+from impactlink.report.sec_outlook import outlook_section
+from impactlink.report.sec_skill import maps_section, reliability_section, skill_section
+from impactlink.report.sec_triggers import triggers_section
 from impactlink.report.text import CAUTIONS
+from impactlink.report.words_methods import METHODS, REFERENCES
 
 NOT_COMPUTED = "Not computed in this run."
 
@@ -104,7 +112,8 @@ def test_first_screen_has_cautions_then_an_answer_per_impact(built):
     for words in ("13-week time scale", "skill score", "statistically as good",
                   "events among 600"):
         assert words in summary
-    # The restriction card carries the persistence sentence of skill_summary.csv.
+    # The restriction card says whether the index adds warning beyond persistence
+    # (index_adds_skill and persistence_gain of skill_summary.csv).
     assert "the index adds warning beyond persistence" in summary
     # At a glance: one line per impact before the cards.
     for impact in ("crop_shortfall", "restrictions"):
@@ -147,7 +156,7 @@ def test_persistence_comparison_for_restriction_targets(built):
     skill = p.section("skill")
     assert "Warning beyond persistence" in skill
     for target in ("state", "onset", "escalation"):
-        assert f"For {target}, the index adds warning beyond persistence." in skill
+        assert f"For {target}, the index adds warning beyond persistence (knowing" in skill
     for label in ("index alone", "persistence alone", "index + persistence"):
         assert label in skill
 
@@ -194,8 +203,8 @@ def test_every_section_survives_when_all_tables_are_missing(tmp_path, make_run):
 ])
 def test_one_missing_table_costs_only_its_own_section(tmp_path, make_run, missing, sid):
     run = read_run_folder(make_run(tmp_path / "run", skip=[missing]))
-    builders = {s: b for s, _, b in S.SECTIONS}
-    sink = S.FigureSink()
+    builders = {s: b for s, _, b in SECTIONS}
+    sink = FigureSink()
     assert NOT_COMPUTED in builders[sid](run, sink)
     # A section that does not need the missing file still draws.
     other = "reliability" if sid != "reliability" else "curves"
@@ -228,10 +237,10 @@ def test_trigger_and_contrast_sections_each_work_alone(tmp_path, make_run):
     folder = make_run(tmp_path / "run", skip=["trigger_timeline.csv", "county_excess.csv",
                                              "contrast.csv"])
     run = read_run_folder(folder)
-    sink = S.FigureSink()
-    _, p = _parse_markup(S.triggers_section(run, sink))
+    sink = FigureSink()
+    _, p = _parse_markup(triggers_section(run, sink))
     assert "Replay timelines" not in p.section("triggers")
-    assert NOT_COMPUTED in S.contrast_section(run, sink)
+    assert NOT_COMPUTED in contrast_section(run, sink)
     assert any(name.startswith("trigger_map") for name in sink.files)
 
 
@@ -240,9 +249,9 @@ def test_damaged_table_warns_and_is_named(tmp_path, make_run):
     pd.DataFrame({"impact": ["x"], "unexpected": [1]}).to_csv(folder / "skill.csv", index=False)
     with pytest.warns(ReportWarning, match=r"skill: lacks column\(s\)"):
         run = read_run_folder(folder)
-    _, p = _parse_markup(S.data_section(run, S.FigureSink()))
+    _, p = _parse_markup(data_section(run, FigureSink()))
     assert "skill: lacks column(s)" in p.section("data")
-    assert NOT_COMPUTED in S.skill_section(run, S.FigureSink())
+    assert NOT_COMPUTED in skill_section(run, FigureSink())
 
 
 def test_a_failing_section_is_replaced_by_a_note(tmp_path, make_run, monkeypatch):
@@ -251,7 +260,7 @@ def test_a_failing_section_is_replaced_by_a_note(tmp_path, make_run, monkeypatch
     def broken(run, figs):
         raise KeyError("surprise")
 
-    monkeypatch.setattr(S, "SECTIONS", (("methods", "Methods", broken),))
+    monkeypatch.setattr(build_module, "SECTIONS", (("methods", "Methods", broken),))
     with pytest.warns(ReportWarning, match="report section 'methods' failed"):
         html = build_report(folder)
     assert "could not be built from this run" in html.read_text(encoding="utf-8")
@@ -272,8 +281,8 @@ def test_skill_stage_model_names_are_understood(tmp_path, make_run):
     extra = skill[skill["model"] == "persistence"].assign(lag_weeks=8, bss=0.01)
     pd.concat([skill, extra]).to_csv(folder / "skill.csv", index=False)
     run = read_run_folder(folder)
-    sink = S.FigureSink()
-    _, p = _parse_markup(S.skill_section(run, sink))
+    sink = FigureSink()
+    _, p = _parse_markup(skill_section(run, sink))
     text = p.section("skill")
     assert "Warning beyond persistence" in text and "index + persistence" in text
     assert "persistence_restrictions.png" in sink.files
@@ -296,8 +305,8 @@ def test_skill_stage_reliability_and_local_tables_are_drawn(tmp_path, make_run):
                       scale_weeks=13, lag_weeks=4, rpss=[0.2, 0.1, 0.15], events=[5, 9, 14],
                       n=100)).to_csv(folder / "skill_local.csv", index=False)
     run = read_run_folder(folder)
-    sink = S.FigureSink()
-    _, p = _parse_markup(S.reliability_section(run, sink) + S.maps_section(run, sink))
+    sink = FigureSink()
+    _, p = _parse_markup(reliability_section(run, sink) + maps_section(run, sink))
     assert "reliability_restrictions_state.png" in sink.files
     maps = p.section("maps")
     assert "SPEI 13w lag 4w" in maps and "Brackwater" in maps
@@ -308,10 +317,10 @@ def test_skill_stage_reliability_and_local_tables_are_drawn(tmp_path, make_run):
 def test_every_reference_is_cited_and_every_citation_listed():
     import re as _re
 
-    text = " ".join(body for _, body in S._METHODS)
+    text = " ".join(body for _, body in METHODS)
     cited = set(_re.findall(r"([A-Z][\w\u00C0-\u017F-]+)(?: et al\.| & [A-Z][\w-]+)? \(?(\d{4})", text))
     listed = set()
-    for ref in S.REFERENCES:
+    for ref in REFERENCES:
         author = ref.split(",")[0].split(" (")[0]
         year = _re.search(r"\((\d{4})\)", ref).group(1)
         listed.add((author.split()[-1] if author.startswith("World") else author, year))
@@ -328,7 +337,7 @@ def test_link_summary_gives_record_lengths_and_events_per_target(tmp_path, make_
                       first_year=[1994], last_year=[2024], units=[6])).to_csv(
         folder / "link_summary.csv", index=False)
     run = read_run_folder(folder)
-    _, p = _parse_markup(S.data_section(run, S.FigureSink()))
+    _, p = _parse_markup(data_section(run, FigureSink()))
     data = p.section("data")
     assert "restrictions:onset" in data and "0:4923;1:77" in data and "1994" in data
     assert "restrictions:state" not in data.split("Impact targets")[1].split("Rejected")[0]
@@ -342,8 +351,8 @@ def test_outlook_maps_the_first_level_and_tabulates_all(tmp_path, make_run):
             for c in ids for h in (0, 4) for k, lab, p in ((1, "minor", 0.6), (2, "major", 0.2))]
     pd.DataFrame(rows).to_csv(folder / "outlook.csv", index=False)
     run = read_run_folder(folder)
-    sink = S.FigureSink()
-    _, p = _parse_markup(S.outlook_section(run, sink))
+    sink = FigureSink()
+    _, p = _parse_markup(outlook_section(run, sink))
     assert list(sink.files) == ["outlook_crop_crop_class.png"]
     assert "at least 'minor'" in sink.alts["outlook_crop_crop_class.png"]
     text = p.section("outlook")

@@ -5,12 +5,14 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 
+from impactlink.report._select import SummarySkill, summary_skill
 from impactlink.report.text import (
     answer_card,
     candidate_label,
     fmt_interval,
     fmt_num,
     index_name,
+    persistence_sentence,
     score_label,
     target_label,
     verdict,
@@ -47,9 +49,9 @@ def test_verdict_branches():
 def _rows():
     summary = pd.Series(dict(
         impact="restrictions", target="onset", best_index="spi", best_scale_weeks=13,
-        best_lag_weeks=4, best_model="logistic", score_name="bss", naive_skill=0.31,
-        nested_skill=0.22, nested_lo=0.08, nested_hi=0.35, n_candidates=42,
-        n_indistinguishable=3, events=27, n=900, persistence_sentence=np.nan,
+        best_lag_weeks=4, best_model="logistic", ranking_score="bss", naive_bss=0.31,
+        nested_bss=0.22, nested_bss_lo=0.08, nested_bss_hi=0.35, n_candidates=42,
+        n_indistinguishable=3, events=27, n=900,
         persistence_gain=0.04, persistence_gain_lo=-0.01, persistence_gain_hi=0.09))
     skill = pd.DataFrame([
         ("spi", 13, 4, "logistic", 0.31, True, True, True, False),
@@ -94,22 +96,22 @@ def test_answer_card_without_skill_table_still_answers():
     assert a2.rests_on == "Rests on an unknown number of events among an unknown number of scored cases."
 
 
-def test_summary_with_stage_specific_score_columns_is_normalised():
-    from impactlink.report.runfolder import normalise_summary
-
-    raw = pd.DataFrame(dict(impact=["r"], target=["r:onset"], ranking_score=["rpss"],
-                            naive_rpss=[0.3], nested_rpss=[0.2], nested_rpss_lo=[0.1],
-                            nested_rpss_hi=[0.28], index_adds_skill=[False],
-                            persistence_gain=[0.01], persistence_gain_lo=[-0.02],
-                            persistence_gain_hi=[0.04]))
-    out = normalise_summary(raw)
-    assert out.loc[0, ["score_name", "naive_skill", "nested_skill", "nested_lo", "nested_hi"]
-                   ].tolist() == ["rpss", 0.3, 0.2, 0.1, 0.28]
-    a = answer_card(out.iloc[0])
+def test_summary_is_read_under_the_skill_stage_column_names():
+    # skill_summary.csv as impactlink/skill/rank.py writes it: the score is named in
+    # ranking_score and its columns carry that name.
+    raw = pd.Series(dict(impact="r", target="r:onset", ranking_score="rpss", naive_rpss=0.3,
+                         nested_rpss=0.2, nested_rpss_lo=0.1, nested_rpss_hi=0.28,
+                         index_adds_skill=False, persistence_gain=0.01,
+                         persistence_gain_lo=-0.02, persistence_gain_hi=0.04))
+    assert summary_skill(raw) == SummarySkill("rpss", 0.3, 0.2, 0.1, 0.28)
+    a = answer_card(raw)
     assert a.how_good.startswith("Ranked probability skill score 0.20 (0.10 to 0.28)")
-    assert a.persistence == ("For onset, the index does not clearly add warning beyond "
-                             "persistence (knowing the current impact level): skill gain "
-                             "0.01 (-0.02 to 0.04).")
+    assert "own score 0.30" in a.how_good
+    assert a.persistence == persistence_sentence(raw) == (
+        "For onset, the index does not clearly add warning beyond persistence (knowing the "
+        "current impact level): skill gain 0.01 (-0.02 to 0.04).")
+    missing = summary_skill(raw.drop(labels=["ranking_score", "nested_rpss"]))
+    assert missing.score == "bss" and np.isnan(missing.nested)
 
 
 def test_baselines_quote_persistence_at_the_best_lag():
@@ -145,7 +147,8 @@ def test_ties_are_single_candidates_listed_once_and_flags_come_from_the_index_mo
 
 def test_binary_target_scored_by_rpss_is_called_a_brier_skill_score():
     summary, _ = _rows()
-    summary["score_name"], summary["kind"] = "rpss", "binary"
+    summary = summary.rename(lambda k: k.replace("_bss", "_rpss"))
+    summary["ranking_score"], summary["kind"] = "rpss", "binary"
     assert answer_card(summary).how_good.startswith("Brier skill score 0.22")
     summary["kind"] = "ordinal"
     assert answer_card(summary).how_good.startswith("Ranked probability skill score 0.22")

@@ -1,0 +1,146 @@
+"""Helpers shared by the report's sections: the figure sink, section frames,
+row selection and county name maps.
+"""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass, field
+
+import numpy as np
+import pandas as pd
+
+from impactlink.errors import ReportError, ReportWarning
+from impactlink.report.fig_style import figure_png
+from impactlink.report.html import Markup, el, image, join, link, paragraph
+from impactlink.report.runfolder import RunFolder
+from impactlink.report.text import target_label
+from impactlink.schema import COUNTY
+
+NOT_COMPUTED = "Not computed in this run."
+
+
+@dataclass
+class FigureSink:
+    """Renders figures to PNG, keeps them for writing to ``figures/`` and embeds them.
+
+    Attributes
+    ----------
+    files : dict
+        File name -> PNG bytes of every figure drawn so far.
+    alts : dict
+        File name -> alt text.
+    """
+
+    files: dict[str, bytes] = field(default_factory=dict)
+    alts: dict[str, str] = field(default_factory=dict)
+
+    def add(self, name: str, draw, *, alt: str, caption: str | None = None) -> Markup:
+        """Draw a figure (``draw()`` returns a Figure) and return its embedded image.
+
+        Any error from ``draw`` becomes a short note in the page and a warning.
+        """
+        try:
+            fig = draw()
+        except (ReportError, ValueError, KeyError, TypeError, IndexError) as exc:
+            message = f"Figure {name!r} could not be drawn: {exc}"
+            warnings.warn(message, ReportWarning, stacklevel=2)
+            return paragraph(message, class_="absent")
+        png = figure_png(fig)
+        file = slug(name) + ".png"
+        self.files[file] = png
+        self.alts[file] = alt
+        return image(png, alt=alt, caption=caption, name=file)
+
+
+def slug(text: str) -> str:
+    keep = "".join(ch if ch.isalnum() else "_" for ch in str(text).lower())
+    return "_".join(part for part in keep.split("_") if part)[:80] or "figure"
+
+
+def pair_title(impact, target) -> str:
+    return f"{impact} \u2014 {target_label(impact, target)}"
+
+
+def absent(what: str = NOT_COMPUTED) -> Markup:
+    return paragraph(what, class_="absent")
+
+
+def section(sid: str, title: str, *content) -> Markup:
+    return el("section", el("h2", title), *content, id=sid)
+
+
+def data_files(run: RunFolder, *names: str) -> Markup:
+    present = []
+    for name in names:
+        for ext in (".csv", ".parquet", ".gpkg", ".json"):
+            if (run.path / f"{name}{ext}").exists():
+                present.append(link(f"{name}{ext}", f"{name}{ext}"))
+    if not present:
+        return Markup("")
+    return el("p", "Numbers behind this section: ", join(present, ", "), class_="files")
+
+
+def sel(frame: pd.DataFrame, **equal) -> pd.DataFrame:
+    mask = np.ones(len(frame), dtype=bool)
+    for col, value in equal.items():
+        mask &= (frame[col] == value).fillna(False).to_numpy(dtype=bool)
+    return frame.loc[mask]
+
+
+def impact_target_pairs(frame: pd.DataFrame) -> list[tuple[str, str]]:
+    return list(dict.fromkeys(zip(frame["impact"].astype(str), frame["target"].astype(str),
+                                  strict=True)))
+
+
+def score_for(run: RunFolder, impact: str, target: str) -> str:
+    summary = run.table("skill_summary")
+    if summary is not None:
+        row = sel(summary, impact=impact, target=target)
+        if not row.empty and pd.notna(row["ranking_score"].iloc[0]):
+            return str(row["ranking_score"].iloc[0])
+    skill = run.table("skill")
+    if skill is not None and "rpss" in skill.columns:
+        if sel(skill, impact=impact, target=target)["rpss"].notna().any():
+            return "rpss"
+    return "bss"
+
+
+def county_names(run: RunFolder) -> pd.DataFrame | None:
+    if run.counties is None:
+        return None
+    cols = [c for c in (COUNTY, "county_name", "region") if c in run.counties.columns]
+    return pd.DataFrame(run.counties[cols])
+
+
+def impact_of(run: RunFolder) -> dict[str, str]:
+    """target -> impact, from whichever table names both."""
+    for name in ("skill_summary", "skill", "curves"):
+        frame = run.table(name)
+        if frame is not None and {"impact", "target"} <= set(frame.columns):
+            return dict(zip(frame["target"].astype(str), frame["impact"].astype(str),
+                            strict=True))
+    return {}
+
+
+def name_map(run: RunFolder) -> dict[str, str]:
+    names = county_names(run)
+    if names is None or "county_name" not in names.columns:
+        return {}
+    return dict(zip(names[COUNTY].astype(str), names["county_name"].astype(str), strict=True))
+
+
+def with_names(run: RunFolder, frame: pd.DataFrame) -> pd.DataFrame:
+    names = county_names(run)
+    if names is None or COUNTY not in frame.columns:
+        return frame
+    out = frame.merge(names, on=COUNTY, how="left")
+    lead = [c for c in (COUNTY, "county_name", "region") if c in out.columns]
+    return out[lead + [c for c in out.columns if c not in lead]]
+
+
+def not_drawn(sid: str, title: str, exc: Exception) -> Markup:
+    """Stand-in for a section whose builder failed on unexpected data."""
+    return section(sid, title, absent(
+        f"This section could not be built from this run's tables ({type(exc).__name__}: "
+        f"{exc})."))

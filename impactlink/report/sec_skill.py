@@ -1,0 +1,207 @@
+"""Skill stage sections: skill by candidate, persistence, reliability and county maps of
+the best candidate.
+"""
+
+from __future__ import annotations
+
+import pandas as pd
+
+from impactlink.report import maps as M
+from impactlink.report._select import PERSISTENCE_COMBOS, single_candidates
+from impactlink.report.common import (
+    FigureSink,
+    absent,
+    data_files,
+    impact_of,
+    impact_target_pairs,
+    pair_title,
+    score_for,
+    section,
+    sel,
+    with_names,
+)
+from impactlink.report.figures_skill import (
+    candidate_intervals,
+    persistence_comparison,
+    persistence_picks,
+    reliability_diagram,
+    skill_heatmap,
+)
+from impactlink.report.html import Markup, details, el, join, link, paragraph, table
+from impactlink.report.runfolder import RunFolder
+from impactlink.report.text import (
+    candidate_label,
+    fmt_interval,
+    fmt_num,
+    index_name,
+    persistence_sentence,
+    score_label,
+    target_label,
+)
+from impactlink.report.words_sections import (
+    MAPS_INTRO,
+    PERSISTENCE_INTRO,
+    RELIABILITY_INTRO,
+    SKILL_INTRO,
+)
+from impactlink.schema import COUNTY
+
+
+def skill_section(run: RunFolder, figs: FigureSink) -> Markup:
+    skill = run.table("skill")
+    if skill is None or skill.empty:
+        return section("skill", "Skill by index, time scale and lag", absent())
+    parts = [paragraph(
+        SKILL_INTRO)]
+    for impact, target in impact_target_pairs(skill):
+        score = score_for(run, impact, target)
+        if score not in skill.columns:
+            continue
+        sub = sel(skill, impact=impact, target=target)
+        cand = single_candidates(sub).dropna(subset=[score])
+        if cand.empty:
+            continue
+        best = cand.loc[cand[score].idxmax()]
+        parts.append(el("h3", pair_title(impact, target)))
+        label = candidate_label(best["index"], best["scale_weeks"], best["lag_weeks"])
+        parts.append(figs.add(
+            f"skill_{impact}_{target}",
+            lambda s=sub, i=impact, t=target, sc=score: skill_heatmap(
+                s, impact=i, target=t, score=sc),
+            alt=(f"Heat maps of {score_label(score)} for {impact}, {target}, by time scale "
+                 f"(weeks, rows) and lag (weeks, columns), one panel per index "
+                 f"({', '.join(index_name(i) for i in sorted(cand['index'].unique()))}). "
+                 f"Best: {label}, score {fmt_num(best[score])}.")))
+        if {f"{score}_lo", f"{score}_hi"} <= set(sub.columns):
+            parts.append(figs.add(
+                f"candidates_{impact}_{target}",
+                lambda s=sub, i=impact, t=target, sc=score: candidate_intervals(
+                    s, impact=i, target=t, score=sc),
+                alt=(f"Dot-and-interval chart of the ten best candidates for {impact}, "
+                     f"{target}, with seasonal and persistence baselines as vertical lines. "
+                     f"Best: {label}, {fmt_interval(best[score], best[f'{score}_lo'], best[f'{score}_hi'])}.")))
+    parts.append(_persistence_part(run, figs))
+    parts.append(data_files(run, "skill", "skill_summary"))
+    return section("skill", "Skill by index, time scale and lag", *parts)
+
+
+def _persistence_part(run: RunFolder, figs: FigureSink) -> Markup:
+    skill = run.table("skill")
+    if skill is None:
+        return Markup("")
+    combo = skill["model"].isin(PERSISTENCE_COMBOS).fillna(False).to_numpy(bool)
+    impacts = list(dict.fromkeys(skill.loc[combo, "impact"].astype(str)))
+    if not impacts:
+        return Markup("")
+    parts = [el("h3", "Warning beyond persistence"),
+             paragraph(PERSISTENCE_INTRO)]
+    summary = run.table("skill_summary")
+    for impact in impacts:
+        targets = list(dict.fromkeys(sel(skill, impact=impact)["target"].astype(str)))
+        score = score_for(run, impact, targets[0])
+        if not {score, f"{score}_lo", f"{score}_hi"} <= set(skill.columns):
+            continue
+        rows = []
+        for tgt in targets:
+            g = sel(skill, impact=impact, target=tgt)
+            lag, picks = persistence_picks(g, score)
+            labels = ("index alone", "persistence alone", "index + persistence")
+            for label, r in zip(labels, picks, strict=True):
+                if r is None:
+                    continue
+                what = (candidate_label(r["index"], r["scale_weeks"], r["lag_weeks"], short=True)
+                        if pd.notna(r["index"]) else "")
+                rows.append({"target": target_label(impact, tgt),
+                             "lag_weeks": lag if lag is not None else r.get("lag_weeks"),
+                             "model": label, "candidate": what,
+                             score_label(score): fmt_interval(r[score], r[f"{score}_lo"],
+                                                              r[f"{score}_hi"])})
+        parts.append(figs.add(
+            f"persistence_{impact}",
+            lambda i=impact, sc=score: persistence_comparison(skill, impact=i, score=sc),
+            alt=(f"Dot-and-interval chart for {impact}: {score_label(score)} of the index alone, "
+                 f"persistence alone and index plus persistence, for {', '.join(targets)}.")))
+        parts.append(table(pd.DataFrame(rows), caption=f"{impact}: with and without persistence"))
+        if summary is not None:
+            sentences = [persistence_sentence(r)
+                         for _, r in sel(summary, impact=impact).iterrows()]
+            parts.append(el("ul", *[el("li", s) for s in sentences if s]))
+    return join(parts)
+
+
+def reliability_section(run: RunFolder, figs: FigureSink) -> Markup:
+    rel = run.table("reliability")
+    if rel is None or rel.empty:
+        return section("reliability", "Reliability", absent())
+    parts = [paragraph(RELIABILITY_INTRO)]
+    if "impact" not in rel.columns:
+        rel = rel.assign(impact=rel["target"].map(impact_of(run)).fillna(""))
+    if "model" not in rel.columns:
+        rel = rel.assign(model="best candidate")
+    for impact, target in impact_target_pairs(rel):
+        sub = sel(rel, impact=impact, target=target)
+        models = ", ".join(dict.fromkeys(sub["model"].astype(str)))
+        parts.append(el("h3", pair_title(impact, target)))
+        parts.append(figs.add(
+            f"reliability_{impact}_{target}",
+            lambda s=sub, i=impact, t=target: reliability_diagram(s, impact=i, target=t),
+            alt=(f"Reliability diagram for {impact}, {target}: observed frequency (0 to 1) "
+                 f"against forecast chance (0 to 1) for models {models}, with forecast counts "
+                 "per bin below.")))
+    parts.append(data_files(run, "reliability"))
+    return section("reliability", "Reliability", *parts)
+
+
+def maps_section(run: RunFolder, figs: FigureSink) -> Markup:
+    best = _best_per_county(run)
+    if run.counties is None or best is None or len(best) == 0:
+        return section("maps", "County maps", absent())
+    parts = [paragraph(MAPS_INTRO)]
+    keys = ["impact", "target"] if "target" in best.columns else ["impact"]
+    for key, sub in best.groupby(keys, sort=False):
+        key = key if isinstance(key, tuple) else (key,)
+        title = " \u2014 ".join(str(k) for k in key)
+        sub = sub.assign(candidate=[
+            candidate_label(r.get("index"), r.get("scale_weeks"), r.get("lag_weeks"), short=True)
+            for _, r in sub.iterrows()])
+        panels = [M.MapPanel(sub, "candidate", title="best candidate", label="candidate",
+                             kind="categorical")]
+        if "skill" in sub.columns:
+            panels.append(M.MapPanel(sub, "skill", title="skill", label="skill score (0 = base rate)"))
+        if "events" in sub.columns:
+            panels.append(M.MapPanel(sub, "events", title="events", label="events (count)"))
+        n_cand = sub["candidate"].nunique()
+        parts.append(el("h3", title))
+        parts.append(figs.add(
+            f"map_best_{'_'.join(map(str, key))}",
+            lambda p=panels, t=title: M.county_panels(run.counties, p, suptitle=t),
+            alt=(f"County maps for {title}: best candidate ({n_cand} different candidates across "
+                 f"{len(sub)} counties), skill score, and number of events per county.")))
+        cols = [c for c in ("county_id", "candidate", "skill", "events") if c in sub.columns]
+        parts.append(details("Per-county values", table(with_names(run, sub[cols]))))
+    parts.append(paragraph("Layers for GIS use are in ", link("counties.gpkg", "counties.gpkg"),
+                           ".", class_="files"))
+    parts.append(data_files(run, "skill_local"))
+    return section("maps", "County maps", *parts)
+
+
+def _best_per_county(run: RunFolder) -> pd.DataFrame | None:
+    """Best candidate per county: the ``best_candidate`` layer, else the county rows
+    (``level == "unit"``) of ``skill_local.csv``."""
+    layer = run.layers.get("best_candidate")
+    if layer is not None and len(layer):
+        return pd.DataFrame(layer.drop(columns="geometry", errors="ignore"))
+    local = run.table("skill_local")
+    if local is None or local.empty:
+        return None
+    if "level" in local.columns:
+        local = local[(local["level"] == "unit").fillna(False).to_numpy(bool)]
+    out = local.rename(columns={"unit": COUNTY})
+    if "skill" not in out.columns:
+        for score in ("rpss", "bss"):
+            if score in out.columns:
+                out = out.assign(skill=out[score])
+                break
+    if "impact" not in out.columns:
+        out = out.assign(impact=out["target"].map(impact_of(run)).fillna(""))
+    return out
