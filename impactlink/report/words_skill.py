@@ -22,7 +22,7 @@ def _finite(v: Any) -> bool:
 
 
 def _signed(row: Mapping[str, Any], key: str, pct: int) -> str:
-    lo, hi = row.get(f"{key}_lo"), row.get(f"{key}_hi")
+    lo, hi = row.get(f"{key}_lo", math.nan), row.get(f"{key}_hi", math.nan)
     iv = f" ({pct}% interval {float(lo):+.3f} to {float(hi):+.3f})" if _finite(lo) else ""
     return f"{float(row[key]):+.3f}{iv}"
 
@@ -41,7 +41,7 @@ def persistence_sentence(row: Mapping[str, Any], *, ci: float = 0.90) -> str:
     pct = int(round(100 * ci))
     index = row.get("index")
     what = f"{index.upper()} at {row['scale_weeks']} weeks" if isinstance(index, str) else "the index"
-    lo, hi = row.get("gain_lo"), row.get("gain_hi")
+    lo, hi = row.get("gain_lo", math.nan), row.get("gain_hi", math.nan)
     interval = f" ({pct}% interval {float(lo):+.3f} to {float(hi):+.3f})" if _finite(lo) else ""
     if bool(row.get("index_adds_skill")):
         verdict = "adds skill beyond knowing the current impact level"
@@ -71,7 +71,7 @@ def summary_sentence(row: Mapping[str, Any], *, ci: float = 0.90,
         :func:`persistence_sentence` at the end.
     """
     pct = int(round(100 * ci))
-    lo, hi = row.get("naive_rpss_lo"), row.get("naive_rpss_hi")
+    lo, hi = row.get("naive_rpss_lo", math.nan), row.get("naive_rpss_hi", math.nan)
     iv = f" ({pct}% interval {float(lo):.3f} to {float(hi):.3f})" if _finite(lo) else ""
     n_ind, n_c = int(row["n_indistinguishable"]), int(row["n_candidates"])
     s = (f"For {row['target']}, {str(row['best_index']).upper()} over {row['best_scale_weeks']} "
