@@ -47,7 +47,7 @@ def year_folds(
 
     Raises
     ------
-    ValueError
+    SkillError
         For an unknown ``cv``, fewer than 2 folds, or a missing ``regions``.
 
     Notes

@@ -20,6 +20,7 @@ import pandas as pd
 from impactlink.errors import SkillError, SkillWarning
 from impactlink.link.target import Target
 from impactlink.skill import _engine as E
+from impactlink.skill.best import best_candidate
 from impactlink.skill.folds import CV_CHOICES, year_folds
 from impactlink.skill.scores import reliability_table, rps_per_row
 
@@ -50,7 +51,7 @@ class SkillResult:
         The ranking score is ``rpss`` (equal to ``bss`` for a binary target).
     summary : DataFrame
         One row: best candidate, naive and nested skill with intervals, number of
-        candidates, the persistence comparison and a plain-language sentence.
+        candidates and the persistence comparison (numbers and flags; the report words them).
     persistence : DataFrame
         Per lag: persistence-only skill, best index-only and index-plus-persistence skill,
         the gain over persistence with its paired-bootstrap interval.
@@ -148,7 +149,7 @@ def rank_candidates(
 
     Raises
     ------
-    ValueError
+    SkillError
         For a target frame without the needed columns, an empty candidate list, a feature
         of the wrong length, an unknown ``cv``, or no row that every candidate can score.
 
@@ -700,10 +701,9 @@ def _quantile(a: np.ndarray, q: float) -> np.ndarray:
 
 
 def _best_single(table) -> int | None:
-    idx = np.flatnonzero(table["model"].to_numpy() == "index")
-    if idx.size == 0:
-        return None
-    return int(idx[np.nanargmax(table["rpss"].to_numpy()[idx])])
+    """Row position of the best single candidate (the rule of :func:`best_candidate`)."""
+    bc = best_candidate(table.reset_index(drop=True))
+    return None if bc is None else bc.row
 
 
 # --------------------------------------------------------------------------- challenger
@@ -842,28 +842,12 @@ def _persistence_gain(ctx, table, reps) -> pd.DataFrame:
             "index_alone_rpss": rpss[b_io, 0],
             "gain": gain[0], "gain_lo": g_lo, "gain_hi": g_hi, "index_adds_skill": adds,
             "index_alone_beats_persistence": bool(a_lo > 0) if has_boot else bool(alone[0] > 0),
-            "sentence": _persistence_sentence(ctx, int(L), table.at[b_ip, "index"],
-                                              table.at[b_ip, "scale_weeks"], gain[0], g_lo,
-                                              g_hi, adds),
         })
     cols = ["impact", "target", "lag_weeks", "persistence_rpss", "index", "scale_weeks",
             "index_persistence_rpss", "best_index_alone", "best_index_alone_scale_weeks",
             "index_alone_rpss", "gain", "gain_lo", "gain_hi", "index_adds_skill",
-            "index_alone_beats_persistence", "sentence"]
+            "index_alone_beats_persistence"]
     return pd.DataFrame(rows, columns=cols)
-
-
-def _persistence_sentence(ctx, lag, index, scale, gain, lo, hi, adds) -> str:
-    pct = int(round(100 * ctx.ci))
-    what = (f"{index.upper()} at {scale} weeks" if isinstance(index, str) else "the index")
-    interval = (f" ({pct}% interval {lo:+.3f} to {hi:+.3f})" if np.isfinite(lo) else "")
-    if adds:
-        verdict = "adds skill beyond knowing the current impact level"
-    else:
-        verdict = ("does not clearly add skill beyond knowing the current impact level; "
-                   "the level itself carries most of the signal")
-    return (f"{ctx.target.name}, {lag} week(s) ahead: {what} changes the ranked probability "
-            f"skill by {gain:+.3f}{interval} over persistence, so it {verdict}.")
 
 
 # --------------------------------------------------------------------------- local + rows
@@ -951,12 +935,6 @@ def _local_and_predictions(ctx, features, units, records, base, table, *, n_loca
 
 
 # --------------------------------------------------------------------------- summary
-def _signed(row: dict, key: str, pct: int) -> str:
-    lo, hi = row[f"{key}_lo"], row[f"{key}_hi"]
-    iv = f" ({pct}% interval {lo:+.3f} to {hi:+.3f})" if np.isfinite(lo) else ""
-    return f"{row[key]:+.3f}{iv}"
-
-
 def _paired_gain(rpss: np.ndarray, i: int, j: int, ci: float) -> tuple[float, float, float]:
     """Skill of row i minus row j, with the paired bootstrap interval (same replicates)."""
     d = rpss[i] - rpss[j]
@@ -970,8 +948,7 @@ def _summary(ctx, table, nested, pers, reps) -> pd.DataFrame:
     t = ctx.target
     model = table["model"].to_numpy()
     singles = table[model == "index"]
-    b = singles.loc[singles["rpss"].idxmax()]
-    pct = int(round(100 * ctx.ci))
+    b = table.iloc[_best_single(table)]
     row = {
         "impact": t.impact, "target": t.name, "role": t.role, "kind": t.kind,
         "best_index": b["index"], "best_scale_weeks": b["scale_weeks"],
@@ -1002,28 +979,4 @@ def _summary(ctx, table, nested, pers, reps) -> pd.DataFrame:
         row.update(persistence_lag_weeks=p0["lag_weeks"], persistence_gain=p0["gain"],
                    persistence_gain_lo=p0["gain_lo"], persistence_gain_hi=p0["gain_hi"],
                    index_adds_skill=p0["index_adds_skill"])
-    iv = (f" ({pct}% interval {b['rpss_lo']:.3f} to {b['rpss_hi']:.3f})"
-          if np.isfinite(b["rpss_lo"]) else "")
-    s = (f"For {t.name}, {str(b['index']).upper()} over {b['scale_weeks']} weeks, "
-         f"{b['lag_weeks']} week(s) ahead, predicts best out of sample: ranked probability "
-         f"skill {b['rpss']:.3f}{iv} against the base rate, resting on {row['events']} "
-         f"impact rows in {ctx.n_years} years; {max(row['n_indistinguishable'] - 1, 0)} "
-         f"of the other {row['n_candidates'] - 1} candidates are statistically "
-         "indistinguishable from it.")
-    if nested:
-        s += (f" Choosing the best afresh in each fold, the fairer selection-aware estimate "
-              f"is {nested['nested_rpss']:.3f}.")
-    extras = []
-    if "best_pair_gain" in row:
-        extras.append(f"the best two-scale pair ({row['best_pair']}) changes skill by "
-                      f"{_signed(row, 'best_pair_gain', pct)}")
-    if "boosted_gain" in row:
-        extras.append(f"a flexible boosted curve on the best candidate changes it by "
-                      f"{_signed(row, 'boosted_gain', pct)}")
-    if extras:
-        s += " Compared with the best single candidate, " + "; ".join(extras) + "."
-    if len(pers):
-        s += " " + pers.sort_values("lag_weeks").iloc[0]["sentence"]
-    s += " This is a statistical association, not proof of cause."
-    row["sentence"] = s
     return pd.DataFrame([row])

@@ -68,7 +68,7 @@ def test_episode_world_onset_recovers_index_and_state_prefers_persistence_at_lag
     p = r_st.persistence.set_index("lag_weeks")
     assert not p.loc[1, "index_alone_beats_persistence"]
     assert p.loc[1, "gain_lo"] <= p.loc[1, "gain"] <= p.loc[1, "gain_hi"]
-    assert "persistence" in p.loc[1, "sentence"]
+    assert "sentence" not in p.columns  # words belong to the report
     # index-only rows never "beat persistence" at lag 1
     only = t[(t["model"] == "index") & (t["lag_weeks"] == 1)]
     assert not only["beats_persistence"].any()
@@ -110,7 +110,7 @@ def test_table_has_the_contract_columns_and_baselines():
     assert set(res.local["level"]) == {"region", "unit"}
     assert res.local.groupby("level")["events"].sum().nunique() == 1
     s = res.summary.iloc[0]
-    assert "not proof of cause" in s["sentence"]
+    assert "sentence" not in res.summary.columns  # words belong to the report
     # the challenger and pair rows are compared with the best single candidate, paired
     boosted = t[t["model"] == "boosted"]["rpss"].iloc[0]
     assert s["boosted_gain"] == pytest.approx(boosted - s["naive_rpss"])
