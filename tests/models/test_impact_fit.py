@@ -8,40 +8,64 @@ import pytest
 from impact_targets import make_target, simulate_binary
 
 from impactlink.models import ImpactModel, fit_impact_model
-from impactlink.models._penalised import fit_cumulative
 
 
 # ------------------------------------------------------------------ equivalences
 @pytest.mark.parametrize("link", ["logit", "probit"])
-def test_two_level_ordinal_equals_logistic(link):
-    # A cumulative link model with two levels is the binary GLM with the same link
-    # (McCullagh 1980): the threshold is minus the intercept. Both optimisers reach
-    # the optimum to ~1e-6, so rtol 1e-4.
+@pytest.mark.parametrize("kind", ["binary", "ordinal"])
+def test_binary_and_two_level_ordinal_match_statsmodels_glm(link, kind):
+    # Reference: statsmodels GLM Binomial with the same link, fitted by Newton-Raphson
+    # (method="newton"), so that its cov_params() is the inverse observed information
+    # (IRLS would report the expected information, which for probit differs by ~1 %).
+    # A cumulative link model with two levels is that GLM (McCullagh 1980): the threshold
+    # is minus the intercept. Both solvers converge to ~1e-10: rtol 1e-7.
+    import statsmodels.api as sm
+
     x, y = simulate_binary(600, seed=3)
-    binary = fit_impact_model(make_target(y), x, link=link)
-    ordinal = fit_impact_model(make_target(y, kind="ordinal"), x, link=link)
-    assert binary.method == "glm_binomial" and ordinal.method == "ordered_model"
-    np.testing.assert_allclose(ordinal.params.to_numpy(), binary.params.to_numpy(), rtol=1e-4)
-    # Covariances: for the canonical logit both use the observed information (rtol 1e-3).
-    # For probit, statsmodels' GLM (IRLS) reports the expected information and
-    # OrderedModel the observed one; they differ by O(1/sqrt(n)), here about 1 %.
-    tol = 1e-3 if link == "logit" else 3e-2
-    np.testing.assert_allclose(ordinal.cov.to_numpy(), binary.cov.to_numpy(), rtol=tol)
-    np.testing.assert_allclose(ordinal.predict(x[:20]), binary.predict(x[:20]), atol=1e-6)
+    lk = sm.families.links.Logit() if link == "logit" else sm.families.links.Probit()
+    ref = sm.GLM(y, sm.add_constant(x), family=sm.families.Binomial(link=lk)).fit(
+        method="newton", maxiter=200, tol=1e-12)
+    T = np.array([[0.0, 1.0], [-1.0, 0.0]])  # (const, slope) -> (slope, cut_1)
+    m = fit_impact_model(make_target(y, kind=kind), x, link=link)
+    assert m.method == ("glm_binomial" if kind == "binary" else "ordered_model")
+    np.testing.assert_allclose(m.params.to_numpy(), T @ np.asarray(ref.params), rtol=1e-7)
+    np.testing.assert_allclose(m.cov.to_numpy(), T @ np.asarray(ref.cov_params()) @ T.T,
+                               rtol=1e-7)
+    np.testing.assert_allclose(m.loglik, ref.llf, rtol=1e-10)
 
 
-def test_own_solver_without_penalty_equals_statsmodels():
-    # Cross-implementation: the numpy/scipy fallback solver with the prior switched off must
-    # reproduce statsmodels OrderedModel (same likelihood, two optimisers; 1e-5).
-    rng = np.random.default_rng(5)
-    x = rng.normal(size=(500, 2))
-    eta = x @ np.array([-1.2, 0.5])
-    y = np.digitize(eta + rng.logistic(size=500), [0.3, 1.8])
-    m = fit_impact_model(make_target(y), {"a": x[:, 0], "b": x[:, 1]})
-    own = fit_cumulative(x, y, 2, "logit", prior_sd=None)
-    np.testing.assert_allclose(own["beta"], m.beta, atol=1e-5)
-    np.testing.assert_allclose(own["cuts"], m.cuts, atol=1e-5)
-    np.testing.assert_allclose(own["cov"], m.cov.to_numpy(), rtol=1e-3, atol=1e-7)
+@pytest.mark.parametrize("case", ["binary", "ordinal"])
+def test_ridge_refit_maximises_the_penalised_statsmodels_likelihood(case):
+    # Cross-implementation of the separation fallback: it must maximise statsmodels'
+    # OrderedModel log-likelihood minus the ridge 0.5 * prec * b^2, prec = (2 sd(x) / 2.5)^2,
+    # here maximised by scipy BFGS (gtol 1e-9: atol 1e-5 on the parameters). Its covariance
+    # is the inverse of minus the penalised Hessian: statsmodels' central-difference Hessian
+    # (approx_hess3) of the same function, accurate to ~1e-6 relative: rtol 1e-4.
+    from scipy import optimize
+    from statsmodels.miscmodels.ordinal_model import OrderedModel
+    from statsmodels.tools.numdiff import approx_hess3
+
+    rng = np.random.default_rng(9 if case == "ordinal" else 4)
+    x = rng.normal(size=300)
+    y = np.digitize(-x, [0.0, 1.0]) if case == "ordinal" else (x < -0.5).astype(int)
+    K = int(y.max())
+    m = fit_impact_model(make_target(y), x)
+    assert m.ok and m.method == "ridge_cumulative_link", m.reason
+    mod = OrderedModel(y, x[:, None], distr="logit")
+    prec = (2.0 * x.std() / 2.5) ** 2
+
+    def penalised(z):  # z = (slope, cut_1..cut_K), our threshold form
+        if K > 1 and np.any(np.diff(z[1:]) <= 0):
+            return -np.inf
+        sm_params = np.r_[z[0], z[1], np.log(np.diff(z[1:]))]
+        return mod.loglike(sm_params) - 0.5 * prec * z[0] ** 2
+
+    start = np.r_[0.0, np.arange(K, dtype=float)]
+    res = optimize.minimize(lambda z: -penalised(z), start, method="BFGS",
+                            options={"gtol": 1e-9, "maxiter": 5000})
+    np.testing.assert_allclose(m.params.to_numpy(), res.x, atol=1e-5)
+    H = approx_hess3(m.params.to_numpy(), penalised)
+    np.testing.assert_allclose(m.cov.to_numpy(), np.linalg.inv(-H), rtol=1e-4)
 
 
 def test_probabilities_are_ordered_and_hand_checked():
