@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
+from impactlink.errors import ModelError
 from impactlink.models.batch import (
     fit_cumlogit_batch,
     fit_logistic_batch,
@@ -78,11 +79,11 @@ def test_logistic_separation_stays_finite():
 
 def test_logistic_errors_name_the_problem():
     X = np.ones((2, 5, 2))
-    with pytest.raises(ValueError, match=r"y and w must have shape \(B, n\)"):
+    with pytest.raises(ModelError, match=r"y and w must have shape \(B, n\)"):
         fit_logistic_batch(X, np.zeros((2, 4)), np.ones((2, 4)))
-    with pytest.raises(ValueError, match=r"\[0, 1\]"):
+    with pytest.raises(ModelError, match=r"\[0, 1\]"):
         fit_logistic_batch(X, np.full((2, 5), 2.0), np.ones((2, 5)))
-    with pytest.raises(ValueError, match="must have shape \\(B, n, p\\)"):
+    with pytest.raises(ModelError, match="must have shape \\(B, n, p\\)"):
         fit_logistic_batch(np.ones((5, 2)), np.zeros(5), np.ones(5))
 
 
@@ -147,11 +148,11 @@ def test_per_slope_ridge_is_a_normal_prior_on_each_slope():
     alone = fit_cumlogit_batch(X[None], y[None], w[None], n_levels=3, ridge=0.0)
     np.testing.assert_allclose(pinned.coef[0, :3], alone.coef[0], atol=1e-6)
     assert abs(pinned.coef[0, 3]) < 1e-6
-    with pytest.raises(ValueError, match=r"ridge must be a number or have shape \(p,\)"):
+    with pytest.raises(ModelError, match=r"ridge must be a number or have shape \(p,\)"):
         fit_cumlogit_batch(X2[None], y[None], w[None], ridge=np.ones(3))
-    with pytest.raises(ValueError, match="ridge must be finite and >= 0"):
+    with pytest.raises(ModelError, match="ridge must be finite and >= 0"):
         fit_cumlogit_batch(X2[None], y[None], w[None], ridge=-1.0)
-    with pytest.raises(ValueError, match="link must be one of"):
+    with pytest.raises(ModelError, match="link must be one of"):
         fit_cumlogit_batch(X2[None], y[None], w[None], link="cloglog")
 
 
@@ -178,11 +179,11 @@ def test_cumlogit_probabilities_sum_to_one_and_are_ordered():
 
 
 def test_cumlogit_errors_name_the_problem():
-    with pytest.raises(ValueError, match="integer levels"):
+    with pytest.raises(ModelError, match="integer levels"):
         fit_cumlogit_batch(np.ones((1, 3, 1)), np.array([[0.5, 1, 0]]), np.ones((1, 3)))
-    with pytest.raises(ValueError, match="at least 2 levels"):
+    with pytest.raises(ModelError, match="at least 2 levels"):
         fit_cumlogit_batch(np.ones((1, 3, 1)), np.zeros((1, 3)), np.ones((1, 3)))
-    with pytest.raises(ValueError, match="n_levels=2"):
+    with pytest.raises(ModelError, match="n_levels=2"):
         fit_cumlogit_batch(np.ones((1, 3, 1)), np.array([[0, 1, 2]]), np.ones((1, 3)),
                            n_levels=2)
 
@@ -192,9 +193,9 @@ def test_warm_start_gives_the_same_fit_and_bad_start_is_named():
     cold = fit_logistic_batch(X[None], y[None], w[None], ridge=0.0)
     warm = fit_logistic_batch(X[None], y[None], w[None], ridge=0.0, start=cold.coef + 0.3)
     np.testing.assert_allclose(warm.coef, cold.coef, rtol=1e-7)
-    with pytest.raises(ValueError, match=r"start must be finite with shape \(1, 2\)"):
+    with pytest.raises(ModelError, match=r"start must be finite with shape \(1, 2\)"):
         fit_logistic_batch(X[None], y[None], w[None], start=np.zeros((1, 3)))
-    with pytest.raises(ValueError, match="start cut-points must be increasing"):
+    with pytest.raises(ModelError, match="start cut-points must be increasing"):
         fit_cumlogit_batch(np.ones((1, 3, 1)), np.array([[0, 1, 2]]), np.ones((1, 3)),
                            start=np.array([[1.0, 0.0, 0.0]]))
 

@@ -7,6 +7,7 @@ import pandas as pd
 import pytest
 from impact_targets import make_target, simulate_binary
 
+from impactlink.errors import ModelError
 from impactlink.models import ImpactModel, fit_impact_model
 
 
@@ -173,7 +174,7 @@ def test_index_persistence_and_both_are_predictor_sets():
     assert abs(both.params["persistence_4"] - 1.2) < 3 * se[1]
     assert both.loglik > index_only.loglik and both.loglik > pers_only.loglik
     # the model needs the covariate at prediction time, by name
-    with pytest.raises(ValueError, match="persistence_4"):
+    with pytest.raises(ModelError, match="persistence_4"):
         both.predict(x[:3], frame=pd.DataFrame({"other": [0, 0, 0]}))
     p = both.predict(x[:3], frame=pd.DataFrame({"persistence_4": [1.0, 1.0, 1.0]}))
     q = both.predict(x[:3], frame=pd.DataFrame({"persistence_4": [0.0, 0.0, 0.0]}))
@@ -202,7 +203,7 @@ def test_seasonal_harmonics_recover_planted_season():
     frame = pd.DataFrame({"season": np.arange(1, 53)})
     p = m.predict(np.zeros(52), frame=frame)[:, 0]
     assert abs(int(np.argmax(p)) + 1 - 30) <= 4
-    with pytest.raises(ValueError, match="season"):
+    with pytest.raises(ModelError, match="season"):
         m.predict(np.zeros(3))
 
 
@@ -228,7 +229,7 @@ def test_traits_are_merged_and_standardised():
     assert "non-numeric" in m.reason and "constant" in m.reason
     se = np.sqrt(m.cov.iloc[1, 1])
     assert abs(m.params["irrigated_pct"] + 0.8) < 3 * se
-    with pytest.raises(ValueError, match="county_id"):
+    with pytest.raises(ModelError, match="county_id"):
         fit_impact_model(make_target(y, county_id=cid), x, traits=traits.drop(columns="county_id"))
 
 
@@ -248,26 +249,26 @@ def test_error_messages_name_the_argument():
     t = make_target(y)
     with pytest.raises(TypeError, match="Target"):
         fit_impact_model(t.frame, x)
-    with pytest.raises(ValueError, match="link must be one of"):
+    with pytest.raises(ModelError, match="link must be one of"):
         fit_impact_model(t, x, link="cloglog")
-    with pytest.raises(ValueError, match="pooling must be one of"):
+    with pytest.raises(ModelError, match="pooling must be one of"):
         fit_impact_model(t, x, pooling="state")
-    with pytest.raises(ValueError, match="99 values but the target frame has 100 rows"):
+    with pytest.raises(ModelError, match="99 values but the target frame has 100 rows"):
         fit_impact_model(t, x[:99])
-    with pytest.raises(ValueError, match="covariates .*'persistence_2'.* not columns"):
+    with pytest.raises(ModelError, match="covariates .*'persistence_2'.* not columns"):
         fit_impact_model(t, x, covariates=("persistence_2",))
-    with pytest.raises(ValueError, match="1-D array"):
+    with pytest.raises(ModelError, match="1-D array"):
         fit_impact_model(t, np.ones((100, 2)))
     bad = make_target(np.r_[y[:-1], 3], levels=("none", "impact"))
-    with pytest.raises(ValueError, match="outside 0..1"):
+    with pytest.raises(ModelError, match="outside 0..1"):
         fit_impact_model(bad, x)
     three = make_target(np.r_[y[:-1], 2], kind="binary", levels=("a", "b", "c"))
-    with pytest.raises(ValueError, match="is binary but has 3 levels"):
+    with pytest.raises(ModelError, match="is binary but has 3 levels"):
         fit_impact_model(three, x)
     m = fit_impact_model(t, x)
-    with pytest.raises(ValueError, match="ci must be strictly between 0 and 1"):
+    with pytest.raises(ModelError, match="ci must be strictly between 0 and 1"):
         m.predict_interval(x, ci=90)
-    with pytest.raises(ValueError, match="lacks feature"):
+    with pytest.raises(ModelError, match="lacks feature"):
         m.predict({"spi": x})
 
 
