@@ -13,6 +13,7 @@ from impactlink.link.prices import link_prices
 from impactlink.link.reports import link_field_reports
 from impactlink.link.target import Target
 from impactlink.link.yields import link_yields
+from impactlink.schema import EQUAL_AREA_CRS
 
 __all__ = ["build_targets", "panel_frame", "circularity_flags", "PANEL_COLUMNS"]
 
@@ -33,7 +34,7 @@ _INDEX_WORDS = ("spi", "spei", "eddi", "drought category", "drought class", "dro
 
 
 def build_targets(spec, tables: dict[str, pd.DataFrame], *, counties, weeks: pd.DatetimeIndex,
-                  lags_weeks: tuple[int, ...] = (0,), equal_area_crs: str = "EPSG:5070"
+                  lags_weeks: tuple[int, ...] = (0,), equal_area_crs: str = EQUAL_AREA_CRS
                   ) -> LinkResult:
     """Turn one impact's records into targets on their own grid.
 
@@ -55,7 +56,7 @@ def build_targets(spec, tables: dict[str, pd.DataFrame], *, counties, weeks: pd.
         Mondays of the record (ISO 8601 weeks).
     lags_weeks : tuple of int
         Modelled lags [weeks]; persistence columns are built for them.
-    equal_area_crs : str, default "EPSG:5070"
+    equal_area_crs : str, default ``impactlink.schema.EQUAL_AREA_CRS`` (EPSG:5070)
         Projection for areas and spatial joins.
 
     Returns

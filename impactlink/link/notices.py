@@ -49,6 +49,7 @@ from impactlink.link._common import (
 )
 from impactlink.link.spatial import points_to_counties
 from impactlink.link.target import FeatureRule, Target
+from impactlink.schema import EQUAL_AREA_CRS
 
 __all__ = ["link_notices", "notice_levels", "risk_set", "episodic_targets", "NOTICE_OPTIONS"]
 
@@ -60,7 +61,7 @@ DEFAULT_CAUSES = ("drought", "dry", "low flow", "low_flow", "water shortage", "s
 
 
 def link_notices(spec, tables: dict[str, pd.DataFrame], *, counties, weeks: pd.DatetimeIndex,
-                 lags_weeks: tuple[int, ...] = (0,), equal_area_crs: str = "EPSG:5070"
+                 lags_weeks: tuple[int, ...] = (0,), equal_area_crs: str = EQUAL_AREA_CRS
                  ) -> LinkResult:
     """Link restriction notices (and snapshot lists) to county-week targets.
 
@@ -111,9 +112,10 @@ def link_notices(spec, tables: dict[str, pd.DataFrame], *, counties, weeks: pd.D
 
     >>> import geopandas as gpd
     >>> from shapely.geometry import box
+    >>> from impactlink.schema import EQUAL_AREA_CRS
     >>> from impactlink.project import ImpactSpec
     >>> counties = gpd.GeoDataFrame({"county_id": ["90001"]},
-    ...                             geometry=[box(0, 1.8e6, 1e4, 1.81e6)], crs="EPSG:5070")
+    ...                             geometry=[box(0, 1.8e6, 1e4, 1.81e6)], crs=EQUAL_AREA_CRS)
     >>> notices = pd.DataFrame({"notice_id": ["N-17"], "issuer": ["Brambeth Waterworks"],
     ...     "county_id": ["90001"], "level": [2],
     ...     "start_date": pd.to_datetime(["2031-07-09"]),

@@ -18,6 +18,7 @@ from impactlink.link.notices import summarize
 from impactlink.link.spatial import area_weights
 from impactlink.link.target import FeatureRule, Target
 from impactlink.link.yields import shortfall_level
+from impactlink.schema import EQUAL_AREA_CRS
 
 __all__ = ["link_prices", "deflate", "seasonal_anomaly", "PRICE_OPTIONS"]
 
@@ -28,7 +29,7 @@ PRICE_OPTIONS = {
 
 
 def link_prices(spec, tables, *, counties, weeks=None, lags_weeks=(),
-                equal_area_crs="EPSG:5070") -> LinkResult:
+                equal_area_crs=EQUAL_AREA_CRS) -> LinkResult:
     """Region-month real-price anomaly targets, one per commodity.
 
     Parameters

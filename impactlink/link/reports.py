@@ -26,6 +26,7 @@ from impactlink.link.notices import (
     episodic_targets,
     summarize,
 )
+from impactlink.schema import EQUAL_AREA_CRS
 
 __all__ = ["link_field_reports", "effort_trend", "REPORT_OPTIONS"]
 
@@ -34,7 +35,7 @@ REPORT_OPTIONS = {"sector", "min_severity", "effort_alpha", "defined_by", "episo
 
 
 def link_field_reports(spec, tables, *, counties, weeks, lags_weeks=(0,),
-                       equal_area_crs="EPSG:5070") -> LinkResult:
+                       equal_area_crs=EQUAL_AREA_CRS) -> LinkResult:
     """County-week field-report target: highest severity reported (0 = no report).
 
     Parameters

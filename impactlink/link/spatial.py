@@ -9,11 +9,12 @@ import numpy as np
 import pandas as pd
 
 from impactlink.link._common import LinkError, LinkWarning
+from impactlink.schema import EQUAL_AREA_CRS
 
 __all__ = ["area_weights", "points_to_counties"]
 
 
-def area_weights(counties, *, by: str = "region", crs: str = "EPSG:5070",
+def area_weights(counties, *, by: str = "region", crs: str = EQUAL_AREA_CRS,
                  trait: pd.Series | None = None) -> pd.DataFrame:
     """Weights of each county within its region, for region-level predictors.
 
@@ -23,7 +24,7 @@ def area_weights(counties, *, by: str = "region", crs: str = "EPSG:5070",
         ``county_id``, geometry and the grouping column ``by``. Must carry a CRS.
     by : str, default "region"
         Column that names each county's region.
-    crs : str, default "EPSG:5070"
+    crs : str, default ``impactlink.schema.EQUAL_AREA_CRS`` (EPSG:5070)
         Equal-area projection in which areas are measured (CONUS Albers by default).
     trait : pandas.Series, optional
         County characteristic indexed by ``county_id`` (for example harvested acres) to use as
@@ -50,9 +51,10 @@ def area_weights(counties, *, by: str = "region", crs: str = "EPSG:5070",
     --------
     >>> import geopandas as gpd
     >>> from shapely.geometry import box
+    >>> from impactlink.schema import EQUAL_AREA_CRS
     >>> g = gpd.GeoDataFrame({"county_id": ["a", "b"], "region": ["r", "r"]},
     ...                      geometry=[box(0, 0, 1000, 1000), box(1000, 0, 4000, 1000)],
-    ...                      crs="EPSG:5070")
+    ...                      crs=EQUAL_AREA_CRS)
     >>> area_weights(g)["weight"].tolist()
     [0.25, 0.75]
     """
@@ -96,7 +98,7 @@ def area_weights(counties, *, by: str = "region", crs: str = "EPSG:5070",
     return out[["region", "county_id", "weight", "area_km2"]]
 
 
-def points_to_counties(lon, lat, counties, *, crs: str = "EPSG:5070") -> np.ndarray:
+def points_to_counties(lon, lat, counties, *, crs: str = EQUAL_AREA_CRS) -> np.ndarray:
     """County id holding each (lon, lat) point (WGS84 degrees); None where no county holds it.
 
     A point on a shared border belongs to the county with the smallest id (deterministic).

@@ -17,6 +17,7 @@ from impactlink.link._common import (
 )
 from impactlink.link.notices import _regions, summarize
 from impactlink.link.target import FeatureRule, Target
+from impactlink.schema import EQUAL_AREA_CRS
 
 __all__ = ["link_yields", "loo_trend", "shortfall_level", "YIELD_OPTIONS"]
 
@@ -26,7 +27,7 @@ YIELD_OPTIONS = {
 }
 
 
-def link_yields(spec, tables, *, counties, weeks=None, lags_weeks=(), equal_area_crs="EPSG:5070"
+def link_yields(spec, tables, *, counties, weeks=None, lags_weeks=(), equal_area_crs=EQUAL_AREA_CRS
                 ) -> LinkResult:
     """County-year yield shortfall targets, one ordinal and one binary per crop and practice.
 

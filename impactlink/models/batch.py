@@ -1,11 +1,18 @@
-"""Batched Newton-Raphson solvers for many small impact models at once.
+"""Batched Newton-Raphson solvers: the one engine behind every impact-model fit.
+
+:func:`fit_cumlogit_batch` fits cumulative link (proportional-odds) models, logit or probit,
+with an optional ridge penalty and, on request, the covariance from the observed
+information. It is the solver of :func:`impactlink.models.fit_impact_model` (a binary target
+is its two-level case, the separation fallback its ridge-penalised case) and of the
+cross-validation engine in :mod:`impactlink.skill`. :func:`fit_logistic_batch` is the
+binomial GLM on event proportions with an intercept column, used where the outcome of a row
+is a fraction of its weight (histogram cells, recalibration slopes).
 
 Cross-validation over hundreds of candidates means tens of thousands of small fits (a few
-hundred weighted rows each: the histogram cells of :mod:`impactlink.skill`). Fitting them one
-by one through statsmodels would take minutes; here every fit of one shape is a slice of a
-``(B, n, p)`` array and Newton-Raphson runs on all of them together in numpy. statsmodels
-stays the reference these solvers are tested against (``tests/models/test_batch.py``) and
-the engine for the final fits with intervals.
+hundred weighted rows each: the histogram cells of :mod:`impactlink.skill`); every fit of
+one shape is a slice of a ``(B, n, p)`` array and Newton-Raphson runs on all of them
+together in numpy. statsmodels (``GLM``, ``OrderedModel``) and R's ``MASS::polr`` are the
+references these solvers are tested against (``tests/models``).
 """
 
 from __future__ import annotations
@@ -15,11 +22,23 @@ from dataclasses import dataclass
 import numpy as np
 
 from impactlink.errors import ModelError
+from impactlink.models import _links
+from impactlink.models._newton import (
+    _EPS,
+    check_batch,
+    check_start,
+    drop_empty_rows,
+    inverse,
+    mv,
+    newton,
+    quad,
+    sigmoid,
+    solve,
+    tv,
+)
 
 __all__ = ["BatchFit", "fit_logistic_batch", "fit_cumlogit_batch", "predict_logistic",
            "predict_cumlogit"]
-
-_EPS = 1e-300
 
 
 @dataclass(frozen=True)
@@ -29,7 +48,7 @@ class BatchFit:
     Attributes
     ----------
     coef : ndarray, shape (B, q)
-        Logistic: the coefficients of the columns of ``X``. Cumulative logit: the ``K-1``
+        Logistic: the coefficients of the columns of ``X``. Cumulative link: the ``K-1``
         cut-points first, then the slopes of the columns of ``X``.
     converged : ndarray of bool, shape (B,)
         True where the largest Newton step fell below ``tol``.
@@ -37,30 +56,17 @@ class BatchFit:
         Newton iterations used (the slowest fit of the batch).
     loglik : ndarray, shape (B,)
         Weighted log-likelihood at ``coef`` (without the ridge term).
+    cov : ndarray, shape (B, q, q), or None
+        Cumulative link fits with ``covariance=True``: the inverse of minus the (penalised)
+        Hessian of the log-likelihood at ``coef`` (observed information), in the order of
+        ``coef``; NaN for a fit whose Hessian is singular. None otherwise.
     """
 
     coef: np.ndarray
     converged: np.ndarray
     n_iter: int
     loglik: np.ndarray
-
-
-def _check_batch(X, y, w, name: str) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    X = np.asarray(X, dtype=float)
-    y = np.asarray(y, dtype=float)
-    w = np.ones_like(y) if w is None else np.asarray(w, dtype=float)
-    if X.ndim != 3:
-        raise ModelError(f"{name}: X must have shape (B, n, p); got shape {X.shape}")
-    if y.shape != X.shape[:2] or w.shape != X.shape[:2]:
-        raise ModelError(
-            f"{name}: y and w must have shape (B, n) = {X.shape[:2]}; got y {y.shape}, "
-            f"w {w.shape}"
-        )
-    if not (np.isfinite(X).all() and np.isfinite(y).all() and np.isfinite(w).all()):
-        raise ModelError(f"{name}: X, y and w must be finite; drop or fill NaN rows first")
-    if (w < 0).any():
-        raise ModelError(f"{name}: weights w must be >= 0; found {w.min()}")
-    return X, y, w
+    cov: np.ndarray | None = None
 
 
 # --------------------------------------------------------------------------- logistic
@@ -102,7 +108,7 @@ def fit_logistic_batch(
 
     Raises
     ------
-    ValueError
+    ModelError
         If shapes disagree, values are not finite, or weights are negative.
 
     Notes
@@ -118,10 +124,10 @@ def fit_logistic_batch(
     ----------
     McCullagh, P., Nelder, J. A. (1989). Generalized Linear Models, 2nd ed. Chapman & Hall.
     """
-    X, y, w = _check_batch(X, y, w, "fit_logistic_batch")
+    X, y, w = check_batch(X, y, w, "fit_logistic_batch")
     if ((y < 0) | (y > 1)).any():
         raise ModelError("fit_logistic_batch: y must lie in [0, 1] (event proportions)")
-    X, y, w = _drop_empty_rows(X, y, w)
+    X, y, w = drop_empty_rows(X, y, w)
     B, n, p = X.shape
     pen = np.full((B, p), float(ridge))
     pen[_constant_columns(X, w)] = 0.0
@@ -136,26 +142,26 @@ def fit_logistic_batch(
     cval = X[rows, np.argmax(w[rows] > 0, axis=1), first[rows]]
     beta[rows, first[rows]] = np.log(rate[rows] / (1 - rate[rows])) / cval
     if start is not None:
-        beta = _start(start, (B, p), "fit_logistic_batch")
+        beta = check_start(start, (B, p), "fit_logistic_batch")
     obj = _logit_objective(X, y, w, beta, pen)
 
     def newton_step(A, ba):
         Xa, ya, wa, pa = X[A], y[A], w[A], pen[A]
-        eta = _mv(Xa, ba)
-        mu = _sigmoid(eta)
-        grad = _tv(Xa, wa * (ya - mu)) - pa * ba
-        H = _quad(Xa, wa * mu * (1 - mu), Xa)
+        eta = mv(Xa, ba)
+        mu = sigmoid(eta)
+        grad = tv(Xa, wa * (ya - mu)) - pa * ba
+        H = quad(Xa, wa * mu * (1 - mu), Xa)
         H[:, np.arange(p), np.arange(p)] += pa + 1e-12
-        return _solve(H, grad), lambda bb: _logit_objective(Xa, ya, wa, bb, pa)
+        return solve(H, grad), lambda bb: _logit_objective(Xa, ya, wa, bb, pa)
 
-    converged, it = _newton(newton_step, beta, obj, max_iter=max_iter, tol=tol)
+    converged, it = newton(newton_step, beta, obj, max_iter=max_iter, tol=tol)
     ll = _logit_objective(X, y, w, beta, np.zeros_like(pen))
     return BatchFit(coef=beta, converged=converged, n_iter=it, loglik=ll)
 
 
 def predict_logistic(X: np.ndarray, coef: np.ndarray) -> np.ndarray:
     """Event probability ``1 / (1 + exp(-X @ coef))`` for ``X`` (B, n, p), coef (B, p)."""
-    return _sigmoid(np.einsum("bnp,bp->bn", np.asarray(X, float), np.asarray(coef, float)))
+    return sigmoid(np.einsum("bnp,bp->bn", np.asarray(X, float), np.asarray(coef, float)))
 
 
 def _constant_columns(X: np.ndarray, w: np.ndarray) -> np.ndarray:
@@ -166,124 +172,31 @@ def _constant_columns(X: np.ndarray, w: np.ndarray) -> np.ndarray:
     return (lo == hi) & (lo != 0) & np.isfinite(lo)
 
 
-def _start(start, shape, name) -> np.ndarray:
-    s = np.array(start, dtype=float)
-    if s.shape != shape or not np.isfinite(s).all():
-        raise ModelError(f"{name}: start must be finite with shape {shape}; got {s.shape}")
-    return s
-
-
-def _drop_empty_rows(X, y, w):
-    """Drop rows whose weight is zero in every fit of the batch (padding)."""
-    keep = (w > 0).any(0)
-    if keep.all() or not keep.any():
-        return X, y, w
-    return X[:, keep], y[:, keep], w[:, keep]
-
-
-def _mv(A: np.ndarray, v: np.ndarray) -> np.ndarray:
-    """``einsum("bnq,bq->bn")`` through batched BLAS matmul."""
-    return (A @ v[..., None])[..., 0]
-
-
-def _tv(A: np.ndarray, v: np.ndarray) -> np.ndarray:
-    """``einsum("bnq,bn->bq")``."""
-    return (v[:, None, :] @ A)[:, 0, :]
-
-
-def _quad(A: np.ndarray, v: np.ndarray, C: np.ndarray) -> np.ndarray:
-    """``einsum("bnq,bn,bnr->bqr")``: A^T diag(v) C per fit."""
-    return (A * v[..., None]).transpose(0, 2, 1) @ C
-
-
-def _sigmoid(z: np.ndarray) -> np.ndarray:
-    return 0.5 * (1.0 + np.tanh(0.5 * z))
-
-
-def _log_sigmoid(z: np.ndarray) -> np.ndarray:
-    return -np.logaddexp(0.0, -z)
-
-
 def _logit_objective(X, y, w, beta, pen) -> np.ndarray:
-    eta = _mv(X, beta)
+    eta = mv(X, beta)
     # y log s(eta) + (1 - y) log s(-eta) = y eta - log(1 + e^eta)
     softplus = np.maximum(eta, 0.0) + np.log1p(np.exp(-np.abs(eta)))
     ll = (w * (y * eta - softplus)).sum(1)
     return ll - 0.5 * (pen * beta**2).sum(1)
 
 
-def _solve(H: np.ndarray, g: np.ndarray) -> np.ndarray:
-    try:
-        return np.linalg.solve(H, g[..., None])[..., 0]
-    except np.linalg.LinAlgError:
-        return (np.linalg.pinv(H) @ g[..., None])[..., 0]
 
 
-def _newton(newton_step, beta, obj, *, max_iter: int, tol: float, valid=None
-            ) -> tuple[np.ndarray, int]:
-    """Newton-Raphson with step-halving on a batch of fits, updating ``beta`` (B, q) and
-    ``obj`` (B,) in place.
-
-    ``newton_step(A, beta[A])`` returns the Newton step of the fits ``A`` and their
-    objective as a function of candidate coefficients. Fits stop once their largest
-    absolute step is below ``tol``. Returns the converged flags (B,) and the iterations used.
-    """
-    converged = np.zeros(beta.shape[0], dtype=bool)
-    it = 0
-    for it in range(1, max_iter + 1):
-        active = ~converged
-        if not active.any():
-            it -= 1
-            break
-        # compute on views of all fits while most are active (no copies); on the
-        # remaining few once most have converged
-        A = slice(None) if active.mean() > 0.5 else np.flatnonzero(active)
-        ba = beta[A]
-        step, objective = newton_step(A, ba)
-        step[converged[A]] = 0.0
-        new, new_obj = _halve(objective, ba, step, obj[A], valid=valid)
-        beta[A] = new
-        obj[A] = new_obj
-        converged[A] |= np.abs(step).max(1) < tol
-    return converged, it
-
-
-def _halve(objective, beta, step, obj_old, *, max_halvings: int = 30, valid=None):
-    """Newton step with step-halving until the objective does not decrease (per fit)."""
-    scale = np.ones(beta.shape[0])
-    new = beta + step
-    new_obj = objective(new)
-    ok = new_obj >= obj_old - 1e-12 * np.abs(obj_old)
-    if valid is not None:
-        ok &= valid(new)
-    for _ in range(max_halvings):
-        if ok.all():
-            break
-        scale = np.where(ok, scale, scale * 0.5)
-        new = beta + scale[:, None] * step
-        new_obj = objective(new)
-        ok = new_obj >= obj_old - 1e-12 * np.abs(obj_old)
-        if valid is not None:
-            ok &= valid(new)
-    # fits whose step never improved keep their old values
-    new = np.where(ok[:, None], new, beta)
-    new_obj = np.where(ok, new_obj, obj_old)
-    return new, new_obj
-
-
-# --------------------------------------------------------------------------- cumulative logit
+# --------------------------------------------------------------------------- cumulative link
 def fit_cumlogit_batch(
     X: np.ndarray,
     y: np.ndarray,
     w: np.ndarray | None = None,
     *,
     n_levels: int | None = None,
-    ridge: float = 1e-6,
+    link: str = "logit",
+    ridge: float | np.ndarray = 1e-6,
     max_iter: int = 50,
     tol: float = 1e-8,
     start: np.ndarray | None = None,
+    covariance: bool = False,
 ) -> BatchFit:
-    """Fit ``B`` weighted cumulative-logit (proportional-odds) models at once.
+    """Fit ``B`` weighted cumulative link (proportional-odds) models at once.
 
     Parameters
     ----------
@@ -296,11 +209,21 @@ def fit_cumlogit_batch(
     n_levels : int, optional
         Number of levels K (default: ``max(y) + 1``). Every level should occur in each fit
         with positive weight; a level that never occurs sends its cut-point towards
-        infinity (held back by ``ridge``) and the fit reports ``converged=False``.
-    ridge : float, default 1e-6
-        Penalty on the slopes (not the cut-points).
-    max_iter, tol, start : as in :func:`fit_logistic_batch` (``start`` of shape (B, K-1+p),
-        cut-points increasing).
+        infinity and the fit reports ``converged=False``.
+    link : {"logit", "probit"}, default "logit"
+        The distribution function F (logistic: the proportional-odds model; standard
+        normal: the ordered probit). The function keeps the name of its common case.
+    ridge : float or ndarray of shape (p,) or (B, p), default 1e-6
+        Penalty ``ridge_j / 2 * beta_j^2`` on the slopes (not the cut-points): a number for
+        every slope, or one precision per slope (a normal prior of variance 1/ridge_j).
+        0 gives the maximum-likelihood fit.
+    max_iter : int, default 50
+    tol : float, default 1e-8
+        Convergence when the largest absolute Newton step is below ``tol``.
+    start : ndarray, shape (B, K-1+p), optional
+        Starting coefficients, cut-points increasing.
+    covariance : bool, default False
+        Also return ``cov``, the inverse of minus the penalised Hessian at the solution.
 
     Returns
     -------
@@ -310,20 +233,27 @@ def fit_cumlogit_batch(
 
     Raises
     ------
-    ValueError
+    ModelError
         If shapes disagree, values are not finite, weights are negative, levels are not
-        integers in 0..K-1, or ``K < 2``.
+        integers in 0..K-1, ``K < 2``, the link is unknown or ``ridge`` has a wrong shape.
 
     Notes
     -----
-    :math:`P(Y \\le k \\mid x) = F(\\theta_k - x^T\\beta)`, :math:`F` the logistic CDF
-    (McCullagh 1980, eq. 2.2; the sign convention of statsmodels' ``OrderedModel``: a
-    positive slope moves weight to higher levels). With :math:`a_k = \\theta_k - x^T\\beta`,
-    a row at level :math:`j` contributes :math:`\\log[F(a_j) - F(a_{j-1})]`
-    (:math:`a_{-1} = -\\infty`, :math:`a_{K-1} = \\infty`); the gradient and Hessian in
-    :math:`(\\theta, \\beta)` follow from the chain rule through the two active
-    :math:`a`'s. The log-likelihood is concave in :math:`(\\theta, \\beta)` (Pratt 1981), so
-    Newton-Raphson with step-halving (keeping the cut-points ordered) converges.
+    :math:`P(Y \\le k \\mid x) = F(\\theta_k - x^T\\beta)` (McCullagh 1980, eq. 2.2; the
+    sign convention of statsmodels' ``OrderedModel`` and R's ``MASS::polr``: a positive
+    slope moves weight to higher levels). With :math:`a_k = \\theta_k - x^T\\beta`, a row at
+    level :math:`j` contributes :math:`\\log[F(a_j) - F(a_{j-1})]`
+    (:math:`a_{-1} = -\\infty`, :math:`a_{K-1} = \\infty`); with :math:`P` that difference
+    and :math:`f = F'`, the derivatives in :math:`(a_j, a_{j-1})` are
+    :math:`f(a_j)/P`, :math:`-f(a_{j-1})/P`, :math:`f'(a_j)/P - (f(a_j)/P)^2`,
+    :math:`-f'(a_{j-1})/P - (f(a_{j-1})/P)^2` and :math:`f(a_j) f(a_{j-1})/P^2`, and the
+    gradient and Hessian in :math:`(\\theta, \\beta)` follow by the chain rule. When both
+    :math:`a`'s are positive, :math:`P` is computed as :math:`F(-a_{j-1}) - F(-a_j)` (F is
+    symmetric), which keeps its precision in the upper tail. For a log-concave F (logistic,
+    normal) the log-likelihood is concave in :math:`(\\theta, \\beta)` (Pratt 1981), so
+    Newton-Raphson with step-halving (keeping the cut-points ordered) converges; the
+    covariance is the inverse of the observed information (minus the Hessian), the same
+    quantity statsmodels' ``OrderedModel`` and ``GLM`` (canonical logit) report.
 
     References
     ----------
@@ -332,7 +262,8 @@ def fit_cumlogit_batch(
     Pratt, J. W. (1981). Concavity of the log likelihood. Journal of the American
     Statistical Association 76(373), 103-106.
     """
-    X, yf, w = _check_batch(X, y, w, "fit_cumlogit_batch")
+    X, yf, w = check_batch(X, y, w, "fit_cumlogit_batch")
+    _links.check_link(link)
     if np.any(yf != np.round(yf)) or (yf < 0).any():
         raise ModelError("fit_cumlogit_batch: y must hold integer levels 0..K-1")
     K = int(yf.max()) + 1 if n_levels is None else int(n_levels)
@@ -340,7 +271,7 @@ def fit_cumlogit_batch(
         raise ModelError(f"fit_cumlogit_batch: need at least 2 levels; got n_levels={K}")
     if yf.max() > K - 1:
         raise ModelError(f"fit_cumlogit_batch: y has level {int(yf.max())} >= n_levels={K}")
-    X, yf, w = _drop_empty_rows(X, yf, w)
+    X, yf, w = drop_empty_rows(X, yf, w)
     yi = yf.astype(np.int64)
     B, n, p = X.shape
     q = K - 1 + p
@@ -357,19 +288,19 @@ def fit_cumlogit_batch(
     has_l = yi > 0
 
     pen = np.zeros((B, q))
-    pen[:, K - 1:] = float(ridge)
-    # start: cut-points at the logits of the weighted cumulative proportions, slopes 0
+    pen[:, K - 1:] = _ridge(ridge, B, p)
+    # start: cut-points at F^-1 of the weighted cumulative proportions, slopes 0
     counts = np.stack([(w * (yi == k)).sum(1) for k in range(K)], axis=1) + 0.5
     cum = np.cumsum(counts, 1)[:, :-1] / counts.sum(1, keepdims=True)
     theta = np.zeros((B, q))
-    theta[:, : K - 1] = np.log(cum / (1 - cum))
+    theta[:, : K - 1] = _links.ppf(cum, link)
     if start is not None:
-        theta = _start(start, (B, q), "fit_cumlogit_batch")
+        theta = check_start(start, (B, q), "fit_cumlogit_batch")
         if K > 2 and not (np.diff(theta[:, : K - 1], axis=1) > 0).all():
             raise ModelError("fit_cumlogit_batch: start cut-points must be increasing")
 
-    def objective(par, Du=Du, Dl=Dl, hu=has_u, hl=has_l, w=w, pen=pen):
-        return _cum_loglik(par, Du, Dl, hu, hl, w) - 0.5 * (pen * par**2).sum(1)
+    def objective(par):
+        return _cum_loglik(par, Du, Dl, has_u, has_l, w, link) - 0.5 * (pen * par**2).sum(1)
 
     def ordered(par):
         if K <= 2:
@@ -380,52 +311,97 @@ def fit_cumlogit_batch(
 
     def newton_step(A, par):
         du, dl, hu, hl, wa, pa = Du[A], Dl[A], has_u[A], has_l[A], w[A], pen[A]
-        au = np.where(hu, _mv(du, par), np.inf)
-        al = np.where(hl, _mv(dl, par), -np.inf)
-        Fu, Fl = _sigmoid(au), _sigmoid(al)
-        fu, fl = Fu * (1 - Fu), Fl * (1 - Fl)
-        P = np.maximum(Fu - Fl, 1e-300)
-        gu, gl = fu / P, -fl / P
-        huu = fu * (1 - 2 * Fu) / P - gu**2
-        hll = -fl * (1 - 2 * Fl) / P - gl**2
-        hul = fu * fl / P**2
-        grad = _tv(du, wa * gu) + _tv(dl, wa * gl)
-        grad -= pa * par
-        cross = _quad(du, wa * hul, dl)
-        H = (_quad(du, wa * huu, du) + _quad(dl, wa * hll, dl)
-             + cross + cross.transpose(0, 2, 1))
-        H[:, np.arange(q), np.arange(q)] -= pa + 1e-12
+        grad, H = _cum_derivatives(par, du, dl, hu, hl, wa, pa, link)
+        H[:, np.arange(q), np.arange(q)] -= 1e-12
 
         def obj_a(pp):
-            return _cum_loglik(pp, du, dl, hu, hl, wa) - 0.5 * (pa * pp**2).sum(1)
+            return _cum_loglik(pp, du, dl, hu, hl, wa, link) - 0.5 * (pa * pp**2).sum(1)
 
-        return _solve(-H, grad), obj_a
+        return solve(-H, grad), obj_a
 
-    converged, it = _newton(newton_step, theta, obj, max_iter=max_iter, tol=tol, valid=ordered)
-    ll = _cum_loglik(theta, Du, Dl, has_u, has_l, w)
-    return BatchFit(coef=theta, converged=converged, n_iter=it, loglik=ll)
+    converged, it = newton(newton_step, theta, obj, max_iter=max_iter, tol=tol, valid=ordered)
+    ll = _cum_loglik(theta, Du, Dl, has_u, has_l, w, link)
+    cov = None
+    if covariance:
+        _, H = _cum_derivatives(theta, Du, Dl, has_u, has_l, w, pen, link)
+        cov = inverse(-H)
+        cov = 0.5 * (cov + cov.transpose(0, 2, 1))
+    return BatchFit(coef=theta, converged=converged, n_iter=it, loglik=ll, cov=cov)
 
 
-def predict_cumlogit(X: np.ndarray, coef: np.ndarray, n_levels: int) -> np.ndarray:
-    """Level probabilities, shape (B, n, K), of cumulative-logit fits.
+def predict_cumlogit(X: np.ndarray, coef: np.ndarray, n_levels: int, *,
+                     link: str = "logit") -> np.ndarray:
+    """Level probabilities, shape (B, n, K), of cumulative link fits.
 
     ``X`` (B, n, p) without intercept; ``coef`` (B, K-1+p) as returned by
-    :func:`fit_cumlogit_batch`.
+    :func:`fit_cumlogit_batch` with the same ``link``.
     """
     X = np.asarray(X, float)
     coef = np.asarray(coef, float)
     K = int(n_levels)
     xb = np.einsum("bnp,bp->bn", X, coef[:, K - 1:])
     a = coef[:, None, : K - 1] - xb[..., None]
-    F = _sigmoid(a)
+    F = _links.cdf(a, _links.check_link(link))
     F = np.concatenate([np.zeros(F.shape[:2] + (1,)), F, np.ones(F.shape[:2] + (1,))], axis=2)
     return np.maximum(np.diff(F, axis=2), 0.0)
 
 
-def _cum_loglik(par, Du, Dl, has_u, has_l, w) -> np.ndarray:
-    au = np.where(has_u, _mv(Du, par), np.inf)
-    al = np.where(has_l, _mv(Dl, par), -np.inf)
-    P = _sigmoid(au) - _sigmoid(al)
-    # for precision in the far tails use the complementary form when both are large
-    P = np.where(P > 0, P, 0.0)
+def _ridge(ridge, B: int, p: int) -> np.ndarray:
+    """The slope penalties as a (B, p) array, or a ModelError naming the shape expected."""
+    r = np.asarray(ridge, dtype=float)
+    try:
+        r = np.broadcast_to(r, (B, p))
+    except ValueError:
+        raise ModelError(
+            f"fit_cumlogit_batch: ridge must be a number or have shape (p,) = ({p},) or "
+            f"(B, p) = ({B}, {p}); got shape {r.shape}"
+        ) from None
+    if not (np.isfinite(r).all() and (r >= 0).all()):
+        raise ModelError("fit_cumlogit_batch: ridge must be finite and >= 0")
+    return r
+
+
+def _bounds(par, Du, Dl, has_u, has_l):
+    """Upper and lower arguments a_j, a_{j-1} (+-inf where absent), and the tail sign s."""
+    au = np.where(has_u, mv(Du, par), np.inf)
+    al = np.where(has_l, mv(Dl, par), -np.inf)
+    # s = -1 where both arguments are positive: evaluate F(-a) there (F is symmetric)
+    s = np.where(al > 0, -1.0, 1.0)
+    return au, al, s
+
+
+def _cum_loglik(par, Du, Dl, has_u, has_l, w, link: str) -> np.ndarray:
+    au, al, s = _bounds(par, Du, Dl, has_u, has_l)
+    P = s * (_links.cdf(s * au, link) - _links.cdf(s * al, link))
     return (w * np.log(np.maximum(P, _EPS))).sum(1)
+
+
+def _cum_derivatives(par, Du, Dl, has_u, has_l, w, pen, link: str):
+    """Gradient (B, q) and Hessian (B, q, q) of the penalised log-likelihood."""
+    au, al, s = _bounds(par, Du, Dl, has_u, has_l)
+    Gu, fu, dfu = _link_terms(au, s, link)
+    Gl, fl, dfl = _link_terms(al, s, link)
+    P = np.maximum(s * (Gu - Gl), _EPS)
+    gu, gl = fu / P, -fl / P
+    huu = dfu / P - gu**2
+    hll = -dfl / P - gl**2
+    hul = fu * fl / P**2
+    grad = tv(Du, w * gu) + tv(Dl, w * gl) - pen * par
+    cross = quad(Du, w * hul, Dl)
+    H = quad(Du, w * huu, Du) + quad(Dl, w * hll, Dl) + cross + cross.transpose(0, 2, 1)
+    q = par.shape[1]
+    H[:, np.arange(q), np.arange(q)] -= pen
+    return grad, H
+
+
+def _link_terms(a: np.ndarray, s: np.ndarray, link: str):
+    """F(s a), f(a) and f'(a) for the symmetric link F (f = F'); f = f' = 0 at +-inf."""
+    G = _links.cdf(s * a, link)
+    if link == "logit":
+        f = G * (1.0 - G)  # f(a) = F(a) F(-a) whatever the sign s
+        df = s * f * (1.0 - 2.0 * G)  # f'(a) = f(a) (1 - 2 F(a)) and F(a) = G or 1 - G
+        return G, f, df
+    fin = np.isfinite(a)
+    az = np.where(fin, a, 0.0)
+    f = np.where(fin, np.exp(-0.5 * az**2) / np.sqrt(2.0 * np.pi), 0.0)
+    return G, f, -az * f

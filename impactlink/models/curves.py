@@ -11,7 +11,8 @@ import pandas as pd
 
 from impactlink.errors import ModelError
 from impactlink.models import _links
-from impactlink.models.fit import ImpactModel, _check_ci, _lp_var
+from impactlink.models.predict import check_ci, lp_var
+from impactlink.models.result import ImpactModel
 
 __all__ = ["impact_curves", "crossings", "plot_impact_curves", "CURVE_COLUMNS",
            "CROSSING_COLUMNS"]
@@ -68,7 +69,7 @@ def impact_curves(
     linear predictor (see :meth:`ImpactModel.predict_interval`). Under the index convention
     (negative = dry) the probability usually rises as x falls.
     """
-    _check_ci(ci)
+    check_ci(ci)
     if not isinstance(model, ImpactModel):
         raise TypeError(f"model must be an ImpactModel; got {type(model).__name__}")
     info = {**model.meta, **(meta or {})}
@@ -143,7 +144,7 @@ def crossings(
     Fieller, E. C. (1954). Some problems in interval estimation. Journal of the Royal
     Statistical Society B 16(2), 175-185.
     """
-    _check_ci(ci)
+    check_ci(ci)
     if not isinstance(model, ImpactModel):
         raise TypeError(f"model must be an ImpactModel; got {type(model).__name__}")
     probs = tuple(float(p) for p in probs)
@@ -275,7 +276,7 @@ def _reference_lp(m: ImpactModel, x: np.ndarray) -> tuple[np.ndarray, np.ndarray
     Xd = np.column_stack([
         x if c == primary else np.full(x.size, ref.get(c, 0.0)) for c in m.predictors
     ])
-    return _lp_var(m, Xd)
+    return lp_var(m, Xd)
 
 
 def _first_crossing(x: np.ndarray, g: np.ndarray) -> float:

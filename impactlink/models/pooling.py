@@ -34,7 +34,7 @@ N_QUADRATURE = 9
 
 def county_partial_pooling(whole, members: dict, Xall: pd.DataFrame, y: np.ndarray,
                            frame: pd.DataFrame, *, note: str = ""):
-    """County-pooled :class:`~impactlink.models.fit.ImpactModel` from region fits.
+    """County-pooled :class:`~impactlink.models.result.ImpactModel` from region fits.
 
     Parameters
     ----------

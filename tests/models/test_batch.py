@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
+from impactlink.errors import ModelError
 from impactlink.models.batch import (
     fit_cumlogit_batch,
     fit_logistic_batch,
@@ -78,11 +79,11 @@ def test_logistic_separation_stays_finite():
 
 def test_logistic_errors_name_the_problem():
     X = np.ones((2, 5, 2))
-    with pytest.raises(ValueError, match=r"y and w must have shape \(B, n\)"):
+    with pytest.raises(ModelError, match=r"y and w must have shape \(B, n\)"):
         fit_logistic_batch(X, np.zeros((2, 4)), np.ones((2, 4)))
-    with pytest.raises(ValueError, match=r"\[0, 1\]"):
+    with pytest.raises(ModelError, match=r"\[0, 1\]"):
         fit_logistic_batch(X, np.full((2, 5), 2.0), np.ones((2, 5)))
-    with pytest.raises(ValueError, match="must have shape \\(B, n, p\\)"):
+    with pytest.raises(ModelError, match="must have shape \\(B, n, p\\)"):
         fit_logistic_batch(np.ones((5, 2)), np.zeros(5), np.ones(5))
 
 
@@ -96,11 +97,15 @@ def _ordinal_data(seed, n=400, K=4):
     return x[:, None], y, w
 
 
-def test_cumlogit_matches_statsmodels_orderedmodel():
-    # reference: statsmodels OrderedModel(distr="logit"), P(Y<=k) = F(theta_k - x b); its
+@pytest.mark.parametrize("link", ["logit", "probit"])
+def test_cumlogit_matches_statsmodels_orderedmodel(link):
+    # reference: statsmodels OrderedModel(distr=link), P(Y<=k) = F(theta_k - x b); its
     # thresholds are parametrised as theta_0, log(theta_k - theta_{k-1}). OrderedModel has
     # no frequency weights, so rows are expanded by their integer weights. Tolerance 1e-5:
-    # statsmodels stops its BFGS/Newton at about that precision.
+    # statsmodels stops its Newton at about that precision. Covariance: OrderedModel's
+    # cov_params() (inverse of its finite-difference Hessian, mapped to the thresholds by
+    # the Jacobian) against our analytic observed information; the finite differences are
+    # good to a few 1e-5 relative, hence rtol 1e-4.
     from statsmodels.miscmodels.ordinal_model import OrderedModel
 
     K = 4
@@ -108,19 +113,47 @@ def test_cumlogit_matches_statsmodels_orderedmodel():
     X = np.stack([d[0] for d in data])
     y = np.stack([d[1] for d in data])
     w = np.stack([d[2] for d in data])
-    res = fit_cumlogit_batch(X, y, w, n_levels=K, ridge=0.0)
-    assert res.converged.all()
+    res = fit_cumlogit_batch(X, y, w, n_levels=K, link=link, ridge=0.0, covariance=True)
+    assert res.converged.all() and res.cov is not None
     for b, (xb, yb, wb) in enumerate(data):
         reps = wb.astype(int)
         xe, ye = np.repeat(xb, reps, axis=0), np.repeat(yb, reps)
-        ref = OrderedModel(ye, xe, distr="logit").fit(method="newton", disp=False,
-                                                       maxiter=200, tol=1e-9)
+        ref = OrderedModel(ye, xe, distr=link).fit(method="newton", disp=False,
+                                                    maxiter=200, tol=1e-9)
         slope = ref.params[0]
         th = ref.params[1:]
         cuts = np.cumsum(np.r_[th[0], np.exp(th[1:])])
         np.testing.assert_allclose(res.coef[b, : K - 1], cuts, atol=1e-5)
         np.testing.assert_allclose(res.coef[b, K - 1], slope, atol=1e-5)
         np.testing.assert_allclose(res.loglik[b], ref.llf, rtol=1e-8)
+        # Jacobian of (theta_0, log increments, slope) -> (cut-points, slope), our order
+        J = np.zeros((K, K))
+        for k in range(K - 1):
+            J[k, 1] = 1.0
+            J[k, 2: k + 2] = np.exp(th[1: k + 1])
+        J[K - 1, 0] = 1.0
+        np.testing.assert_allclose(res.cov[b], J @ np.asarray(ref.cov_params()) @ J.T,
+                                   rtol=1e-4)
+
+
+def test_per_slope_ridge_is_a_normal_prior_on_each_slope():
+    # A ridge of precision r_j on slope j maximises loglik - sum r_j b_j^2 / 2; a huge ridge
+    # on one slope pins it near 0 while the other is left free: with r = (0, 1e12) the fit
+    # equals the one-predictor fit without the pinned column (reference: that fit, 1e-6).
+    X, y, w = _ordinal_data(7, K=3)
+    rng = np.random.default_rng(7)
+    X2 = np.concatenate([X, rng.normal(size=X.shape)], axis=1)
+    pinned = fit_cumlogit_batch(X2[None], y[None], w[None], n_levels=3,
+                                ridge=np.array([0.0, 1e12]))
+    alone = fit_cumlogit_batch(X[None], y[None], w[None], n_levels=3, ridge=0.0)
+    np.testing.assert_allclose(pinned.coef[0, :3], alone.coef[0], atol=1e-6)
+    assert abs(pinned.coef[0, 3]) < 1e-6
+    with pytest.raises(ModelError, match=r"ridge must be a number or have shape \(p,\)"):
+        fit_cumlogit_batch(X2[None], y[None], w[None], ridge=np.ones(3))
+    with pytest.raises(ModelError, match="ridge must be finite and >= 0"):
+        fit_cumlogit_batch(X2[None], y[None], w[None], ridge=-1.0)
+    with pytest.raises(ModelError, match="link must be one of"):
+        fit_cumlogit_batch(X2[None], y[None], w[None], link="cloglog")
 
 
 def test_cumlogit_two_levels_equals_logistic():
@@ -146,11 +179,11 @@ def test_cumlogit_probabilities_sum_to_one_and_are_ordered():
 
 
 def test_cumlogit_errors_name_the_problem():
-    with pytest.raises(ValueError, match="integer levels"):
+    with pytest.raises(ModelError, match="integer levels"):
         fit_cumlogit_batch(np.ones((1, 3, 1)), np.array([[0.5, 1, 0]]), np.ones((1, 3)))
-    with pytest.raises(ValueError, match="at least 2 levels"):
+    with pytest.raises(ModelError, match="at least 2 levels"):
         fit_cumlogit_batch(np.ones((1, 3, 1)), np.zeros((1, 3)), np.ones((1, 3)))
-    with pytest.raises(ValueError, match="n_levels=2"):
+    with pytest.raises(ModelError, match="n_levels=2"):
         fit_cumlogit_batch(np.ones((1, 3, 1)), np.array([[0, 1, 2]]), np.ones((1, 3)),
                            n_levels=2)
 
@@ -160,8 +193,24 @@ def test_warm_start_gives_the_same_fit_and_bad_start_is_named():
     cold = fit_logistic_batch(X[None], y[None], w[None], ridge=0.0)
     warm = fit_logistic_batch(X[None], y[None], w[None], ridge=0.0, start=cold.coef + 0.3)
     np.testing.assert_allclose(warm.coef, cold.coef, rtol=1e-7)
-    with pytest.raises(ValueError, match=r"start must be finite with shape \(1, 2\)"):
+    with pytest.raises(ModelError, match=r"start must be finite with shape \(1, 2\)"):
         fit_logistic_batch(X[None], y[None], w[None], start=np.zeros((1, 3)))
-    with pytest.raises(ValueError, match="start cut-points must be increasing"):
+    with pytest.raises(ModelError, match="start cut-points must be increasing"):
         fit_cumlogit_batch(np.ones((1, 3, 1)), np.array([[0, 1, 2]]), np.ones((1, 3)),
                            start=np.array([[1.0, 0.0, 0.0]]))
+
+
+@pytest.mark.parametrize("link, cuts", [("logit", (40.0, 41.0)), ("probit", (8.0, 9.0))])
+def test_loglik_keeps_its_precision_in_the_upper_tail(link, cuts):
+    # P(Y = 1) = F(c_2) - F(c_1) with both far in the upper tail is a difference of two
+    # numbers that round to 1 (it would come out 0, log -inf); the solver evaluates
+    # F(-c_1) - F(-c_2) instead (F symmetric). Reference: scipy's expit / ndtr of the
+    # negated arguments (e.g. the normal tail beyond 8 sd, 6.22e-16), rtol 1e-12.
+    # max_iter=0 evaluates the log-likelihood at the start values.
+    from scipy import special
+
+    F = special.expit if link == "logit" else special.ndtr
+    res = fit_cumlogit_batch(np.zeros((1, 2, 1)), np.array([[1, 1]]), None, n_levels=3,
+                             link=link, start=np.array([[cuts[0], cuts[1], 0.0]]), max_iter=0)
+    expected = 2.0 * np.log(F(-cuts[0]) - F(-cuts[1]))
+    np.testing.assert_allclose(res.loglik[0], expected, rtol=1e-12)

@@ -8,6 +8,7 @@ import pytest
 from impact_targets import make_target, simulate_binary
 from scipy import special
 
+from impactlink.errors import ModelError
 from impactlink.models import crossings, fit_impact_model, impact_curves, plot_impact_curves
 from impactlink.models._design import DesignSpec
 from impactlink.models.curves import CROSSING_COLUMNS, CURVE_COLUMNS
@@ -131,15 +132,15 @@ def test_failed_model_gives_empty_frames():
 
 def test_curve_error_messages():
     m = _hand_model()
-    with pytest.raises(ValueError, match="ci must be strictly between 0 and 1"):
+    with pytest.raises(ModelError, match="ci must be strictly between 0 and 1"):
         impact_curves(m, ci=1.5)
-    with pytest.raises(ValueError, match="probs must be probabilities"):
+    with pytest.raises(ModelError, match="probs must be probabilities"):
         crossings(m, probs=(10, 25))
-    with pytest.raises(ValueError, match="grid must be a non-empty array"):
+    with pytest.raises(ModelError, match="grid must be a non-empty array"):
         impact_curves(m, grid=np.array([np.nan]))
     with pytest.raises(TypeError, match="ImpactModel"):
         impact_curves("model")
-    with pytest.raises(ValueError, match="curves lacks column"):
+    with pytest.raises(ModelError, match="curves lacks column"):
         plot_impact_curves(pd.DataFrame({"x": [0.0]}))
     x, y = simulate_binary(100, seed=1)
     assert fit_impact_model(make_target(y), x).ok

@@ -7,41 +7,66 @@ import pandas as pd
 import pytest
 from impact_targets import make_target, simulate_binary
 
+from impactlink.errors import ModelError
 from impactlink.models import ImpactModel, fit_impact_model
-from impactlink.models._penalised import fit_cumulative
 
 
 # ------------------------------------------------------------------ equivalences
 @pytest.mark.parametrize("link", ["logit", "probit"])
-def test_two_level_ordinal_equals_logistic(link):
-    # A cumulative link model with two levels is the binary GLM with the same link
-    # (McCullagh 1980): the threshold is minus the intercept. Both optimisers reach
-    # the optimum to ~1e-6, so rtol 1e-4.
+@pytest.mark.parametrize("kind", ["binary", "ordinal"])
+def test_binary_and_two_level_ordinal_match_statsmodels_glm(link, kind):
+    # Reference: statsmodels GLM Binomial with the same link, fitted by Newton-Raphson
+    # (method="newton"), so that its cov_params() is the inverse observed information
+    # (IRLS would report the expected information, which for probit differs by ~1 %).
+    # A cumulative link model with two levels is that GLM (McCullagh 1980): the threshold
+    # is minus the intercept. Both solvers converge to ~1e-10: rtol 1e-7.
+    import statsmodels.api as sm
+
     x, y = simulate_binary(600, seed=3)
-    binary = fit_impact_model(make_target(y), x, link=link)
-    ordinal = fit_impact_model(make_target(y, kind="ordinal"), x, link=link)
-    assert binary.method == "glm_binomial" and ordinal.method == "ordered_model"
-    np.testing.assert_allclose(ordinal.params.to_numpy(), binary.params.to_numpy(), rtol=1e-4)
-    # Covariances: for the canonical logit both use the observed information (rtol 1e-3).
-    # For probit, statsmodels' GLM (IRLS) reports the expected information and
-    # OrderedModel the observed one; they differ by O(1/sqrt(n)), here about 1 %.
-    tol = 1e-3 if link == "logit" else 3e-2
-    np.testing.assert_allclose(ordinal.cov.to_numpy(), binary.cov.to_numpy(), rtol=tol)
-    np.testing.assert_allclose(ordinal.predict(x[:20]), binary.predict(x[:20]), atol=1e-6)
+    lk = sm.families.links.Logit() if link == "logit" else sm.families.links.Probit()
+    ref = sm.GLM(y, sm.add_constant(x), family=sm.families.Binomial(link=lk)).fit(
+        method="newton", maxiter=200, tol=1e-12)
+    T = np.array([[0.0, 1.0], [-1.0, 0.0]])  # (const, slope) -> (slope, cut_1)
+    m = fit_impact_model(make_target(y, kind=kind), x, link=link)
+    assert m.method == ("glm_binomial" if kind == "binary" else "ordered_model")
+    np.testing.assert_allclose(m.params.to_numpy(), T @ np.asarray(ref.params), rtol=1e-7)
+    np.testing.assert_allclose(m.cov.to_numpy(), T @ np.asarray(ref.cov_params()) @ T.T,
+                               rtol=1e-7)
+    np.testing.assert_allclose(m.loglik, ref.llf, rtol=1e-10)
 
 
-def test_own_solver_without_penalty_equals_statsmodels():
-    # Cross-implementation: the numpy/scipy fallback solver with the prior switched off must
-    # reproduce statsmodels OrderedModel (same likelihood, two optimisers; 1e-5).
-    rng = np.random.default_rng(5)
-    x = rng.normal(size=(500, 2))
-    eta = x @ np.array([-1.2, 0.5])
-    y = np.digitize(eta + rng.logistic(size=500), [0.3, 1.8])
-    m = fit_impact_model(make_target(y), {"a": x[:, 0], "b": x[:, 1]})
-    own = fit_cumulative(x, y, 2, "logit", prior_sd=None)
-    np.testing.assert_allclose(own["beta"], m.beta, atol=1e-5)
-    np.testing.assert_allclose(own["cuts"], m.cuts, atol=1e-5)
-    np.testing.assert_allclose(own["cov"], m.cov.to_numpy(), rtol=1e-3, atol=1e-7)
+@pytest.mark.parametrize("case", ["binary", "ordinal"])
+def test_ridge_refit_maximises_the_penalised_statsmodels_likelihood(case):
+    # Cross-implementation of the separation fallback: it must maximise statsmodels'
+    # OrderedModel log-likelihood minus the ridge 0.5 * prec * b^2, prec = (2 sd(x) / 2.5)^2,
+    # here maximised by scipy BFGS (gtol 1e-9: atol 1e-5 on the parameters). Its covariance
+    # is the inverse of minus the penalised Hessian: statsmodels' central-difference Hessian
+    # (approx_hess3) of the same function, accurate to ~1e-6 relative: rtol 1e-4.
+    from scipy import optimize
+    from statsmodels.miscmodels.ordinal_model import OrderedModel
+    from statsmodels.tools.numdiff import approx_hess3
+
+    rng = np.random.default_rng(9 if case == "ordinal" else 4)
+    x = rng.normal(size=300)
+    y = np.digitize(-x, [0.0, 1.0]) if case == "ordinal" else (x < -0.5).astype(int)
+    K = int(y.max())
+    m = fit_impact_model(make_target(y), x)
+    assert m.ok and m.method == "ridge_cumulative_link", m.reason
+    mod = OrderedModel(y, x[:, None], distr="logit")
+    prec = (2.0 * x.std() / 2.5) ** 2
+
+    def penalised(z):  # z = (slope, cut_1..cut_K), our threshold form
+        if K > 1 and np.any(np.diff(z[1:]) <= 0):
+            return -np.inf
+        sm_params = np.r_[z[0], z[1], np.log(np.diff(z[1:]))]
+        return mod.loglike(sm_params) - 0.5 * prec * z[0] ** 2
+
+    start = np.r_[0.0, np.arange(K, dtype=float)]
+    res = optimize.minimize(lambda z: -penalised(z), start, method="BFGS",
+                            options={"gtol": 1e-9, "maxiter": 5000})
+    np.testing.assert_allclose(m.params.to_numpy(), res.x, atol=1e-5)
+    H = approx_hess3(m.params.to_numpy(), penalised)
+    np.testing.assert_allclose(m.cov.to_numpy(), np.linalg.inv(-H), rtol=1e-4)
 
 
 def test_probabilities_are_ordered_and_hand_checked():
@@ -149,7 +174,7 @@ def test_index_persistence_and_both_are_predictor_sets():
     assert abs(both.params["persistence_4"] - 1.2) < 3 * se[1]
     assert both.loglik > index_only.loglik and both.loglik > pers_only.loglik
     # the model needs the covariate at prediction time, by name
-    with pytest.raises(ValueError, match="persistence_4"):
+    with pytest.raises(ModelError, match="persistence_4"):
         both.predict(x[:3], frame=pd.DataFrame({"other": [0, 0, 0]}))
     p = both.predict(x[:3], frame=pd.DataFrame({"persistence_4": [1.0, 1.0, 1.0]}))
     q = both.predict(x[:3], frame=pd.DataFrame({"persistence_4": [0.0, 0.0, 0.0]}))
@@ -178,7 +203,7 @@ def test_seasonal_harmonics_recover_planted_season():
     frame = pd.DataFrame({"season": np.arange(1, 53)})
     p = m.predict(np.zeros(52), frame=frame)[:, 0]
     assert abs(int(np.argmax(p)) + 1 - 30) <= 4
-    with pytest.raises(ValueError, match="season"):
+    with pytest.raises(ModelError, match="season"):
         m.predict(np.zeros(3))
 
 
@@ -204,7 +229,7 @@ def test_traits_are_merged_and_standardised():
     assert "non-numeric" in m.reason and "constant" in m.reason
     se = np.sqrt(m.cov.iloc[1, 1])
     assert abs(m.params["irrigated_pct"] + 0.8) < 3 * se
-    with pytest.raises(ValueError, match="county_id"):
+    with pytest.raises(ModelError, match="county_id"):
         fit_impact_model(make_target(y, county_id=cid), x, traits=traits.drop(columns="county_id"))
 
 
@@ -224,26 +249,26 @@ def test_error_messages_name_the_argument():
     t = make_target(y)
     with pytest.raises(TypeError, match="Target"):
         fit_impact_model(t.frame, x)
-    with pytest.raises(ValueError, match="link must be one of"):
+    with pytest.raises(ModelError, match="link must be one of"):
         fit_impact_model(t, x, link="cloglog")
-    with pytest.raises(ValueError, match="pooling must be one of"):
+    with pytest.raises(ModelError, match="pooling must be one of"):
         fit_impact_model(t, x, pooling="state")
-    with pytest.raises(ValueError, match="99 values but the target frame has 100 rows"):
+    with pytest.raises(ModelError, match="99 values but the target frame has 100 rows"):
         fit_impact_model(t, x[:99])
-    with pytest.raises(ValueError, match="covariates .*'persistence_2'.* not columns"):
+    with pytest.raises(ModelError, match="covariates .*'persistence_2'.* not columns"):
         fit_impact_model(t, x, covariates=("persistence_2",))
-    with pytest.raises(ValueError, match="1-D array"):
+    with pytest.raises(ModelError, match="1-D array"):
         fit_impact_model(t, np.ones((100, 2)))
     bad = make_target(np.r_[y[:-1], 3], levels=("none", "impact"))
-    with pytest.raises(ValueError, match="outside 0..1"):
+    with pytest.raises(ModelError, match="outside 0..1"):
         fit_impact_model(bad, x)
     three = make_target(np.r_[y[:-1], 2], kind="binary", levels=("a", "b", "c"))
-    with pytest.raises(ValueError, match="is binary but has 3 levels"):
+    with pytest.raises(ModelError, match="is binary but has 3 levels"):
         fit_impact_model(three, x)
     m = fit_impact_model(t, x)
-    with pytest.raises(ValueError, match="ci must be strictly between 0 and 1"):
+    with pytest.raises(ModelError, match="ci must be strictly between 0 and 1"):
         m.predict_interval(x, ci=90)
-    with pytest.raises(ValueError, match="lacks feature"):
+    with pytest.raises(ModelError, match="lacks feature"):
         m.predict({"spi": x})
 
 

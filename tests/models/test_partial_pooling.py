@@ -8,6 +8,7 @@ import pytest
 from impact_targets import make_target
 from scipy import integrate, optimize, special
 
+from impactlink.errors import ModelError
 from impactlink.models import fit_impact_model
 from impactlink.models.pooling import estimate_county_deviations
 
@@ -156,8 +157,8 @@ def test_pooling_errors_name_the_missing_column():
     frame = t.frame.drop(columns="region")
     t_nr = make_target(frame["level"].to_numpy(), county_id=frame["county_id"].to_numpy())
     object.__setattr__(t_nr, "frame", t_nr.frame.drop(columns="region"))
-    with pytest.raises(ValueError, match="'region' column"):
+    with pytest.raises(ModelError, match="'region' column"):
         fit_impact_model(t_nr, x, pooling="region")
     m = fit_impact_model(t, x, pooling="county")
-    with pytest.raises(ValueError, match="'region' column"):
+    with pytest.raises(ModelError, match="'region' column"):
         m.predict(np.zeros(1), frame=pd.DataFrame({"county_id": ["c01"]}))
