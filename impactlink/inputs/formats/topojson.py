@@ -140,10 +140,14 @@ def read_topojson_counties(path: str | Path, *, county_ids: Iterable[str] | None
 
 
 def _geoid_text(ids: pd.Series) -> pd.Series:
-    """GEOIDs as text; ids stored as JSON numbers (leading zero lost) are zero-padded to 5."""
+    """GEOIDs as text. Ids written as JSON numbers (``1001``: the leading zero is lost) come
+    back from GDAL as numbers or digit strings shorter than 5; they are zero-padded to 5."""
     if pd.api.types.is_numeric_dtype(ids.dtype):
-        return ids.map(lambda v: "" if pd.isna(v) else f"{int(v):05d}")
-    return ids.astype("string").fillna("").str.strip().astype(str)
+        text = ids.map(lambda v: "" if pd.isna(v) else str(int(v)))
+    else:
+        text = ids.astype("string").fillna("").str.strip()
+    short = text.str.fullmatch(r"\d{1,4}")
+    return text.where(~short, text.str.zfill(5)).astype(str)
 
 
 def _to_geographic(gdf, path: Path):
