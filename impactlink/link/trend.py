@@ -314,16 +314,18 @@ def _polynomial_loo(x, v, train, fold, degree: int, robust: Robust) -> np.ndarra
     full_rank = np.linalg.matrix_rank(A) == X.shape[1]  # weights > 0 keep the rank
     beta = _wls(X, y, w, full_rank)
     if robust != "none":
-        for _ in range(200):  # IRLS until the coefficients settle
+        active = np.isfinite(beta).all(axis=-1)  # (county, fold) systems still iterating
+        for _ in range(200):  # IRLS until every system's coefficients settle
             r = y - np.einsum("cfp,np->cfn", beta, X)
             scale = _masked_median(np.abs(r), train) / MAD_NORMAL
             z = r / np.maximum(scale, 1e-12)[..., None]
             rw = (np.minimum(1.0, HUBER_T / np.maximum(np.abs(z), 1e-300)) if robust == "huber"
                   else np.where(np.abs(z) < BISQUARE_C, (1 - (z / BISQUARE_C) ** 2) ** 2, 0.0))
             new = _wls(X, y, w * rw, full_rank)
-            done = np.nanmax(np.abs(new - beta)) < 1e-10 * (1 + np.nanmax(np.abs(beta)))
-            beta = new
-            if done:
+            step = np.abs(new - beta).max(axis=-1, initial=0.0)
+            beta = np.where(active[..., None], new, beta)  # a settled system stays put
+            active &= step > 1e-10 * (1 + np.abs(beta).max(axis=-1, initial=0.0))
+            if not active.any():
                 break
     return np.einsum("cjp,jp->cj", beta[:, fold, :], X)
 
