@@ -308,3 +308,13 @@ def test_topojson_errors(tmp_path):
     csvfile = tmp_path / "x.csv"
     csvfile.write_text("a,b\n1,2\n")
     assert not sniff_topojson(csvfile)
+
+
+@pytest.mark.parametrize("name", ["quickstats", "zones"])
+def test_docstring_examples_run(name):
+    import doctest
+    import importlib
+
+    mod = importlib.import_module(f"impactlink.inputs.formats.{name}")
+    res = doctest.testmod(mod, optionflags=doctest.NORMALIZE_WHITESPACE)
+    assert res.attempted > 0 and res.failed == 0

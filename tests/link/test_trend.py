@@ -206,3 +206,12 @@ def test_iowa_county_panel_trend_is_not_linear(iowa):
     assert chosen.family != "linear"
     assert sel.errors["n"].iloc[0] == len(iowa)  # every county-year with a yield is predicted
     assert sel.expected.notna().all()
+
+
+def test_docstring_examples_run():
+    import doctest
+
+    import impactlink.link.trend as mod
+
+    res = doctest.testmod(mod, optionflags=doctest.NORMALIZE_WHITESPACE)
+    assert res.attempted > 0 and res.failed == 0
