@@ -15,7 +15,8 @@ from impactlink.indices.timegrid import iso_week_start, week_monday
 from impactlink.link._common import LinkError
 from impactlink.link.target import Target
 
-__all__ = ["feature_values", "feature_matrix", "reference_weeks"]
+__all__ = ["feature_values", "feature_matrix", "reference_weeks", "candidate_lags",
+           "season_end_weeks", "end_week"]
 
 #: A region value needs index values for at least this share of the region's weight.
 MIN_REGION_WEIGHT = 0.5
@@ -111,6 +112,74 @@ def reference_weeks(target: Target) -> pd.DatetimeIndex:
         f"target {target.name!r}: rule.reference must be row_week, season_week or month_end, "
         f"got {rule.reference!r}"
     )
+
+
+def season_end_weeks(first: int, last: int, step: int, *,
+                     cadence: str = "weekly") -> tuple[int, ...]:
+    """ISO weeks searched as the end of a seasonal accumulation window.
+
+    Parameters
+    ----------
+    first, last : int
+        First and last ISO week of the search (e.g. 22 and 40 for summer crops).
+    step : int
+        Weeks between searched end weeks (weekly input).
+    cadence : {"weekly", "daily", "monthly"}
+        Cadence of the index input. Monthly indices change once a month, so the searched
+        weeks are the ISO weeks holding the middle (15th) of each month whose middle falls in
+        ``first..last``: each month is searched once, labelled by its own name, and the
+        week-to-month rule of the cube (a week takes the month holding its Thursday) maps
+        that week to the month in every year.
+
+    Returns
+    -------
+    tuple of int
+        Sorted ISO weeks.
+
+    Examples
+    --------
+    >>> season_end_weeks(22, 40, 2)
+    (22, 24, 26, 28, 30, 32, 34, 36, 38, 40)
+    >>> season_end_weeks(22, 40, 2, cadence="monthly")
+    (25, 29, 33, 38)
+    """
+    first, last, step = int(first), int(last), int(step)
+    if not 1 <= first <= last <= 53 or step < 1:
+        raise LinkError(f"season end weeks must satisfy 1 <= first <= last <= 53 and step >= 1; "
+                        f"got first={first}, last={last}, step={step}")
+    if cadence != "monthly":
+        return tuple(range(first, last + 1, step))
+    # ISO week of the 15th of each month in a non-leap reference year whose 1 January is a
+    # Thursday (1970): the week's Thursday lies within 3 days of the 15th.
+    mids = pd.to_datetime([f"1970-{m:02d}-15" for m in range(1, 13)])
+    weeks = mids.isocalendar().week.to_numpy()
+    return tuple(int(w) for w in weeks if first <= w <= last)
+
+
+def candidate_lags(target: Target, default_lags) -> tuple[int, ...]:
+    """Lags [weeks] searched for a target: its season end weeks, else ``default_lags``.
+
+    Examples
+    --------
+    >>> from impactlink.link.target import FeatureRule
+    >>> rule = FeatureRule(reference="season_week", season_week=40, season_end_weeks=(36, 40))
+    >>> t = Target(name="y", impact="y", kind="binary", grain="county_year", role="annual",
+    ...            frame=pd.DataFrame(), levels=("no", "yes"), rule=rule)
+    >>> candidate_lags(t, (0, 4, 8))
+    (0, 4)
+    """
+    rule = target.rule
+    if rule.reference == "season_week" and rule.season_end_weeks and rule.season_week:
+        return tuple(sorted({int(rule.season_week) - int(w) for w in rule.season_end_weeks}))
+    return tuple(int(x) for x in default_lags)
+
+
+def end_week(target: Target, lag: int) -> int | None:
+    """ISO week at which a seasonal candidate's accumulation window ends (None otherwise)."""
+    rule = target.rule
+    if rule.reference != "season_week" or rule.season_week is None:
+        return None
+    return int(rule.season_week) - int(lag)
 
 
 # --------------------------------------------------------------------------- private steps

@@ -32,10 +32,17 @@ class FeatureRule:
     over the ``window_weeks`` weeks ending at the reference week minus the lag.
     For region targets the county values are combined with ``weights``
     (region, county_id, weight; weights sum to 1 per region).
+
+    ``season_end_weeks`` (annual targets only) makes the end of the accumulation window part
+    of the search: the candidates read the index at each of these ISO weeks instead of at
+    ``season_week`` minus the modelled lags. It is carried as lags from ``season_week`` (the
+    latest end week), so the grid, the folds and the selection-aware estimate treat it like
+    any other candidate dimension (:func:`impactlink.link.features.candidate_lags`).
     """
 
     reference: Literal["row_week", "season_week", "month_end"] = "row_week"
     season_week: int | None = None
+    season_end_weeks: tuple[int, ...] = ()
     window_weeks: int = 1
     window_stat: Literal["value", "min", "mean"] = "value"
     weights: pd.DataFrame | None = None
