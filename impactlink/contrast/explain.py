@@ -49,6 +49,9 @@ class ContrastDecomposition:
         the period (week_offset 0 = reference week), for the side-by-side figure.
     coefficients : pandas.DataFrame
         Fixed part of the trait-aware model (``term, estimate``, log-odds per SD of a trait).
+    traits_side : pandas.DataFrame
+        ``trait, label, unit, value_a, value_b`` (real units) and ``sensitivity_pts`` (the
+        trait's share of the sensitivity part [probability points]).
     provenance : dict
     """
 
@@ -57,6 +60,7 @@ class ContrastDecomposition:
     summary: pd.DataFrame
     trajectories: pd.DataFrame
     coefficients: pd.DataFrame
+    traits_side: pd.DataFrame
     provenance: dict = field(default_factory=dict)
 
     def to_frame(self) -> pd.DataFrame:
@@ -173,7 +177,8 @@ def contrast_counties(
                  "period": list(period) if period else None, "total": point["total"]})
     return ContrastDecomposition(parts=parts, lookalikes=looks, summary=summary,
                                  trajectories=trajectories,
-                                 coefficients=model.coefficients(), provenance=prov)
+                                 coefficients=model.coefficients(),
+                                 traits_side=_traits_side(model, a, b, table), provenance=prov)
 
 
 def summary_row(model: TraitModel, target: Target, a: Side, b: Side, table: pd.DataFrame,
@@ -215,11 +220,24 @@ def summary_row(model: TraitModel, target: Target, a: Side, b: Side, table: pd.D
     return pd.DataFrame([row])
 
 
+def _traits_side(model: TraitModel, a: Side, b: Side, table: pd.DataFrame) -> pd.DataFrame:
+    prob = table[(table["scale"] == "probability") & (table["part"] == "sensitivity")]
+    part = prob.set_index("trait")["estimate"]
+    recs = []
+    for k, t in enumerate(model.traits):
+        d = trait_display(t)
+        recs.append({"trait": t, "label": d.label, "unit": d.unit,
+                     "value_a": float(a.trait_raw[k]) * d.factor,
+                     "value_b": float(b.trait_raw[k]) * d.factor,
+                     "sensitivity_pts": 100.0 * float(part.get(t, np.nan))})
+    return pd.DataFrame(recs)
+
+
 def _trajectory_frame(keys, traj, sides, period) -> pd.DataFrame:
     parts = []
     L = traj.shape[1]
     for s in sides:
-        m = keys[COUNTY].isin(s.members).to_numpy()
+        m = keys[COUNTY].isin(s.members).to_numpy().copy()
         if period is not None:
             y = keys[YEAR].to_numpy()
             m &= (y >= period[0]) & (y <= period[1])

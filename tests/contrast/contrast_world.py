@@ -57,3 +57,17 @@ def true_model(fitted, truth):
                    gamma=np.array([G_IRR, 0.0]), delta=np.array([D_IRR, 0.0]), x_center=0.0,
                    trait_mean=np.array([REF_IRR, 0.0]), trait_sd=np.array([1.0, 1.0]),
                    county_effect=truth["u"].rename_axis("county_id"))
+
+
+def make_cube(truth, *, index="spei", scale=4):
+    """An IndexCube whose value in every week of year t is the world's x[t, c]."""
+    from impactlink.indices.cube import IndexCube
+
+    yrs = truth["years"]
+    weeks = pd.date_range(f"{yrs[0] - 1}-12-28", f"{yrs[-1]}-12-31", freq="7D")
+    iso_year = weeks.isocalendar().year.to_numpy()
+    arr = np.full((len(weeks), len(truth["ids"])), np.nan)
+    pos = np.searchsorted(yrs, iso_year)
+    inside = (iso_year >= yrs[0]) & (iso_year <= yrs[-1])
+    arr[inside] = truth["x"][pos[inside]]
+    return IndexCube(weeks=weeks, county_ids=tuple(truth["ids"]), arrays={(index, scale): arr})
