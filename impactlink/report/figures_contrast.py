@@ -80,7 +80,7 @@ def contrast_figure(summary: pd.DataFrame, trajectories: pd.DataFrame,
         ax2.set_xticks([0, 1], [names[row["county_a"]], names[row["county_b"]]])
         parts = [row["exposure_pts"], row["sensitivity_pts"], row["unexplained_pts"]]
         base = float(row["expected_b"])
-        for k, (label, v) in enumerate(zip(("exposure", "sensitivity", "unexplained"), parts)):
+        for k, v in enumerate(parts):  # waterfall from b's expected impact to a's
             ax2.bar(2 + 0.6 * k, v, bottom=base, width=0.5, color=CATEGORICAL["marigold"]
                     if k % 2 == 0 else CATEGORICAL["ink"], edgecolor=NEUTRAL["edge"])
             ax2.text(2 + 0.6 * k, base + v, f"{v:+.0f}", ha="center",

@@ -145,7 +145,7 @@ def test_penalised_fit_matches_statsmodels_glm_when_counties_are_pooled_out():
 
 def test_estimated_spread_and_planted_county_effect(worlds):
     # planted u ~ N(0, 0.8) for 40 counties plus the twin with u = 2
-    for model, truth in worlds:
+    for model, _truth in worlds:
         assert 0.5 < model.tau < 1.3
         assert model.county_effect["tunx"] - model.county_effect["t0"] > 1.0
         np.testing.assert_allclose(model.gamma[0] / model.trait_sd[0], -4.0, atol=1.5)
