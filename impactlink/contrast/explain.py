@@ -136,12 +136,12 @@ def contrast_counties(
     keys, traj = season_trajectories(target, cube, index, scale, lag)
     impacts, unit = county_year_impacts(target)
     looks = lookalike_pairs(keys, traj, impacts, traits, counties, max_distance=max_distance,
-                            n_pairs=n_pairs)
+                            n_pairs=n_pairs, dry_side="low" if model.b1 < 0 else "high")
     if pair is None:
         if looks.empty:
             raise ContrastError(
                 f"target {target.name!r}: no look-alike pair (distance <= {max_distance} in a "
-                "year with an impact); name two counties with pair=(a, b).")
+                "drought year with an impact); name two counties with pair=(a, b).")
         top = looks.iloc[0]
         pair = (str(top["county_a"]), str(top["county_b"]))
         if period is None:

@@ -4,6 +4,7 @@ very different impacts."""
 from __future__ import annotations
 
 from dataclasses import replace
+from typing import Literal
 
 import numpy as np
 import pandas as pd
@@ -16,6 +17,9 @@ from impactlink.schema import COUNTY, LEVEL, REGION, YEAR
 
 __all__ = ["season_trajectories", "lookalike_pairs", "county_year_impacts",
            "MAX_DISTANCE"]
+
+#: Driest share of county-years in which a pair-year counts as a drought.
+DROUGHT_QUANTILE = 0.25
 
 #: Largest RMS index difference [index units] of a look-alike pair (a quarter of one SD on a
 #: standardized index).
@@ -69,14 +73,15 @@ def county_year_impacts(target: Target) -> tuple[pd.DataFrame, str]:
     """Observed impact per county-year in real units, and its unit.
 
     Yield targets (``departure_pct`` column): the shortfall, percent of the expected yield
-    lost (``departure_pct`` with the sign turned). Other annual targets: the level. Weekly
+    lost (``departure_pct`` with the sign turned; a yield above expectation counts as no
+    loss, 0). Other annual targets: the level. Weekly
     targets: the percent of the year's rows with an impact (level >= 1).
     """
     f = target.frame
     d = pd.DataFrame({COUNTY: f[COUNTY].astype(str).to_numpy(), YEAR: f[YEAR].to_numpy(),
                       "hit": (f[LEVEL].to_numpy(float) >= 1).astype(float)})
     if "departure_pct" in f.columns:
-        d["impact"] = -f["departure_pct"].to_numpy(float)
+        d["impact"] = np.maximum(-f["departure_pct"].to_numpy(float), 0.0)
         unit = "pct_of_expected_yield_lost"
     elif target.grain == "county_year":
         d["impact"] = f[LEVEL].to_numpy(float)
@@ -91,7 +96,9 @@ def county_year_impacts(target: Target) -> tuple[pd.DataFrame, str]:
 
 def lookalike_pairs(keys: pd.DataFrame, values: np.ndarray, impacts: pd.DataFrame,
                     traits: pd.DataFrame, counties: pd.DataFrame | None = None, *,
-                    max_distance: float = MAX_DISTANCE, n_pairs: int = 10) -> pd.DataFrame:
+                    max_distance: float = MAX_DISTANCE, n_pairs: int = 10,
+                    dry_side: Literal["low", "high"] = "low",
+                    drought_quantile: float = DROUGHT_QUANTILE) -> pd.DataFrame:
     """Rank county pairs that looked alike in one drought year but fared differently.
 
     Parameters
@@ -109,6 +116,13 @@ def lookalike_pairs(keys: pd.DataFrame, values: np.ndarray, impacts: pd.DataFram
     max_distance : float, default 0.25
         Largest distance [index units] of a pair.
     n_pairs : int, default 10
+    dry_side : {"low", "high"}, default "low"
+        Which end of the index is dry (low for SPI/SPEI, high for EDDI; the contrast uses
+        the sign of the fitted index slope).
+    drought_quantile : float, default 0.25
+        A pair-year is "the same drought" when the mean of the two counties' values at the
+        reference week (the trajectory's last week) lies in this driest share of all
+        county-years' reference-week values.
 
     Returns
     -------
@@ -124,7 +138,8 @@ def lookalike_pairs(keys: pd.DataFrame, values: np.ndarray, impacts: pd.DataFram
     The distance of counties i and j in year t is the root-mean-square difference of their
     trajectories, :math:`d_{ij,t} = (\\frac1L \\sum_w (x_{i,t,w} - x_{j,t,w})^2)^{1/2}`
     [index units], over the same weeks of the same year. A pair-year qualifies when both
-    trajectories are complete, at least one of the two counties had an impact that year and
+    trajectories are complete, both counties were in the same drought (see
+    ``drought_quantile``), at least one of the two counties had an impact that year and
     :math:`d \\le` ``max_distance``; pairs are ranked by the absolute impact difference
     (then by distance), each pair once, in its most different year.
     """
@@ -133,8 +148,14 @@ def lookalike_pairs(keys: pd.DataFrame, values: np.ndarray, impacts: pd.DataFram
     if max_distance <= 0 or int(n_pairs) < 1:
         raise ContrastError(f"max_distance must be > 0 and n_pairs >= 1; got {max_distance!r}, "
                             f"{n_pairs!r}.")
+    if dry_side not in ("low", "high") or not 0 < float(drought_quantile) <= 1:
+        raise ContrastError(f"dry_side must be 'low' or 'high' and drought_quantile in (0, 1]; "
+                            f"got {dry_side!r}, {drought_quantile!r}.")
     k = keys[[COUNTY, YEAR]].astype({COUNTY: str}).reset_index(drop=True)
     ok = np.isfinite(values).all(axis=1)
+    sign = 1.0 if dry_side == "low" else -1.0
+    ref = sign * values[:, -1]  # low = dry after the sign
+    cut = np.quantile(ref[ok], float(drought_quantile)) if ok.any() else -np.inf
     imp = impacts.astype({COUNTY: str}).set_index([COUNTY, YEAR])
     found = []
     # loop over years (tens), each vectorised over all county pairs of the year
@@ -148,6 +169,7 @@ def lookalike_pairs(keys: pd.DataFrame, values: np.ndarray, impacts: pd.DataFram
         i, j = np.triu_indices(len(idx), k=1)
         keep = (dist[i, j] <= max_distance) & np.isfinite(val[i]) & np.isfinite(val[j])
         keep &= (hit[i] + hit[j]) > 0
+        keep &= 0.5 * (ref[idx][i] + ref[idx][j]) <= cut
         i, j = i[keep], j[keep]
         swap = val[j] > val[i]
         a, b = np.where(swap, j, i), np.where(swap, i, j)

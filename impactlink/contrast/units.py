@@ -45,7 +45,7 @@ class TraitDisplay:
     def format(self, value: float) -> str:
         """``41 %``, ``118 mm``, ``12.5 head/km²``."""
         v = float(value) * self.factor
-        digits = 1 if self.unit == "head/km²" or abs(v) < 10 else 0
+        digits = 1 if self.unit == "head/km²" or (self.unit == "" and abs(v) < 10) else 0
         text = f"{v:.{digits}f}"
         return f"{text} {self.unit}".strip() if self.unit else text
 

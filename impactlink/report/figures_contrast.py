@@ -109,7 +109,7 @@ def _fmt(v, unit) -> str:
     v = float(v)
     if not np.isfinite(v):
         return "n/a"
-    digits = 1 if unit == "head/km²" or abs(v) < 10 else 0
+    digits = 1 if unit == "head/km²" or (unit == "" and abs(v) < 10) else 0
     return f"{v:.{digits}f} {unit}".strip()
 
 

@@ -61,12 +61,11 @@ def contrast_paragraph(row: Mapping) -> str:
             else f"{int(row['period_start'])}-{int(row['period_end'])}")
     lead = f"In {when} " + _observed(row, a, b)
     idx = f"{int(row['scale_weeks'])}-week {index_name(row['index'])}"
-    gap = _num(row["gap_pts"])
     more = name_a if float(row["gap_pts"]) >= 0 else name_b
     expect = (f"Given the {idx} and the county traits, the model put the chance of "
               f"{_event(row['event_label'])} at {_num(row['expected_a'])} % in {name_a} and "
-              f"{_num(row['expected_b'])} % in {name_b}: a gap of {gap} points "
-              f"({name_a} minus {name_b}; {_num(abs(float(row['gap_pts'])))} points more in "
+              f"{_num(row['expected_b'])} % in {name_b}: a gap of {_pts(row['gap_pts'])} "
+              f"({name_a} minus {name_b}; {_pts(abs(float(row['gap_pts'])))} more in "
               f"{more}).")
     dx = float(row["index_mean_a"]) - float(row["index_mean_b"])
     differed = ("differed little" if abs(dx) < LITTLE else
@@ -126,7 +125,7 @@ def _pts(v) -> str:
 
 def _trait(v, unit: str) -> str:
     v = float(v)
-    digits = 1 if unit == "head/km²" or abs(v) < 10 else 0
+    digits = 1 if unit == "head/km²" or (unit == "" and abs(v) < 10) else 0
     text = f"{v:.{digits}f}"
     return f"{text} {unit}".strip() if unit else text
 
