@@ -211,9 +211,9 @@ def decompose_pair(model: TraitModel, a: Side, b: Side) -> dict[str, float]:
                 w_out = w3[r_out]
                 for r_in in range(K):
                     w_in = factorial(r_in) * factorial(K - r_in - 1) / factorial(K)
-                    for s in combinations(rest, r_in):
+                    for inside in combinations(rest, r_in):
                         base = np.zeros(K, dtype=bool)
-                        base[list(s)] = True
+                        base[list(inside)] = True
                         with_k = base.copy()
                         with_k[k] = True
                         phi += w_out * w_in * (v(sx, tuple(with_k), su) - v(sx, tuple(base), su))

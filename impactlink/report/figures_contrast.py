@@ -20,7 +20,7 @@ from impactlink.report.text import index_name
 
 __all__ = ["contrast_figure"]
 
-_RC = {"font.size": 8, "axes.titlesize": 9, "axes.labelsize": 8, "axes.grid": True,
+_RC: dict = {"font.size": 8, "axes.titlesize": 9, "axes.labelsize": 8, "axes.grid": True,
        "grid.color": NEUTRAL["grid"], "axes.edgecolor": NEUTRAL["edge"],
        "text.color": NEUTRAL["text"], "axes.spines.top": False, "axes.spines.right": False,
        "legend.frameon": False}
