@@ -38,7 +38,9 @@ def _hand_world():
 
 
 def test_planted_pair_comes_first_with_traits_in_real_units():
-    pairs = lookalike_pairs(*_hand_world(), max_distance=0.25)
+    # reference-week values: 2012 -2.0, -1.95, -3.0, -1.0, -1.8; 2013 all 0. With
+    # drought_quantile 0.5 the cut is the median of the ten, -0.5: every 2012 pair is a drought
+    pairs = lookalike_pairs(*_hand_world(), max_distance=0.25, drought_quantile=0.5)
     top = pairs.iloc[0]
     assert (top["county_a"], top["county_b"], top["year"]) == ("p1", "p2", 2012)
     assert top["county_name_a"] == "Brambeth" and top["county_name_b"] == "Tovova"
@@ -62,9 +64,21 @@ def test_distance_is_rms_over_the_weeks():
     keys, values, impacts, traits, counties = _hand_world()
     values = values.copy()
     values[1] = values[0] + np.array([0.0, 0.1, 0.2])  # RMS = sqrt((0 + 0.01 + 0.04) / 3)
-    top = lookalike_pairs(keys, values, impacts, traits, counties).set_index(
+    top = lookalike_pairs(keys, values, impacts, traits, counties,
+                          drought_quantile=0.5).set_index(
         ["county_a", "county_b"]).loc[("p1", "p2")]
     assert top["distance"] == pytest.approx(np.sqrt(0.05 / 3))
+
+
+def test_drought_filter_and_dry_side():
+    keys, values, impacts, traits, counties = _hand_world()
+    # the driest 10 %: cut at -2.1 (linear interpolation between -3.0 and -2.0); the planted
+    # pair's mean reference value is -1.975, so it is not in that drought
+    assert lookalike_pairs(keys, values, impacts, traits, counties,
+                           drought_quantile=0.1).empty
+    # with high = dry (as for EDDI) 2012 is the wet year: no pair
+    assert lookalike_pairs(keys, values, impacts, traits, counties, dry_side="high",
+                           drought_quantile=0.5).empty
 
 
 def test_trajectories_end_at_the_feature_of_the_reference_week():
@@ -80,7 +94,9 @@ def test_trajectories_end_at_the_feature_of_the_reference_week():
     np.testing.assert_array_equal(traj13[:, -1], feature_values(target, cube, "spei", 4, 2))
     imp, unit = county_year_impacts(target)
     assert unit == "pct_of_expected_yield_lost"
-    np.testing.assert_allclose(imp["impact"].sum(), -target.frame["departure_pct"].sum())
+    # losses only: a yield above its expectation counts as 0 % lost
+    np.testing.assert_allclose(imp["impact"].sum(),
+                               np.maximum(-target.frame["departure_pct"], 0).sum())
 
 
 def test_trait_display_rules():
@@ -95,5 +111,7 @@ def test_errors():
     keys, values, impacts, traits, counties = _hand_world()
     with pytest.raises(ContrastError, match="trajectories have 3 rows"):
         lookalike_pairs(keys, values[:3], impacts, traits, counties)
+    with pytest.raises(ContrastError, match="dry_side must be"):
+        lookalike_pairs(keys, values, impacts, traits, counties, dry_side="wet")
     with pytest.raises(ContrastError, match="max_distance must be > 0"):
         lookalike_pairs(keys, values, impacts, traits, counties, max_distance=0)
