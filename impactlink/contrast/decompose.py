@@ -10,6 +10,7 @@ expected impact of a side is the mean modelled probability over its rows in the 
 
 from __future__ import annotations
 
+import warnings
 from dataclasses import dataclass
 from itertools import combinations
 from math import factorial
@@ -19,7 +20,7 @@ import pandas as pd
 from scipy import special
 
 from impactlink.contrast.traitmodel import TraitModel, refit
-from impactlink.errors import ContrastError
+from impactlink.errors import ContrastError, ContrastWarning
 from impactlink.schema import COUNTY, REGION, YEAR
 from impactlink.skill.folds import year_bootstrap_weights
 
@@ -287,18 +288,27 @@ def decomposition_table(model: TraitModel, a: Side, b: Side, *, period, n_boot: 
         cweights = year_bootstrap_weights(len(cids), int(n_boot), seed=seed + 1)
         cweights[:, np.isin(cids, a.members + b.members)] = 1.0  # the pair is given
         for i in range(int(n_boot)):  # one refit per replicate (a few Newton steps each)
-            m = refit(model, weights[i][codes] * cweights[i][ccodes])
+            try:
+                m = refit(model, weights[i][codes] * cweights[i][ccodes])
+            except ContrastError:
+                continue  # a separated replicate: left out of the intervals, counted below
             bb = b if not b.county_id.startswith("region:") else region_side(
                 m, a.county_id, period)
             d = decompose_pair(m, a, bb)
             boot[i] = [d[k] for k in keys]
     alpha = 1.0 - ci
+    failed = int(np.isnan(boot[:, 0]).sum()) if n_boot > 0 else 0
+    point["n_boot_failed"] = float(failed)
+    if failed:
+        warnings.warn(f"{failed} of {n_boot} bootstrap replicates did not converge (separated "
+                      "resamples) and are left out of the intervals.", ContrastWarning,
+                      stacklevel=2)
     if n_boot > 0:
         lo, hi = np.nanquantile(boot, [alpha / 2, 1 - alpha / 2], axis=0)
     else:
         lo = hi = np.full(len(keys), np.nan)
     recs = []
-    for j, key in enumerate(keys):
+    for j, key in enumerate(keys):  # keys of the point decomposition, n_boot_failed excluded
         scale = "log_odds" if key.startswith("lp_") else "probability"
         bits = key.removeprefix("lp_").split(":")
         part = {"a": "p_a", "b": "p_b"}.get(bits[0], bits[0])

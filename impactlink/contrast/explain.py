@@ -82,6 +82,7 @@ def contrast_counties(
     seed: int = 0,
     max_distance: float = MAX_DISTANCE,
     n_pairs: int = 10,
+    level_at_least: int = 1,
 ) -> ContrastDecomposition:
     """Explain why two counties (or a county and its region) had different impacts.
 
@@ -108,6 +109,8 @@ def contrast_counties(
     seed : int, default 0
     max_distance, n_pairs
         Options of the look-alike finder.
+    level_at_least : int, default 1
+        The modelled event is level >= this (ordinal targets).
 
     Returns
     -------
@@ -132,9 +135,10 @@ def contrast_counties(
         raise ContrastError(f"n_boot must be >= 0; got {n_boot!r}.")
     index, scale, lag = best
     x = feature_values(target, cube, index, scale, lag)
-    model = fit_trait_model(target, x, traits, counties)
+    model = fit_trait_model(target, x, traits, counties, level_at_least=level_at_least)
     keys, traj = season_trajectories(target, cube, index, scale, lag)
-    impacts, unit = county_year_impacts(target)
+    impacts, unit = county_year_impacts(target, level_at_least=model.provenance[
+        "level_at_least"])
     looks = lookalike_pairs(keys, traj, impacts, traits, counties, max_distance=max_distance,
                             n_pairs=n_pairs, dry_side="low" if model.b1 < 0 else "high")
     if pair is None:
@@ -174,7 +178,8 @@ def contrast_counties(
     prov = dict(model.provenance)
     prov.update({"n_boot": int(n_boot), "ci": float(ci), "seed": int(seed),
                  "max_distance": float(max_distance), "pair": [a.county_id, b.county_id],
-                 "period": list(period) if period else None, "total": point["total"]})
+                 "period": list(period) if period else None, "total": point["total"],
+                 "n_boot_failed": int(point["n_boot_failed"])})
     return ContrastDecomposition(parts=parts, lookalikes=looks, summary=summary,
                                  trajectories=trajectories,
                                  coefficients=model.coefficients(),
@@ -203,7 +208,8 @@ def summary_row(model: TraitModel, target: Target, a: Side, b: Side, table: pd.D
         row[f"observed_{side}"] = float(obs["impact"].mean()) if len(obs) else np.nan
         row[f"expected_{side}"] = 100.0 * float(prob.loc[(f"p_{side}", ""), "estimate"])
         row[f"index_mean_{side}"] = float(np.mean(s.x))
-    row["event_label"] = target.levels[1] if len(target.levels) > 1 else "impact"
+    k = int(model.provenance.get("level_at_least", 1))
+    row["event_label"] = target.levels[k] if len(target.levels) > k else "impact"
     for part, name in (("total", "gap"), ("exposure", "exposure"),
                        ("sensitivity", "sensitivity"), ("unexplained", "unexplained")):
         rec = prob.loc[(part, "")]

@@ -69,17 +69,19 @@ def season_trajectories(target: Target, cube, index: str, scale_weeks: int, lag_
     return wide.index.to_frame(index=False), wide.to_numpy(float)
 
 
-def county_year_impacts(target: Target) -> tuple[pd.DataFrame, str]:
+def county_year_impacts(target: Target, *, level_at_least: int = 1
+                        ) -> tuple[pd.DataFrame, str]:
     """Observed impact per county-year in real units, and its unit.
 
     Yield targets (``departure_pct`` column): the shortfall, percent of the expected yield
     lost (``departure_pct`` with the sign turned; a yield above expectation counts as no
     loss, 0). Other annual targets: the level. Weekly
-    targets: the percent of the year's rows with an impact (level >= 1).
+    targets: the percent of the year's rows with an impact. ``hit`` is 1 when any row of
+    the county-year reached ``level_at_least``.
     """
     f = target.frame
     d = pd.DataFrame({COUNTY: f[COUNTY].astype(str).to_numpy(), YEAR: f[YEAR].to_numpy(),
-                      "hit": (f[LEVEL].to_numpy(float) >= 1).astype(float)})
+                      "hit": (f[LEVEL].to_numpy(float) >= level_at_least).astype(float)})
     if "departure_pct" in f.columns:
         d["impact"] = np.maximum(-f["departure_pct"].to_numpy(float), 0.0)
         unit = "pct_of_expected_yield_lost"

@@ -2,7 +2,7 @@
 
 One logistic model for all counties,
 
-    logit P(level >= 1 | x, county c) = b0 + b1 x + sum_k (g_k + d_k x) z_ck + u_c,
+    logit P(level >= k | x, county c) = b0 + b1 x + sum_k (g_k + d_k x) z_ck + u_c,
     u_c ~ N(0, tau^2),
 
 with ``x`` the impact's best index feature (centred on its mean over the rows used), ``z_ck``
@@ -28,7 +28,7 @@ from impactlink.schema import COUNTY, LEVEL, REGION, YEAR
 __all__ = ["TraitModel", "fit_trait_model", "refit", "model_rows", "penalised_fit"]
 
 #: Alternations between the fixed part and the spread tau of the county effects.
-_TAU_ROUNDS = 6
+_TAU_ROUNDS = 3
 
 
 @dataclass(frozen=True)
@@ -94,7 +94,8 @@ class TraitModel:
 
 
 def fit_trait_model(target: Target, x: np.ndarray, traits: pd.DataFrame,
-                    counties: pd.DataFrame | None = None) -> TraitModel:
+                    counties: pd.DataFrame | None = None, *, level_at_least: int = 1
+                    ) -> TraitModel:
     """Fit the trait-aware, partially pooled impact model.
 
     Parameters
@@ -107,6 +108,9 @@ def fit_trait_model(target: Target, x: np.ndarray, traits: pd.DataFrame,
         ``county_id`` and numeric trait columns, one row per county.
     counties : pandas.DataFrame, optional
         ``county_id`` and ``region`` (overrides the target frame's region).
+    level_at_least : int, default 1
+        The modelled event is level >= this (1..K; e.g. 2 for a shortfall of at least the
+        second class edge of an ordinal yield target).
 
     Returns
     -------
@@ -133,7 +137,8 @@ def fit_trait_model(target: Target, x: np.ndarray, traits: pd.DataFrame,
     models. Journal of the American Statistical Association, 88(421), 9-25.
     https://doi.org/10.1080/01621459.1993.10594284
     """
-    rows, names, ct, prov = model_rows(target, x, traits, counties)
+    rows, names, ct, prov = model_rows(target, x, traits, counties,
+                                       level_at_least=level_at_least)
     raw = ct[names].to_numpy(float)
     mean, sd = raw.mean(axis=0), raw.std(axis=0, ddof=1)
     codes, ids = pd.factorize(rows[COUNTY].to_numpy(), sort=True)
@@ -223,9 +228,10 @@ def penalised_fit(design: np.ndarray, codes: np.ndarray, y: np.ndarray, w: np.nd
         g_beta = design.T @ r
         g_u = np.bincount(codes, weights=r, minlength=J) - prec * theta[p:]
         h = np.empty((p + J, p + J))
-        h[:p, :p] = (design * v[:, None]).T @ design
-        cross = np.zeros((J, p))
-        np.add.at(cross, codes, design * v[:, None])
+        h[:p, :p] = (design * v[:, None]).T @ design  # p is small (2 + 2K columns)
+        dv = design * v[:, None]
+        cross = np.column_stack([np.bincount(codes, weights=dv[:, c], minlength=J)
+                                 for c in range(p)])
         h[p:, :p] = cross
         h[:p, p:] = cross.T
         h[p:, p:] = 0.0
@@ -248,10 +254,15 @@ def penalised_fit(design: np.ndarray, codes: np.ndarray, y: np.ndarray, w: np.nd
 
 
 def model_rows(target: Target, x: np.ndarray, traits: pd.DataFrame,
-               counties: pd.DataFrame | None = None
+               counties: pd.DataFrame | None = None, *, level_at_least: int = 1
                ) -> tuple[pd.DataFrame, list[str], pd.DataFrame, dict]:
     """Rows with a feature value, a level and complete traits; usable trait names."""
     frame = target.frame
+    k = int(level_at_least)
+    if not 1 <= k < max(len(target.levels), 2):
+        raise ContrastError(
+            f"level_at_least={level_at_least!r} is not a level of target {target.name!r} "
+            f"(levels {list(target.levels)}); give 1..{max(len(target.levels) - 1, 1)}.")
     if target.grain not in ("county_week", "county_year") or COUNTY not in frame.columns:
         raise ContrastError(
             f"target {target.name!r} is on the {target.grain!r} grain; county contrasts need a "
@@ -264,7 +275,8 @@ def model_rows(target: Target, x: np.ndarray, traits: pd.DataFrame,
     if not isinstance(traits, pd.DataFrame) or COUNTY not in traits.columns:
         raise ContrastError("traits must be a DataFrame with a county_id column and numeric "
                             "trait columns (e.g. irrigated_share, soil_whc_mm).")
-    prov: dict = {"target": target.name, "warnings": [], "rows_in": int(len(frame))}
+    prov: dict = {"target": target.name, "warnings": [], "rows_in": int(len(frame)),
+                  "level_at_least": k}
     numeric = [c for c in traits.columns if c != COUNTY
                and pd.api.types.is_numeric_dtype(traits[c])
                and not pd.api.types.is_bool_dtype(traits[c])]
@@ -278,7 +290,7 @@ def model_rows(target: Target, x: np.ndarray, traits: pd.DataFrame,
         YEAR: frame[YEAR].to_numpy(),
         "season": frame["season"].to_numpy() if "season" in frame.columns else 0,
         "x": xv,
-        "y": (frame[LEVEL].to_numpy(dtype=np.float64) >= 1).astype(np.float64),
+        "y": (frame[LEVEL].to_numpy(dtype=np.float64) >= k).astype(np.float64),
         LEVEL: frame[LEVEL].to_numpy(),
     })
     if "departure_pct" in frame.columns:
