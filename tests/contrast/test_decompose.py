@@ -174,8 +174,26 @@ def test_errors(worlds):
         from dataclasses import replace
 
         fit_trait_model(replace(target, grain="region_month"), x, traits)
+    with pytest.raises(ContrastError, match="level_at_least=2 is not a level"):
+        fit_trait_model(target, x, traits, level_at_least=2)
     with pytest.raises(ContrastError, match="repeated county_id"):
         fit_trait_model(target, x, pd.concat([traits, traits.iloc[:1]]))
     with pytest.raises(ContrastError, match="no numeric column that varies"), \
             pytest.warns(ContrastWarning, match="traits constant across counties"):
         fit_trait_model(target, x, traits.assign(irrigated_share=0.2, soil_whc_mm=100.0))
+
+
+def test_level_at_least_models_the_higher_class():
+    # an ordinal copy of the world (levels 0, 1, 2 with 2 = every second event): the model of
+    # level >= 2 is the binary model of that event
+    from dataclasses import replace
+
+    target, x, traits, counties, truth = make_world(0, n_counties=20)
+    lev = target.frame["level"].to_numpy() * np.where(np.arange(len(target.frame)) % 2, 2, 1)
+    ordinal = replace(target, kind="ordinal", levels=("none", "some", "severe"),
+                      frame=target.frame.assign(level=lev))
+    binary = replace(target, frame=target.frame.assign(level=(lev >= 2).astype(int)))
+    m2 = fit_trait_model(ordinal, x, traits, counties, level_at_least=2)
+    mb = fit_trait_model(binary, x, traits, counties)
+    assert m2.b1 == pytest.approx(mb.b1, rel=1e-10)
+    assert m2.provenance["level_at_least"] == 2
