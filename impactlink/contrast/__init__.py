@@ -20,7 +20,7 @@ from impactlink.contrast.compare import (
     poisson_ratio_interval,
 )
 from impactlink.contrast.decompose import decompose_pair, decomposition_table
-from impactlink.contrast.explain import ContrastDecomposition, contrast_counties
+from impactlink.contrast.explain import ContrastDecomposition, contrast_counties, parse_period
 from impactlink.contrast.lookalike import lookalike_pairs, season_trajectories
 from impactlink.contrast.traitmodel import TraitModel, fit_trait_model
 from impactlink.contrast.units import trait_display
@@ -36,6 +36,7 @@ __all__ = [
     "decomposition_table",
     "fit_trait_model",
     "lookalike_pairs",
+    "parse_period",
     "poisson_ratio_interval",
     "season_trajectories",
     "trait_display",

@@ -27,7 +27,7 @@ from impactlink.link.features import feature_values
 from impactlink.link.target import Target
 from impactlink.schema import COUNTY, YEAR
 
-__all__ = ["ContrastDecomposition", "contrast_counties", "summary_row"]
+__all__ = ["ContrastDecomposition", "contrast_counties", "parse_period", "summary_row"]
 
 
 @dataclass(frozen=True)
@@ -184,6 +184,28 @@ def contrast_counties(
                                  trajectories=trajectories,
                                  coefficients=model.coefficients(),
                                  traits_side=_traits_side(model, a, b, table), provenance=prov)
+
+
+def parse_period(text: str) -> tuple[int, int]:
+    """``"2011-2013"`` -> (2011, 2013); ``"2012"`` -> (2012, 2012) (the CLI's ``--period``).
+
+    Raises
+    ------
+    ContrastError
+        If the text is not a year or two years joined by a hyphen, first <= last.
+
+    Examples
+    --------
+    >>> parse_period("2011-2013"), parse_period("2012")
+    ((2011, 2013), (2012, 2012))
+    """
+    bits = str(text).strip().split("-")
+    if len(bits) not in (1, 2) or not all(b.strip().isdigit() for b in bits):
+        raise ContrastError(f"--period {text!r} is not a year or a range like 2011-2013.")
+    first, last = int(bits[0]), int(bits[-1])
+    if last < first:
+        raise ContrastError(f"--period {text!r} ends before it starts; write first-last.")
+    return first, last
 
 
 def summary_row(model: TraitModel, target: Target, a: Side, b: Side, table: pd.DataFrame,

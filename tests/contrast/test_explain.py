@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 from contrast_world import make_cube, make_world
 
-from impactlink.contrast import contrast_counties
+from impactlink.contrast import contrast_counties, parse_period
 from impactlink.errors import ContrastError
 from impactlink.link.target import FeatureRule
 
@@ -71,3 +71,12 @@ def test_no_lookalike_to_default_to(world):
     with pytest.raises(ContrastError, match="no look-alike pair"):
         contrast_counties(replace(target, frame=frame), cube, ("spei", 4, 0), traits,
                           counties, max_distance=1e-9, n_boot=0)
+
+
+def test_parse_period():
+    assert parse_period("2011-2013") == (2011, 2013)
+    assert parse_period(" 2012 ") == (2012, 2012)
+    with pytest.raises(ContrastError, match="not a year or a range"):
+        parse_period("2011/2013")
+    with pytest.raises(ContrastError, match="ends before it starts"):
+        parse_period("2013-2011")
