@@ -88,8 +88,10 @@ def contrast_figure(summary: pd.DataFrame, trajectories: pd.DataFrame,
             base += float(v)
         ax2.set_xticks([0, 1, 2, 2.6, 3.2], [names[row["county_a"]], names[row["county_b"]],
                                              "exp.", "sens.", "unexpl."])
-        ax2.set_ylim(0, min(100.0, 1.15 * max(float(row["expected_a"]), float(row["expected_b"]),
-                                              *np.cumsum([float(row["expected_b"])] + parts))))
+        levels = np.cumsum([float(row["expected_b"])] + [float(v) for v in parts])
+        top = max(float(row["expected_a"]), float(row["expected_b"]), *levels)
+        ax2.set_ylim(min(0.0, 1.15 * float(levels.min())), min(105.0, 1.15 * top + 2))
+        ax2.axhline(0, color=NEUTRAL["baseline"], lw=0.8)
         ax2.set_ylabel("modelled chance of an impact [%]")
         ax2.set_title("expected impact and its parts")
         ax3.axis("off")
@@ -97,9 +99,9 @@ def contrast_figure(summary: pd.DataFrame, trajectories: pd.DataFrame,
                  for _, r in traits_side.iterrows()]
         table = ax3.table(cellText=cells, colLabels=["trait", names[row["county_a"]],
                                                      names[row["county_b"]]], loc="center",
-                          cellLoc="left", colWidths=[0.56, 0.22, 0.22])
+                          cellLoc="left", colWidths=[0.44, 0.28, 0.28])
         table.auto_set_font_size(False)
-        table.set_fontsize(7)
+        table.set_fontsize(6.5)
         table.scale(1.0, 2.4)
         ax3.set_title("county traits (real units)")
     return fig
