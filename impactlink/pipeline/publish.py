@@ -133,22 +133,30 @@ def staged_folder(out_dir: Path, *, keep_existing: bool) -> Iterator[Path]:
             _swap_in(tmp, out_dir)
         finally:
             if tmp.exists():
-                shutil.rmtree(tmp, ignore_errors=True)
+                with _signals_blocked():  # a second Ctrl-C must not leave half the folder
+                    shutil.rmtree(tmp, ignore_errors=True)
 
 
 def _swap_in(tmp: Path, out_dir: Path) -> None:
     """Rename ``tmp`` to ``out_dir``; the old folder is removed only after the new one is in."""
-    blocked = {signal.SIGINT, signal.SIGTERM}
-    old_mask = signal.pthread_sigmask(signal.SIG_BLOCK, blocked)
-    try:
-        old = out_dir.parent / f".impactlink-old-{out_dir.name}-{os.getpid()}"
+    old = out_dir.parent / f".impactlink-old-{out_dir.name}-{os.getpid()}"
+    with _signals_blocked():
         if out_dir.exists():
             os.replace(out_dir, old)
         os.replace(tmp, out_dir)
+        if old.exists():
+            shutil.rmtree(old, ignore_errors=True)
+
+
+@contextlib.contextmanager
+def _signals_blocked() -> Iterator[None]:
+    """Hold SIGINT and SIGTERM until the block ends (they are delivered afterwards)."""
+    blocked = {signal.SIGINT, signal.SIGTERM}
+    previous = signal.pthread_sigmask(signal.SIG_BLOCK, blocked)
+    try:
+        yield
     finally:
-        signal.pthread_sigmask(signal.SIG_SETMASK, old_mask)
-    if old.exists():
-        shutil.rmtree(old, ignore_errors=True)
+        signal.pthread_sigmask(signal.SIG_SETMASK, previous)
 
 
 @contextlib.contextmanager
