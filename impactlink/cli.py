@@ -44,6 +44,7 @@ def build_parser() -> argparse.ArgumentParser:
     s = sub.add_parser("check", help="read and validate every input table; print a summary")
     s.add_argument("project", help="project file (TOML) or a folder holding impactlink.toml")
     s.add_argument("--out", help="also write rejected_rows.csv and manifest.json here")
+    s.add_argument("--force", action="store_true", help=_FORCE_HELP)
 
     for name, helptext in STAGE_COMMANDS.items():
         s = sub.add_parser(name, help=helptext)
@@ -52,11 +53,13 @@ def build_parser() -> argparse.ArgumentParser:
 
     s = sub.add_parser("report", help="rebuild report.html from an existing run folder")
     s.add_argument("run_dir", help="a folder written by `impactlink run`")
+    s.add_argument("--force", action="store_true", help=_FORCE_HELP)
 
     s = sub.add_parser("demo", help="run everything on the fictional scenario into reports/demo")
     s.add_argument("--out", help="output folder (default reports/demo)")
     s.add_argument("--jobs", type=int, default=1, help="worker processes (default 1)")
     s.add_argument("--quiet", action="store_true", help="no progress lines")
+    s.add_argument("--force", action="store_true", help=_FORCE_HELP)
     return p
 
 
@@ -68,6 +71,13 @@ def _run_options(s: argparse.ArgumentParser) -> None:
         help="run model grids on a Dask scheduler at ADDRESS ('local' starts a local cluster)",
     )
     s.add_argument("--quiet", action="store_true", help="no progress lines")
+    s.add_argument("--force", action="store_true", help=_FORCE_HELP)
+
+
+_FORCE_HELP = (
+    "write into an existing output folder that impactlink did not write "
+    "(its other files are kept)"
+)
 
 
 def main(argv: list[str] | None = None) -> int:
@@ -91,9 +101,9 @@ def main(argv: list[str] | None = None) -> int:
     warnings.showwarning = _one_line  # a warning is one line in the tool's voice
     try:
         return _dispatch(args)
-    except KeyboardInterrupt:  # pragma: no cover
+    except KeyboardInterrupt as exc:  # Ctrl-C, or SIGTERM during a run (RunInterrupted)
         print("impactlink: interrupted; earlier results are left as they were", file=sys.stderr)
-        return 130
+        return 128 + int(getattr(exc, "signum", 2))
     except ImpactlinkError as exc:  # a user's mistake: one line, no traceback
         print(user_message(exc), file=sys.stderr)
         return 2
@@ -119,20 +129,23 @@ def _dispatch(args: argparse.Namespace) -> int:
     if cmd == "check":
         from impactlink.pipeline import check_project
 
-        ok = check_project(args.project, out=args.out)
-        return 0 if ok else 1
+        summary = check_project(args.project, out=args.out, force=args.force)
+        _print_check(summary)
+        return 0 if summary.ok else 1
     if cmd == "report":
+        from impactlink.pipeline import rebuild_report
         from impactlink.progress import Reporter
-        from impactlink.report import build_report
 
-        path = build_report(args.run_dir, progress=Reporter())
+        path = rebuild_report(args.run_dir, progress=Reporter(), force=args.force)
         print(f"report: {path}")
         return 0
     if cmd == "demo":
         from impactlink.pipeline import run_demo
 
-        path = run_demo(out=args.out, jobs=args.jobs, quiet=args.quiet)
-        print(f"report: {path}")
+        result = run_demo(out=args.out, jobs=args.jobs, quiet=args.quiet, force=args.force)
+        for path in result.written:
+            print(f"wrote {path}")
+        print(f"report: {result.out_dir / 'report.html'}")
         return 0
     from impactlink.pipeline import run_project
 
@@ -143,10 +156,25 @@ def _dispatch(args: argparse.Namespace) -> int:
         jobs=args.jobs,
         dask_address=args.dask,
         quiet=args.quiet,
+        force=args.force,
     )
     for path in result.written:
         print(f"wrote {path}")
     return 0
+
+
+def _print_check(summary) -> None:  # noqa: ANN001  (CheckSummary; pandas stays lazy)
+    import pandas as pd
+
+    with pd.option_context("display.width", 160, "display.max_columns", 20):
+        print(summary.tables.to_string(index=False))
+    if len(summary.rejected_by_reason):
+        print("\nrejected rows by reason:")
+        print(summary.rejected_by_reason.to_string(index=False))
+    for w in summary.warnings:
+        print(f"warning: {w}")
+    for path in summary.written:
+        print(f"wrote {path}")
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -89,13 +89,13 @@ def test_unknown_trait_names_in_models_section_are_a_clear_error(tmp_path):
     from types import SimpleNamespace
 
     from impactlink.errors import ContrastError
-    from impactlink.pipeline import _model_options
+    from impactlink.pipeline.stages import _model_options
 
     project = quick_scenario_project(tmp_path)
     project = dataclasses.replace(project, models=dataclasses.replace(project.models,
                                                                       traits=("aquifer_depth_m",)))
     traits = pd.DataFrame({"county_id": ["90001"], "soil_whc_mm": [120.0]})
-    st = {"bundle": SimpleNamespace(tables={"traits": traits})}
+    st = SimpleNamespace(bundle=SimpleNamespace(tables={"traits": traits}))
     target = SimpleNamespace(grain="county_week")
     with pytest.raises(ContrastError, match=r"\['aquifer_depth_m'\], which the traits table lacks"):
         _model_options(project, st, target)
@@ -135,7 +135,7 @@ def test_monthly_climate_runs_through_linking(tmp_path):
     result = run_project(path, until="link", out=tmp_path / "out", quiet=True)
     idx = pd.read_parquet(tmp_path / "out" / "indices.parquet")
     assert set(idx["scale_months"]) == {3, 6} and "month" in idx.columns
-    cube = result.state["cube"]
+    cube = result.state.indices.cube
     assert ("spi", 13) in cube.keys and ("spei", 26) in cube.keys  # 3 and 6 months in weeks
     assert (pd.DatetimeIndex(cube.weeks).day_of_week == 0).all()
     panel = pd.read_parquet(tmp_path / "out" / "panel.parquet")

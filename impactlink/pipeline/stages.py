@@ -1,0 +1,390 @@
+"""One function per stage: typed inputs -> typed result. No file is read or written here.
+
+Every number comes from a stage package; these functions only wire arguments and gather
+frames. Progress messages go through the ``progress`` callback.
+"""
+
+from __future__ import annotations
+
+import warnings as _warnings
+from collections.abc import Callable
+from typing import Any, Literal, cast
+
+import pandas as pd
+
+from impactlink.errors import ContrastError, ContrastWarning
+from impactlink.project import Project
+from impactlink.schema import COUNTY
+
+from .state import (
+    AuditResult,
+    Candidate,
+    ContrastResult,
+    IndicesResult,
+    InputsResult,
+    LinkStageResult,
+    OutlookResult,
+    RankResult,
+    TriggersResult,
+)
+
+Progress = Callable[[str], None]
+
+__all__ = ["read", "indices", "audit", "link", "rank", "outlook", "triggers", "contrast"]
+
+
+def read(project: Project, progress: Progress) -> InputsResult:
+    """Read and validate every input table."""
+    from impactlink.inputs import read_inputs
+
+    return InputsResult(read_inputs(project, progress=progress))
+
+
+def indices(project: Project, inputs: InputsResult, progress: Progress) -> IndicesResult:
+    """Index cube at every time scale; a monthly input keeps its cadence in the frame."""
+    from impactlink.indices import compute_indices
+
+    tables = inputs.bundle.tables
+    cfg, cal = project.indices, project.calibration
+    cube = compute_indices(
+        tables["climate"],
+        latitude_deg=_latitudes(tables["counties"]),
+        indicators=tables.get("indicators"),
+        scales_weeks=tuple(cfg.scales_weeks),
+        scales_months=tuple(cfg.scales_months),
+        indices=tuple(cfg.indices),
+        pet_method=cast(Literal["hargreaves", "thornthwaite"], cfg.pet_method),
+        calibration=(cal.start_year, cal.end_year),
+        min_calibration_years=cal.min_years,
+        min_valid_days=cfg.min_valid_days,
+        progress=progress,
+    )
+    if cfg.indicators:
+        wanted = set(cfg.indices) | set(cfg.indicators)
+        keep = {k: v for k, v in cube.arrays.items() if k[0] in wanted}
+        cube = type(cube)(cube.weeks, cube.county_ids, keep, cube.provenance)
+    if cube.provenance.get("cadence") != "monthly":
+        return IndicesResult(cube=cube, frame=cube.to_frame())
+    # indices.parquet keeps the monthly cadence (scales in months); later stages work on
+    # ISO weeks, so they get the cube expanded to weeks (see indices.cadence)
+    from impactlink.indices.cadence import monthly_to_weekly
+
+    frame = cube.to_frame().rename(columns={"week": "month", "scale_weeks": "scale_months"})
+    progress("monthly climate input: indices at monthly cadence, expanded to ISO weeks "
+             "for linking (scale labels converted from months to weeks)")
+    return IndicesResult(cube=monthly_to_weekly(cube), frame=frame)
+
+
+def audit(project: Project, ind: IndicesResult, progress: Progress) -> AuditResult:
+    """Threshold ladders audited county by county."""
+    from impactlink.indices import threshold_audit
+
+    frames = []
+    for lad in project.audit:
+        progress(f"audit ladder {lad.name}: {lad.index} {lad.scale_weeks} weeks")
+        res = threshold_audit(
+            ind.cube,
+            index=lad.index,
+            scale_weeks=lad.scale_weeks,
+            thresholds=list(lad.thresholds),
+            stage_names=list(lad.stages),
+            kind=cast(Literal["value", "percentile"], lad.kind),
+            early=(lad.early[0], lad.early[1]) if lad.early else None,
+            late=(lad.late[0], lad.late[1]) if lad.late else None,
+            n_boot=lad.n_boot,
+            seed=project.seed,
+        )
+        f = res.to_frame().drop(columns=["ladder", "index", "scale_weeks"], errors="ignore")
+        f.insert(1, "ladder", lad.name)
+        f.insert(2, "index", lad.index)
+        f.insert(3, "scale_weeks", lad.scale_weeks)
+        frames.append(f)
+    return AuditResult(_concat(frames))
+
+
+def link(project: Project, inputs: InputsResult, ind: IndicesResult,
+         progress: Progress) -> LinkStageResult:
+    """Impact records -> targets on their own grids, with reconciliation counts."""
+    from impactlink.link import build_targets, panel_frame
+
+    tables = inputs.bundle.tables
+    targets: list[Any] = []
+    rejected: list[pd.DataFrame] = []
+    recon: list[pd.DataFrame] = []
+    summaries: list[pd.DataFrame] = []
+    warns: list[str] = []
+    for spec in project.impacts:
+        progress(f"link {spec.name} ({spec.source})")
+        res = build_targets(
+            spec,
+            tables,
+            counties=tables["counties"],
+            weeks=ind.cube.weeks,
+            lags_weeks=tuple(project.link.lags_weeks),
+            equal_area_crs=project.link.equal_area_crs,
+        )
+        targets.extend(res.targets)
+        rejected.append(res.rejected)
+        recon.append(res.reconciliation)
+        summaries.append(res.summary)
+        warns.extend(res.warnings)
+    link_rejected = _concat(rejected)
+    return LinkStageResult(
+        targets=tuple(targets),
+        panel=panel_frame(targets) if targets else pd.DataFrame(),
+        reconciliation=_concat(recon),
+        summary=_concat(summaries),
+        rejected=link_rejected,
+        rejected_all=pd.concat([inputs.bundle.rejected, link_rejected], ignore_index=True),
+        warnings=tuple(warns),
+    )
+
+
+def rank(project: Project, inputs: InputsResult, ind: IndicesResult, lk: LinkStageResult,
+         progress: Progress, *, jobs: int = 1, dask_address: str | None = None) -> RankResult:
+    """Rank every candidate out of sample; fit each target's best candidate on all data."""
+    from impactlink.link import feature_values
+    from impactlink.models import crossings, fit_impact_model, impact_curves
+    from impactlink.skill import rank_candidates
+
+    cube, sk = ind.cube, project.skill
+    candidates = [(idx, scale, lag) for (idx, scale) in cube.keys for lag in project.link.lags_weeks]
+    parts: dict[str, list[pd.DataFrame]] = {k: [] for k in (
+        "skill", "summary", "reliability", "local", "persistence", "curves", "crossings")}
+    best: dict[str, tuple[Any, Candidate]] = {}
+    skill_tables: dict[str, pd.DataFrame] = {}
+    for target in lk.targets:
+        progress(f"rank {target.name}: {len(candidates)} candidates, {target.events} events")
+
+        def features(index, scale, lag, _t=target):  # noqa: ANN001, ANN202
+            return feature_values(_t, cube, index, scale, lag)
+
+        res = rank_candidates(
+            target, features, candidates,
+            cv=sk.cv, k_folds=sk.k_folds, n_boot=sk.n_boot, ci=sk.ci, n_bins=sk.n_bins,
+            pairs=sk.pairs, challenger=sk.challenger, seasonal=project.models.seasonal,
+            seed=project.seed, jobs=jobs, dask_address=dask_address, progress=progress,
+        )
+        for key, frame in (("skill", res.table), ("summary", res.summary),
+                           ("reliability", res.reliability), ("local", res.local),
+                           ("persistence", res.persistence)):
+            parts[key].append(frame)
+        cand = _best_candidate(res.table, target)
+        if cand is None:
+            continue
+        meta = _meta(target, cand)
+        model = fit_impact_model(target, features(*cand), link=project.models.link,
+                                 **_model_options(project, inputs, target), meta=meta)
+        best[target.name] = (model, cand)
+        skill_tables[target.name] = res.table
+        if model.ok:
+            parts["curves"].append(impact_curves(model, ci=project.models.curve_ci, meta=meta))
+            cr = crossings(model, ci=project.models.curve_ci)
+            for k, v in meta.items():
+                if k not in cr.columns:
+                    cr.insert(0, k, v)
+            parts["crossings"].append(cr)
+    c = {k: _concat(v) for k, v in parts.items()}
+    return RankResult(skill=c["skill"], summary=c["summary"], reliability=c["reliability"],
+                      local=c["local"], persistence=c["persistence"], curves=c["curves"],
+                      crossings=c["crossings"], best=best, skill_tables=skill_tables)
+
+
+def outlook(project: Project, inputs: InputsResult, ind: IndicesResult, lk: LinkStageResult,
+            rk: RankResult, progress: Progress) -> OutlookResult:
+    """Chance of each impact now and at each modelled lag ahead, per county.
+
+    For every target and lag, the best single-index candidate at that lag is refitted on the
+    whole record; the latest week's index values then give the chance ``lag`` weeks ahead.
+    Onset targets use the current state of their impact (counties already in an episode are
+    not at risk of a new one).
+    """
+    from impactlink.link import feature_values
+    from impactlink.models import fit_impact_model
+    from impactlink.outlook import impact_outlook
+
+    counties = inputs.bundle.tables["counties"][[COUNTY, "region"]]
+    states = {t.impact: t for t in lk.targets if t.role == "state"}
+    frames = []
+    for target in lk.targets:
+        table = rk.skill_tables.get(target.name)
+        if table is None or table.empty:
+            continue
+        models = {}
+        for lag in sorted(set(project.link.lags_weeks)):
+            cand = _best_candidate(table[table["lag_weeks"] == lag], target)
+            if cand is None:
+                continue
+            fitted = rk.best.get(target.name)
+            if fitted is not None and fitted[1] == cand:
+                models[(target.name, *cand)] = fitted[0]  # already fitted for curves
+                continue
+            x = feature_values(target, ind.cube, *cand)
+            models[(target.name, *cand)] = fit_impact_model(
+                target, x, link=project.models.link,
+                **_model_options(project, inputs, target), meta=_meta(target, cand),
+            )
+        if not models:
+            continue
+        progress(f"outlook {target.name}: {len(models)} lags")
+        state = None
+        if target.role in ("onset", "escalation") and target.impact in states:
+            sf = states[target.impact].frame
+            last = sf[sf["time"] == sf["time"].max()]
+            state = last[[COUNTY, "level"]].drop_duplicates(COUNTY)
+        frames.append(impact_outlook(models, ind.cube, counties=counties, state=state,
+                                     ci=project.models.curve_ci))
+    return OutlookResult(_concat(frames))
+
+
+def triggers(project: Project, inputs: InputsResult, ind: IndicesResult, lk: LinkStageResult,
+             rk: RankResult, progress: Progress) -> TriggersResult:
+    """Replay, tune and audit trigger plans for every county-week state target.
+
+    The index and time scale come from the best candidate of the same impact's onset
+    target (a trigger should warn of new impacts), else from the state target itself.
+    """
+    from impactlink.triggers import audit_triggers, impact_grid
+
+    cube = ind.cube
+    region_of = inputs.bundle.tables["counties"].set_index(COUNTY)["region"].astype(str)
+    regions = [region_of.get(c, "all") for c in cube.county_ids]
+    frames, timelines = [], []
+    for target in lk.targets:
+        if target.grain != "county_week" or target.role != "state":
+            continue
+        cand = _trigger_candidate(lk, rk, target)
+        if cand is None:
+            continue
+        idx, scale, _lag = cand
+        progress(f"triggers {target.name}: {idx} {scale} weeks")
+        res = audit_triggers(
+            cube.get(idx, scale),
+            impact_grid(target, cube.weeks, cube.county_ids),
+            weeks=cube.weeks, county_ids=cube.county_ids, regions=regions,
+            index=idx, scale_weeks=scale,
+            entry_weeks=project.triggers.entry_weeks, exit_weeks=project.triggers.exit_weeks,
+            seed=project.seed,
+        )
+        f = res.to_frame().drop(columns=["impact", "target"], errors="ignore")
+        f.insert(0, "target", target.name)
+        f.insert(0, "impact", target.impact)
+        frames.append(f)
+        tl = res.timeline_frame().drop(columns=["target"], errors="ignore")
+        tl.insert(0, "target", target.name)
+        timelines.append(tl)
+    return TriggersResult(_concat(frames), _concat(timelines))
+
+
+def contrast(project: Project, inputs: InputsResult, ind: IndicesResult, lk: LinkStageResult,
+             rk: RankResult, progress: Progress) -> ContrastResult:
+    """County contrasts for each target with a county grain, on its best candidate."""
+    from impactlink.contrast import county_contrast
+    from impactlink.link import feature_values
+
+    traits = inputs.bundle.tables.get("traits")
+    if traits is None or traits.empty:
+        _warnings.warn(ContrastWarning("no traits table: county contrasts not computed"),
+                       stacklevel=2)
+        empty = pd.DataFrame()
+        return ContrastResult(empty, empty, empty, computed=False)
+    rows: list[pd.DataFrame] = []
+    excess: list[pd.DataFrame] = []
+    pairs: list[pd.DataFrame] = []
+    for target in lk.targets:
+        if target.grain == "region_month" or target.role == "escalation":
+            continue
+        if target.name not in rk.best:
+            continue
+        cand = rk.best[target.name][1]
+        progress(f"contrast {target.name}: {cand[0]} {cand[1]} weeks, lag {cand[2]}")
+        x = feature_values(target, ind.cube, *cand)
+        res = county_contrast(target, x, traits, ci=project.models.curve_ci, seed=project.seed)
+        meta = _meta(target, cand)
+        for frame, bucket in ((res.to_frame(), rows), (res.county_excess, excess),
+                              (res.pairs, pairs)):
+            if frame is None or len(frame) == 0:
+                continue
+            frame = frame.drop(columns=[k for k in meta if k in frame.columns])
+            for i, (k, v) in enumerate(meta.items()):
+                frame.insert(i, k, v)
+            bucket.append(frame)
+    return ContrastResult(_concat(rows), _concat(excess), _concat(pairs))
+
+
+# ----------------------------------------------------------------------------- helpers
+def _best_candidate(table: pd.DataFrame | None, target: Any) -> Candidate | None:
+    """The best single-index candidate (index, scale_weeks, lag_weeks) of a skill table.
+
+    The lowest ``rank`` among ``model == "index"`` rows; None when there is none.
+    """
+    # TODO(lead): switch to impactlink.skill.best_candidate
+    del target  # the skill stage's rule will use it
+    if table is None or table.empty:
+        return None
+    single = table[table["model"] == "index"]
+    single = single.dropna(subset=["rank"]) if "rank" in single else single
+    if single.empty:
+        return None
+    row = single.sort_values("rank", kind="stable").iloc[0]
+    return str(row["index"]), int(row["scale_weeks"]), int(row["lag_weeks"])
+
+
+def _trigger_candidate(lk: LinkStageResult, rk: RankResult, target: Any) -> Candidate | None:
+    """Candidate for a state target's triggers: its impact's onset target's, else its own.
+
+    Siblings are matched on the targets' own ``impact`` and ``role`` fields (never on the
+    name); several onset targets (one per horizon) are taken in name order.
+    """
+    onsets = sorted((t for t in lk.targets if t.impact == target.impact and t.role == "onset"),
+                    key=lambda t: t.name)
+    for t in [*onsets, target]:
+        if t.name in rk.best:
+            return rk.best[t.name][1]
+    return None
+
+
+def _meta(target: Any, cand: Candidate) -> dict[str, Any]:
+    idx, scale, lag = cand
+    return {"impact": target.impact, "target": target.name, "index": idx,
+            "scale_weeks": scale, "lag_weeks": lag}
+
+
+def _model_options(project: Project, inputs: InputsResult, target: Any) -> dict[str, Any]:
+    """Final-fit options from ``[models]``: pooling, seasonal terms, county traits.
+
+    County pooling and traits need a county grain; region-month targets fall back to one
+    model for all units.
+
+    Raises
+    ------
+    ContrastError
+        If ``[models] traits`` names a column the traits table lacks.
+    """
+    county_grain = target.grain != "region_month"
+    opts: dict[str, Any] = {
+        "pooling": project.models.pooling if county_grain else "all",
+        "seasonal": project.models.seasonal,
+    }
+    traits = inputs.bundle.tables.get("traits")
+    if project.models.traits and county_grain and traits is not None:
+        missing = set(project.models.traits) - set(traits.columns)
+        if missing:
+            raise ContrastError(
+                f"[models] traits names {sorted(missing)}, which the traits table lacks; "
+                f"its columns are {sorted(c for c in traits.columns if c != COUNTY)}"
+            )
+        opts["traits"] = traits[[COUNTY, *project.models.traits]]
+    return opts
+
+
+def _latitudes(counties: Any) -> pd.Series:
+    c = counties.to_crs("EPSG:4326") if counties.crs is not None else counties
+    # centroids in lon/lat are adequate for day length (errors far below 0.1 degree of latitude)
+    cent = c.geometry.representative_point()
+    return pd.Series(cent.y.to_numpy(), index=c[COUNTY].astype(str).to_numpy(), name="lat_deg")
+
+
+def _concat(frames: list[pd.DataFrame]) -> pd.DataFrame:
+    frames = [f for f in frames if f is not None and len(f)]
+    return pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
