@@ -144,16 +144,20 @@ def rank(project: Project, inputs: InputsResult, ind: IndicesResult, lk: LinkSta
          progress: Progress, *, jobs: int = 1, dask_address: str | None = None) -> RankResult:
     """Rank every candidate out of sample; fit each target's best candidate on all data."""
     from impactlink.link import feature_values
+    from impactlink.link.features import candidate_lags
     from impactlink.models import crossings, fit_impact_model, impact_curves
     from impactlink.skill import rank_candidates
 
     cube, sk = ind.cube, project.skill
-    candidates = [(idx, scale, lag) for (idx, scale) in cube.keys for lag in project.link.lags_weeks]
     parts: dict[str, list[pd.DataFrame]] = {k: [] for k in (
         "skill", "summary", "reliability", "local", "persistence", "curves", "crossings")}
     best: dict[str, tuple[Any, Candidate]] = {}
     skill_tables: dict[str, pd.DataFrame] = {}
     for target in lk.targets:
+        # a seasonal target searches the end of its accumulation window (as lags from the
+        # latest end week); every other target the modelled lags
+        lags = candidate_lags(target, project.link.lags_weeks)
+        candidates = [(idx, scale, lag) for (idx, scale) in cube.keys for lag in lags]
         progress(f"rank {target.name}: {len(candidates)} candidates, {target.events} events")
 
         def features(index, scale, lag, _t=target):  # noqa: ANN001, ANN202
@@ -211,7 +215,7 @@ def outlook(project: Project, inputs: InputsResult, ind: IndicesResult, lk: Link
         if table is None or table.empty:
             continue
         models = {}
-        for lag in sorted(set(project.link.lags_weeks)):
+        for lag in sorted(set(table["lag_weeks"].astype(int))):
             cand = _best_candidate(table[table["lag_weeks"] == lag], target)
             if cand is None:
                 continue
@@ -314,20 +318,13 @@ def contrast(project: Project, inputs: InputsResult, ind: IndicesResult, lk: Lin
 
 # ----------------------------------------------------------------------------- helpers
 def _best_candidate(table: pd.DataFrame | None, target: Any) -> Candidate | None:
-    """The best single-index candidate (index, scale_weeks, lag_weeks) of a skill table.
+    """(index, scale_weeks, lag_weeks) of :func:`impactlink.skill.best_candidate`, or None."""
+    from impactlink.skill import best_candidate
 
-    The lowest ``rank`` among ``model == "index"`` rows; None when there is none.
-    """
-    # TODO(lead): switch to impactlink.skill.best_candidate
-    del target  # the skill stage's rule will use it
     if table is None or table.empty:
         return None
-    single = table[table["model"] == "index"]
-    single = single.dropna(subset=["rank"]) if "rank" in single else single
-    if single.empty:
-        return None
-    row = single.sort_values("rank", kind="stable").iloc[0]
-    return str(row["index"]), int(row["scale_weeks"]), int(row["lag_weeks"])
+    best = best_candidate(table, getattr(target, "name", None))
+    return None if best is None else (best.index, int(best.scale), int(best.lag))
 
 
 def _trigger_candidate(lk: LinkStageResult, rk: RankResult, target: Any) -> Candidate | None:
