@@ -6,20 +6,18 @@ Scores are statistical associations in past records, not causes; trigger plans a
 the responsible authorities.
 """
 
-from impactlink.triggers.audit import TRIGGER_COLUMNS, TriggerResult, audit_triggers, impact_grid
-from impactlink.triggers.replay import replay_trigger
-from impactlink.triggers.scores import (
-    TriggerScores,
-    critical_success_index,
-    evaluate_trigger,
-    false_alarm_ratio,
-    peirce_skill_score,
-    probability_of_detection,
+from impactlink.triggers.audit import (
+    TRIGGER_COLUMNS,
+    TriggerResult,
+    audit_triggers,
+    firing_rate_audit,
+    impact_grid,
 )
+from impactlink.triggers.replay import replay_trigger
+from impactlink.triggers.scores import TriggerScores, evaluate_trigger
 from impactlink.triggers.tune import (
     DEFAULT_CANDIDATES,
     TuningResult,
-    firing_rate_audit,
     tune_thresholds,
 )
 
@@ -30,13 +28,9 @@ __all__ = [
     "TriggerScores",
     "TuningResult",
     "audit_triggers",
-    "critical_success_index",
     "evaluate_trigger",
-    "false_alarm_ratio",
     "firing_rate_audit",
     "impact_grid",
-    "peirce_skill_score",
-    "probability_of_detection",
     "replay_trigger",
     "tune_thresholds",
 ]
