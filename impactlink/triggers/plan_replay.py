@@ -18,7 +18,18 @@ from impactlink.errors import TriggerError
 from impactlink.schema import COUNTY, REGION, WEEK
 from impactlink.triggers.plan import PlanRule, PlanStage, TriggerPlan
 
-__all__ = ["PlanReplay", "replay_plan", "plan_units", "walk_stages", "REPLAY_COLUMNS"]
+__all__ = [
+    "PlanReplay",
+    "replay_plan",
+    "plan_units",
+    "ladder_tests",
+    "ladder_walk",
+    "rule_thresholds",
+    "combine_rules",
+    "persistence_met",
+    "walk_stages",
+    "REPLAY_COLUMNS",
+]
 
 #: Columns of ``trigger_plan_replay.csv``.
 REPLAY_COLUMNS = ("unit", REGION, WEEK, "stage", "stage_name", "change", "driving_indicators")
@@ -145,39 +156,66 @@ def replay_plan(plan: TriggerPlan, *, cube, counties: pd.DataFrame) -> PlanRepla
     month = weeks.month.to_numpy() - 1
     woy = np.minimum(weeks.isocalendar().week.to_numpy(dtype=np.int64), 52) - 1
     enter_thr, exit_thr = {}, {}
-    beyond_enter, beyond_exit = [], []
     for s, st in enumerate(plan.stages):
-        be, bx = [], []
         for j, rule in enumerate(st.rules):
-            x = values[rule.indicator]
-            low = plan.indicator(rule.indicator).dry == "low"
-            e_thr, x_thr = (
-                _thresholds(rule, which, x, regions, month, woy, plan.source, s, j)
-                for which in ("enter", "exit")
-            )
-            enter_thr[(s, j)], exit_thr[(s, j)] = e_thr, x_thr
-            be.append(_beyond(x, e_thr, low))
-            bx.append(_beyond(x, x_thr, low))
-        beyond_enter.append(np.stack(be))
-        beyond_exit.append(np.stack(bx))
-    known = [np.stack([np.isfinite(values[r.indicator]) for r in st.rules]).all(axis=0)
-             for st in plan.stages]
-    entry_ready = np.stack([
-        persistence_met(combine_rules(beyond_enter[s], st), st.enter_weeks, st.enter_window)
-        for s, st in enumerate(plan.stages)
-    ])
-    exit_cond = np.stack([
-        ~combine_rules(beyond_exit[s], st) & known[s] for s, st in enumerate(plan.stages)
-    ])
-    exit_weeks = np.array([st.exit_weeks for st in plan.stages])
-    min_weeks = np.array([st.min_weeks for st in plan.stages])
-    stage = walk_stages(entry_ready, run_length(exit_cond), exit_weeks, min_weeks)
+            for which, store in (("enter", enter_thr), ("exit", exit_thr)):
+                store[(s, j)] = rule_thresholds(rule, which, values[rule.indicator], regions,
+                                                month, woy, source=plan.source, where=(s, j))
+    beyond_enter, beyond_exit, known = ladder_tests(plan, values, enter_thr, exit_thr)
+    stage = ladder_walk(plan, beyond_enter, beyond_exit, known)
     changes = _changes(stage, beyond_enter, beyond_exit, plan, weeks, ids)
     return PlanReplay(
         plan=plan, weeks=weeks, unit_ids=ids, unit_regions=regions, members=members,
         stage=stage, values=values, enter_thresholds=enter_thr, exit_thresholds=exit_thr,
         changes=changes,
     )
+
+
+def ladder_tests(plan: TriggerPlan, values: dict, enter_thr: dict, exit_thr: dict):
+    """Rule tests of every stage: lists (one per stage) of (rules, weeks, ...) arrays.
+
+    Returns ``beyond_enter`` (rule at or beyond its entry threshold), ``beyond_exit`` (at or
+    beyond its exit threshold) and ``known`` ((weeks, ...): every rule's indicator finite).
+    Values and thresholds broadcast (e.g. (weeks, 1, units) against (weeks, candidates, units)).
+    """
+    be_all, bx_all, known = [], [], []
+    for s, st in enumerate(plan.stages):
+        be, bx, kn = [], [], []
+        for j, rule in enumerate(st.rules):
+            x = values[rule.indicator]
+            low = plan.indicator(rule.indicator).dry == "low"
+            e, x_, f = np.broadcast_arrays(enter_thr[(s, j)], exit_thr[(s, j)], x)
+            be.append(_beyond(f, e, low))
+            bx.append(_beyond(f, x_, low))
+            kn.append(np.isfinite(f))
+        shape = np.broadcast_shapes(*(b.shape for b in be))
+        be_all.append(np.stack([np.broadcast_to(b, shape) for b in be]))
+        bx_all.append(np.stack([np.broadcast_to(b, shape) for b in bx]))
+        known.append(np.all([np.broadcast_to(k, shape) for k in kn], axis=0))
+    return be_all, bx_all, known
+
+
+def ladder_walk(plan: TriggerPlan, beyond_enter, beyond_exit, known, *, entry_ready=None):
+    """Stages (weeks, ...) from the rule tests of :func:`ladder_tests`.
+
+    ``entry_ready`` (stage position -> (weeks, ...) bool) replaces the entry persistence of
+    some stages (used by tuning to try several entry rules at once).
+    """
+    entry_ready = entry_ready or {}
+    shape = np.broadcast_shapes(*(b.shape[1:] for b in beyond_enter),
+                                *(np.shape(v) for v in entry_ready.values()))
+    ready = np.stack([
+        np.broadcast_to(entry_ready[s] if s in entry_ready else persistence_met(
+            combine_rules(beyond_enter[s], st), st.enter_weeks, st.enter_window), shape)
+        for s, st in enumerate(plan.stages)
+    ])
+    exit_cond = np.stack([
+        np.broadcast_to(~combine_rules(beyond_exit[s], st) & known[s], shape)
+        for s, st in enumerate(plan.stages)
+    ])
+    exit_weeks = np.array([st.exit_weeks for st in plan.stages])
+    min_weeks = np.array([st.min_weeks for st in plan.stages])
+    return walk_stages(ready, run_length(exit_cond), exit_weeks, min_weeks)
 
 
 def plan_units(
@@ -282,9 +320,14 @@ def _unit_mean(x: np.ndarray, members: np.ndarray) -> np.ndarray:
         return np.where(den > 0, num / np.where(den > 0, den, 1.0), np.nan)
 
 
-def _thresholds(rule: PlanRule, which: str, x: np.ndarray, regions, month, woy, source,
-                s: int, j: int) -> np.ndarray:
-    """(weeks, units) threshold of one rule in index units."""
+def rule_thresholds(rule: PlanRule, which: str, x: np.ndarray, regions, month, woy, *,
+                    source: str = "<plan>", where: tuple[int, int] = (0, 0)) -> np.ndarray:
+    """(weeks, units) threshold of one rule in index units (see :func:`replay_plan`, Notes).
+
+    ``which`` is "enter" or "exit"; ``month`` (0-11) and ``woy`` (ISO week of year 0-51) are
+    per row; ``regions`` per unit.
+    """
+    s, j = where
     base = rule.enter if which == "enter" else rule.exit
     table = np.full((12, x.shape[1]), float(base))
     reg = np.array(regions, dtype=object)
