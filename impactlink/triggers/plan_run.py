@@ -22,7 +22,8 @@ __all__ = ["TriggerPlanResult", "run_trigger_plan", "memo_numbers", "MEMO_COLUMN
 MEMO_COLUMNS = (
     "stage", "stage_name", "impact", "since_year", "exposed_units", "onsets", "onsets_matched",
     "lead_weeks_median", "entries", "entries_without_impact", "matched_entries", "top_driver",
-    "top_driver_entries", "driver_counts", "flip_flops",
+    "top_driver_index", "top_driver_scale_weeks", "top_driver_entries", "driver_counts",
+    "flip_flops",
 )
 
 
@@ -161,8 +162,8 @@ def memo_numbers(replay: PlanReplay, scores: PlanScores, impact_level, *, expose
     """
     _, counted = unit_impacts(replay, impact_level, exposed=exposed, min_level=min_level)
     rows_with = np.flatnonzero(counted.any(axis=1))
-    # ISO year of the first counted week (its Thursday's calendar year)
-    since = int((replay.weeks[rows_with[0]] + pd.Timedelta(days=3)).year) if rows_with.size else -1
+    # calendar year in which the first counted week ends (its Sunday)
+    since = int((replay.weeks[rows_with[0]] + pd.Timedelta(days=6)).year) if rows_with.size else -1
     allrows = scores.table[scores.table["by"] == "all"].set_index("stage")
     ch = replay.changes
     out = []
@@ -175,6 +176,7 @@ def memo_numbers(replay: PlanReplay, scores: PlanScores, impact_level, *, expose
         names = drv["driving_indicators"].fillna("").str.split("+").explode()
         counts = names[names != ""].value_counts()
         counts = counts.reindex(sorted(counts.index, key=lambda k: (-counts[k], k)))
+        top = str(counts.index[0]) if len(counts) else ""
         out.append({
             "stage": s, "stage_name": name, "impact": impact, "since_year": since,
             "exposed_units": int(counted.any(axis=0).sum()), "onsets": int(r["onsets"]),
@@ -182,7 +184,9 @@ def memo_numbers(replay: PlanReplay, scores: PlanScores, impact_level, *, expose
             "lead_weeks_median": float(r["lead_weeks_median"]), "entries": int(r["entries"]),
             "entries_without_impact": int(r["entries_without_impact"]),
             "matched_entries": len(ent),
-            "top_driver": counts.index[0] if len(counts) else "",
+            "top_driver": top,
+            "top_driver_index": replay.plan.indicator(top).index if top else "",
+            "top_driver_scale_weeks": replay.plan.indicator(top).scale_weeks if top else -1,
             "top_driver_entries": int(counts.iloc[0]) if len(counts) else 0,
             "driver_counts": ";".join(f"{k}:{int(v)}" for k, v in counts.items()),
             "flip_flops": int(r["flip_flops"]),
