@@ -155,7 +155,8 @@ def replay_plan(plan: TriggerPlan, *, cube, counties: pd.DataFrame) -> PlanRepla
         values[ind.name] = _unit_mean(cube.arrays[key], members)
     month = weeks.month.to_numpy() - 1
     woy = np.minimum(weeks.isocalendar().week.to_numpy(dtype=np.int64), 52) - 1
-    enter_thr, exit_thr = {}, {}
+    enter_thr: dict[tuple[int, int], np.ndarray] = {}
+    exit_thr: dict[tuple[int, int], np.ndarray] = {}
     for s, st in enumerate(plan.stages):
         for j, rule in enumerate(st.rules):
             for which, store in (("enter", enter_thr), ("exit", exit_thr)):
@@ -253,9 +254,9 @@ def combine_rules(beyond: np.ndarray, stage: PlanStage) -> np.ndarray:
     weights of the rules that hold sum to at least ``stage.min_weight``.
     """
     if stage.combine == "all":
-        return beyond.all(axis=0)
+        return np.asarray(beyond.all(axis=0))
     if stage.combine == "any":
-        return beyond.any(axis=0)
+        return np.asarray(beyond.any(axis=0))
     if stage.combine == "k_of_n":
         return beyond.sum(axis=0) >= stage.k
     w = np.array([r.weight for r in stage.rules], dtype=float)
