@@ -216,7 +216,7 @@ def ladder_walk(plan: TriggerPlan, beyond_enter, beyond_exit, known, *, entry_re
     ])
     exit_weeks = np.array([st.exit_weeks for st in plan.stages])
     min_weeks = np.array([st.min_weeks for st in plan.stages])
-    return walk_stages(ready, run_length(exit_cond), exit_weeks, min_weeks)
+    return walk_stages(ready, exit_cond, exit_weeks, min_weeks)
 
 
 def plan_units(
@@ -273,20 +273,16 @@ def persistence_met(cond: np.ndarray, n: int, m: int) -> np.ndarray:
     return (cs[t + 1] - cs[np.maximum(t + 1 - m, 0)]) >= n
 
 
-def run_length(cond: np.ndarray) -> np.ndarray:
-    """Length of the run of True ending at each week along axis 1 of (stages, weeks, ...)."""
-    t = np.arange(cond.shape[1]).reshape((1, -1) + (1,) * (cond.ndim - 2))
-    last_false = np.maximum.accumulate(np.where(cond, -1, t), axis=1)
-    return (t - last_false).astype(np.int64)
-
-
 def walk_stages(
-    entry_ready: np.ndarray, exit_run: np.ndarray, exit_weeks: np.ndarray, min_weeks: np.ndarray
+    entry_ready: np.ndarray, exit_cond: np.ndarray, exit_weeks: np.ndarray, min_weeks: np.ndarray
 ) -> np.ndarray:
-    """The stage walk: (stages, weeks, ...) entry readiness and exit runs -> (weeks, ...) stage.
+    """The stage walk: (stages, weeks, ...) entry readiness and exit conditions -> (weeks, ...)
+    stage.
 
     The loop runs over weeks because the exit rules depend on the stage and on when it was
-    entered; every step is vectorised over all trailing axes (units, candidates).
+    entered; every step is vectorised over all stages and trailing axes (units, candidates).
+    The run of weeks meeting each stage's exit condition is counted inside the loop (one small
+    array per step instead of a (stages, weeks, ...) array of run lengths).
     """
     n_s, n_t = entry_ready.shape[:2]
     shape = entry_ready.shape[2:]
@@ -297,11 +293,13 @@ def walk_stages(
     entered = np.zeros(shape, dtype=np.int64)
     ew = np.append(exit_weeks, 0).astype(np.int64)  # index -1 (state 0) is never used
     mw = np.append(min_weeks, 0).astype(np.int64)
+    runs = np.zeros((n_s,) + shape, dtype=np.int64)
     for t in range(n_t):
+        runs = np.where(exit_cond[:, t], runs + 1, 0)
         hi = highest_ready[t]
         since = t - entered
         cur = state - 1
-        run = np.take_along_axis(exit_run[:, t], np.maximum(cur, 0)[None], axis=0)[0]
+        run = np.take_along_axis(runs, np.maximum(cur, 0)[None], axis=0)[0]
         down = (state > 0) & (np.minimum(run, since) >= ew[cur]) & (since >= mw[cur])
         new = np.where(hi > state, hi, np.where(down, state - 1, state))
         entered = np.where(new != state, t, entered)

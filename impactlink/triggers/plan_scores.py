@@ -129,6 +129,11 @@ def score_plan(
     season = np.array([season_of_month[m] for m in range(1, 13)], dtype=object)[month - 1]
     seasons = np.broadcast_to(season[:, None], (n_t, n_u))
     regions = np.broadcast_to(np.array(replay.unit_regions, dtype=object)[None, :], (n_t, n_u))
+    # integer group codes per cell (names, codes): seasons vary by row, regions by column
+    s_names, s_code = np.unique(season.astype(str), return_inverse=True)
+    r_names, r_code = np.unique(np.array(replay.unit_regions, dtype=str), return_inverse=True)
+    season_groups = (s_names, np.broadcast_to(s_code[:, None], (n_t, n_u)))
+    region_groups = (r_names, np.broadcast_to(r_code[None, :], (n_t, n_u)))
     rows, leads = [], []
     for s, name in enumerate(replay.plan.stage_names, start=1):
         on = replay.stage >= s
@@ -143,8 +148,8 @@ def score_plan(
         cells["entries_without_impact"] = cells["entries_judged"] & ~matched_entry
         lead = _leads(m, on, impact, known, tt, uu, replay, seasons, regions, s)
         leads.append(lead)
-        for by, labels in (("all", None), ("season", seasons), ("region", regions)):
-            rows.append(_grouped(cells, lead, by, labels, s, name))
+        for by, groups in (("all", None), ("season", season_groups), ("region", region_groups)):
+            rows.append(_grouped(cells, lead, by, groups, s, name))
     table = pd.concat(rows, ignore_index=True)
     lead_frame = pd.concat(leads, ignore_index=True)
     return PlanScores(
@@ -264,11 +269,11 @@ def _leads(m, on, impact, known, tt, uu, replay, seasons, regions, s) -> pd.Data
     })
 
 
-def _grouped(cells, lead, by, labels, s, name) -> pd.DataFrame:
-    if labels is None:
+def _grouped(cells, lead, by, grouping, s, name) -> pd.DataFrame:
+    if grouping is None:
         codes, groups = np.zeros(cells["hits"].size, dtype=np.int64), np.array(["all"])
     else:
-        groups, codes = np.unique(labels.ravel().astype(str), return_inverse=True)
+        groups, codes = grouping[0], grouping[1].ravel()
     k = len(groups)
     counts = {c: np.bincount(codes, weights=cells[c].ravel(), minlength=k) for c in
               ("hits", "false_alarms", "misses", "correct_negatives") + _EPISODE_COUNTS}
@@ -278,7 +283,7 @@ def _grouped(cells, lead, by, labels, s, name) -> pd.DataFrame:
     for c in _EPISODE_COUNTS:
         frame[c] = counts[c].astype(np.int64)
     frame["weeks_in_stage_share"] = counts["weeks_in_stage"] / np.maximum(counts["unit_weeks"], 1)
-    key = pd.Series(["all"] * len(lead) if labels is None else
+    key = pd.Series(["all"] * len(lead) if grouping is None else
                     lead["season" if by == "season" else REGION].astype(str).to_numpy())
     g = lead.assign(_g=key.to_numpy()).groupby("_g")
     stats = pd.DataFrame({
