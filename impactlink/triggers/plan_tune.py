@@ -68,7 +68,7 @@ def relative_economic_value(hit_rate, false_alarm_rate, base_rate, cost_loss_rat
 
     Examples
     --------
-    >>> float(relative_economic_value(0.6, 0.1, 0.2, 0.2))
+    >>> round(float(relative_economic_value(0.6, 0.1, 0.2, 0.2)), 12)  # alpha = o: V = H - F
     0.5
     """
     h, f, o, a = (np.asarray(v, dtype=np.float64) for v in
