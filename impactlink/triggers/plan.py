@@ -232,11 +232,11 @@ def parse_trigger_plan(raw: dict[str, Any], *, source: str = "<plan>") -> Trigge
         c.problem("stage.name", f"repeated names {names}", "give every stage its own name")
     scoring = _scoring(c, top.get("score", {}))
     tuning = _tuning(c, top["tune"], stages) if "tune" in top else None
+    unit_name = c.string(head, "plan.unit_name", default=name)
     c.raise_if_any()
     return TriggerPlan(
         name=name, source=source, unit=unit, indicators=indicators, stages=stages,
-        counties=counties, unit_name=c.string(head, "plan.unit_name", default=name),
-        scoring=scoring, tuning=tuning,
+        counties=counties, unit_name=unit_name, scoring=scoring, tuning=tuning,
     )
 
 
@@ -376,15 +376,21 @@ def _tuning(c: _Checker, raw: Any, stages: tuple[PlanStage, ...]) -> PlanTuning 
     ci = c.number(t, "tune.ci", default=0.9)
     if not 0 < ci < 1:
         c.problem("tune.ci", f"{ci}", "write a coverage between 0 and 1, e.g. 0.9")
+    persist = c.integers(t, "tune.enter_weeks", default=[])
+    if any(p < 1 for p in persist):
+        c.problem("tune.enter_weeks", f"{persist}", "write whole numbers of weeks >= 1")
+    once = c.number(t, "tune.once_in_years", default=5.0)
+    if once <= 0:
+        c.problem("tune.once_in_years", f"{once}", "write a positive number of years, e.g. 5")
     lp = c.number(t, "tune.local_percentile", default=None)
     if lp is not None and not 0 < lp < 100:
         c.problem("tune.local_percentile", f"{lp}", "write a percentile between 0 and 100")
     return PlanTuning(
         stage=stage, rule=rule, candidates=cands,
-        enter_weeks=tuple(c.integers(t, "tune.enter_weeks", default=[])),
+        enter_weeks=tuple(persist),
         objective=c.choice(t, "tune.objective", ("peirce", "economic_value", "frequency"),
                            default="peirce"),
-        cost_loss_ratio=ratio, once_in_years=c.number(t, "tune.once_in_years", default=5.0),
+        cost_loss_ratio=ratio, once_in_years=once,
         n_boot=c.integer(t, "tune.n_boot", minimum=0, default=200) or 0, ci=ci,
         local_percentile=lp,
     )

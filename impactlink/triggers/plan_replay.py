@@ -153,6 +153,7 @@ def replay_plan(plan: TriggerPlan, *, cube, counties: pd.DataFrame) -> PlanRepla
                 "to [indices]."
             )
         values[ind.name] = _unit_mean(cube.arrays[key], members)
+    _check_override_regions(plan, regions)
     month = weeks.month.to_numpy() - 1
     woy = np.minimum(weeks.isocalendar().week.to_numpy(dtype=np.int64), 52) - 1
     enter_thr: dict[tuple[int, int], np.ndarray] = {}
@@ -309,6 +310,19 @@ def walk_stages(
 
 
 # --------------------------------------------------------------------------- private steps
+def _check_override_regions(plan: TriggerPlan, regions) -> None:
+    have = sorted(set(regions))
+    for s, st in enumerate(plan.stages, start=1):
+        for j, rule in enumerate(st.rules, start=1):
+            for k, o in enumerate(rule.overrides, start=1):
+                if o.region is not None and o.region not in have:
+                    raise TriggerError(
+                        f"{plan.source}: key stage[{s}] (\"{st.name}\").rule[{j}].override[{k}]"
+                        f".region: {o.region!r} is not a region of the plan's units; write one "
+                        f"of {have}."
+                    )
+
+
 def _unit_mean(x: np.ndarray, members: np.ndarray) -> np.ndarray:
     if members.shape[0] == members.shape[1] and np.array_equal(members, np.eye(len(members))):
         return np.asarray(x, dtype=np.float64)

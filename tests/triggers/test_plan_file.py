@@ -75,6 +75,11 @@ def test_every_problem_is_listed_in_one_line_naming_file_and_key():
         (lambda r: r["stage"][0]["rule"][0].update(override=[{"months": [13], "enter": -1.2}]),
          "months: [13]; write months as numbers 1-12"),
         (lambda r: r["stage"].append(dict(r["stage"][0])), "repeated names"),
+        (lambda r: r.update(tune={"stage": "watch", "rule": "x", "candidates": [1.0],
+                                  "enter_weeks": [0, 2]}), "tune.enter_weeks: [0, 2]"),
+        (lambda r: r.update(tune={"stage": "watch", "rule": "x", "candidates": [1.0],
+                                  "once_in_years": 0}), "tune.once_in_years: 0.0"),
+        (lambda r: r["plan"].update(unit_name=3), "plan.unit_name: 3; write a string"),
     ],
 )
 def test_each_key_is_checked(edit, fragment):

@@ -183,3 +183,12 @@ def test_errors_name_the_plan_key():
     neg = cube_of([-1.0, -2.0])
     with pytest.raises(TriggerError, match="percent_of_normal needs an indicator whose normal"):
         replay_plan(pon, cube=neg, counties=counties_of(neg))
+
+
+def test_unknown_override_region_is_an_error():
+    cube = cube_of([0.0, 1.0])
+    plan = one_indicator_plan(dict(rule=[{"indicator": "x", "enter": -1.0, "exit": -1.0,
+                                          "override": [{"region": "Nowhere", "enter": -1.2}]}]))
+    with pytest.raises(TriggerError, match=r'key stage\[1\] \("s1"\).rule\[1\].override\[1\]'
+                       r".region: 'Nowhere' is not a region"):
+        replay_plan(plan, cube=cube, counties=counties_of(cube))
