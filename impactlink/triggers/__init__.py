@@ -21,6 +21,7 @@ from impactlink.triggers.plan_run import (
     MEMO_COLUMNS,
     TriggerPlanResult,
     memo_numbers,
+    plan_from_ladder,
     run_trigger_plan,
 )
 from impactlink.triggers.plan_scores import SCORE_COLUMNS, PlanScores, score_plan
@@ -59,6 +60,7 @@ __all__ = [
     "load_trigger_plan",
     "memo_numbers",
     "parse_trigger_plan",
+    "plan_from_ladder",
     "relative_economic_value",
     "replay_plan",
     "replay_trigger",

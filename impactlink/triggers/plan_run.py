@@ -11,12 +11,18 @@ import pandas as pd
 from impactlink.errors import TriggerError
 from impactlink.schema import COUNTY, WEEK
 from impactlink.triggers.audit import impact_grid
-from impactlink.triggers.plan import TriggerPlan, load_trigger_plan
+from impactlink.triggers.plan import TriggerPlan, load_trigger_plan, parse_trigger_plan
 from impactlink.triggers.plan_replay import PlanReplay, replay_plan
 from impactlink.triggers.plan_scores import PlanScores, score_plan, unit_impacts
 from impactlink.triggers.plan_tune import StageTuning, tune_stage, uniform_vs_local
 
-__all__ = ["TriggerPlanResult", "run_trigger_plan", "memo_numbers", "MEMO_COLUMNS"]
+__all__ = [
+    "TriggerPlanResult",
+    "run_trigger_plan",
+    "memo_numbers",
+    "plan_from_ladder",
+    "MEMO_COLUMNS",
+]
 
 #: Columns of ``trigger_plan_memo.csv`` (the numbers behind one memo sentence per stage).
 MEMO_COLUMNS = (
@@ -192,6 +198,50 @@ def memo_numbers(replay: PlanReplay, scores: PlanScores, impact_level, *, expose
             "flip_flops": int(r["flip_flops"]),
         })
     return pd.DataFrame(out, columns=list(MEMO_COLUMNS))
+
+
+def plan_from_ladder(ladder, *, impact: str | None = None, entry_weeks: int = 2,
+                     exit_weeks: int = 4, exposure: str = "none") -> TriggerPlan:
+    """A one-indicator plan from a threshold ladder (a project's ``[[audit]]`` entry).
+
+    Parameters
+    ----------
+    ladder : AuditLadder-like
+        ``name, index, scale_weeks, kind ("value" | "percentile"), thresholds, stages``, one
+        threshold per stage, mildest first (dry = low values).
+    impact : str, optional
+        Impact to score against.
+    entry_weeks, exit_weeks : int
+        Persistence of every stage (the project's ``[triggers]`` settings); the exit threshold
+        equals the entry threshold (no hysteresis), as a plain ladder has none.
+    exposure : {"none", "water_systems"}
+
+    Returns
+    -------
+    TriggerPlan
+        Validated like a plan file (source ``[[audit]] NAME``).
+
+    Examples
+    --------
+    >>> from types import SimpleNamespace
+    >>> lad = SimpleNamespace(name="l", index="spi", scale_weeks=13, kind="value",
+    ...                       thresholds=(-1.0, -1.5), stages=("dry", "drier"))
+    >>> plan_from_ladder(lad).stage_names
+    ('dry', 'drier')
+    """
+    ind = f"{ladder.index}{int(ladder.scale_weeks)}"
+    raw: dict = {
+        "plan": {"name": str(ladder.name)},
+        "indicators": {ind: {"index": str(ladder.index),
+                             "scale_weeks": int(ladder.scale_weeks)}},
+        "stage": [{"name": str(n), "enter_weeks": int(entry_weeks),
+                   "exit_weeks": int(exit_weeks),
+                   "rule": [{"indicator": ind, "kind": str(ladder.kind), "enter": float(t),
+                             "exit": float(t)}]}
+                  for n, t in zip(ladder.stages, ladder.thresholds, strict=True)],
+        "score": {"exposure": exposure, **({"impact": impact} if impact else {})},
+    }
+    return parse_trigger_plan(raw, source=f"[[audit]] {ladder.name}")
 
 
 # --------------------------------------------------------------------------- private steps

@@ -86,3 +86,22 @@ def test_run_errors_name_the_plan_key():
         run_trigger_plan(plan, cube=cube, targets=targets, counties=counties)
     with pytest.raises(TriggerError, match="key score.impact: 'restrictions' has no weekly"):
         run_trigger_plan(plan, cube=cube, targets=[], counties=counties, water_systems=systems)
+
+
+def test_an_audit_ladder_replays_as_a_plan():
+    # the project's [[audit]] ladder (one index, one threshold per stage) becomes a plan; with
+    # one-week rules the stage is the number of thresholds at or above the value (by hand)
+    from impactlink.project import AuditLadder
+    from impactlink.triggers import plan_from_ladder, replay_plan
+
+    ladder = AuditLadder(name="spi13_classes", index="spi", scale_weeks=13, kind="value",
+                         thresholds=(-1.0, -1.5, -2.0), stages=("a", "b", "c"))
+    plan = plan_from_ladder(ladder, entry_weeks=1, exit_weeks=1)
+    x = np.array([0.0, -1.2, -1.7, -2.4, -1.6, -0.3])
+    cube = cube_of(x)
+    rep = replay_plan(plan, cube=cube, counties=counties_of(cube))
+    # descent is one stage a week: -1.6 after -2.4 steps down to b, -0.3 steps down to a only
+    assert rep.stage[:, 0].tolist() == [0, 1, 2, 3, 2, 1]
+    with pytest.raises(TriggerError, match=r"\[\[audit\]\] bad: 1 problem"):
+        plan_from_ladder(AuditLadder(name="bad", kind="percentile", thresholds=(-1.0,),
+                                     stages=("a",)))
