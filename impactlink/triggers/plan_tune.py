@@ -214,8 +214,8 @@ def uniform_vs_local(
 ) -> pd.DataFrame:
     """One statewide threshold against per-unit thresholds at the same local percentile.
 
-    The tuned rule's entry threshold is set (a) per unit to the ``local_percentile``-th
-    percentile of the unit's own record, (b) to one value for all units, the same percentile of
+    The tuned rule's entry threshold is set (a) per unit to the ``tuning.local_percentile``-th
+    (10th when not given) percentile of the unit's own record, (b) to one value for all units, the same percentile of
     all units' values pooled; exit thresholds keep the rule's distance (in percentile points for
     the local plan, in index units at the pooled percentile for the uniform one). Both plans are
     replayed through the whole ladder.
