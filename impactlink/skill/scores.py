@@ -313,26 +313,34 @@ def calibration_slope(y_true, y_prob, *, sample_weight=None) -> float:
 # --------------------------------------------------------------------------- 2x2 table
 @dataclass(frozen=True)
 class ContingencyScores:
-    """Scores of a yes/no forecast from its 2x2 contingency table.
+    """Scores of a yes/no forecast from its 2x2 contingency table (the one home of 2x2 scores).
 
     Attributes (Wilks 2011, section 8.2; Jolliffe & Stephenson 2012, chapter 3)
     ----------
     hits, false_alarms, misses, correct_negatives : float
         a, b, c, d of the table.
     proportion_correct : (a + d) / n. Higher is better; perfect 1.
-    hit_rate : a / (a + c), probability of detection. Higher is better; perfect 1.
-    false_alarm_ratio : b / (a + b). Lower is better; perfect 0.
-    false_alarm_rate : b / (b + d), probability of false detection. Lower is better.
+    hit_rate : a / (a + c). Synonym: probability of detection (POD). Higher is better; perfect 1.
+    false_alarm_ratio : b / (a + b), the share of "yes" forecasts that were wrong. Lower is
+        better; perfect 0. Not the false alarm rate.
+    false_alarm_rate : b / (b + d), the share of non-events forecast "yes". Synonym:
+        probability of false detection (POFD). Lower is better; perfect 0.
     bias : (a + b) / (a + c), forecast yeses per observed yes; unbiased 1.
-    critical_success_index : a / (a + b + c), threat score. Higher is better; perfect 1.
+    critical_success_index : a / (a + b + c). Synonym: threat score. Higher is better; perfect 1.
     heidke_skill_score : proportion correct beyond chance; no skill 0, perfect 1.
-    peirce_skill_score : hit rate - false alarm rate; no skill 0, perfect 1.
+    peirce_skill_score : hit rate - false alarm RATE (b / (b + d)); synonyms: Hanssen-Kuipers
+        discriminant, true skill statistic. No skill 0, perfect 1.
     gilbert_skill_score : threat score beyond chance (equitable threat score); no skill 0.
+
+    :meth:`frame_from_counts` computes the same fields for arrays of counts (NaN where a
+    denominator is 0, including empty tables).
 
     References
     ----------
     Wilks, D. S. (2011). Statistical Methods in the Atmospheric Sciences, 3rd ed., section 8.2.
     Jolliffe, I. T., Stephenson, D. B. (2012). Forecast Verification, 2nd ed. Wiley.
+    Peirce, C. S. (1884). The numerical measure of the success of predictions. Science 4(93),
+    453-454.
     """
 
     hits: float
@@ -351,30 +359,57 @@ class ContingencyScores:
 
     @classmethod
     def from_counts(cls, hits, false_alarms, misses, correct_negatives) -> ContingencyScores:
+        """Scores of one table; raises :class:`SkillError` for negative counts or n = 0."""
         a, b, c, d = (float(v) for v in (hits, false_alarms, misses, correct_negatives))
         if min(a, b, c, d) < 0:
             raise SkillError("contingency_scores: counts must be >= 0")
-        n = a + b + c + d
-        if n == 0:
+        if a + b + c + d == 0:
             raise SkillError("contingency_scores: the table is empty (n = 0)")
+        return cls(**{k: float(v) for k, v in cls._formulas(a, b, c, d).items()})
+
+    @classmethod
+    def frame_from_counts(cls, hits, false_alarms, misses, correct_negatives) -> pd.DataFrame:
+        """Every field for arrays of counts (broadcast together), one row per table.
+
+        Returns a frame whose columns are the field names, in order; a score whose
+        denominator is 0 (an empty table, no events, no "yes" forecasts) is NaN.
+
+        Examples
+        --------
+        >>> f = ContingencyScores.frame_from_counts([28, 0], [72, 0], [23, 51], [2680, 2752])
+        >>> f["peirce_skill_score"].round(3).tolist()
+        [0.523, 0.0]
+        """
+        arrs = np.broadcast_arrays(*(np.asarray(v, dtype=np.float64) for v in
+                                     (hits, false_alarms, misses, correct_negatives)))
+        a, b, c, d = (x.ravel() for x in arrs)
+        if (np.minimum(np.minimum(a, b), np.minimum(c, d)) < 0).any():
+            raise SkillError("contingency_scores: counts must be >= 0")
+        return pd.DataFrame(cls._formulas(a, b, c, d))
+
+    @staticmethod
+    def _formulas(a, b, c, d) -> dict:
+        """Wilks (2011) eqs. 8.16 (Heidke), 8.18 (Peirce), 8.20 (Gilbert); NaN on 0/0."""
+        a, b, c, d = (np.asarray(v, dtype=np.float64) for v in (a, b, c, d))
+        n = a + b + c + d
 
         def div(x, y):
-            return x / y if y != 0 else float("nan")
+            with np.errstate(invalid="ignore", divide="ignore"):
+                return np.where(y != 0, x / np.where(y != 0, y, 1.0), np.nan)
 
-        a_random = (a + b) * (a + c) / n
-        hss_den = (a + c) * (c + d) + (a + b) * (b + d)
-        return cls(
-            hits=a, false_alarms=b, misses=c, correct_negatives=d,
-            proportion_correct=(a + d) / n,
-            hit_rate=div(a, a + c),
-            false_alarm_ratio=div(b, a + b),
-            false_alarm_rate=div(b, b + d),
-            bias=div(a + b, a + c),
-            critical_success_index=div(a, a + b + c),
-            heidke_skill_score=div(2 * (a * d - b * c), hss_den),
-            peirce_skill_score=div(a * d - b * c, (a + c) * (b + d)),
-            gilbert_skill_score=div(a - a_random, a + b + c - a_random),
-        )
+        a_random = div((a + b) * (a + c), n)
+        return {
+            "hits": a, "false_alarms": b, "misses": c, "correct_negatives": d,
+            "proportion_correct": div(a + d, n),
+            "hit_rate": div(a, a + c),
+            "false_alarm_ratio": div(b, a + b),
+            "false_alarm_rate": div(b, b + d),
+            "bias": div(a + b, a + c),
+            "critical_success_index": div(a, a + b + c),
+            "heidke_skill_score": div(2 * (a * d - b * c), (a + c) * (c + d) + (a + b) * (b + d)),
+            "peirce_skill_score": div(a * d - b * c, (a + c) * (b + d)),
+            "gilbert_skill_score": div(a - a_random, a + b + c - a_random),
+        }
 
     def to_frame(self) -> pd.DataFrame:
         return pd.DataFrame([asdict(self)])

@@ -7,22 +7,23 @@ from typing import Literal
 
 import numpy as np
 import pandas as pd
+from scipy.special import ndtr
 
 from impactlink.errors import TriggerError
 from impactlink.indices.timegrid import week_monday
 from impactlink.link.target import Target
 from impactlink.triggers.replay import _check_values, _replay
-from impactlink.triggers.scores import TriggerScores, evaluate_trigger
+from impactlink.triggers.scores import TriggerScores, _labels, _ratio, evaluate_trigger
 from impactlink.triggers.tune import (
     DEFAULT_CANDIDATES,
     IndexScale,
     Objective,
     TuningResult,
-    firing_rate_audit,
+    _check_choice,
     tune_thresholds,
 )
 
-__all__ = ["TriggerResult", "audit_triggers", "impact_grid", "TRIGGER_COLUMNS"]
+__all__ = ["TriggerResult", "audit_triggers", "firing_rate_audit", "impact_grid", "TRIGGER_COLUMNS"]
 
 #: Columns of ``triggers.csv``, in order.
 TRIGGER_COLUMNS = (
@@ -284,6 +285,90 @@ def impact_grid(
     np.maximum.at(grid, (wp[ok], cp[ok]), lev[ok])
     grid[np.isneginf(grid)] = np.nan
     return grid
+
+
+def firing_rate_audit(
+    index_values: np.ndarray,
+    threshold: float | np.ndarray,
+    *,
+    index_scale: IndexScale = "normal",
+    county_ids: list[str] | tuple[str, ...] | None = None,
+) -> pd.DataFrame:
+    """How often a threshold is reached in each county, against how often it should be.
+
+    Parameters
+    ----------
+    index_values : ndarray, shape (weeks, counties)
+        Index values; NaN weeks are left out.
+    threshold : float or ndarray of shape (counties,)
+        Threshold in index units.
+    index_scale : {"normal", "percentile", "none"}
+        How to get the nominal share: standardized index -> :math:`\\Phi(\\theta)`; percentile
+        indicator (0-100) -> :math:`\\theta/100`; "none" -> NaN (no nominal rate).
+    county_ids : sequence of str, optional
+
+    Returns
+    -------
+    pandas.DataFrame
+        ``county, threshold, weeks, below_share, nominal_share, share_ratio, z_binomial``:
+        share of finite weeks at or below the threshold, the nominal share, their ratio, and
+        :math:`(\\hat p - p_0)/\\sqrt{p_0(1-p_0)/n}` (a rough guide only: weekly values are
+        autocorrelated, so the effective n is smaller and |z| is overstated).
+
+    Raises
+    ------
+    TriggerError
+        On a bad shape, threshold or ``index_scale``.
+
+    Notes
+    -----
+    If a standardized index is well calibrated in every county, a uniform threshold is reached
+    in the same share of weeks everywhere (that is the purpose of standardizing: McKee et al.
+    1993). Departures show fitted distributions that do not match the local climate (many
+    zero-precipitation weeks in dry counties, short calibration records) or raw indicators
+    whose scale differs between places; local thresholds equalise the firing rate.
+
+    References
+    ----------
+    McKee, T. B., Doesken, N. J., & Kleist, J. (1993). The relationship of drought frequency and
+    duration to time scales. Proceedings of the 8th Conference on Applied Climatology, American
+    Meteorological Society, 179-184.
+    """
+    values = _check_values(index_values, "index_values")
+    n_counties = values.shape[1]
+    thr = np.asarray(threshold, dtype=np.float64)
+    if thr.ndim == 0:
+        thr = np.full(n_counties, float(thr))
+    if thr.shape != (n_counties,) or not np.all(np.isfinite(thr)):
+        raise TriggerError(
+            f"threshold must be a finite number or one per county (shape ({n_counties},)); got "
+            f"shape {thr.shape}."
+        )
+    _check_choice(index_scale, ("normal", "percentile", "none"), "index_scale")
+    finite = np.isfinite(values)
+    n = finite.sum(axis=0)
+    with np.errstate(invalid="ignore"):
+        below = (values <= thr).sum(axis=0)
+    share = _ratio(below, n)
+    if index_scale == "normal":
+        nominal = ndtr(thr)
+    elif index_scale == "percentile":
+        nominal = thr / 100.0
+    else:
+        nominal = np.full(n_counties, np.nan)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        z = (share - nominal) / np.sqrt(nominal * (1 - nominal) / n)
+    return pd.DataFrame(
+        {
+            "county": _labels(county_ids, n_counties),
+            "threshold": thr,
+            "weeks": n,
+            "below_share": share,
+            "nominal_share": nominal,
+            "share_ratio": _ratio(share, nominal),
+            "z_binomial": z,
+        }
+    )
 
 
 # --------------------------------------------------------------------------- private steps

@@ -8,15 +8,9 @@ import numpy as np
 import pandas as pd
 
 from impactlink.errors import TriggerError
+from impactlink.skill.scores import ContingencyScores
 
-__all__ = [
-    "TriggerScores",
-    "evaluate_trigger",
-    "peirce_skill_score",
-    "critical_success_index",
-    "probability_of_detection",
-    "false_alarm_ratio",
-]
+__all__ = ["TriggerScores", "evaluate_trigger"]
 
 #: Per-week indicator arrays summed into counts; the order is the layout of count arrays.
 COUNT_NAMES = (
@@ -29,61 +23,6 @@ COUNT_NAMES = (
     "activations_judged",  # trigger onsets whose window could be judged
     "false_activations",  # ... with no impact in the window
 )
-
-
-# --------------------------------------------------------------------------- contingency scores
-def peirce_skill_score(hits, false_alarms, misses, correct_negatives):
-    """Peirce skill score of a 2x2 contingency table. Higher is better.
-
-    Also called the Hanssen-Kuipers discriminant or true skill statistic. Range -1 to 1; 0 = no
-    skill (random or constant forecasts); 1 = perfect.
-
-    Parameters
-    ----------
-    hits, false_alarms, misses, correct_negatives : array_like
-        Counts a, b, c, d (weeks, or any unit), broadcast together.
-
-    Returns
-    -------
-    ndarray
-        :math:`a/(a+c) - b/(b+d)`; NaN where either denominator is 0.
-
-    References
-    ----------
-    Peirce, C. S. (1884). The numerical measure of the success of predictions. Science, 4(93),
-    453-454. https://doi.org/10.1126/science.ns-4.93.453.b
-    Wilks, D. S. (2011). Statistical Methods in the Atmospheric Sciences, 3rd ed., Academic
-    Press, section 8.2.
-    """
-    a, b, c, d = _as_float(hits, false_alarms, misses, correct_negatives)
-    return _ratio(a, a + c) - _ratio(b, b + d)
-
-
-def critical_success_index(hits, false_alarms, misses, correct_negatives=None):
-    """Critical success index (threat score) :math:`a/(a+b+c)`. Higher is better.
-
-    Range 0 to 1; 1 = perfect; correct negatives are ignored, so the no-skill value depends on
-    the base rate. NaN where a + b + c = 0. ``correct_negatives`` is accepted for a uniform
-    signature and not used.
-
-    References
-    ----------
-    Wilks, D. S. (2011). Statistical Methods in the Atmospheric Sciences, 3rd ed., section 8.2.
-    """
-    a, b, c = _as_float(hits, false_alarms, misses)
-    return _ratio(a, a + b + c)
-
-
-def probability_of_detection(hits, misses):
-    """Hit rate (probability of detection) :math:`a/(a+c)`. Higher is better; 0 to 1."""
-    a, c = _as_float(hits, misses)
-    return _ratio(a, a + c)
-
-
-def false_alarm_ratio(hits, false_alarms):
-    """False alarm ratio :math:`b/(a+b)`: share of "on" that was wrong. Lower is better; 0 to 1."""
-    a, b = _as_float(hits, false_alarms)
-    return _ratio(b, a + b)
 
 
 # --------------------------------------------------------------------------- evaluation
@@ -155,8 +94,11 @@ def evaluate_trigger(
     Notes
     -----
     Weekly table (known weeks only): hits a = on & impact, false alarms b = on & no impact,
-    misses c, correct negatives d; Peirce skill score a/(a+c) - b/(b+d) (Peirce 1884) and CSI
-    a/(a+b+c) (Wilks 2011, section 8.2).
+    misses c, correct negatives d; Peirce skill score a/(a+c) - b/(b+d) (hit rate minus false
+    alarm *rate*; Peirce 1884) and CSI a/(a+b+c) (Wilks 2011, section 8.2), both from
+    :class:`~impactlink.skill.scores.ContingencyScores`. The ``hit_rate`` and
+    ``false_alarm_ratio`` columns of this table are episode shares (below), not the weekly
+    ratios of the same names in ``ContingencyScores``.
 
     Episodes (common practice in drought-trigger audits): an impact onset is a known impact week
     whose previous week is known and without impact. It is *hit* when the trigger is on in any
@@ -283,10 +225,18 @@ def add_scores(table: pd.DataFrame, prefix: str = "") -> None:
     g = {n: table[prefix + n].to_numpy(dtype=float) for n in COUNT_NAMES}
     table[prefix + "hit_rate"] = _ratio(g["episodes_hit"], g["episodes"])
     table[prefix + "false_alarm_ratio"] = _ratio(g["false_activations"], g["activations_judged"])
-    table[prefix + "peirce_skill"] = peirce_skill_score(
-        g["hits"], g["false_alarms"], g["misses"], g["correct_negatives"]
+    weekly = weekly_scores(g)
+    table[prefix + "peirce_skill"] = weekly["peirce_skill_score"].to_numpy()
+    table[prefix + "csi"] = weekly["critical_success_index"].to_numpy()
+
+
+def weekly_scores(counts: dict[str, np.ndarray]) -> pd.DataFrame:
+    """2x2 scores of weekly counts (``hits``, ``false_alarms``, ``misses``,
+    ``correct_negatives`` arrays of any one shape), via the one home of 2x2 scores,
+    :class:`impactlink.skill.scores.ContingencyScores`; rows are the flattened cells."""
+    return ContingencyScores.frame_from_counts(
+        counts["hits"], counts["false_alarms"], counts["misses"], counts["correct_negatives"]
     )
-    table[prefix + "csi"] = critical_success_index(g["hits"], g["false_alarms"], g["misses"])
 
 
 def impact_arrays(impact_level: np.ndarray, min_level: int) -> tuple[np.ndarray, np.ndarray]:

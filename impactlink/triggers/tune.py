@@ -7,7 +7,6 @@ from typing import Literal
 
 import numpy as np
 import pandas as pd
-from scipy.special import ndtr
 
 from impactlink.errors import TriggerError
 from impactlink.triggers.replay import _check_persistence, _check_values, _replay
@@ -17,13 +16,12 @@ from impactlink.triggers.scores import (
     _ratio,
     _score_table,
     check_levels,
-    critical_success_index,
     impact_arrays,
-    peirce_skill_score,
     week_indicators,
+    weekly_scores,
 )
 
-__all__ = ["TuningResult", "tune_thresholds", "firing_rate_audit", "DEFAULT_CANDIDATES"]
+__all__ = ["TuningResult", "tune_thresholds", "DEFAULT_CANDIDATES"]
 
 Objective = Literal["peirce", "csi", "target_far"]
 Scope = Literal["uniform", "county", "region"]
@@ -272,90 +270,6 @@ def tune_thresholds(
     )
 
 
-def firing_rate_audit(
-    index_values: np.ndarray,
-    threshold: float | np.ndarray,
-    *,
-    index_scale: IndexScale = "normal",
-    county_ids: list[str] | tuple[str, ...] | None = None,
-) -> pd.DataFrame:
-    """How often a threshold is reached in each county, against how often it should be.
-
-    Parameters
-    ----------
-    index_values : ndarray, shape (weeks, counties)
-        Index values; NaN weeks are left out.
-    threshold : float or ndarray of shape (counties,)
-        Threshold in index units.
-    index_scale : {"normal", "percentile", "none"}
-        How to get the nominal share: standardized index -> :math:`\\Phi(\\theta)`; percentile
-        indicator (0-100) -> :math:`\\theta/100`; "none" -> NaN (no nominal rate).
-    county_ids : sequence of str, optional
-
-    Returns
-    -------
-    pandas.DataFrame
-        ``county, threshold, weeks, below_share, nominal_share, share_ratio, z_binomial``:
-        share of finite weeks at or below the threshold, the nominal share, their ratio, and
-        :math:`(\\hat p - p_0)/\\sqrt{p_0(1-p_0)/n}` (a rough guide only: weekly values are
-        autocorrelated, so the effective n is smaller and |z| is overstated).
-
-    Raises
-    ------
-    TriggerError
-        On a bad shape, threshold or ``index_scale``.
-
-    Notes
-    -----
-    If a standardized index is well calibrated in every county, a uniform threshold is reached
-    in the same share of weeks everywhere (that is the purpose of standardizing: McKee et al.
-    1993). Departures show fitted distributions that do not match the local climate (many
-    zero-precipitation weeks in dry counties, short calibration records) or raw indicators
-    whose scale differs between places; local thresholds equalise the firing rate.
-
-    References
-    ----------
-    McKee, T. B., Doesken, N. J., & Kleist, J. (1993). The relationship of drought frequency and
-    duration to time scales. Proceedings of the 8th Conference on Applied Climatology, American
-    Meteorological Society, 179-184.
-    """
-    values = _check_values(index_values, "index_values")
-    n_counties = values.shape[1]
-    thr = np.asarray(threshold, dtype=np.float64)
-    if thr.ndim == 0:
-        thr = np.full(n_counties, float(thr))
-    if thr.shape != (n_counties,) or not np.all(np.isfinite(thr)):
-        raise TriggerError(
-            f"threshold must be a finite number or one per county (shape ({n_counties},)); got "
-            f"shape {thr.shape}."
-        )
-    _check_choice(index_scale, ("normal", "percentile", "none"), "index_scale")
-    finite = np.isfinite(values)
-    n = finite.sum(axis=0)
-    with np.errstate(invalid="ignore"):
-        below = (values <= thr).sum(axis=0)
-    share = _ratio(below, n)
-    if index_scale == "normal":
-        nominal = ndtr(thr)
-    elif index_scale == "percentile":
-        nominal = thr / 100.0
-    else:
-        nominal = np.full(n_counties, np.nan)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        z = (share - nominal) / np.sqrt(nominal * (1 - nominal) / n)
-    return pd.DataFrame(
-        {
-            "county": _labels(county_ids, n_counties),
-            "threshold": thr,
-            "weeks": n,
-            "below_share": share,
-            "nominal_share": nominal,
-            "share_ratio": _ratio(share, nominal),
-            "z_binomial": z,
-        }
-    )
-
-
 # --------------------------------------------------------------------------- private steps
 def _year_counts(
     values, impact, known, cands, year_code, n_years, entry_weeks, exit_weeks, exit_offset,
@@ -422,12 +336,9 @@ class _Chooser:
         return np.abs(self.cands[:, None] - thr[None, :]).argmin(axis=0)
 
     def _score(self, c: dict[str, np.ndarray]) -> np.ndarray:
-        if self.objective == "peirce":
-            return peirce_skill_score(
-                c["hits"], c["false_alarms"], c["misses"], c["correct_negatives"]
-            )
-        if self.objective == "csi":
-            return critical_success_index(c["hits"], c["false_alarms"], c["misses"])
+        if self.objective in ("peirce", "csi"):
+            col = "peirce_skill_score" if self.objective == "peirce" else "critical_success_index"
+            return weekly_scores(c)[col].to_numpy().reshape(c["hits"].shape)
         hit = _ratio(c["episodes_hit"], c["episodes"])
         far = _ratio(c["false_activations"], c["activations_judged"])
         far = np.where(np.isnan(far), 0.0, far)  # never judged as firing -> no false alarm
@@ -451,13 +362,12 @@ def _curve(total: dict[str, np.ndarray], cands: np.ndarray, values: np.ndarray) 
     p = {k: v.sum(axis=1) for k, v in total.items()}
     finite = np.sort(values[np.isfinite(values)])
     below = np.searchsorted(finite, cands, side="right")
+    weekly = weekly_scores(p)
     return pd.DataFrame(
         {
             "threshold": cands,
-            "peirce_skill": peirce_skill_score(
-                p["hits"], p["false_alarms"], p["misses"], p["correct_negatives"]
-            ),
-            "csi": critical_success_index(p["hits"], p["false_alarms"], p["misses"]),
+            "peirce_skill": weekly["peirce_skill_score"].to_numpy(),
+            "csi": weekly["critical_success_index"].to_numpy(),
             "hit_rate": _ratio(p["episodes_hit"], p["episodes"]),
             "false_alarm_ratio": _ratio(p["false_activations"], p["activations_judged"]),
             "below_share": _ratio(below, np.full(len(cands), finite.size)),

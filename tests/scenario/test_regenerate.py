@@ -13,7 +13,7 @@ from impactlink.scenario import DEFAULT_SEED, SCENARIO_FILES, generate
 
 COMMITTED = Path(__file__).resolve().parents[2] / "scenario_data"
 #: Files in scenario_data/ that the generator does not write.
-NOT_GENERATED = {"README.md", "impactlink.toml"}
+NOT_GENERATED = {"README.md", "impactlink.toml", "trigger_plan.toml"}
 MAX_BYTES = 25 * 1024 * 1024
 
 

@@ -1,44 +1,41 @@
 """Trigger scores: contingency-table scores and episode matching."""
 
+from pathlib import Path
+
 import numpy as np
 import pandas as pd
 import pytest
 
 from impactlink.errors import TriggerError
-from impactlink.triggers import (
-    critical_success_index,
-    evaluate_trigger,
-    false_alarm_ratio,
-    peirce_skill_score,
-    probability_of_detection,
-)
+from impactlink.skill.scores import ContingencyScores
+from impactlink.triggers import evaluate_trigger
 
-# Finley's tornado forecasts (1884) as tabulated in Wilks, Statistical Methods in the
-# Atmospheric Sciences (table of the 2x2 verification example): hits 28, false alarms 72,
-# misses 23, correct negatives 2680.
-FINLEY = dict(hits=28, false_alarms=72, misses=23, correct_negatives=2680)
+REF = Path(__file__).resolve().parents[1] / "reference"
 
 
-def test_finley_table_by_arithmetic():
-    # Peirce = 28/51 - 72/2752; CSI = 28/(28+72+23); exact rational arithmetic.
-    assert float(peirce_skill_score(**FINLEY)) == pytest.approx(28 / 51 - 72 / 2752, abs=1e-15)
-    assert float(critical_success_index(**FINLEY)) == pytest.approx(28 / 123, abs=1e-15)
-    assert float(probability_of_detection(28, 23)) == pytest.approx(28 / 51, abs=1e-15)
-    assert float(false_alarm_ratio(28, 72)) == pytest.approx(0.72, abs=1e-15)
-
-
-def test_finley_table_against_published_values():
-    # From memory (Wilks, Finley example): Peirce skill score 0.523, CSI 0.228 (three decimals).
-    assert float(peirce_skill_score(**FINLEY)) == pytest.approx(0.523, abs=5e-4)
-    assert float(critical_success_index(**FINLEY)) == pytest.approx(0.228, abs=5e-4)
+def test_finley_table_through_the_vectorised_contingency_scores():
+    # Finley's tornado forecasts (1884): a=28, b=72, c=23, d=2680, as tabulated in Wilks,
+    # Statistical Methods in the Atmospheric Sciences, 3rd ed., section 8.2 (values from memory,
+    # tests/reference/skill_finley_tornado.csv). The trigger stage computes its 2x2 scores with
+    # ContingencyScores.frame_from_counts (arrays); it must match the published values to half a
+    # unit of the last printed decimal, in every row of a batch.
+    ref = pd.read_csv(REF / "skill_finley_tornado.csv")
+    got = ContingencyScores.frame_from_counts([28, 28], [72, 72], [23, 23], [2680, 2680])
+    for row in ref.itertuples():
+        np.testing.assert_allclose(got[row.score], row.value, atol=0.5 * 10.0 ** -row.decimals)
+    # exact arithmetic: Peirce = hit rate - false alarm RATE = 28/51 - 72/2752
+    assert got["peirce_skill_score"][0] == pytest.approx(28 / 51 - 72 / 2752, abs=1e-15)
+    assert got["false_alarm_ratio"][0] == pytest.approx(72 / 100, abs=1e-15)
+    assert got["false_alarm_rate"][0] == pytest.approx(72 / 2752, abs=1e-15)
 
 
 def test_scores_of_perfect_and_constant_forecasts():
-    # Common practice: perfect -> 1; a forecast that is always "yes" has Peirce 0.
-    assert float(peirce_skill_score(10, 0, 0, 90)) == 1.0
-    assert float(critical_success_index(10, 0, 0, 90)) == 1.0
-    assert float(peirce_skill_score(10, 90, 0, 0)) == 0.0
-    assert np.isnan(peirce_skill_score(0, 0, 0, 10))  # no events: undefined, not 0
+    # Common practice: perfect -> 1; a forecast that is always "yes" has Peirce 0; no events ->
+    # undefined (NaN), not 0.
+    f = ContingencyScores.frame_from_counts([10, 10, 0], [0, 90, 0], [0, 0, 0], [90, 0, 10])
+    assert f["peirce_skill_score"][0] == 1.0 and f["critical_success_index"][0] == 1.0
+    assert f["peirce_skill_score"][1] == 0.0
+    assert np.isnan(f["peirce_skill_score"][2])
 
 
 WEEKS = pd.date_range("2001-01-01", periods=20, freq="7D")
