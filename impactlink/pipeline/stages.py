@@ -215,7 +215,8 @@ def outlook(project: Project, inputs: InputsResult, ind: IndicesResult, lk: Link
         if table is None or table.empty:
             continue
         models = {}
-        for lag in sorted(set(table["lag_weeks"].astype(int))):
+        lags = pd.to_numeric(table.loc[table["model"] == "index", "lag_weeks"], errors="coerce")
+        for lag in sorted(set(lags.dropna().astype(int))):
             cand = _best_candidate(table[table["lag_weeks"] == lag], target)
             if cand is None:
                 continue
