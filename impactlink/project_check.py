@@ -210,6 +210,9 @@ def _audit_index(table: str, index: str, whole: Mapping[str, Any]) -> list[Probl
     ind = whole.get("indices", {})
     if not isinstance(ind, Mapping):
         return []
+    if any(check_value("indices", k, ind[k], SECTIONS["indices"][k])
+           for k in ("indices", "indicators") if k in ind):
+        return []  # reported on [indices] itself
     computed = [str(x) for x in as_list(ind.get("indices", KNOWN_INDICES))]
     supplied = [str(x) for x in as_list(ind.get("indicators", ()))]
     if index in KNOWN_INDICES and index not in computed:

@@ -117,7 +117,7 @@ SECTIONS: dict[str, dict[str, Key]] = {
     },
     "calibration": {
         "start_year": _int(*YEAR_RANGE, "1991"), "end_year": _int(*YEAR_RANGE, "2020"),
-        "min_years": _int(2, 400, "20"),
+        "min_years": _int(1, 400, "20"),
     },
     "indices": {
         "scales_weeks": Key("ints", 1, 520, order="unique", example="[4, 8, 13, 26, 52]"),
@@ -251,8 +251,7 @@ def _kind_problem(v: Any, k: Key) -> tuple[str, str] | None:
     if k.kind == "ladder":
         ok = all((isinstance(x, str) and x.strip()) or is_int(x) for x in v)
         return None if ok else (describe(v), want)
-    item = Key({"ints": "int", "numbers": "number", "texts": "text", "years": "int",
-                "pair": "int"}[k.kind], k.lo, k.hi, k.open_lo, k.open_hi, k.choices)
+    item = Key(_ITEM_KIND[k.kind], k.lo, k.hi, k.open_lo, k.open_hi, k.choices)
     if not all(_scalar_ok(x, item) for x in v):
         return describe(v), want
     if k.kind in ("years", "pair"):
@@ -265,6 +264,10 @@ def _kind_problem(v: Any, k: Key) -> tuple[str, str] | None:
     if k.order == "decreasing" and any(b >= a for a, b in zip(v, v[1:], strict=False)):
         return f"{toml_text(v)} (not strictly decreasing, mildest stage first)", want
     return None
+
+
+_ITEM_KIND: dict[str, Kind] = {"ints": "int", "numbers": "number", "texts": "text",
+                               "years": "int", "pair": "int"}
 
 
 def _scalar_ok(v: Any, k: Key) -> bool:
@@ -354,8 +357,9 @@ def _coerce(v: Any, k: Key) -> Any:
         elif not isinstance(v, list):
             items = [v]
         if k.kind == "texts":
-            return [str(x).strip() for x in items]
-        nums = [x if _is_number(x) else _number(str(x), k.kind == "ints") for x in items]
+            return [x.strip() for x in items] if all(isinstance(x, str) for x in items) else None
+        nums = [x if _is_number(x) and not (k.kind == "ints" and isinstance(x, float))
+                else _number(str(x), k.kind == "ints") for x in items]
         if any(x is None for x in nums):
             return None
         if k.order == "increasing":
