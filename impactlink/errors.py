@@ -73,8 +73,8 @@ class ProjectError(ImpactlinkError):
 
     Examples
     --------
-    >>> ProjectError("a.toml: seed: got \"x\" (text); write seed = 0").problems
-    ('a.toml: seed: got "x" (text); write seed = 0',)
+    >>> ProjectError("a.toml: project.seed: got -1, expected a whole number >= 0").problems
+    ('a.toml: project.seed: got -1, expected a whole number >= 0',)
     """
 
     def __init__(self, message: str = "", *, problems: tuple[str, ...] | list[str] = ()) -> None:

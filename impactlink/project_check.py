@@ -8,7 +8,7 @@ computed before the list is empty.
 Examples
 --------
 >>> [p.line("impactlink.toml") for p in check_raw({"indices": {"scales_weeks": "13"}})]
-['impactlink.toml: indices.scales_weeks: got "13" (text), expected a non-empty list of whole numbers from 1 to 520, each once; write scales_weeks = [13]']
+['impactlink.toml: indices.scales_weeks: got "13" (text), expected a non-empty list of whole numbers from 1 to 520, each once; write scales_weeks = [13] (no quotes)']
 """
 
 from __future__ import annotations
