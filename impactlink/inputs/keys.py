@@ -169,7 +169,7 @@ def match_keys(values: pd.Series, known: Iterable[str], *, key: str = "key") -> 
     (['maize', <NA>, <NA>], [False, True, False], 'unknown crop')
     """
     known = list(known)
-    forms = {}
+    forms: dict[str, str] = {}
     for k in known:  # a handful of names from the project file
         f = normalise_key(str(k))
         if f in forms and forms[f] != k:

@@ -293,10 +293,10 @@ def beyond_physical_limits(frame: pd.DataFrame) -> pd.DataFrame:
         cad = frame[COUNTY].astype(str).map(county_cadence(frame))
         hi = cad.map({k: b for k, (_, b) in LIMITS["precip_mm"].items()}).astype(float)
         bad = v > hi
-        reason = (cad[bad].map({"daily": "24-hour", "weekly": "7-day (7 x 24-hour)",
-                                "monthly": "one-month"}) + " rainfall record (" +
-                  hi[bad].map("{:g}".format) + " mm, WMO) exceeded")
-        parts.append(_rows(frame, "precip_mm", v, bad, reason.to_numpy()))
+        span = {"daily": "24-hour", "weekly": "7-day (7 x 24-hour)", "monthly": "one-month"}
+        reason = [f"{span[c]} rainfall record ({h:g} mm, WMO) exceeded"  # rejected rows only
+                  for c, h in zip(cad[bad], hi[bad], strict=True)]
+        parts.append(_rows(frame, "precip_mm", v, bad, np.asarray(reason, dtype=object)))
     parts = [p for p in parts if len(p)]
     return pd.concat(parts, ignore_index=True) if parts else _empty_rejected()
 
