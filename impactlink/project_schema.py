@@ -104,14 +104,14 @@ def _choice(*choices: str) -> Key:
     return Key("text", choices=choices, example=f'"{choices[0]}"')
 
 
-_TEXT = Key("text", example='"..."')
+_TEXT = Key("text", example='"spi"')  # defined_by: the index an impact is keyed to
 _BOOL = Key("bool", example="true")
 _PROB = Key("number", 0, 1, open_lo=True, open_hi=True, example="0.9")
 
 #: Keys of each table; ``tables`` and ``impacts`` are checked separately.
 SECTIONS: dict[str, dict[str, Key]] = {
     "project": {
-        "name": _TEXT, "data_dir": Key("text", example='"."'),
+        "name": Key("text", example='"my drought project"'), "data_dir": Key("text", example='"."'),
         "output_dir": Key("text", example='"impactlink_output"'),
         "seed": _int(0, None, "0"), "jobs": _int(1, 1024, "1"),
     },
@@ -129,7 +129,7 @@ SECTIONS: dict[str, dict[str, Key]] = {
         "indicators": Key("texts", order="unique", empty=True, example="[]"),
     },
     "audit": {
-        "name": _TEXT, "index": Key("text", example='"spi"'),
+        "name": Key("text", example='"spi_ladder"'), "index": Key("text", example='"spi"'),
         "scale_weeks": _int(1, 520, "13"), "kind": _choice("value", "percentile"),
         "thresholds": Key("numbers", order="decreasing", example="[-1.0, -1.5, -2.0]"),
         "stages": Key("texts", order="unique", example='["watch", "warning", "emergency"]'),
@@ -179,7 +179,7 @@ IMPACT_OPTIONS: dict[str, dict[str, Key]] = {
         "class_pct": Key("numbers", 0, None, open_lo=True, order="increasing",
                          example="[10, 25, 50]"),
         "binary_pct": Key("number", 0, None, open_lo=True, example="25"),
-        "weight_trait": _TEXT, "window_weeks": _SEASON["window_weeks"],
+        "weight_trait": Key("text", example='"acres"'), "window_weeks": _SEASON["window_weeks"],
         "window_stat": _SEASON["window_stat"], "defined_by": _TEXT,
     },
     "notices": {

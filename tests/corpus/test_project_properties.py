@@ -7,10 +7,12 @@ range, nested lists and tables, dates) written under randomly chosen keys of eve
 
 from __future__ import annotations
 
+import atexit
 import copy
 import datetime as dt
 import json
 import math
+import shutil
 import tempfile
 import tomllib
 from pathlib import Path
@@ -35,6 +37,9 @@ KEY_PATHS += [("impacts", name, k) for name, spec in RAW["impacts"].items()
 KEY_PATHS += [("tables", k) for k in RAW["tables"]]
 
 _text = st.text(st.characters(blacklist_categories=("Cs", "Cc")), max_size=12)
+#: Keys the schema does not know (typos and random names), in every table.
+UNKNOWN_PATHS = st.tuples(st.sampled_from([s for s in SECTIONS if s != "audit"] + ["tables"]),
+                          _text | st.sampled_from(["seeds", "scale_weeks", "yeilds"]))
 _scalar = (st.integers(-10**6, 10**6) | st.integers() | st.floats(allow_nan=True)
            | st.booleans() | _text | st.sampled_from(["true", "13", "4, 8", "spi", "", " "])
            | st.dates(min_value=dt.date(1000, 1, 1)))
@@ -65,14 +70,14 @@ def toml_file(raw: dict) -> str:
         if section == "audit":
             for lad in body if isinstance(body, list) else [body]:
                 lines.append("[[audit]]")
-                lines += [f"{json.dumps(k)} = {toml_value(v)}" for k, v in lad.items()]
+                lines += [f"{json.dumps(k, ensure_ascii=False)} = {toml_value(v)}" for k, v in lad.items()]
         elif section == "impacts":
             for name, spec in body.items():
-                lines.append(f"[impacts.{json.dumps(name)}]")
-                lines += [f"{json.dumps(k)} = {toml_value(v)}" for k, v in spec.items()]
+                lines.append(f"[impacts.{json.dumps(name, ensure_ascii=False)}]")
+                lines += [f"{json.dumps(k, ensure_ascii=False)} = {toml_value(v)}" for k, v in spec.items()]
         else:
             lines.append(f"[{section}]")
-            lines += [f"{json.dumps(k)} = {toml_value(v)}" for k, v in body.items()]
+            lines += [f"{json.dumps(k, ensure_ascii=False)} = {toml_value(v)}" for k, v in body.items()]
     return "\n".join(lines) + "\n"
 
 
@@ -83,9 +88,12 @@ def put(raw: dict, path: tuple, value) -> None:
     node[path[-1]] = value
 
 
+FOLDER = Path(tempfile.mkdtemp(prefix="impactlink_prop_"))  # one file, rewritten per example
+atexit.register(shutil.rmtree, FOLDER, True)
+
+
 def write(raw: dict) -> Path:
-    folder = Path(tempfile.mkdtemp(prefix="impactlink_prop_"))
-    path = folder / "impactlink.toml"
+    path = FOLDER / "impactlink.toml"
     text = toml_file(raw)
     assert tomllib.loads(text) is not None  # the generator writes valid TOML
     path.write_text(text, encoding="utf-8")
@@ -97,7 +105,8 @@ def test_unmodified_scenario_loads():
 
 
 @settings(max_examples=250, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-@given(st.lists(st.tuples(st.sampled_from(KEY_PATHS), VALUES), min_size=1, max_size=4))
+@given(st.lists(st.tuples(st.sampled_from(KEY_PATHS) | UNKNOWN_PATHS, VALUES), min_size=1,
+                max_size=4))
 def test_no_generated_project_file_raises_anything_but_impactlink_errors(edits):
     raw = copy.deepcopy(RAW)
     for path, value in edits:
@@ -125,7 +134,7 @@ def test_an_exact_fix_is_valid(path, value):
     except ProjectError as exc:
         name = ".".join(f"[{p + 1}]" if isinstance(p, int) else p for p in path)
         name = name.replace(".[", "[")
-        mine = [p for p in exc.problems if f": {name}: " in p]
+        mine = [p for p in exc.problems if f": {name}: got " in p]  # the key's own problems
     for line in mine:
         fix = line.rsplit("; ", 1)[1]
         if not fix.startswith(f"write {path[-1]} = "):
