@@ -60,7 +60,33 @@ class ImpactlinkError(ValueError):
 
 
 class ProjectError(ImpactlinkError):
-    """The project file is missing, unreadable, or holds an impossible setting."""
+    """The project file is missing, unreadable, or holds an impossible setting.
+
+    Parameters
+    ----------
+    message : str
+        With several problems: a summary line, then one line per problem.
+    problems : sequence of str, optional
+        One line per problem, each ``<file>: [<table>.]<key>: <what was found>; <what to
+        do>`` (the command line prints each as its own ``impactlink: error:`` line). Default:
+        the message, as one line.
+
+    Examples
+    --------
+    >>> ProjectError("a.toml: project.seed: got -1, expected a whole number >= 0").problems
+    ('a.toml: project.seed: got -1, expected a whole number >= 0',)
+    """
+
+    def __init__(self, message: str = "", *, problems: tuple[str, ...] | list[str] = ()) -> None:
+        super().__init__(message)
+        self.problems: tuple[str, ...] = tuple(problems) or (" ".join(str(message).split()),)
+
+    def __reduce__(self):  # noqa: ANN204 - keep the problems through pickling (worker processes)
+        return (_project_error, (str(self), self.problems))
+
+
+def _project_error(message: str, problems: tuple[str, ...]) -> ProjectError:
+    return ProjectError(message, problems=problems)
 
 
 class InputError(ImpactlinkError):

@@ -1,8 +1,10 @@
 """The project file (TOML): where the data are, and every setting with its documented default.
 
-A project file is read once, validated, and turned into a frozen :class:`Project`. Unknown
-keys are errors (a typo must not silently fall back to a default). Relative paths are
-resolved against the folder holding the project file.
+A project file is read once, validated against the key schema of
+:mod:`impactlink.project_schema` (type, range and order of every key; every problem listed at
+once, before any computation) and turned into a frozen :class:`Project`. Unknown keys are
+errors with a "did you mean" (a typo must not silently fall back to a default). Relative
+paths are resolved against the folder holding the project file.
 """
 
 from __future__ import annotations
@@ -10,9 +12,11 @@ from __future__ import annotations
 import tomllib
 from dataclasses import asdict, dataclass, field, fields
 from pathlib import Path
-from typing import Any
+from typing import Any, TypeVar
 
 from impactlink.errors import ProjectError
+from impactlink.project_check import check_files, check_raw
+from impactlink.schema import TABLES
 
 __all__ = [
     "ProjectError",
@@ -32,8 +36,7 @@ __all__ = [
 ]
 
 IMPACT_SOURCES = ("yields", "prices", "notices", "field_reports")
-
-
+_S = TypeVar("_S")
 
 
 @dataclass(frozen=True)
@@ -160,32 +163,50 @@ class Project:
 
 # --------------------------------------------------------------------------- loading
 def load_project(path: str | Path, *, output_dir: str | Path | None = None) -> Project:
-    """Read and validate a project file.
+    """Read and validate a project file; every problem is listed at once.
 
     Parameters
     ----------
     path : str or Path
-        The TOML project file.
+        The TOML project file, or a folder holding ``impactlink.toml``. A UTF-8 byte-order
+        mark at the start of the file is accepted.
     output_dir : str or Path, optional
         Overrides ``[project] output_dir``.
+
+    Returns
+    -------
+    Project
 
     Raises
     ------
     ProjectError
-        Missing or unreadable file, unknown keys, impossible values.
+        Missing or unreadable file, invalid TOML, or any problem of the key schema
+        (:mod:`impactlink.project_schema`): unknown or misspelt keys and impact options, values
+        of the wrong type, out of range or out of order, missing data folder or table files,
+        impacts whose source tables are absent. ``exc.problems`` holds one line per problem.
     """
     path = Path(path)
     if path.is_dir():
         path = path / "impactlink.toml"
-    if not path.exists():
+    if not path.is_file():
         raise ProjectError(
             f"project file {path} does not exist; create one with `impactlink init FOLDER`"
         )
     try:
-        raw = tomllib.loads(path.read_text(encoding="utf-8"))
+        text = path.read_text(encoding="utf-8-sig")  # "-sig": a leading BOM is dropped
+    except UnicodeDecodeError as exc:
+        raise ProjectError(
+            f"project file {path} is not UTF-8 text (byte {exc.start}); save it as UTF-8"
+        ) from None
+    except OSError as exc:
+        raise ProjectError(f"project file {path} cannot be read ({exc.strerror}); check "
+                           "its permissions") from None
+    try:
+        raw = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
         raise ProjectError(f"project file {path} is not valid TOML: {exc}") from None
-    return project_from_dict(raw, base=path.parent, path=path, output_dir=output_dir)
+    return project_from_dict(raw, base=path.parent, path=path, output_dir=output_dir,
+                             complete=True)
 
 
 def project_from_dict(
@@ -194,46 +215,75 @@ def project_from_dict(
     base: str | Path = ".",
     path: Path | None = None,
     output_dir: str | Path | None = None,
+    complete: bool = False,
 ) -> Project:
-    """Build a :class:`Project` from the parsed TOML mapping (see :func:`load_project`)."""
+    """Build a :class:`Project` from the parsed TOML mapping (see :func:`load_project`).
+
+    Parameters
+    ----------
+    raw : dict
+        What :func:`tomllib.loads` returned.
+    base : str or Path
+        Folder that relative paths are resolved against.
+    path : Path, optional
+        The project file (named in messages).
+    output_dir : str or Path, optional
+        Overrides ``[project] output_dir``.
+    complete : bool, default False
+        Also check what needs the disk (the data folder and every file under ``[tables]``
+        exist; each impact's source tables are named or found in the data folder) and the
+        values of the impact options the inputs stage reads (``ladder``, ``stage_names``,
+        ``severity_range``). :func:`load_project` passes True; projects built in code leave
+        those checks to the inputs stage.
+
+    Raises
+    ------
+    ProjectError
+        One error listing every problem (``exc.problems``, one line each).
+    """
     where = str(path) if path else "project settings"
-    raw = dict(raw)
-    known = {
-        "project", "tables", "calibration", "indices", "audit", "impacts",
-        "link", "models", "skill", "triggers",
-    }
-    _no_unknown(raw, known, where, "top level")
-    base = Path(base)
+    problems = check_raw(raw, option_values=complete)
+    if not problems and complete:
+        problems = check_files(raw, Path(base), tables_found=_found_tables(raw, Path(base)))
+    if problems:
+        lines = tuple(p.line(where) for p in problems)
+        if len(lines) == 1:
+            raise ProjectError(lines[0], problems=lines)
+        raise ProjectError(
+            f"{where}: {len(lines)} problems in the project file; fix each:\n" + "\n".join(lines),
+            problems=lines,
+        )
+    return _build(raw, base=Path(base), path=path, output_dir=output_dir)
+
+
+def _found_tables(raw: dict[str, Any], base: Path) -> set[str]:
+    """Contract tables found by file name in the data folder (as the inputs stage finds them)."""
+    from impactlink.inputs.discover import SUPPORTED_EXTENSIONS
+
+    folder = (base / raw.get("project", {}).get("data_dir", ".")).resolve()
+    if not folder.is_dir():
+        return set()
+    names = {n.lower(): n for n in TABLES}
+    return {names[p.stem.lower()] for p in folder.iterdir()
+            if p.is_file() and p.stem.lower() in names and p.suffix.lower() in SUPPORTED_EXTENSIONS}
+
+
+def _build(raw: dict[str, Any], *, base: Path, path: Path | None,
+           output_dir: str | Path | None) -> Project:
+    """The :class:`Project` of a mapping without schema problems."""
     proj = dict(raw.get("project", {}))
-    _no_unknown(proj, {"name", "data_dir", "output_dir", "seed", "jobs"}, where, "[project]")
     data_dir = (base / proj.get("data_dir", ".")).resolve()
     out = Path(output_dir) if output_dir else (base / proj.get("output_dir", "impactlink_output"))
-    tables = _tables(raw.get("tables", {}), data_dir, where)
-
+    tables = {k: (data_dir / v).resolve() for k, v in raw.get("tables", {}).items()}
     audit_raw = raw.get("audit", [{}])
     if isinstance(audit_raw, dict):
         audit_raw = [audit_raw]
-    audit = tuple(_section(AuditLadder, a, where, "[[audit]]") for a in audit_raw)
-    for lad in audit:
-        if len(lad.thresholds) != len(lad.stages):
-            raise ProjectError(
-                f"{where}: [[audit]] {lad.name!r} has {len(lad.thresholds)} thresholds but "
-                f"{len(lad.stages)} stage names; give one name per threshold"
-            )
-        if lad.kind not in ("value", "percentile"):
-            raise ProjectError(f"{where}: [[audit]] kind must be 'value' or 'percentile', got {lad.kind!r}")
-
     impacts = []
     for name, spec in raw.get("impacts", {}).items():
         spec = dict(spec)
-        source = spec.pop("source", None)
-        if source not in IMPACT_SOURCES:
-            raise ProjectError(
-                f"{where}: [impacts.{name}] source must be one of {IMPACT_SOURCES}, got {source!r}"
-            )
+        source = spec.pop("source")
         impacts.append(ImpactSpec(name=name, source=source, options=spec))
-
-    project = Project(
+    return Project(
         name=str(proj.get("name", "impactlink project")),
         path=path,
         data_dir=data_dir,
@@ -241,74 +291,27 @@ def project_from_dict(
         tables=tables,
         seed=int(proj.get("seed", 0)),
         jobs=int(proj.get("jobs", 1)),
-        calibration=_section(Calibration, raw.get("calibration", {}), where, "[calibration]"),
-        indices=_section(IndexSettings, raw.get("indices", {}), where, "[indices]"),
-        audit=audit,
+        calibration=_section(Calibration, raw.get("calibration", {})),
+        indices=_section(IndexSettings, raw.get("indices", {})),
+        audit=tuple(_section(AuditLadder, a) for a in audit_raw),
         impacts=tuple(impacts),
-        link=_section(LinkSettings, raw.get("link", {}), where, "[link]"),
-        models=_section(ModelSettings, raw.get("models", {}), where, "[models]"),
-        skill=_section(SkillSettings, raw.get("skill", {}), where, "[skill]"),
-        triggers=_section(TriggerSettings, raw.get("triggers", {}), where, "[triggers]"),
+        link=_section(LinkSettings, raw.get("link", {})),
+        models=_section(ModelSettings, raw.get("models", {})),
+        skill=_section(SkillSettings, raw.get("skill", {})),
+        triggers=_section(TriggerSettings, raw.get("triggers", {})),
     )
-    _check_choices(project, where)
-    return project
 
 
-def _check_choices(p: Project, where: str) -> None:
-    checks = [
-        ("[indices] pet_method", p.indices.pet_method, ("hargreaves", "thornthwaite", "supplied")),
-        ("[models] link", p.models.link, ("logit", "probit")),
-        ("[models] pooling", p.models.pooling, ("all", "region", "county")),
-        ("[skill] cv", p.skill.cv, ("leave_one_year_out", "blocked_k_fold", "leave_one_region_out")),
-    ]
-    for label, value, allowed in checks:
-        if value not in allowed:
-            raise ProjectError(f"{where}: {label} must be one of {allowed}, got {value!r}")
-    if p.calibration.end_year < p.calibration.start_year:
-        raise ProjectError(
-            f"{where}: [calibration] end_year {p.calibration.end_year} is before "
-            f"start_year {p.calibration.start_year}"
-        )
-    if any(s <= 0 for s in (*p.indices.scales_weeks, *p.indices.scales_months)):
-        raise ProjectError(
-            f"{where}: [indices] scales must be positive, got weeks {p.indices.scales_weeks} "
-            f"and months {p.indices.scales_months}"
-        )
-    if any(lag < 0 for lag in p.link.lags_weeks):
-        raise ProjectError(f"{where}: [link] lags_weeks must be >= 0, got {p.link.lags_weeks}")
-
-
-def _tables(raw: dict[str, Any], data_dir: Path, where: str) -> dict[str, Path]:
-    from impactlink.schema import TABLES
-
-    unknown = set(raw) - set(TABLES)
-    if unknown:
-        raise ProjectError(
-            f"{where}: [tables] has unknown table(s) {sorted(unknown)}; known: {sorted(TABLES)}"
-        )
-    return {k: (data_dir / v).resolve() for k, v in raw.items()}
-
-
-def _no_unknown(d: dict, allowed: set[str], where: str, section: str) -> None:
-    unknown = set(d) - allowed
-    if unknown:
-        raise ProjectError(
-            f"{where}: {section} has unknown key(s) {sorted(unknown)}; allowed: {sorted(allowed)}"
-        )
-
-
-def _section(cls, d: dict[str, Any], where: str, section: str):
-    names = {f.name for f in fields(cls)}
-    _no_unknown(d, names, where, section)
-    kwargs = {}
-    for f in fields(cls):
+def _section(cls: type[_S], d: dict[str, Any]) -> _S:
+    """A settings dataclass from its table (lists become tuples; ``[]`` periods become None)."""
+    kwargs: dict[str, Any] = {}
+    for f in fields(cls):  # type: ignore[arg-type]
         if f.name in d:
             v = d[f.name]
+            if f.name in ("early", "late") and v == []:
+                v = None
             kwargs[f.name] = tuple(v) if isinstance(v, list) else v
-    try:
-        return cls(**kwargs)
-    except TypeError as exc:  # pragma: no cover - defensive
-        raise ProjectError(f"{where}: {section}: {exc}") from None
+    return cls(**kwargs)
 
 
 # --------------------------------------------------------------------------- writing
