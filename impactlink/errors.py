@@ -190,7 +190,14 @@ class ReportWarning(ImpactlinkWarning):
 
 
 def user_message(exc: ImpactlinkError) -> str:
-    """The one line the command line prints for a user's mistake."""
+    """What the command line prints for a user's mistake: one line per problem.
+
+    Most errors hold one problem; a project file with several mistakes lists each on its
+    own line (:attr:`ProjectError.problems`), so all of them can be fixed in one go.
+    """
+    problems = getattr(exc, "problems", ())
+    if len(problems) > 1:
+        return "\n".join(f"impactlink: error: {' '.join(str(p).split())}" for p in problems)
     text = " ".join(str(exc).split())  # one line, whatever the message held
     return f"impactlink: error: {text}"
 

@@ -21,7 +21,8 @@ SCENARIO = PACKAGE.parent / "scenario_data"
 
 #: Built-in exceptions that mean "a bug in the caller's code", never a user's mistake.
 PROGRAMMER_ERRORS = {"TypeError", "RuntimeError", "AssertionError", "NotImplementedError",
-                     "StopIteration"}
+                     "StopIteration",
+                     "RunInterrupted"}  # SIGTERM turned into KeyboardInterrupt, not a mistake
 #: Container look-ups by key in the Python API (``cube["spi", 4]``), as a mapping does.
 LOOKUP_ERRORS = {("indices/cube.py", "KeyError"), ("indices/audit.py", "KeyError")}
 
@@ -133,7 +134,6 @@ def test_inputs_latin1_csv_is_one_line(project, capsys):
     _one_line_error(capsys, ["check", str(project / "impactlink.toml")], "yields.csv")
 
 
-@pytest.mark.xfail(strict=True, reason="impact options are checked by the project schema (merging)")
 def test_link_unknown_impact_option_is_one_line(project, capsys):
     p = project / "impactlink.toml"
     p.write_text(p.read_text() + "clas_pct = [10, 20]\n", encoding="utf-8")
@@ -153,3 +153,12 @@ def test_a_bug_keeps_its_traceback(project, monkeypatch):
     monkeypatch.setattr(inputs, "read_inputs", broken)
     with pytest.raises(ZeroDivisionError):
         main(["check", str(project / "impactlink.toml")])
+
+
+def test_several_project_mistakes_are_listed_one_line_each(project, capsys):
+    p = project / "impactlink.toml"
+    p.write_text(p.read_text().replace("seed = 1", 'seed = "twenty"') + "clas_pct = [10, 20]\n",
+                 encoding="utf-8")
+    assert main(["check", str(p)]) == 2
+    err = [ln for ln in capsys.readouterr().err.splitlines() if ln.startswith("impactlink: error:")]
+    assert len(err) == 2 and any("seed" in ln for ln in err) and any("clas_pct" in ln for ln in err)

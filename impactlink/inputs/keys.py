@@ -33,6 +33,8 @@ from dataclasses import dataclass, field
 import numpy as np
 import pandas as pd
 
+from impactlink.errors import InputError
+
 __all__ = ["KeyReport", "KeyMatch", "normalise_key", "normalise_keys", "match_keys"]
 
 
@@ -159,8 +161,8 @@ def match_keys(values: pd.Series, known: Iterable[str], *, key: str = "key") -> 
 
     Raises
     ------
-    ValueError
-        Two known keys have the same normal form (the caller names them in its own error).
+    InputError
+        Two known keys have the same normal form.
 
     Examples
     --------
@@ -173,7 +175,8 @@ def match_keys(values: pd.Series, known: Iterable[str], *, key: str = "key") -> 
     for k in known:  # a handful of names from the project file
         f = normalise_key(str(k))
         if f in forms and forms[f] != k:
-            raise ValueError(f"known keys {forms[f]!r} and {k!r} have the same normal form {f!r}")
+            raise InputError(f"{key}: the names {forms[f]!r} and {k!r} have the same normal form "
+                             f"{f!r}; keep one spelling in the project file")
         forms[f] = k
     norm, report = normalise_keys(values)
     matched = norm.map(forms).astype("string")
