@@ -48,8 +48,18 @@ def build_parser() -> argparse.ArgumentParser:
 
     for name, helptext in STAGE_COMMANDS.items():
         s = sub.add_parser(name, help=helptext)
-        s.add_argument("project", help="project file (TOML) or a folder holding impactlink.toml")
+        s.add_argument("project", help="project file (TOML) or a folder holding impactlink.toml"
+                       + ("; or a trigger plan file (the project is impactlink.toml beside it)"
+                          if name == "triggers" else ""))
         _run_options(s)
+        if name in ("triggers", "run"):
+            s.add_argument("--plan", metavar="PLAN.toml", default=None,
+                           help="replay and score this trigger plan (overrides [triggers] plan)")
+        if name in ("contrast", "run"):
+            s.add_argument("--counties", nargs=2, metavar=("A", "B"), default=None,
+                           help="explain these two counties (ids or names; B may be 'region')")
+            s.add_argument("--period", metavar="YYYY-YYYY", default=None,
+                           help="years to compare, e.g. 2011-2013 (default: the drought year)")
 
     s = sub.add_parser("report", help="rebuild report.html from an existing run folder")
     s.add_argument("run_dir", help="a folder written by `impactlink run`")
@@ -150,7 +160,7 @@ def _dispatch(args: argparse.Namespace) -> int:
     from impactlink.pipeline import run_project
 
     result = run_project(
-        args.project,
+        _project_with_options(args),
         until=cmd,
         out=args.out,
         jobs=args.jobs,
@@ -175,6 +185,39 @@ def _print_check(summary) -> None:  # noqa: ANN001  (CheckSummary; pandas stays 
         print(f"warning: {w}")
     for path in summary.written:
         print(f"wrote {path}")
+
+
+def _project_with_options(args: argparse.Namespace):  # noqa: ANN202
+    """The project, with --plan / --counties / --period laid over its settings."""
+    import dataclasses
+    from pathlib import Path
+
+    from impactlink.project import load_project
+
+    path = Path(args.project)
+    plan = getattr(args, "plan", None)
+    if args.command == "triggers" and path.is_file() and _is_trigger_plan(path):
+        plan, path = str(path.resolve()), path.parent
+    project = load_project(path, output_dir=args.out)
+    if plan:
+        project = dataclasses.replace(project, triggers=dataclasses.replace(
+            project.triggers, plan=str(Path(plan).resolve())))
+    counties, period = getattr(args, "counties", None), getattr(args, "period", None)
+    if counties or period:
+        c = project.contrast
+        project = dataclasses.replace(project, contrast=dataclasses.replace(
+            c, counties=tuple(counties) if counties else c.counties, period=period or c.period))
+    return project
+
+
+def _is_trigger_plan(path) -> bool:  # noqa: ANN001
+    import tomllib
+
+    try:
+        raw = tomllib.loads(path.read_text(encoding="utf-8-sig"))
+    except (OSError, UnicodeDecodeError, tomllib.TOMLDecodeError):
+        return False
+    return "stage" in raw and "project" not in raw
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -29,6 +29,7 @@ __all__ = [
     "ModelSettings",
     "SkillSettings",
     "TriggerSettings",
+    "ContrastSettings",
     "load_project",
     "project_from_dict",
     "render_project_file",
@@ -129,6 +130,19 @@ class SkillSettings:
 class TriggerSettings:
     entry_weeks: int = 2
     exit_weeks: int = 4
+    # a committee's trigger plan (TOML, see scenario_data/trigger_plan.toml); resolved
+    # against the project file's folder; None = no plan replayed
+    plan: str | None = None
+
+
+@dataclass(frozen=True)
+class ContrastSettings:
+    """County contrasts: which two counties to explain (default: the most striking look-alike
+    pair) and over which years ("2011-2013"; default: the pair's drought year)."""
+
+    counties: tuple[str, ...] = ()
+    period: str | None = None
+    n_boot: int = 200
 
 
 @dataclass(frozen=True)
@@ -150,6 +164,7 @@ class Project:
     models: ModelSettings = field(default_factory=ModelSettings)
     skill: SkillSettings = field(default_factory=SkillSettings)
     triggers: TriggerSettings = field(default_factory=TriggerSettings)
+    contrast: ContrastSettings = field(default_factory=ContrastSettings)
 
     def settings_dict(self) -> dict[str, Any]:
         """Plain settings for the manifest (paths as strings)."""
@@ -298,8 +313,16 @@ def _build(raw: dict[str, Any], *, base: Path, path: Path | None,
         link=_section(LinkSettings, raw.get("link", {})),
         models=_section(ModelSettings, raw.get("models", {})),
         skill=_section(SkillSettings, raw.get("skill", {})),
-        triggers=_section(TriggerSettings, raw.get("triggers", {})),
+        triggers=_plan_resolved(_section(TriggerSettings, raw.get("triggers", {})), base),
+        contrast=_section(ContrastSettings, raw.get("contrast", {})),
     )
+
+
+def _plan_resolved(t: TriggerSettings, base: Path) -> TriggerSettings:
+    if t.plan is None:
+        return t
+    return TriggerSettings(entry_weeks=t.entry_weeks, exit_weeks=t.exit_weeks,
+                           plan=str((base / t.plan).resolve()))
 
 
 def _section(cls: type[_S], d: dict[str, Any]) -> _S:
@@ -424,6 +447,12 @@ def render_project_file(
         "[triggers]",
         f"entry_weeks = {t.entry_weeks}",
         f"exit_weeks = {t.exit_weeks}",
+        "# plan = \"trigger_plan.toml\"   # your committee's trigger plan, replayed and scored",
+        "",
+        "[contrast]",
+        "counties = []      # two county ids or names to explain; [] = the most striking look-alike pair",
+        "# period = \"2011-2013\"   # years to compare; default the pair's drought year",
+        "n_boot = 200",
         "",
     ]
     return "\n".join(lines)

@@ -57,7 +57,8 @@ def check_raw(raw: Mapping[str, Any], *, option_values: bool = True) -> list[Pro
     """
     out: list[Problem] = []
     out += _unknown("", raw, TOP_LEVEL, "top-level table")
-    for section in ("project", "calibration", "indices", "link", "models", "skill", "triggers"):
+    for section in ("project", "calibration", "indices", "link", "models", "skill", "triggers",
+                    "contrast"):
         d = raw.get(section, {})
         if _is_table(section, "", d, out):
             out += _keys(section, d, SECTIONS[section])
@@ -102,6 +103,10 @@ def check_files(raw: Mapping[str, Any], base: Path, *, tables_found: set[str]) -
         if not p.exists():
             out.append(Problem("tables", k, f"the file {p} does not exist",
                                "check the name and folder (paths are relative to data_dir)"))
+    plan = raw.get("triggers", {}).get("plan") if isinstance(raw.get("triggers"), dict) else None
+    if isinstance(plan, str) and not (base / plan).resolve().exists():
+        out.append(Problem("triggers", "plan", f"the file {(base / plan).resolve()} does not exist",
+                           "check the name (relative to the project file's folder)"))
     present = named | tables_found
     for name, spec in raw.get("impacts", {}).items():
         source = spec.get("source")

@@ -151,7 +151,10 @@ SECTIONS: dict[str, dict[str, Key]] = {
         "k_folds": _int(2, 1000, "5"), "n_boot": _int(0, 100_000, "200"), "ci": _PROB,
         "n_bins": _int(2, 100_000, "200"), "pairs": _BOOL, "challenger": _BOOL,
     },
-    "triggers": {"entry_weeks": _int(1, 520, "2"), "exit_weeks": _int(1, 520, "4")},
+    "triggers": {"entry_weeks": _int(1, 520, "2"), "exit_weeks": _int(1, 520, "4"),
+                 "plan": Key("text", example='"trigger_plan.toml"')},
+    "contrast": {"counties": Key("texts", order="unique", empty=True, example='["90001", "90003"]'),
+                 "period": Key("text", example='"2011-2013"'), "n_boot": _int(0, 100_000, "200")},
 }
 
 _SEASON = {"season_week": _int(1, 53, "31"), "window_weeks": _int(1, 52, "1"),
@@ -212,7 +215,7 @@ IMPACT_TABLES: dict[str, tuple[tuple[str, ...], ...]] = {
 INPUT_STAGE_OPTIONS = frozenset({"ladder", "stage_names", "severity_range"})
 
 TOP_LEVEL = ("project", "tables", "calibration", "indices", "audit", "impacts", "link", "models",
-        "skill", "triggers")
+        "skill", "triggers", "contrast")
 
 
 # --------------------------------------------------------------------------- one value

@@ -68,6 +68,7 @@ def check_project(path: str | Path, *, out: str | Path | None = None,
     from impactlink.inputs import summary_frame
 
     project = load_project(path)
+    _check_plan(project)
     inputs = stages.read(project, lambda _msg: None)
     bundle = inputs.bundle
     reasons = bundle.rejected.groupby(["table", "reason"]).size().rename("rows").reset_index() \
@@ -152,6 +153,8 @@ def run_project(
     if until not in NEEDS:
         raise ProjectError(f"unknown stage {until!r}; known: {sorted(NEEDS)}")
     project = path if isinstance(path, Project) else load_project(path, output_dir=out)
+    if "triggers" in NEEDS[until]:
+        _check_plan(project)  # a plan's mistakes are found before any computation
     out_dir = publish.guard_output(Path(out) if out else project.output_dir, project, force=force)
     names = NEEDS[until]
     run = Run(project=project, jobs=jobs if jobs is not None else project.jobs,
@@ -171,6 +174,13 @@ def run_project(
     result.written = [out_dir / p.relative_to(tmp) for p in result.written]
     result.state = run
     return result
+
+
+def _check_plan(project: Project) -> None:
+    if project.triggers.plan:
+        from impactlink.triggers import load_trigger_plan
+
+        load_trigger_plan(project.triggers.plan)
 
 
 def _timed(name: str, run: Run, tmp: Path, reporter: Reporter, result: RunResult) -> Run:

@@ -8,8 +8,10 @@ from __future__ import annotations
 
 import warnings as _warnings
 from collections.abc import Callable
+from pathlib import Path
 from typing import Any, Literal, cast
 
+import numpy as np
 import pandas as pd
 
 from impactlink.errors import ContrastError, ContrastWarning
@@ -255,6 +257,11 @@ def triggers(project: Project, inputs: InputsResult, ind: IndicesResult, lk: Lin
     region_of = inputs.bundle.tables["counties"].set_index(COUNTY)["region"].astype(str)
     regions = [region_of.get(c, "all") for c in cube.county_ids]
     frames, timelines = [], []
+    systems = inputs.bundle.tables.get("water_systems")
+    exposed = None
+    if systems is not None and COUNTY in systems.columns:
+        have = set(systems[COUNTY].dropna().astype(str))
+        exposed = np.array([str(c) in have for c in cube.county_ids])
     for target in lk.targets:
         if target.grain != "county_week" or target.role != "state":
             continue
@@ -263,9 +270,12 @@ def triggers(project: Project, inputs: InputsResult, ind: IndicesResult, lk: Lin
             continue
         idx, scale, _lag = cand
         progress(f"triggers {target.name}: {idx} {scale} weeks")
+        grid = impact_grid(target, cube.weeks, cube.county_ids)
+        if exposed is not None and _source_of(project, target.impact) == "notices":
+            grid[:, ~exposed] = np.nan  # no water system: a restriction cannot be recorded
         res = audit_triggers(
             cube.get(idx, scale),
-            impact_grid(target, cube.weeks, cube.county_ids),
+            grid,
             weeks=cube.weeks, county_ids=cube.county_ids, regions=regions,
             index=idx, scale_weeks=scale,
             entry_weeks=project.triggers.entry_weeks, exit_weeks=project.triggers.exit_weeks,
@@ -278,7 +288,16 @@ def triggers(project: Project, inputs: InputsResult, ind: IndicesResult, lk: Lin
         tl = res.timeline_frame().drop(columns=["target"], errors="ignore")
         tl.insert(0, "target", target.name)
         timelines.append(tl)
-    return TriggersResult(_concat(frames), _concat(timelines))
+    plan = None
+    if project.triggers.plan:
+        from impactlink.triggers import run_trigger_plan
+
+        progress(f"trigger plan {Path(project.triggers.plan).name}: replay, scores, tuning")
+        tables = inputs.bundle.tables
+        plan = run_trigger_plan(project.triggers.plan, cube=cube, targets=lk.targets,
+                                counties=tables["counties"],
+                                water_systems=tables.get("water_systems"), seed=project.seed)
+    return TriggersResult(_concat(frames), _concat(timelines), plan)
 
 
 def contrast(project: Project, inputs: InputsResult, ind: IndicesResult, lk: LinkStageResult,
@@ -314,10 +333,65 @@ def contrast(project: Project, inputs: InputsResult, ind: IndicesResult, lk: Lin
             for i, (k, v) in enumerate(meta.items()):
                 frame.insert(i, k, v)
             bucket.append(frame)
-    return ContrastResult(_concat(rows), _concat(excess), _concat(pairs))
+    explained = _explain_pairs(project, inputs, ind, lk, rk, traits, progress)
+    return ContrastResult(_concat(rows), _concat(excess), _concat(pairs), explained=explained)
+
+
+def _explain_pairs(project: Project, inputs: InputsResult, ind: IndicesResult,
+                   lk: LinkStageResult, rk: RankResult, traits: pd.DataFrame,
+                   progress: Progress) -> dict[str, pd.DataFrame]:
+    """Exposure / sensitivity / unexplained split of two counties per annual target.
+
+    The pair is ``[contrast] counties`` when given, else the most striking look-alike pair.
+    Annual (county-year) targets only: weekly targets hold ~100 times more rows and the
+    question extension staff bring is about a season's losses. An ordinal target is
+    contrasted on its most severe level.
+    """
+    from impactlink.contrast import contrast_counties, parse_period
+
+    cs = project.contrast
+    pair = tuple(cs.counties) if cs.counties else None
+    if pair is not None and len(pair) != 2:
+        raise ContrastError(f"[contrast] counties: give two county ids or names (or one and "
+                            f"\"region\"); got {list(pair)}")
+    period = parse_period(cs.period) if cs.period else None
+    counties = inputs.bundle.tables["counties"]
+    names = pd.DataFrame(counties.drop(columns="geometry", errors="ignore"))
+    parts: dict[str, list[pd.DataFrame]] = {k: [] for k in (
+        "contrast.csv", "contrast_summary.csv", "contrast_lookalikes.csv",
+        "contrast_trajectories.csv", "contrast_traits.csv")}
+    for target in lk.targets:
+        if target.grain != "county_year" or target.name not in rk.best:
+            continue
+        cand = rk.best[target.name][1]
+        progress(f"contrast {target.name}: explaining a county pair")
+        try:
+            res = contrast_counties(
+                target, ind.cube, cand, traits, names, pair=pair, period=period,
+                n_boot=cs.n_boot, ci=project.models.curve_ci, seed=project.seed,
+                level_at_least=max(1, target.n_levels - 1))
+        except ContrastError as exc:
+            if pair is not None:
+                raise
+            _warnings.warn(ContrastWarning(f"{target.name}: {exc}"), stacklevel=2)
+            continue
+        for name, frame in (("contrast.csv", res.to_frame()),
+                            ("contrast_summary.csv", res.summary),
+                            ("contrast_lookalikes.csv", res.lookalikes),
+                            ("contrast_trajectories.csv", res.trajectories),
+                            ("contrast_traits.csv", res.traits_side)):
+            frame = frame.drop(columns=["target", "impact"], errors="ignore")
+            frame.insert(0, "target", target.name)
+            frame.insert(0, "impact", target.impact)
+            parts[name].append(frame)
+    return {k: _concat(v) for k, v in parts.items() if v}
 
 
 # ----------------------------------------------------------------------------- helpers
+def _source_of(project: Project, impact: str) -> str | None:
+    return next((s.source for s in project.impacts if s.name == impact), None)
+
+
 def _best_candidate(table: pd.DataFrame | None, target: Any) -> Candidate | None:
     """(index, scale_weeks, lag_weeks) of :func:`impactlink.skill.best_candidate`, or None."""
     from impactlink.skill import best_candidate

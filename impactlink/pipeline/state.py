@@ -121,11 +121,21 @@ class OutlookResult:
 
 @dataclass(frozen=True)
 class TriggersResult:
+    """One-index trigger audit per state target, and the committee's plan when one is given.
+
+    ``plan`` is a :class:`impactlink.triggers.TriggerPlanResult` (None without ``[triggers]
+    plan``); its tables are the ``trigger_plan_*.csv`` files.
+    """
+
     table: pd.DataFrame
     timeline: pd.DataFrame
+    plan: Any = None
 
     def tables(self) -> dict[str, pd.DataFrame]:
-        return {"triggers.csv": self.table, "trigger_timeline.csv": self.timeline}
+        out = {"triggers.csv": self.table, "trigger_timeline.csv": self.timeline}
+        if self.plan is not None:
+            out.update(self.plan.frames())
+        return out
 
 
 @dataclass(frozen=True)
@@ -136,12 +146,16 @@ class ContrastResult:
     excess: pd.DataFrame
     pairs: pd.DataFrame
     computed: bool = True
+    #: the explained pair per annual target: file name -> frame (``contrast.csv``: the parts
+    #: with intervals; ``contrast_summary.csv``, ``contrast_lookalikes.csv``,
+    #: ``contrast_trajectories.csv``, ``contrast_traits.csv``)
+    explained: dict[str, pd.DataFrame] = field(default_factory=dict)
 
     def tables(self) -> dict[str, pd.DataFrame]:
         if not self.computed:
             return {}
-        return {"contrast.csv": self.table, "county_excess.csv": self.excess,
-                "contrast_pairs.csv": self.pairs}
+        return {"contrast_terms.csv": self.table, "county_excess.csv": self.excess,
+                "contrast_pairs.csv": self.pairs, **self.explained}
 
 
 @dataclass(frozen=True)

@@ -18,10 +18,11 @@ from impactlink.report.words_contrast import contrast_paragraph
 def test_scenario_pair_names_soil_water_holding_capacity(scenario_run, name):
     _out, result = scenario_run
     st = result.state
-    target = next(t for t in st["targets"] if t.name == name)
-    _model, best = st["best_models"][name]
-    counties = st["bundle"].tables["counties"].drop(columns="geometry")
-    res = contrast_counties(target, st["cube"], best, st["bundle"].tables["traits"], counties,
+    target = next(t for t in st.link.targets if t.name == name)
+    _model, best = st.rank.best[name]
+    counties = st.inputs.bundle.tables["counties"].drop(columns="geometry")
+    res = contrast_counties(target, st.indices.cube, best, st.inputs.bundle.tables["traits"],
+                            counties,
                             n_boot=20, seed=1)
     s = res.summary.iloc[0]
     assert s["top_trait"] == "soil_whc_mm"

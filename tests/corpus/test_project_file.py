@@ -33,6 +33,7 @@ def make_case(tmp_path: Path, old: str, new: str, *, drop: tuple[str, ...] = ())
     if old:
         assert text.count(old) == 1, f"the case's text {old!r} must occur once"
         text = text.replace(old, new)
+    (tmp_path / "trigger_plan.toml").symlink_to(SCENARIO / "trigger_plan.toml")
     path = tmp_path / "impactlink.toml"
     path.write_text(text, encoding="utf-8")
     return path
@@ -70,7 +71,7 @@ CASES = [
     ("misspelt_section_key", "seed = 20261202", "seeds = 20261202",
      "project.seeds: unknown key; did you mean seed?"),
     ("unknown_section", "[triggers]", "[colour]\nramp = 1\n\n[triggers]",
-     "colour: unknown top-level table; remove it; known: audit, calibration, impacts, indices, "
+     "colour: unknown top-level table; remove it; known: audit, calibration, contrast, impacts, indices, "
      "link, models, project, skill, tables, triggers"),
     ("calibration_reversed", "end_year = 2020", "end_year = 1985",
      "calibration.end_year: 1985 is before start_year 1991; write end_year = 1991 or later (or "
