@@ -16,7 +16,7 @@ from impactlink.link._common import LinkError
 from impactlink.link.target import Target
 
 __all__ = ["feature_values", "feature_matrix", "reference_weeks", "candidate_lags",
-           "season_end_weeks", "end_week"]
+           "season_end_weeks", "end_week", "end_month"]
 
 #: A region value needs index values for at least this share of the region's weight.
 MIN_REGION_WEIGHT = 0.5
@@ -172,6 +172,18 @@ def candidate_lags(target: Target, default_lags) -> tuple[int, ...]:
     if rule.reference == "season_week" and rule.season_end_weeks and rule.season_week:
         return tuple(sorted({int(rule.season_week) - int(w) for w in rule.season_end_weeks}))
     return tuple(int(x) for x in default_lags)
+
+
+def end_month(week: int) -> int:
+    """Calendar month (1-12) holding the Thursday of ISO week ``week`` in a year that starts
+    on a Thursday (1970): the month a mid-month week of :func:`season_end_weeks` stands for.
+
+    Examples
+    --------
+    >>> [end_month(w) for w in season_end_weeks(22, 40, 2, cadence="monthly")]
+    [6, 7, 8, 9]
+    """
+    return int((pd.Timestamp("1970-01-01") + pd.Timedelta(weeks=int(week) - 1)).month)
 
 
 def end_week(target: Target, lag: int) -> int | None:

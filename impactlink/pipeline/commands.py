@@ -205,7 +205,10 @@ def _timed(name: str, run: Run, tmp: Path, reporter: Reporter, result: RunResult
 def _set(run: Run, tmp: Path, **result: Any) -> tuple[Run, list[Path]]:
     run = dataclasses.replace(run, **result)
     (value,) = result.values()
-    return run, publish.write_tables(tmp, value.tables())
+    months_of = None
+    if run.indices is not None:
+        months_of = run.indices.cube.provenance.get("scale_months_of_key")
+    return run, publish.write_tables(tmp, value.tables(), months_of=months_of)
 
 
 def _need(value: Any, name: str) -> Any:

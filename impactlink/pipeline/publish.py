@@ -176,14 +176,20 @@ def _sigterm_aborts() -> Iterator[None]:
 
 
 # ----------------------------------------------------------------------------- writers
-def write_tables(folder: Path, tables: dict[str, pd.DataFrame]) -> list[Path]:
+def write_tables(folder: Path, tables: dict[str, pd.DataFrame], *,
+                 months_of: dict[str, int] | None = None) -> list[Path]:
     """Write each frame by its file name: ``.csv`` or ``.parquet``, deterministic bytes.
 
     CSV: no index, ``\\n`` line ends. Parquet: pyarrow, no index, snappy, no timestamps in
-    the file, so the same frame gives the same bytes.
+    the file, so the same frame gives the same bytes. With ``months_of`` (a monthly input:
+    ``"index:scale_weeks"`` -> months, from the cube's provenance) every table with
+    ``index`` and ``scale_weeks`` columns also gets ``scale_months`` beside them, so monthly
+    time scales are read in months.
     """
     written = []
     for name, frame in tables.items():
+        if months_of:
+            frame = with_scale_months(frame, months_of)
         path = folder / name
         if name.endswith(".parquet"):
             _write_parquet(frame, path)
@@ -191,6 +197,20 @@ def write_tables(folder: Path, tables: dict[str, pd.DataFrame]) -> list[Path]:
             frame.to_csv(path, index=False, lineterminator="\n")
         written.append(path)
     return written
+
+
+def with_scale_months(frame: pd.DataFrame, months_of: dict[str, int]) -> pd.DataFrame:
+    """``frame`` with ``scale_months`` after ``scale_weeks`` (and ``scale2_months``)."""
+    out = frame
+    for idx_col, wk_col, mo_col in (("index", "scale_weeks", "scale_months"),
+                                    ("index2", "scale2_weeks", "scale2_months")):
+        if idx_col in out.columns and wk_col in out.columns and mo_col not in out.columns:
+            weeks = pd.to_numeric(out[wk_col], errors="coerce")
+            keys = out[idx_col].astype(str) + ":" + weeks.astype("Int64").astype(str)
+            months = keys.map(months_of).astype("Int64")
+            out = out.copy()
+            out.insert(out.columns.get_loc(wk_col) + 1, mo_col, months)
+    return out
 
 
 def _write_parquet(frame: pd.DataFrame, path: Path) -> None:

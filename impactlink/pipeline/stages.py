@@ -6,6 +6,7 @@ frames. Progress messages go through the ``progress`` callback.
 
 from __future__ import annotations
 
+import dataclasses
 import warnings as _warnings
 from collections.abc import Callable
 from pathlib import Path
@@ -171,6 +172,10 @@ def rank(project: Project, inputs: InputsResult, ind: IndicesResult, lk: LinkSta
             pairs=sk.pairs, challenger=sk.challenger, seasonal=project.models.seasonal,
             seed=project.seed, jobs=jobs, dask_address=dask_address, progress=progress,
         )
+        monthly = bool(cube.provenance.get("scale_months_of_key"))
+        res = dataclasses.replace(
+            res, table=_with_end_week(res.table, target, "lag_weeks", monthly),
+            summary=_with_end_week(res.summary, target, "best_lag_weeks", monthly))
         for key, frame in (("skill", res.table), ("summary", res.summary),
                            ("reliability", res.reliability), ("local", res.local),
                            ("persistence", res.persistence)):
@@ -388,6 +393,27 @@ def _explain_pairs(project: Project, inputs: InputsResult, ind: IndicesResult,
 
 
 # ----------------------------------------------------------------------------- helpers
+def _with_end_week(table: pd.DataFrame, target: Any, lag_col: str, monthly: bool) -> pd.DataFrame:
+    """Add ``end_week`` (ISO week the accumulation window ends; seasonal targets only) and,
+    for monthly input, ``end_month`` (1-12) after the lag column."""
+    from impactlink.link.features import end_month, end_week
+
+    if table is None or table.empty or lag_col not in table.columns:
+        return table
+    if end_week(target, 0) is None:
+        return table
+    lag = pd.to_numeric(table[lag_col], errors="coerce")
+    ew = (end_week(target, 0) - lag).astype("Int64")
+    out = table.copy()
+    at = out.columns.get_loc(lag_col) + 1
+    name = "end_week" if lag_col == "lag_weeks" else "best_end_week"
+    out.insert(at, name, ew)
+    if monthly:
+        out.insert(at + 1, name.replace("week", "month"),
+                   ew.map(lambda w: end_month(int(w)) if pd.notna(w) else pd.NA).astype("Int64"))
+    return out
+
+
 def _source_of(project: Project, impact: str) -> str | None:
     return next((s.source for s in project.impacts if s.name == impact), None)
 
