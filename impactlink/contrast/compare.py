@@ -12,6 +12,7 @@ from scipy.stats import chi2
 
 from impactlink.errors import ContrastError, ContrastWarning
 from impactlink.link.target import Target
+from impactlink.schema import COUNTY
 
 __all__ = ["ContrastResult", "ContrastWarning", "county_contrast", "poisson_ratio_interval"]
 
@@ -169,7 +170,7 @@ def county_contrast(
     excess = _county_excess(data, base.predict(), alpha)
 
     design = np.column_stack([np.ones_like(xv), xv, z])
-    groups = data["county_id" if cluster == "county" else "year"].to_numpy()
+    groups = data[COUNTY if cluster == "county" else "year"].to_numpy()
     n_groups = len(np.unique(groups))
     if n_groups < 10:
         warnings.warn(
@@ -240,7 +241,7 @@ def _prepare(target, x, traits, link, cluster, ci, n_pairs, n_boot
     if int(n_pairs) < 0 or int(n_boot) < 0:
         raise ContrastError(f"n_pairs and n_boot must be >= 0; got {n_pairs!r}, {n_boot!r}.")
     frame = target.frame
-    if target.grain not in ("county_week", "county_year") or "county_id" not in frame.columns:
+    if target.grain not in ("county_week", "county_year") or COUNTY not in frame.columns:
         raise ContrastError(
             f"target {target.name!r} is on the {target.grain!r} grain; county contrasts need a "
             "county grain (county_week or county_year) with a county_id column."
@@ -254,18 +255,18 @@ def _prepare(target, x, traits, link, cluster, ci, n_pairs, n_boot
             f"x has shape {xv.shape}; expected ({len(frame)},), one feature value per row of "
             f"target {target.name!r}."
         )
-    if not isinstance(traits, pd.DataFrame) or "county_id" not in traits.columns:
+    if not isinstance(traits, pd.DataFrame) or COUNTY not in traits.columns:
         raise ContrastError(
             "traits must be a DataFrame with a county_id column and numeric trait columns."
         )
-    if traits["county_id"].astype(str).duplicated().any():
-        dup = traits.loc[traits["county_id"].astype(str).duplicated(), "county_id"].tolist()[:5]
+    if traits[COUNTY].astype(str).duplicated().any():
+        dup = traits.loc[traits[COUNTY].astype(str).duplicated(), COUNTY].tolist()[:5]
         raise ContrastError(f"traits has repeated county_id values {dup}; one row per county.")
     prov: dict = {"target": target.name, "warnings": [], "rows_in": int(len(frame))}
     numeric = [c for c in traits.columns
-               if c != "county_id" and pd.api.types.is_numeric_dtype(traits[c])
+               if c != COUNTY and pd.api.types.is_numeric_dtype(traits[c])
                and not pd.api.types.is_bool_dtype(traits[c])]
-    other = [c for c in traits.columns if c != "county_id" and c not in numeric]
+    other = [c for c in traits.columns if c != COUNTY and c not in numeric]
     if other:
         _warn(prov, f"non-numeric trait columns left out: {other}")
     if not numeric:
@@ -273,12 +274,12 @@ def _prepare(target, x, traits, link, cluster, ci, n_pairs, n_boot
             "traits has no numeric column besides county_id; add county characteristics such as "
             "irrigated_share or storage_days."
         )
-    tr = traits[["county_id"] + numeric].copy()
-    tr["county_id"] = tr["county_id"].astype(str)
+    tr = traits[[COUNTY] + numeric].copy()
+    tr[COUNTY] = tr[COUNTY].astype(str)
 
     data = pd.DataFrame(
         {
-            "county_id": frame["county_id"].astype(str).to_numpy(),
+            COUNTY: frame[COUNTY].astype(str).to_numpy(),
             "year": frame["year"].to_numpy(),
             "season": frame["season"].to_numpy() if "season" in frame.columns else 0,
             "y": (frame["level"].to_numpy(dtype=np.float64) >= 1).astype(np.float64),
@@ -289,15 +290,15 @@ def _prepare(target, x, traits, link, cluster, ci, n_pairs, n_boot
     if (~ok).any():
         _warn(prov, f"{int((~ok).sum())} rows without a feature value or level left out")
     data = data[ok]
-    data = data.merge(tr, on="county_id", how="left")
+    data = data.merge(tr, on=COUNTY, how="left")
     no_trait = data[numeric].isna().any(axis=1)
     if no_trait.any():
-        missing = sorted(data.loc[no_trait, "county_id"].unique())
+        missing = sorted(data.loc[no_trait, COUNTY].unique())
         _warn(prov, f"{int(no_trait.sum())} rows of {len(missing)} counties without complete "
                     f"traits left out (e.g. {missing[:3]})")
     data = data[~no_trait].reset_index(drop=True)
 
-    county_traits = data.drop_duplicates("county_id")[numeric]
+    county_traits = data.drop_duplicates(COUNTY)[numeric]
     sd = county_traits.std(ddof=1).to_numpy()
     keep = [c for c, s in zip(numeric, sd) if np.isfinite(s) and s > 0]
     if len(keep) < len(numeric):
@@ -315,7 +316,7 @@ def _prepare(target, x, traits, link, cluster, ci, n_pairs, n_boot
             "to fit a county contrast (need >= 20 rows and >= 5 of each outcome)."
         )
     prov.update({"rows_used": int(len(data)), "events": n_events,
-                 "counties": int(data["county_id"].nunique()),
+                 "counties": int(data[COUNTY].nunique()),
                  "traits": keep})
     return data, keep, sd_keep, prov
 
@@ -372,8 +373,8 @@ def _terms(fit, names, alpha, sd, n_groups) -> pd.DataFrame:
 
 
 def _county_excess(data: pd.DataFrame, p_hat: np.ndarray, alpha: float) -> pd.DataFrame:
-    g = pd.DataFrame({"county_id": data["county_id"], "y": data["y"], "p": p_hat})
-    agg = g.groupby("county_id", sort=True).agg(rows=("y", "size"), events=("y", "sum"),
+    g = pd.DataFrame({COUNTY: data[COUNTY], "y": data["y"], "p": p_hat})
+    agg = g.groupby(COUNTY, sort=True).agg(rows=("y", "size"), events=("y", "sum"),
                                                  expected_events=("p", "sum")).reset_index()
     agg["events"] = agg["events"].astype(np.int64)
     lo, hi = poisson_ratio_interval(agg["events"], agg["expected_events"], ci=1 - alpha)
@@ -433,12 +434,12 @@ def _predict(y, d_train, d_test):
 def _pairs(data: pd.DataFrame, trait_names: list[str], n_pairs: int) -> pd.DataFrame:
     event_seasons = np.unique(data.loc[data["y"] == 1, "season"])
     season_rows = data[data["season"].isin(event_seasons)]
-    counties = np.array(sorted(season_rows["county_id"].unique()))
+    counties = np.array(sorted(season_rows[COUNTY].unique()))
     cols = (["county_a", "county_b", "exposure_gap", "rate_a", "rate_b", "events_a", "events_b",
              "rows_a", "rows_b", "largest_trait_gap"] + [f"gap_{t}_sd" for t in trait_names])
     if len(counties) < 2 or n_pairs == 0:
         return pd.DataFrame(columns=cols)
-    grouped = season_rows.groupby("county_id", sort=True)
+    grouped = season_rows.groupby(COUNTY, sort=True)
     q = np.vstack([np.quantile(g["x"].to_numpy(), _EXPOSURE_Q) for _, g in grouped])
     rate = grouped["y"].mean().to_numpy()
     events = grouped["y"].sum().to_numpy().astype(np.int64)

@@ -11,6 +11,8 @@ import numpy as np
 import pandas as pd
 from scipy import special
 
+from impactlink.schema import COUNTY
+
 from .cube import IndexCube
 from .errors import IndicesError
 from .timegrid import grid_years
@@ -48,7 +50,7 @@ class AuditResult:
         if t.empty:
             raise KeyError(f"period {period!r} not in the audit; available: "
                            f"{sorted(self.table['period'].unique())}")
-        wide = t.pivot(index="county_id", columns="stage",
+        wide = t.pivot(index=COUNTY, columns="stage",
                        values=["observed_share", "ratio", "local_threshold"])
         order = list(self.settings.get("stage_names", []))
         wide = wide.reindex(columns=order, level=1)
@@ -237,7 +239,7 @@ def _audit_period(x, years, z_thr, cum_p, expected, n_boot, rng, ci, county_ids,
     if sign < 0:  # the flip reverses the order of the interval bounds
         llo, lhi = lhi, llo
     return pd.DataFrame({
-        "county_id": np.repeat(np.asarray(county_ids, dtype=object), nk),
+        COUNTY: np.repeat(np.asarray(county_ids, dtype=object), nk),
         "stage": np.tile(np.asarray(names, dtype=object), nc),
         "period": label,
         "period_start": y0,

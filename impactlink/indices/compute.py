@@ -17,6 +17,7 @@ from impactlink.indices._pet_grid import (  # noqa: F401  (moved; re-exported fo
     _period_day_mean,
     _pet_grid,
 )
+from impactlink.schema import COUNTY
 
 from .cube import IndexCube
 from .errors import IndexCalibrationWarning, IndicesError, IndicesWarning
@@ -139,8 +140,8 @@ def compute_indices(
     if unknown:
         raise IndicesError(f"indices: unknown {unknown}; expected a subset of {KNOWN_INDICES}")
     clim = _check_climate(climate)
-    cadence = detect_cadence(clim.loc[clim["county_id"] == clim["county_id"].iloc[0], "date"])
-    grid, tpos, cpos = build_grid(clim["county_id"], clim["date"], cadence)
+    cadence = detect_cadence(clim.loc[clim[COUNTY] == clim[COUNTY].iloc[0], "date"])
+    grid, tpos, cpos = build_grid(clim[COUNTY], clim["date"], cadence)
     say(f"indices: {len(clim)} {cadence} rows -> {grid.shape[0]} {grid.step} steps x "
         f"{grid.shape[1]} counties")
     scales = tuple(int(s) for s in (scales_months if grid.step == "monthly" else scales_weeks))
@@ -204,8 +205,8 @@ def compute_pet(
         input) and ``pet_mm`` [mm per step].
     """
     clim = _check_climate(climate)
-    cadence = detect_cadence(clim.loc[clim["county_id"] == clim["county_id"].iloc[0], "date"])
-    grid, tpos, cpos = build_grid(clim["county_id"], clim["date"], cadence)
+    cadence = detect_cadence(clim.loc[clim[COUNTY] == clim[COUNTY].iloc[0], "date"])
+    grid, tpos, cpos = build_grid(clim[COUNTY], clim["date"], cadence)
     pet, _ = _pet_grid(clim, grid, tpos, cpos, latitude_deg, pet_method, use_supplied_pet,
                        min_valid_days)
     if pet is None:
@@ -215,7 +216,7 @@ def compute_pet(
         )
     nt, nc = grid.shape
     return pd.DataFrame({
-        "county_id": np.tile(np.asarray(grid.county_ids, dtype=object), nt),
+        COUNTY: np.tile(np.asarray(grid.county_ids, dtype=object), nt),
         "week": np.repeat(grid.times.values, nc),
         "pet_mm": pet.ravel(),
     })
@@ -341,7 +342,7 @@ def standardized_indices(
 
 
 # --------------------------------------------------------------------------- private steps
-_REQUIRED = ("county_id", "date", "precip_mm")
+_REQUIRED = (COUNTY, "date", "precip_mm")
 _NUMERIC = ("precip_mm", "tmin_c", "tmax_c", "tmean_c", "pet_mm")
 
 
@@ -356,9 +357,9 @@ def _check_climate(climate: pd.DataFrame) -> pd.DataFrame:
         )
     if len(climate) == 0:
         raise IndicesError("climate: the table has no rows")
-    cols = [c for c in ("county_id", "date", *_NUMERIC) if c in climate.columns]
+    cols = [c for c in (COUNTY, "date", *_NUMERIC) if c in climate.columns]
     out = climate[cols].copy()
-    out["county_id"] = out["county_id"].astype(str)
+    out[COUNTY] = out[COUNTY].astype(str)
     try:
         out["date"] = pd.to_datetime(out["date"])
     except (ValueError, TypeError) as exc:
@@ -427,13 +428,13 @@ def _resolve_calibration(precip, grid, calibration, min_years):
 
 
 def _indicator_arrays(indicators, grid, cal, scales, clip, say):
-    missing = [c for c in ("county_id", "date", "indicator", "value") if c not in indicators.columns]
+    missing = [c for c in (COUNTY, "date", "indicator", "value") if c not in indicators.columns]
     if missing:
         raise IndicesError(
             f"indicators: missing column(s) {missing}; expected county_id, date, indicator, value"
         )
-    ind = indicators[["county_id", "date", "indicator", "value"]].copy()
-    ind["county_id"] = ind["county_id"].astype(str)
+    ind = indicators[[COUNTY, "date", "indicator", "value"]].copy()
+    ind[COUNTY] = ind[COUNTY].astype(str)
     ind["date"] = pd.to_datetime(ind["date"])
     ind["value"] = pd.to_numeric(ind["value"], errors="coerce").astype(float)
     cmap = {c: i for i, c in enumerate(grid.county_ids)}
@@ -443,7 +444,7 @@ def _indicator_arrays(indicators, grid, cal, scales, clip, say):
         tpos = ((mon - grid.times[0]).days // 7).to_numpy()
     else:
         tpos = ((d.year - grid.times[0].year) * 12 + d.month - grid.times[0].month).to_numpy()
-    cpos = ind["county_id"].map(cmap).to_numpy(dtype=float)
+    cpos = ind[COUNTY].map(cmap).to_numpy(dtype=float)
     keep = (tpos >= 0) & (tpos < grid.shape[0]) & ~np.isnan(cpos)
     period, n_periods = period_of_year(grid.times, grid.step)
     calib = calibration_mask(grid_years(grid.times, grid.step), cal)

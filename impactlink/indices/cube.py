@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 
 from impactlink.errors import IndicesError
+from impactlink.schema import COUNTY
 
 from .timegrid import week_monday
 
@@ -113,7 +114,7 @@ class IndexCube:
             parts.append(
                 pd.DataFrame(
                     {
-                        "county_id": county_col,
+                        COUNTY: county_col,
                         "week": week_col,
                         "index": key[0],
                         "scale_weeks": np.int16(key[1]),
@@ -123,7 +124,7 @@ class IndexCube:
             )
         out = pd.concat(parts, ignore_index=True)
         out["index"] = out["index"].astype("category")
-        out["county_id"] = out["county_id"].astype("string")
+        out[COUNTY] = out[COUNTY].astype("string")
         return out
 
     @classmethod
@@ -132,13 +133,13 @@ class IndexCube:
         weeks_all = pd.DatetimeIndex(pd.to_datetime(frame["week"]))
         start, end = weeks_all.min(), weeks_all.max()
         weeks = pd.date_range(start, end, freq="7D")
-        counties = tuple(sorted(frame["county_id"].astype(str).unique()))
+        counties = tuple(sorted(frame[COUNTY].astype(str).unique()))
         cpos = {c: i for i, c in enumerate(counties)}
         arrays = {}
         for (idx, scale), g in frame.groupby(["index", "scale_weeks"], observed=True):
             arr = np.full((len(weeks), len(counties)), np.nan)
             wp = ((pd.DatetimeIndex(pd.to_datetime(g["week"])) - start).days // 7).to_numpy()
-            cp = g["county_id"].astype(str).map(cpos).to_numpy()
+            cp = g[COUNTY].astype(str).map(cpos).to_numpy()
             arr[wp, cp] = g["value"].to_numpy(dtype=float)
             arrays[(str(idx), int(scale))] = arr
         return cls(weeks=weeks, county_ids=counties, arrays=arrays, provenance=provenance or {})

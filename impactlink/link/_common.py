@@ -12,6 +12,7 @@ import pandas as pd
 from impactlink.errors import LinkError, LinkWarning
 from impactlink.indices.timegrid import week_monday as monday
 from impactlink.link.target import Target
+from impactlink.schema import COUNTY
 
 __all__ = [
     "LinkResult",
@@ -216,9 +217,9 @@ def coverage_rows(tables: dict[str, pd.DataFrame], names: Iterable[str]) -> pd.D
 def expand_to_counties(cov: pd.DataFrame, counties: pd.DataFrame) -> pd.DataFrame:
     """Coverage rows per county: region-wide rows expand to every county of the region."""
     parts = []
-    if "county_id" in cov.columns:
-        by_c = cov[cov["county_id"].notna()]
-        parts.append(by_c[["county_id", "start_date", "end_date"]].astype({"county_id": str}))
+    if COUNTY in cov.columns:
+        by_c = cov[cov[COUNTY].notna()]
+        parts.append(by_c[[COUNTY, "start_date", "end_date"]].astype({COUNTY: str}))
     else:
         by_c = cov.iloc[:0]
     if "region" in cov.columns and "region" in counties.columns:
@@ -227,11 +228,11 @@ def expand_to_counties(cov: pd.DataFrame, counties: pd.DataFrame) -> pd.DataFram
         if len(by_r):
             m = by_r[["region", "start_date", "end_date"]].merge(
                 pd.DataFrame({"region": counties["region"].astype(str),
-                              "county_id": counties["county_id"].astype(str)}),
+                              COUNTY: counties[COUNTY].astype(str)}),
                 on="region")
-            parts.append(m[["county_id", "start_date", "end_date"]])
+            parts.append(m[[COUNTY, "start_date", "end_date"]])
     if not parts:
-        return pd.DataFrame({"county_id": pd.Series(dtype=str),
+        return pd.DataFrame({COUNTY: pd.Series(dtype=str),
                              "start_date": pd.Series(dtype="datetime64[ns]"),
                              "end_date": pd.Series(dtype="datetime64[ns]")})
     return pd.concat(parts, ignore_index=True)
@@ -247,7 +248,7 @@ def week_coverage(cov: pd.DataFrame | None, weeks: pd.DatetimeIndex,
     if cov is None:
         return np.ones((nw, nc), dtype=bool)
     per = expand_to_counties(cov, counties)
-    cpos = pd.Index(county_ids).get_indexer(per["county_id"].astype(str))
+    cpos = pd.Index(county_ids).get_indexer(per[COUNTY].astype(str))
     s = week_pos(weeks, per["start_date"])
     e = week_pos(weeks, per["end_date"])
     return paint(s, e, cpos, nw, nc) > 0

@@ -12,13 +12,14 @@ from impactlink.link._common import (
     OpenNoticeWarning,
 )
 from impactlink.link.spatial import points_to_counties
+from impactlink.schema import COUNTY
 
 DEFAULT_CAUSES = ("drought", "dry", "low flow", "low_flow", "water shortage", "shortage")
 
 
 # --------------------------------------------------------------------------- preparation
 def _regions(counties) -> pd.Series:
-    ids = counties["county_id"].astype(str).to_numpy()
+    ids = counties[COUNTY].astype(str).to_numpy()
     if "region" in counties.columns:
         return pd.Series(counties["region"].astype(str).to_numpy(), index=ids)
     return pd.Series("all", index=ids)
@@ -37,9 +38,9 @@ def _place(frame: pd.DataFrame, *, counties, tables, crs, issuer_county=None) ->
     county the same issuer's notices were placed in."""
     n = len(frame)
     out = np.full(n, None, dtype=object)
-    known = set(counties["county_id"].astype(str))
-    if "county_id" in frame.columns:
-        c = frame["county_id"]
+    known = set(counties[COUNTY].astype(str))
+    if COUNTY in frame.columns:
+        c = frame[COUNTY]
         has = c.notna().to_numpy()
         out[has] = c[has].astype(str).to_numpy()
     todo = pd.isna(out)
@@ -51,9 +52,9 @@ def _place(frame: pd.DataFrame, *, counties, tables, crs, issuer_county=None) ->
     ws = tables.get("water_systems")
     if todo.any() and ws is not None and len(ws) and "issuer" in frame.columns:
         wsc = np.full(len(ws), None, dtype=object)
-        if "county_id" in ws.columns:
-            has = ws["county_id"].notna().to_numpy()
-            wsc[has] = ws.loc[has, "county_id"].astype(str).to_numpy()
+        if COUNTY in ws.columns:
+            has = ws[COUNTY].notna().to_numpy()
+            wsc[has] = ws.loc[has, COUNTY].astype(str).to_numpy()
         rest = pd.isna(wsc)
         if rest.any():
             wsc[rest] = points_to_counties(ws.loc[rest, "lon"].to_numpy(float),
@@ -81,7 +82,7 @@ def _place_or_reject(frame: pd.DataFrame, table: str, ledger: Ledger, ok: np.nda
     ok &= ~unplaced
     unknown = np.array([isinstance(c, str) and c.startswith("?") for c in county])
     ledger.reject(table, frame, unknown & ok, "county_id not in the counties layer",
-                  column="county_id")
+                  column=COUNTY)
     ok &= ~unknown
     return county
 
@@ -118,7 +119,7 @@ def _prepare_notices(nt: pd.DataFrame, ledger: Ledger, *, opts, K, counties, tab
         "table": "notices",
         "row": nt.index[ok],
         "issuer": nt["issuer"].astype(str).to_numpy()[ok],
-        "county_id": county[ok].astype(str),
+        COUNTY: county[ok].astype(str),
         "start_date": start.to_numpy()[ok],
         "end_date": end.to_numpy()[ok],
         "level": lvl.to_numpy()[ok].astype(np.int64),
@@ -139,9 +140,9 @@ def _snapshots_to_intervals(sn: pd.DataFrame, ledger: Ledger, *, opts, K, counti
     ok &= ~bad
     issuer_county = None
     nt = tables.get("notices")
-    if nt is not None and "county_id" in nt.columns and len(nt):
-        g = nt.dropna(subset=["county_id"])
-        issuer_county = g.groupby(g["issuer"].astype(str))["county_id"].agg(
+    if nt is not None and COUNTY in nt.columns and len(nt):
+        g = nt.dropna(subset=[COUNTY])
+        issuer_county = g.groupby(g["issuer"].astype(str))[COUNTY].agg(
             lambda s: str(s.astype(str).mode().iloc[0]))
     county = _place_or_reject(
         sn, "notice_snapshots", ledger, ok, column="issuer",
@@ -150,11 +151,11 @@ def _snapshots_to_intervals(sn: pd.DataFrame, ledger: Ledger, *, opts, K, counti
         counties=counties, tables=tables, crs=crs, issuer_county=issuer_county)
     d = pd.DataFrame({
         "row": sn.index[ok], "issuer": sn["issuer"].astype(str).to_numpy()[ok],
-        "county_id": county[ok].astype(str),
+        COUNTY: county[ok].astype(str),
         "date": pd.to_datetime(sn["date"]).to_numpy()[ok],
         "level": stage.to_numpy()[ok].astype(np.int64),
-    }).sort_values(["issuer", "county_id", "date"], kind="stable")
-    nxt = d.groupby(["issuer", "county_id"])["date"].shift(-1)
+    }).sort_values(["issuer", COUNTY, "date"], kind="stable")
+    nxt = d.groupby(["issuer", COUNTY])["date"].shift(-1)
     limit = d["date"] + hold
     end = nxt.where(nxt.notna() & (nxt <= limit), limit) - pd.Timedelta(days=1)
     gaps = int((nxt.notna() & (nxt > limit)).sum())
@@ -163,7 +164,7 @@ def _snapshots_to_intervals(sn: pd.DataFrame, ledger: Ledger, *, opts, K, counti
                     f"than snapshot_hold_weeks; their stage was held for that many weeks only")
     return pd.DataFrame({
         "table": "notice_snapshots", "row": d["row"].to_numpy(),
-        "issuer": d["issuer"].to_numpy(), "county_id": d["county_id"].to_numpy(),
+        "issuer": d["issuer"].to_numpy(), COUNTY: d[COUNTY].to_numpy(),
         "start_date": d["date"].to_numpy(), "end_date": end.to_numpy(),
         "level": d["level"].to_numpy(), "n_records": 1,
     })
@@ -171,12 +172,12 @@ def _snapshots_to_intervals(sn: pd.DataFrame, ledger: Ledger, *, opts, K, counti
 
 def _close_open(iv: pd.DataFrame, *, record_end, cap, supersede: bool, ledger: Ledger
                 ) -> pd.DataFrame:
-    iv = iv.sort_values(["issuer", "county_id", "start_date", "row"], kind="stable").reset_index(
+    iv = iv.sort_values(["issuer", COUNTY, "start_date", "row"], kind="stable").reset_index(
         drop=True)
     is_open = iv["end_date"].isna().to_numpy()
     end = iv["end_date"].copy()
     if supersede:
-        nxt = iv.groupby(["issuer", "county_id"])["start_date"].shift(-1)
+        nxt = iv.groupby(["issuer", COUNTY])["start_date"].shift(-1)
         sup = is_open & nxt.notna().to_numpy()
         cand = nxt - pd.Timedelta(days=1)
         cand = cand.where(cand >= iv["start_date"], iv["start_date"])

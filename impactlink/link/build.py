@@ -13,12 +13,12 @@ from impactlink.link.prices import link_prices
 from impactlink.link.reports import link_field_reports
 from impactlink.link.target import Target
 from impactlink.link.yields import link_yields
-from impactlink.schema import EQUAL_AREA_CRS
+from impactlink.schema import COUNTY, EQUAL_AREA_CRS
 
 __all__ = ["build_targets", "panel_frame", "circularity_flags", "PANEL_COLUMNS"]
 
 #: Leading columns of ``panel.parquet``; role-specific columns follow.
-PANEL_COLUMNS = ["target", "impact", "role", "grain", "horizon_weeks", "unit_id", "county_id",
+PANEL_COLUMNS = ["target", "impact", "role", "grain", "horizon_weeks", "unit_id", COUNTY,
                  "region", "time", "year", "season", "level"]
 
 _LINKERS = {
@@ -73,7 +73,7 @@ def build_targets(spec, tables: dict[str, pd.DataFrame], *, counties, weeks: pd.
     if spec.source not in _LINKERS:
         raise LinkError(f"impact {spec.name!r}: source must be one of {sorted(_LINKERS)}, got "
                         f"{spec.source!r}")
-    if "county_id" not in getattr(counties, "columns", []):
+    if COUNTY not in getattr(counties, "columns", []):
         raise LinkError("build_targets: counties has no county_id column; pass the validated "
                         "counties layer")
     res = _LINKERS[spec.source](spec, tables, counties=counties, weeks=pd.DatetimeIndex(weeks),
@@ -121,7 +121,7 @@ def panel_frame(targets: Iterable[Target]) -> pd.DataFrame:
             out[c] = pd.NA
     rest = [c for c in out.columns if c not in PANEL_COLUMNS]
     out = out[PANEL_COLUMNS + rest]
-    for c in ("unit_id", "county_id", "region"):
+    for c in ("unit_id", COUNTY, "region"):
         out[c] = out[c].astype("string")
     return out
 

@@ -14,6 +14,7 @@ import pandas as pd
 from impactlink.indices.timegrid import iso_week_start, week_monday
 from impactlink.link._common import LinkError
 from impactlink.link.target import Target
+from impactlink.schema import COUNTY
 
 __all__ = ["feature_values", "feature_matrix", "reference_weeks", "candidate_lags",
            "season_end_weeks", "end_week", "end_month"]
@@ -220,9 +221,9 @@ def _positions(target: Target, cube) -> tuple[np.ndarray, np.ndarray]:
     if target.grain == "region_month":
         cp = np.zeros(len(fr), dtype=np.int64)
     else:
-        if "county_id" not in fr.columns:
+        if COUNTY not in fr.columns:
             raise LinkError(f"feature_values: target {target.name!r} has no county_id column")
-        cp = pd.Index(cube.county_ids).get_indexer(fr["county_id"].astype(str))
+        cp = pd.Index(cube.county_ids).get_indexer(fr[COUNTY].astype(str))
     if len(_POSITIONS) > 256:
         _POSITIONS.clear()
     _POSITIONS[key] = (ref_pos, cp)
@@ -244,7 +245,7 @@ def _region_values(target, cube, arr, winc, ok, stat) -> np.ndarray:
         raise LinkError(f"feature_values: region target {target.name!r} has no rule.weights")
     regions = pd.Index(sorted(wts["region"].astype(str).unique()))
     W = np.zeros((len(regions), len(cube.county_ids)))
-    cp = pd.Index(cube.county_ids).get_indexer(wts["county_id"].astype(str))
+    cp = pd.Index(cube.county_ids).get_indexer(wts[COUNTY].astype(str))
     rp = regions.get_indexer(wts["region"].astype(str))
     keep = cp >= 0
     W[rp[keep], cp[keep]] = wts["weight"].to_numpy(float)[keep]

@@ -55,7 +55,7 @@ from impactlink.link._notice_records import (
     _snapshots_to_intervals,
 )
 from impactlink.link.target import FeatureRule, Target
-from impactlink.schema import EQUAL_AREA_CRS
+from impactlink.schema import COUNTY, EQUAL_AREA_CRS
 
 __all__ = ["link_notices", "notice_levels", "risk_set", "episodic_targets", "NOTICE_OPTIONS"]
 
@@ -146,7 +146,7 @@ def link_notices(spec, tables: dict[str, pd.DataFrame], *, counties, weeks: pd.D
             "neither was given: add one to [tables]"
         )
     ledger = Ledger(spec.name)
-    county_ids = tuple(sorted(counties["county_id"].astype(str)))
+    county_ids = tuple(sorted(counties[COUNTY].astype(str)))
     region_of = _regions(counties)
     nw, nc = len(weeks), len(county_ids)
 
@@ -180,7 +180,7 @@ def link_notices(spec, tables: dict[str, pd.DataFrame], *, counties, weeks: pd.D
                      supersede=bool(opts.get("supersede_open", True)), ledger=ledger)
 
     # --- weeks on the grid, and which intervals touch covered weeks
-    cpos = pd.Index(county_ids).get_indexer(iv["county_id"])
+    cpos = pd.Index(county_ids).get_indexer(iv[COUNTY])
     ws = week_pos(weeks, iv["start_date"])
     we = week_pos(weeks, iv["end_date"])
     cc = np.vstack([np.zeros((1, nc), dtype=np.int64), np.cumsum(mask, axis=0)])
@@ -379,7 +379,7 @@ def _target_from_grid(impact, name, role, kind, labels, base, rows_mask, *, valu
     cid = np.asarray(county_ids, dtype=object)[c_idx]
     time = weeks_[w_idx]
     frame = pd.DataFrame({
-        "unit_id": cid, "county_id": cid,
+        "unit_id": cid, COUNTY: cid,
         "region": region_of.reindex(cid).to_numpy(),
         "time": time, "year": iso_year(time), "season": iso_season(time),
         "level": values[w_idx, c_idx].astype(np.int64),
@@ -392,7 +392,7 @@ def _target_from_grid(impact, name, role, kind, labels, base, rows_mask, *, valu
     if role == "state":
         frame["episode_weeks"] = base["episode_weeks"][w_idx, c_idx]
     frame["unit_id"] = frame["unit_id"].astype(str)
-    frame["county_id"] = frame["county_id"].astype(str)
+    frame[COUNTY] = frame[COUNTY].astype(str)
     prov = {"rows": len(frame), **provenance}
     return Target(name=name, impact=impact, kind=kind, grain="county_week", role=role,
                   frame=frame, levels=tuple(labels), rule=FeatureRule(),

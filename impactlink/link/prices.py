@@ -18,7 +18,7 @@ from impactlink.link.notices import summarize
 from impactlink.link.spatial import area_weights
 from impactlink.link.target import FeatureRule, Target
 from impactlink.link.yields import shortfall_level
-from impactlink.schema import EQUAL_AREA_CRS
+from impactlink.schema import COUNTY, EQUAL_AREA_CRS
 
 __all__ = ["link_prices", "deflate", "seasonal_anomaly", "PRICE_OPTIONS"]
 
@@ -83,7 +83,7 @@ def link_prices(spec, tables, *, counties, weeks=None, lags_weeks=(),
         if tr is None or col not in tr.columns:
             raise LinkError(f"[impacts.{spec.name}] weight_trait {col!r} needs a traits table "
                             f"with that column")
-        trait = pd.Series(tr[col].to_numpy(float), index=tr["county_id"].astype(str), name=col)
+        trait = pd.Series(tr[col].to_numpy(float), index=tr[COUNTY].astype(str), name=col)
     weights = area_weights(counties, crs=equal_area_crs, trait=trait)
     rule = FeatureRule(reference="month_end", window_weeks=int(opts.get("window_weeks", 4)),
                        window_stat=opts.get("window_stat", "mean"), weights=weights)

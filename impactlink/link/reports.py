@@ -26,7 +26,7 @@ from impactlink.link.notices import (
     episodic_targets,
     summarize,
 )
-from impactlink.schema import EQUAL_AREA_CRS
+from impactlink.schema import COUNTY, EQUAL_AREA_CRS
 
 __all__ = ["link_field_reports", "effort_trend", "REPORT_OPTIONS"]
 
@@ -71,7 +71,7 @@ def link_field_reports(spec, tables, *, counties, weeks, lags_weeks=(0,),
         raise LinkError(f"[impacts.{spec.name}] source 'field_reports' needs a field_reports "
                         "table; add it to [tables]")
     ledger = Ledger(spec.name)
-    county_ids = tuple(sorted(counties["county_id"].astype(str)))
+    county_ids = tuple(sorted(counties[COUNTY].astype(str)))
     region_of = _regions(counties)
     nw, nc = len(weeks), len(county_ids)
     sel = np.ones(len(fr), dtype=bool)
@@ -90,10 +90,10 @@ def link_field_reports(spec, tables, *, counties, weeks, lags_weeks=(0,),
         ledger.reject("field_reports", r, low, f"severity below min_severity "
                       f"{opts['min_severity']}", column="severity")
         ok &= ~low
-    cpos = pd.Index(county_ids).get_indexer(r["county_id"].astype(str))
+    cpos = pd.Index(county_ids).get_indexer(r[COUNTY].astype(str))
     bad = cpos < 0
     ledger.reject("field_reports", r, bad & ok, "county_id not in the counties layer",
-                  column="county_id")
+                  column=COUNTY)
     ok &= ~bad
     wp = week_pos(weeks, r["date"])
     mask = week_coverage(coverage_rows(tables, {spec.name, "field_reports"}), weeks, county_ids,

@@ -9,7 +9,7 @@ import numpy as np
 import pandas as pd
 
 from impactlink.link._common import LinkError, LinkWarning
-from impactlink.schema import EQUAL_AREA_CRS
+from impactlink.schema import COUNTY, EQUAL_AREA_CRS
 
 __all__ = ["area_weights", "points_to_counties"]
 
@@ -58,7 +58,7 @@ def area_weights(counties, *, by: str = "region", crs: str = EQUAL_AREA_CRS,
     >>> area_weights(g)["weight"].tolist()
     [0.25, 0.75]
     """
-    for col in ("county_id", by):
+    for col in (COUNTY, by):
         if col not in counties.columns:
             raise LinkError(
                 f"area_weights: counties has no column {col!r} (columns: {list(counties.columns)}); "
@@ -72,7 +72,7 @@ def area_weights(counties, *, by: str = "region", crs: str = EQUAL_AREA_CRS,
     proj = counties.to_crs(crs)
     out = pd.DataFrame({
         "region": counties[by].astype(str).to_numpy(),
-        "county_id": counties["county_id"].astype(str).to_numpy(),
+        COUNTY: counties[COUNTY].astype(str).to_numpy(),
         "area_km2": proj.geometry.area.to_numpy() / 1e6,
     })
     if trait is None:
@@ -80,7 +80,7 @@ def area_weights(counties, *, by: str = "region", crs: str = EQUAL_AREA_CRS,
     else:
         t = pd.Series(trait)
         t.index = t.index.astype(str)
-        raw = t.reindex(out["county_id"]).to_numpy(dtype=float)
+        raw = t.reindex(out[COUNTY]).to_numpy(dtype=float)
         bad = ~np.isfinite(raw) | (raw < 0)
         if bad.any():
             warnings.warn(
@@ -95,7 +95,7 @@ def area_weights(counties, *, by: str = "region", crs: str = EQUAL_AREA_CRS,
             "positive area or trait value"
         )
     out["weight"] = raw / total
-    return out[["region", "county_id", "weight", "area_km2"]]
+    return out[["region", COUNTY, "weight", "area_km2"]]
 
 
 def points_to_counties(lon, lat, counties, *, crs: str = EQUAL_AREA_CRS) -> np.ndarray:
@@ -119,10 +119,10 @@ def points_to_counties(lon, lat, counties, *, crs: str = EQUAL_AREA_CRS) -> np.n
         )
     pts = gpd.GeoDataFrame({"i": np.flatnonzero(ok)},
                            geometry=gpd.points_from_xy(lon[ok], lat[ok]), crs="EPSG:4326")
-    poly = counties[["county_id", "geometry"]].copy()
-    poly["county_id"] = poly["county_id"].astype(str)
+    poly = counties[[COUNTY, "geometry"]].copy()
+    poly[COUNTY] = poly[COUNTY].astype(str)
     poly = poly.to_crs(crs)
     j = gpd.sjoin(pts.to_crs(crs), poly, how="inner", predicate="intersects")
-    j = j.sort_values(["i", "county_id"]).drop_duplicates("i")
-    out[j["i"].to_numpy()] = j["county_id"].to_numpy()
+    j = j.sort_values(["i", COUNTY]).drop_duplicates("i")
+    out[j["i"].to_numpy()] = j[COUNTY].to_numpy()
     return out

@@ -12,6 +12,7 @@ import numpy as np
 import pandas as pd
 
 from impactlink.errors import ModelError
+from impactlink.schema import COUNTY
 
 #: Mean length of the year in ISO weeks (365.2425 / 7), the period of weekly harmonics.
 WEEKS_PER_YEAR = 365.2425 / 7.0
@@ -58,7 +59,7 @@ class DesignSpec:
         if self.seasonal != "none":
             out.append("season")
         if self.traits:
-            out.append("county_id")
+            out.append(COUNTY)
         return tuple(out)
 
     def build(self, x: dict[str, np.ndarray], frame: pd.DataFrame | None, n: int) -> pd.DataFrame:
@@ -111,7 +112,7 @@ class DesignSpec:
                     f"DesignSpec has traits {list(self.traits)} but no trait_table; build the "
                     "spec with the standardised trait table it was fitted on"
                 )
-            ids = frame["county_id"].astype(str)
+            ids = frame[COUNTY].astype(str)
             for t in self.traits:
                 cols[t] = ids.map(tt[t]).to_numpy(dtype=float)
         return cols
@@ -144,13 +145,13 @@ def standardise_traits(traits: pd.DataFrame, county_ids: pd.Series) -> tuple[pd.
 
     Returns the table and a note on dropped columns (non-numeric or constant).
     """
-    if "county_id" not in traits.columns:
+    if COUNTY not in traits.columns:
         raise ModelError(
             f"traits has columns {list(traits.columns)}; expected a 'county_id' column"
         )
     t = traits.copy()
-    t["county_id"] = t["county_id"].astype(str)
-    t = t.drop_duplicates("county_id").set_index("county_id")
+    t[COUNTY] = t[COUNTY].astype(str)
+    t = t.drop_duplicates(COUNTY).set_index(COUNTY)
     num = t.select_dtypes("number")
     notes = []
     dropped = [c for c in t.columns if c not in num.columns]

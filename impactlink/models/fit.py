@@ -32,6 +32,7 @@ from impactlink.models.separation import (
     separation_symptom,
     slope_precision,
 )
+from impactlink.schema import COUNTY
 
 __all__ = ["ImpactModel", "fit_impact_model", "SEPARATION_LIMIT", "POOLINGS"]
 
@@ -174,7 +175,7 @@ def fit_impact_model(
         )
     if pooling in ("region", "county") and "region" not in frame.columns:
         raise ModelError(f"pooling={pooling!r} needs a 'region' column in the target frame")
-    if pooling == "county" and "county_id" not in frame.columns:
+    if pooling == "county" and COUNTY not in frame.columns:
         raise ModelError("pooling='county' needs a 'county_id' column in the target frame")
     xd = as_feature_dict(x, len(frame))
 
@@ -189,9 +190,9 @@ def fit_impact_model(
             notes.append("seasonal terms ignored for an annual target")
     trait_table, trait_names = None, ()
     if traits is not None:
-        if "county_id" not in frame.columns:
+        if COUNTY not in frame.columns:
             raise ModelError("traits need a 'county_id' column in the target frame")
-        trait_table, note = standardise_traits(traits, frame["county_id"])
+        trait_table, note = standardise_traits(traits, frame[COUNTY])
         trait_names = tuple(trait_table.columns)
         if note:
             notes.append(note)

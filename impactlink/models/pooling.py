@@ -22,6 +22,7 @@ import numpy as np
 import pandas as pd
 
 from impactlink.models import _links
+from impactlink.schema import COUNTY
 
 __all__ = ["county_partial_pooling", "estimate_county_deviations"]
 
@@ -70,14 +71,14 @@ def county_partial_pooling(whole, members: dict, Xall: pd.DataFrame, y: np.ndarr
         cuts[rows] = m.cuts
         parent_name[rows] = r if m is members[r] else "all"
     keep = np.isfinite(eta) & np.isfinite(y) & np.isfinite(cuts).all(axis=1)
-    ids = frame["county_id"].astype(str).to_numpy()[keep]
+    ids = frame[COUNTY].astype(str).to_numpy()[keep]
     codes, county_ids = pd.factorize(ids, sort=True)
     yk = y[keep].astype(np.int64)
     est = estimate_county_deviations(eta[keep], cuts[keep], yk, codes, whole.link)
     first = pd.Series(np.arange(keep.sum())).groupby(codes).first().to_numpy()
     groups = pd.DataFrame(
         {
-            "county_id": np.asarray(county_ids, dtype=object),
+            COUNTY: np.asarray(county_ids, dtype=object),
             "region": regions[keep][first],
             "n": np.bincount(codes, minlength=len(county_ids)),
             "events": np.bincount(codes, weights=(yk >= 1), minlength=len(county_ids)).astype(

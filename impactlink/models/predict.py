@@ -14,6 +14,7 @@ import pandas as pd
 
 from impactlink.errors import ModelError
 from impactlink.models._design import as_feature_dict
+from impactlink.schema import COUNTY
 
 if TYPE_CHECKING:
     from impactlink.models.result import ImpactModel
@@ -64,15 +65,15 @@ def linear_predictor(model: ImpactModel, x_new, frame: pd.DataFrame | None
         Xd = member.spec.build(sub_x, sub_f, rows.size).to_numpy(dtype=float)
         lp[rows], var[rows] = lp_var(member, Xd)
     if m.pooling == "county":
-        if "county_id" not in frame.columns:
+        if COUNTY not in frame.columns:
             raise ModelError("a model with pooling='county' needs a 'county_id' column in frame")
         if m.groups is None:
             raise ModelError(
                 "a model with pooling='county' has groups=None; it cannot add county "
                 "deviations. Fit it with fit_impact_model(..., pooling='county')."
             )
-        g = m.groups.set_index("county_id")
-        ids = frame["county_id"].astype(str)
+        g = m.groups.set_index(COUNTY)
+        ids = frame[COUNTY].astype(str)
         u = np.array(ids.map(g["deviation"]).to_numpy(dtype=float))
         u_sd = np.array(ids.map(g["deviation_sd"]).to_numpy(dtype=float))
         unseen = np.isnan(u)

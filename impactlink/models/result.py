@@ -16,6 +16,7 @@ from impactlink.link.target import FeatureRule
 from impactlink.models import _links
 from impactlink.models._design import DesignSpec
 from impactlink.models.predict import check_ci, linear_predictor
+from impactlink.schema import COUNTY
 
 __all__ = ["ImpactModel"]
 
@@ -204,7 +205,7 @@ class ImpactModel:
             parts.append(
                 pd.DataFrame(
                     {
-                        "unit": g["county_id"].to_numpy(),
+                        "unit": g[COUNTY].to_numpy(),
                         "term": "county_deviation",
                         "estimate": g["deviation"].to_numpy(),
                         "std_error": g["deviation_sd"].to_numpy(),

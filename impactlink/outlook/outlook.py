@@ -18,11 +18,12 @@ import pandas as pd
 from impactlink.errors import OutlookError
 from impactlink.indices.timegrid import week_monday
 from impactlink.models.fit import ImpactModel, _check_ci
+from impactlink.schema import COUNTY
 
 __all__ = ["impact_outlook", "plot_outlook_map", "OUTLOOK_COLUMNS"]
 
 OUTLOOK_COLUMNS = (
-    "county_id", "impact", "target", "index", "scale_weeks", "lag_weeks", "horizon_weeks",
+    COUNTY, "impact", "target", "index", "scale_weeks", "lag_weeks", "horizon_weeks",
     "as_of_week", "valid_week", "level_k", "level_label", "prob", "prob_lo", "prob_hi",
     "model", "note",
 )
@@ -122,14 +123,14 @@ def plot_outlook_map(outlook: pd.DataFrame, counties, *, level_k: int = 1,
     -------
     matplotlib.figure.Figure
     """
-    need = {"county_id", "lag_weeks", "level_k", "prob"}
+    need = {COUNTY, "lag_weeks", "level_k", "prob"}
     lacking = sorted(need - set(outlook.columns))
     if lacking:
         raise OutlookError(f"outlook lacks column(s) {lacking}; pass the output of impact_outlook")
-    if "county_id" not in getattr(counties, "columns", []):
+    if COUNTY not in getattr(counties, "columns", []):
         raise OutlookError("counties must be a GeoDataFrame with a 'county_id' column")
     sel = outlook[outlook["level_k"] == level_k]
-    dup = sel.duplicated(["county_id", "lag_weeks"])
+    dup = sel.duplicated([COUNTY, "lag_weeks"])
     if dup.any():
         raise OutlookError(
             "outlook has several rows per county and lag for level_k="
@@ -145,12 +146,12 @@ def plot_outlook_map(outlook: pd.DataFrame, counties, *, level_k: int = 1,
     ncol = max(1, len(lags))
     fig = Figure(figsize=(4.0 * ncol, 4.0), layout="constrained")
     axes = fig.subplots(1, ncol, squeeze=False).ravel()
-    geo = counties[["county_id", "geometry"]].copy()
-    geo["county_id"] = geo["county_id"].astype(str)
+    geo = counties[[COUNTY, "geometry"]].copy()
+    geo[COUNTY] = geo[COUNTY].astype(str)
     for ax, lag in zip(axes, lags):
-        s = sel[sel["lag_weeks"] == lag][["county_id", "prob"]].copy()
-        s["county_id"] = s["county_id"].astype(str)
-        g = geo.merge(s, on="county_id", how="left")
+        s = sel[sel["lag_weeks"] == lag][[COUNTY, "prob"]].copy()
+        s[COUNTY] = s[COUNTY].astype(str)
+        g = geo.merge(s, on=COUNTY, how="left")
         g.plot(ax=ax, color="#d9d9d9", edgecolor="white", linewidth=0.3)
         have = g[g["prob"].notna()]
         if len(have):
@@ -171,14 +172,14 @@ def plot_outlook_map(outlook: pd.DataFrame, counties, *, level_k: int = 1,
 # ------------------------------------------------------------------ private steps
 def _county_table(cube, counties: pd.DataFrame | None) -> pd.DataFrame:
     if counties is None:
-        return pd.DataFrame({"county_id": list(cube.county_ids), "region": pd.NA})
-    if "county_id" not in counties.columns:
+        return pd.DataFrame({COUNTY: list(cube.county_ids), "region": pd.NA})
+    if COUNTY not in counties.columns:
         raise OutlookError(f"counties has columns {list(counties.columns)}; expected 'county_id' "
                          "(and 'region')")
-    out = pd.DataFrame({"county_id": counties["county_id"].astype(str).to_numpy()})
+    out = pd.DataFrame({COUNTY: counties[COUNTY].astype(str).to_numpy()})
     out["region"] = (counties["region"].astype(str).to_numpy() if "region" in counties.columns
                      else pd.NA)
-    return out.drop_duplicates("county_id").reset_index(drop=True)
+    return out.drop_duplicates(COUNTY).reset_index(drop=True)
 
 
 def _feature_specs(key, model: ImpactModel) -> dict[str, tuple[str, int, int]]:
@@ -233,7 +234,7 @@ def _one_model(key, model, cube, units, have_counties, state, as_of_week, ci) ->
                              "'county_id' and 'region'")
         unit_ids = units["region"].astype(str).to_numpy()
     else:
-        unit_ids = units["county_id"].astype(str).to_numpy()
+        unit_ids = units[COUNTY].astype(str).to_numpy()
     frame = _forecast_frame(model, units, unit_ids, valid)
     probs = np.full((n, K), np.nan)
     lo = np.full((n, K), np.nan)
@@ -259,7 +260,7 @@ def _one_model(key, model, cube, units, have_counties, state, as_of_week, ci) ->
             note[frame[c].isna().to_numpy() & (note == "")] = msg
         at_risk = np.ones(n, bool)
         if model.role == "onset" and state is not None and "level" in state.columns:
-            current = _state_column(state, "level", units["county_id"])
+            current = _state_column(state, "level", units[COUNTY])
             at_risk = ~(current >= 1)
             note[~at_risk] = "already in an episode; onset not applicable"
         probs = model.predict(x, frame=frame)
@@ -270,7 +271,7 @@ def _one_model(key, model, cube, units, have_counties, state, as_of_week, ci) ->
         note[missing] = "a predictor value is missing"
     out = pd.DataFrame(
         {
-            "county_id": np.repeat(units["county_id"].to_numpy(), K),
+            COUNTY: np.repeat(units[COUNTY].to_numpy(), K),
             "impact": model.impact,
             "target": model.target,
             "index": first[0] if len(specs) == 1 else "+".join(s[0] for s in specs.values()),
@@ -307,7 +308,7 @@ def _forecast_frame(model, units, unit_ids, valid) -> pd.DataFrame:
     return pd.DataFrame(
         {
             "unit_id": unit_ids,
-            "county_id": units["county_id"].astype(str).to_numpy(),
+            COUNTY: units[COUNTY].astype(str).to_numpy(),
             "region": units["region"].to_numpy(),
             "time": np.repeat(np.datetime64(time, "ns"), n),
             "year": int(time.year),
@@ -323,9 +324,9 @@ def _add_state(frame: pd.DataFrame, model, state, unit_ids) -> dict[str, str]:
     covs = model.design.covariates if model.design is not None else ()
     for c in covs:
         if state is not None and c in state.columns:
-            frame[c] = _state_column(state, c, frame["county_id"])
+            frame[c] = _state_column(state, c, frame[COUNTY])
         elif state is not None and c.startswith("persistence_") and "level" in state.columns:
-            frame[c] = _state_column(state, "level", frame["county_id"])
+            frame[c] = _state_column(state, "level", frame[COUNTY])
         else:
             frame[c] = np.nan
             notes[c] = f"state column {c!r} not supplied"
@@ -333,8 +334,8 @@ def _add_state(frame: pd.DataFrame, model, state, unit_ids) -> dict[str, str]:
 
 
 def _state_column(state: pd.DataFrame, column: str, county_ids: pd.Series) -> np.ndarray:
-    if "county_id" not in state.columns:
+    if COUNTY not in state.columns:
         raise OutlookError(f"state has columns {list(state.columns)}; expected 'county_id'")
-    s = state.assign(county_id=state["county_id"].astype(str)).drop_duplicates(
-        "county_id", keep="last").set_index("county_id")[column]
+    s = state.assign(county_id=state[COUNTY].astype(str)).drop_duplicates(
+        COUNTY, keep="last").set_index(COUNTY)[column]
     return pd.to_numeric(county_ids.astype(str).map(s), errors="coerce").to_numpy(dtype=float)

@@ -33,6 +33,7 @@ import pandas as pd
 from impactlink import __version__
 from impactlink.errors import ProjectError
 from impactlink.project import Project
+from impactlink.schema import COUNTY
 
 from .state import Run
 
@@ -232,13 +233,13 @@ def write_layers(folder: Path, run: Run) -> None:
     path = folder / "counties.gpkg"
     if path.exists():
         path.unlink()
-    base = counties[[c for c in ("county_id", "county_name", "region", "geometry") if c in counties]]
+    base = counties[[c for c in (COUNTY, "county_name", "region", "geometry") if c in counties]]
     base.to_file(path, layer="counties", driver="GPKG")
     local = run.rank.local if run.rank is not None else None
     if local is not None and len(local):
         # one row per county and target: best candidate, its skill and the events it rests on
-        unit = local[local["level"] == "unit"].rename(columns={"unit": "county_id"})
-        layer = base.merge(unit.drop(columns=["level"]), on="county_id", how="inner")
+        unit = local[local["level"] == "unit"].rename(columns={"unit": COUNTY})
+        layer = base.merge(unit.drop(columns=["level"]), on=COUNTY, how="inner")
         if len(layer):
             layer.to_file(path, layer="best_candidate", driver="GPKG")
 

@@ -12,6 +12,7 @@ from scipy.special import ndtr
 from impactlink.errors import TriggerError
 from impactlink.indices.timegrid import week_monday
 from impactlink.link.target import Target
+from impactlink.schema import COUNTY
 from impactlink.triggers.replay import _check_values, _replay
 from impactlink.triggers.scores import TriggerScores, _labels, _ratio, evaluate_trigger
 from impactlink.triggers.tune import (
@@ -27,7 +28,7 @@ __all__ = ["TriggerResult", "audit_triggers", "firing_rate_audit", "impact_grid"
 
 #: Columns of ``triggers.csv``, in order.
 TRIGGER_COLUMNS = (
-    "county_id", "region", "scope", "index", "scale_weeks", "threshold", "entry_weeks",
+    COUNTY, "region", "scope", "index", "scale_weeks", "threshold", "entry_weeks",
     "exit_weeks", "weeks_on_share", "below_share", "nominal_share", "activations", "hit_rate",
     "false_alarm_ratio", "peirce_skill", "csi", "lead_weeks_median", "lead_weeks_q1",
     "lead_weeks_q3", "events", "cv_peirce_skill",
@@ -87,7 +88,7 @@ class TriggerResult:
             weeks = fire["weeks"].to_numpy()
             frame = pd.DataFrame(
                 {
-                    "county_id": list(self.county_ids) + ["all"],
+                    COUNTY: list(self.county_ids) + ["all"],
                     "region": list(self.regions) + [""],
                     "scope": scope,
                     "index": self.index,
@@ -269,7 +270,7 @@ def impact_grid(
             f"target {target.name!r} is on the {target.grain!r} grain; trigger audits need a "
             "county_week target (the 'state' role of a weekly impact)."
         )
-    missing = [c for c in ("county_id", "time", "level") if c not in target.frame.columns]
+    missing = [c for c in (COUNTY, "time", "level") if c not in target.frame.columns]
     if missing:
         raise TriggerError(f"target {target.name!r} frame lacks columns {missing}.")
     f = target.frame
@@ -277,7 +278,7 @@ def impact_grid(
     monday = week_monday(f["time"])
     wp = np.asarray((monday - w[0]).days // 7, dtype=np.int64)
     lookup = {str(c): i for i, c in enumerate(county_ids)}
-    cp = np.array([lookup.get(str(c), -1) for c in f["county_id"]], dtype=np.int64)
+    cp = np.array([lookup.get(str(c), -1) for c in f[COUNTY]], dtype=np.int64)
     ok = (wp >= 0) & (wp < len(w)) & (cp >= 0)
     lev = f["level"].to_numpy(dtype=np.float64)
     ok &= np.isfinite(lev)
@@ -406,7 +407,7 @@ def _timeline(values, impact_level, weeks, ids, chosen, plans) -> pd.DataFrame:
                 pd.DataFrame(
                     {
                         "week": pd.DatetimeIndex(weeks),
-                        "county_id": ids[p],
+                        COUNTY: ids[p],
                         "scope": scope,
                         "index_value": values[:, p],
                         "threshold": tuned.thresholds[p],
@@ -417,7 +418,7 @@ def _timeline(values, impact_level, weeks, ids, chosen, plans) -> pd.DataFrame:
             )
     if not parts:
         return pd.DataFrame(
-            columns=["week", "county_id", "scope", "index_value", "threshold", "trigger_on",
+            columns=["week", COUNTY, "scope", "index_value", "threshold", "trigger_on",
                      "impact_level"]
         )
     return pd.concat(parts, ignore_index=True)

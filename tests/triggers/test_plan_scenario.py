@@ -26,15 +26,15 @@ def scenario_link(tmp_path_factory):
 def plan_result(scenario_link):
     _, result = scenario_link
     st = result.state
-    tables = st["bundle"].tables
-    return run_trigger_plan(PLAN, cube=st["cube"], targets=st["targets"],
+    tables = st.inputs.bundle.tables
+    return run_trigger_plan(PLAN, cube=st.indices.cube, targets=st.link.targets,
                             counties=tables["counties"], water_systems=tables["water_systems"],
                             seed=1)
 
 
 def test_counties_without_water_systems_bring_no_false_alarms(plan_result, scenario_link):
     _, result = scenario_link
-    systems = result.state["bundle"].tables["water_systems"]
+    systems = result.state.inputs.bundle.tables["water_systems"]
     with_systems = set(systems["county_id"].astype(str))
     ids = plan_result.replay.unit_ids
     without = [c for c in ids if c not in with_systems]
@@ -45,7 +45,7 @@ def test_counties_without_water_systems_bring_no_false_alarms(plan_result, scena
     # every unit-week of the 26 is left out of the weekly table: the pooled counts equal the
     # counts over the 34 alone
     rep = plan_result.replay
-    target = next(t for t in result.state["targets"]
+    target = next(t for t in result.state.link.targets
                   if t.impact == "restrictions" and t.role == "state")
     lev = impact_grid(target, rep.weeks, ids)
     keep = np.array([c in with_systems for c in ids])
