@@ -16,6 +16,7 @@ from typing import Any, TypeVar
 
 from impactlink.errors import ProjectError
 from impactlink.project_check import check_files, check_raw
+from impactlink.project_schema import toml_text
 from impactlink.schema import TABLES
 
 __all__ = [
@@ -459,14 +460,4 @@ def render_project_file(
 
 
 def _toml(v: Any) -> str:
-    if isinstance(v, bool):
-        return "true" if v else "false"
-    if isinstance(v, (int, float)):
-        return repr(v)
-    if isinstance(v, str):
-        return '"' + v.replace("\\", "\\\\").replace('"', '\\"') + '"'
-    if isinstance(v, (list, tuple)):
-        return "[" + ", ".join(_toml(x) for x in v) + "]"
-    if isinstance(v, dict):
-        return "{ " + ", ".join(f"{_toml(k)} = {_toml(x)}" for k, x in v.items()) + " }"
-    raise TypeError(f"cannot write {type(v).__name__} to TOML")
+    return toml_text(v)  # the one TOML writer (impactlink.project_schema)
