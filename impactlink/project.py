@@ -29,6 +29,9 @@ __all__ = [
     "project_from_dict",
     "render_project_file",
     "IMPACT_SOURCES",
+    "FormatSettings",
+    "UnitSettings",
+    "TABLE_FORMATS",
 ]
 
 IMPACT_SOURCES = ("yields", "prices", "notices", "field_reports")
@@ -128,6 +131,61 @@ class TriggerSettings:
     exit_weeks: int = 4
 
 
+# --------------------------------------------------------------------------- [formats] / [units]
+# Publisher formats a table may be given in, and the units of per-zone climate files. Kept in
+# one block: the dataclasses, their validation (_check_formats) and nothing else.
+#: Formats each table may be written in ("table" = the input contract as is).
+TABLE_FORMATS: dict[str, tuple[str, ...]] = {
+    "climate": ("table", "zones"), "indicators": ("table", "zones"),
+    "yields": ("table", "quickstats"), "counties": ("table", "topojson"),
+}
+UNIT_CHOICES: dict[str, tuple[str, ...]] = {"precip_unit": ("", "in", "mm"),
+                                            "temp_unit": ("", "F", "C")}
+
+
+@dataclass(frozen=True)
+class FormatSettings:
+    """How each table's file is written (``[formats]``); ``"table"`` = the input contract.
+
+    ``"zones"``: one series per zone (climate division, basin, grid cell) given to counties
+    by the zone-to-county table ``zones`` (a file, relative to the data folder);
+    ``zone_column`` names the zone id column of the per-zone files (blank = found by name).
+    ``"quickstats"``: a USDA NASS Quick Stats CSV export. ``"topojson"``: TopoJSON counties
+    with the GEOID as feature id, kept for the counties in the data.
+    """
+
+    climate: str = "table"
+    indicators: str = "table"
+    yields: str = "table"
+    counties: str = "table"
+    zones: str = ""
+    zone_column: str = ""
+
+
+@dataclass(frozen=True)
+class UnitSettings:
+    """Units of per-zone climate files (``[units]``), converted once; blank = from the header."""
+
+    precip_unit: str = ""  # "in" | "mm"
+    temp_unit: str = ""  # "F" | "C"
+
+
+def _check_formats(formats: FormatSettings, units: UnitSettings, where: str) -> None:
+    for table, allowed in TABLE_FORMATS.items():
+        value = getattr(formats, table)
+        if value not in allowed:
+            raise ProjectError(f"{where}: [formats] {table} must be one of {allowed}, got "
+                               f"{value!r}")
+    zoned = [t for t in ("climate", "indicators") if getattr(formats, t) == "zones"]
+    if zoned and not formats.zones:
+        raise ProjectError(f"{where}: [formats] {zoned[0]} = \"zones\" needs the zone-to-county "
+                           "table: add zones = \"FILE.csv\" under [formats]")
+    for key, allowed in UNIT_CHOICES.items():
+        if getattr(units, key) not in allowed:
+            raise ProjectError(f"{where}: [units] {key} must be one of {allowed[1:]}, got "
+                               f"{getattr(units, key)!r}")
+
+
 @dataclass(frozen=True)
 class Project:
     """A validated project."""
@@ -147,6 +205,8 @@ class Project:
     models: ModelSettings = field(default_factory=ModelSettings)
     skill: SkillSettings = field(default_factory=SkillSettings)
     triggers: TriggerSettings = field(default_factory=TriggerSettings)
+    formats: FormatSettings = field(default_factory=FormatSettings)
+    units: UnitSettings = field(default_factory=UnitSettings)
 
     def settings_dict(self) -> dict[str, Any]:
         """Plain settings for the manifest (paths as strings)."""
@@ -200,7 +260,7 @@ def project_from_dict(
     raw = dict(raw)
     known = {
         "project", "tables", "calibration", "indices", "audit", "impacts",
-        "link", "models", "skill", "triggers",
+        "link", "models", "skill", "triggers", "formats", "units",
     }
     _no_unknown(raw, known, where, "top level")
     base = Path(base)
@@ -249,8 +309,11 @@ def project_from_dict(
         models=_section(ModelSettings, raw.get("models", {}), where, "[models]"),
         skill=_section(SkillSettings, raw.get("skill", {}), where, "[skill]"),
         triggers=_section(TriggerSettings, raw.get("triggers", {}), where, "[triggers]"),
+        formats=_section(FormatSettings, raw.get("formats", {}), where, "[formats]"),
+        units=_section(UnitSettings, raw.get("units", {}), where, "[units]"),
     )
     _check_choices(project, where)
+    _check_formats(project.formats, project.units, where)
     return project
 
 
@@ -318,6 +381,9 @@ def render_project_file(
     name: str = "my drought project",
     output_dir: str = "impactlink_output",
     impacts: dict[str, dict[str, Any]] | None = None,
+    formats: dict[str, str] | None = None,
+    units: dict[str, str] | None = None,
+    settings: dict[str, dict[str, Any]] | None = None,
 ) -> str:
     """A commented project file with every setting at its documented default.
 
@@ -328,10 +394,21 @@ def render_project_file(
     impacts : dict, optional
         Impact name -> options (must include ``source``). Default: one impact per impact
         table found, with default options.
+    formats, units : dict, optional
+        ``[formats]`` and ``[units]`` keys (:class:`FormatSettings`, :class:`UnitSettings`);
+        the sections are written only when given.
+    settings : dict, optional
+        Values that replace the defaults of ``calibration``, ``indices`` and ``audit`` (for
+        example the periods ``impactlink init`` read from the data).
     """
+    from dataclasses import replace
+
+    over = settings or {}
     c, i, a, lk, m, s, t = (
-        Calibration(), IndexSettings(), AuditLadder(), LinkSettings(),
-        ModelSettings(), SkillSettings(), TriggerSettings(),
+        replace(Calibration(), **over.get("calibration", {})),
+        replace(IndexSettings(), **over.get("indices", {})),
+        replace(AuditLadder(), **over.get("audit", {})),
+        LinkSettings(), ModelSettings(), SkillSettings(), TriggerSettings(),
     )
     if impacts is None:
         impacts = {}
@@ -359,6 +436,12 @@ def render_project_file(
         "[tables]            # contract table -> file",
     ]
     lines += [f"{k} = {_toml(v)}" for k, v in sorted(tables.items())]
+    if formats:
+        lines += ["", "[formats]           # how each file is written (table = the input contract)"]
+        lines += [f"{k} = {_toml(v)}" for k, v in formats.items()]
+    if units:
+        lines += ["", "[units]             # units of the per-zone climate file, converted once"]
+        lines += [f"{k} = {_toml(v)}" for k, v in units.items()]
     lines += [
         "",
         "[calibration]       # period for fitting index distributions (30-year normals)",

@@ -44,6 +44,13 @@ class InputBundle:
         Contract table name -> file read.
     warnings : list of str
         Recoverable surprises (also issued as :class:`InputWarning`).
+    notes : list of str
+        What the publisher-format readers did (units converted, zones assigned, features
+        kept); empty for contract tables.
+    provenance : dict
+        Publisher-format extras by ``{table}_{what}``: ``climate_provenance`` /
+        ``indicators_provenance`` (county -> zone step), ``yields_items`` (Quick Stats
+        data items found).
     """
 
     tables: dict[str, pd.DataFrame]
@@ -52,6 +59,8 @@ class InputBundle:
     checksums: dict[str, str]
     files: dict[str, Path]
     warnings: list[str] = field(default_factory=list)
+    notes: list[str] = field(default_factory=list)
+    provenance: dict[str, pd.DataFrame] = field(default_factory=dict)
 
     def to_frame(self) -> pd.DataFrame:
         """The per-table row counts (same as :attr:`counts`)."""

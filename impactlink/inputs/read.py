@@ -25,6 +25,7 @@ from impactlink.inputs.bundle import (
     summary_frame,
 )
 from impactlink.inputs.discover import _candidates, _unsupported
+from impactlink.inputs.publisher import read_published
 from impactlink.inputs.table_rules import (
     DEFAULT_LADDER,
     DEFAULT_REGION,
@@ -91,15 +92,28 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
     rejected: list[pd.DataFrame] = []
     counts: list[dict[str, Any]] = []
     checksums: dict[str, str] = {}
+    if _declares_formats(project):
+        say("reading tables in publisher formats")
+    published, checksums = read_published(project, files)
+    if "zones" in published:  # counted for the manifest; not a contract table
+        rejected.append(published["zones"].rejected)
+        counts.append(published["zones"].counts)
     for name, path in files.items():
         say(f"reading {name} from {path.name}")
-        clean, check = _read_table(name, path, ctx, notes)
+        if name in published:
+            pub = published[name]
+            clean = pub.clean
+            rejected.append(pub.rejected)
+            counts.append(pub.counts)
+            notes += pub.warnings
+        else:
+            clean, check = _read_table(name, path, ctx, notes)
+            rejected.append(check.rejected())
+            counts.append(_count_row(name, path, check, clean))
+            checksums.update(checksums_for(path))
         if name == "counties":
             ctx.set_counties(clean)
         tables[name] = clean
-        rejected.append(check.rejected())
-        counts.append(_count_row(name, path, check, clean))
-        checksums.update(checksums_for(path))
     _check_record_length(tables["climate"], files["climate"], project)
     notes += _climate_gaps(tables["climate"], tables["counties"], files["climate"], project)
     for message in notes:
@@ -113,7 +127,15 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
         checksums=checksums,
         files=dict(files),
         warnings=notes,
+        notes=[n for p in published.values() for n in p.notes],
+        provenance={f"{k}_{d}": v for k, p in published.items() for d, v in p.details.items()},
     )
+
+
+def _declares_formats(project: Project) -> bool:
+    """Whether any table is declared in a publisher format under ``[formats]``."""
+    fm = project.formats
+    return any(v != "table" for v in (fm.climate, fm.indicators, fm.yields, fm.counties))
 
 
 
