@@ -51,8 +51,8 @@ class RunResult:
 
 # ----------------------------------------------------------------------------- commands
 def init_project(folder: str | Path, *, force: bool = False) -> Path:
-    """Find the contract's tables in ``folder`` and write a commented ``impactlink.toml``."""
-    from impactlink.inputs import discover_tables
+    """Find the tables in ``folder`` and write a commented ``impactlink.toml`` (see plan_project)."""
+    from impactlink.inputs.init_plan import plan_project
 
     folder = Path(folder)
     if not folder.is_dir():
@@ -60,12 +60,8 @@ def init_project(folder: str | Path, *, force: bool = False) -> Path:
     target = folder / "impactlink.toml"
     if target.exists() and not force:
         raise ProjectError(f"{target} exists; use --force to overwrite it")
-    tables = discover_tables(folder)
-    text = render_project_file(
-        {k: Path(v).name for k, v in tables.items()},
-        name=folder.resolve().name,
-        output_dir="impactlink_output",
-    )
+    text = render_project_file(**plan_project(folder), name=folder.resolve().name,
+                               output_dir="impactlink_output")
     target.write_text(text, encoding="utf-8")
     return target
 

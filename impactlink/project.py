@@ -424,7 +424,9 @@ def render_project_file(
         raise AssertionError("AuditLadder(): the default early and late periods must be set")
     lines = [
         "# impactlink project file. Paths are relative to this file's folder.",
-        "# Every setting below is at its documented default; edit what you need.",
+        ("# Formats, units, periods, PET method and impacts were read from the data; the rest"
+         if (settings or formats) else "# Every setting below"),
+        "# is at its documented default; edit what you need.",
         "",
         "[project]",
         f"name = {_toml(name)}",
