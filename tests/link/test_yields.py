@@ -152,7 +152,7 @@ def test_too_short_series_is_rejected(counties):
 def test_errors(counties):
     weeks = pd.date_range("2000-01-03", periods=10, freq="7D")
     ys = _yields_table()
-    with pytest.raises(LinkError, match="trend must be linear, quadratic or lowess"):
+    with pytest.raises(LinkError, match="trend must be auto, linear, quadratic or lowess"):
         build_targets(ImpactSpec("x", "yields", {"trend": "cubic"}), {"yields": ys},
                       counties=counties, weeks=weeks)
     with pytest.raises(LinkError, match="needs a yields table"):
