@@ -14,7 +14,7 @@ import pytest
 
 from impactlink.errors import ProjectError
 from impactlink.inputs.formats import QUICKSTATS_COLUMNS
-from impactlink.inputs.init_plan import pet_method_for, periods_for, plan_project
+from impactlink.inputs.init_plan import periods_for, pet_method_for, plan_project
 from impactlink.inputs.recognise import recognise_file, recognise_files
 from impactlink.pipeline import init_project
 from impactlink.project import project_from_dict
