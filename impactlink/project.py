@@ -13,6 +13,12 @@ from pathlib import Path
 from typing import Any
 
 from impactlink.errors import ProjectError
+from impactlink.project_formats import (  # [formats] / [units]: publisher layouts and units
+    TABLE_FORMATS,
+    FormatSettings,
+    UnitSettings,
+    check_formats,
+)
 
 __all__ = [
     "ProjectError",
@@ -129,61 +135,6 @@ class SkillSettings:
 class TriggerSettings:
     entry_weeks: int = 2
     exit_weeks: int = 4
-
-
-# --------------------------------------------------------------------------- [formats] / [units]
-# Publisher formats a table may be given in, and the units of per-zone climate files. Kept in
-# one block: the dataclasses, their validation (_check_formats) and nothing else.
-#: Formats each table may be written in ("table" = the input contract as is).
-TABLE_FORMATS: dict[str, tuple[str, ...]] = {
-    "climate": ("table", "zones"), "indicators": ("table", "zones"),
-    "yields": ("table", "quickstats"), "counties": ("table", "topojson"),
-}
-UNIT_CHOICES: dict[str, tuple[str, ...]] = {"precip_unit": ("", "in", "mm"),
-                                            "temp_unit": ("", "F", "C")}
-
-
-@dataclass(frozen=True)
-class FormatSettings:
-    """How each table's file is written (``[formats]``); ``"table"`` = the input contract.
-
-    ``"zones"``: one series per zone (climate division, basin, grid cell) given to counties
-    by the zone-to-county table ``zones`` (a file, relative to the data folder);
-    ``zone_column`` names the zone id column of the per-zone files (blank = found by name).
-    ``"quickstats"``: a USDA NASS Quick Stats CSV export. ``"topojson"``: TopoJSON counties
-    with the GEOID as feature id, kept for the counties in the data.
-    """
-
-    climate: str = "table"
-    indicators: str = "table"
-    yields: str = "table"
-    counties: str = "table"
-    zones: str = ""
-    zone_column: str = ""
-
-
-@dataclass(frozen=True)
-class UnitSettings:
-    """Units of per-zone climate files (``[units]``), converted once; blank = from the header."""
-
-    precip_unit: str = ""  # "in" | "mm"
-    temp_unit: str = ""  # "F" | "C"
-
-
-def _check_formats(formats: FormatSettings, units: UnitSettings, where: str) -> None:
-    for table, allowed in TABLE_FORMATS.items():
-        value = getattr(formats, table)
-        if value not in allowed:
-            raise ProjectError(f"{where}: [formats] {table} must be one of {allowed}, got "
-                               f"{value!r}")
-    zoned = [t for t in ("climate", "indicators") if getattr(formats, t) == "zones"]
-    if zoned and not formats.zones:
-        raise ProjectError(f"{where}: [formats] {zoned[0]} = \"zones\" needs the zone-to-county "
-                           "table: add zones = \"FILE.csv\" under [formats]")
-    for key, allowed in UNIT_CHOICES.items():
-        if getattr(units, key) not in allowed:
-            raise ProjectError(f"{where}: [units] {key} must be one of {allowed[1:]}, got "
-                               f"{getattr(units, key)!r}")
 
 
 @dataclass(frozen=True)
@@ -313,7 +264,7 @@ def project_from_dict(
         units=_section(UnitSettings, raw.get("units", {}), where, "[units]"),
     )
     _check_choices(project, where)
-    _check_formats(project.formats, project.units, where)
+    check_formats(project.formats, project.units, where)
     return project
 
 
