@@ -16,6 +16,12 @@ from typing import Any, TypeVar
 
 from impactlink.errors import ProjectError
 from impactlink.project_check import check_files, check_raw
+from impactlink.project_formats import (  # [formats] / [units]: publisher layouts and units
+    TABLE_FORMATS,
+    FormatSettings,
+    UnitSettings,
+    check_formats,
+)
 from impactlink.project_schema import toml_text
 from impactlink.schema import TABLES
 
@@ -35,6 +41,9 @@ __all__ = [
     "project_from_dict",
     "render_project_file",
     "IMPACT_SOURCES",
+    "FormatSettings",
+    "UnitSettings",
+    "TABLE_FORMATS",
 ]
 
 IMPACT_SOURCES = ("yields", "prices", "notices", "field_reports")
@@ -166,6 +175,8 @@ class Project:
     skill: SkillSettings = field(default_factory=SkillSettings)
     triggers: TriggerSettings = field(default_factory=TriggerSettings)
     contrast: ContrastSettings = field(default_factory=ContrastSettings)
+    formats: FormatSettings = field(default_factory=FormatSettings)
+    units: UnitSettings = field(default_factory=UnitSettings)
 
     def settings_dict(self) -> dict[str, Any]:
         """Plain settings for the manifest (paths as strings)."""
@@ -299,7 +310,7 @@ def _build(raw: dict[str, Any], *, base: Path, path: Path | None,
         spec = dict(spec)
         source = spec.pop("source")
         impacts.append(ImpactSpec(name=name, source=source, options=spec))
-    return Project(
+    project = Project(
         name=str(proj.get("name", "impactlink project")),
         path=path,
         data_dir=data_dir,
@@ -316,7 +327,11 @@ def _build(raw: dict[str, Any], *, base: Path, path: Path | None,
         skill=_section(SkillSettings, raw.get("skill", {})),
         triggers=_plan_resolved(_section(TriggerSettings, raw.get("triggers", {})), base),
         contrast=_section(ContrastSettings, raw.get("contrast", {})),
+        formats=_section(FormatSettings, raw.get("formats", {})),
+        units=_section(UnitSettings, raw.get("units", {})),
     )
+    check_formats(project.formats, project.units, str(path) if path else "project settings")
+    return project
 
 
 def _plan_resolved(t: TriggerSettings, base: Path) -> TriggerSettings:
@@ -345,6 +360,9 @@ def render_project_file(
     name: str = "my drought project",
     output_dir: str = "impactlink_output",
     impacts: dict[str, dict[str, Any]] | None = None,
+    formats: dict[str, str] | None = None,
+    units: dict[str, str] | None = None,
+    settings: dict[str, dict[str, Any]] | None = None,
 ) -> str:
     """A commented project file with every setting at its documented default.
 
@@ -355,10 +373,21 @@ def render_project_file(
     impacts : dict, optional
         Impact name -> options (must include ``source``). Default: one impact per impact
         table found, with default options.
+    formats, units : dict, optional
+        ``[formats]`` and ``[units]`` keys (:class:`FormatSettings`, :class:`UnitSettings`);
+        the sections are written only when given.
+    settings : dict, optional
+        Values that replace the defaults of ``calibration``, ``indices`` and ``audit`` (for
+        example the periods ``impactlink init`` read from the data).
     """
+    from dataclasses import replace
+
+    over = settings or {}
     c, i, a, lk, m, s, t = (
-        Calibration(), IndexSettings(), AuditLadder(), LinkSettings(),
-        ModelSettings(), SkillSettings(), TriggerSettings(),
+        replace(Calibration(), **over.get("calibration", {})),
+        replace(IndexSettings(), **over.get("indices", {})),
+        replace(AuditLadder(), **over.get("audit", {})),
+        LinkSettings(), ModelSettings(), SkillSettings(), TriggerSettings(),
     )
     if impacts is None:
         impacts = {}
@@ -374,7 +403,9 @@ def render_project_file(
         raise AssertionError("AuditLadder(): the default early and late periods must be set")
     lines = [
         "# impactlink project file. Paths are relative to this file's folder.",
-        "# Every setting below is at its documented default; edit what you need.",
+        ("# Formats, units, periods, PET method and impacts were read from the data; the rest"
+         if (settings or formats) else "# Every setting below"),
+        "# is at its documented default; edit what you need.",
         "",
         "[project]",
         f"name = {_toml(name)}",
@@ -386,6 +417,12 @@ def render_project_file(
         "[tables]            # contract table -> file",
     ]
     lines += [f"{k} = {_toml(v)}" for k, v in sorted(tables.items())]
+    if formats:
+        lines += ["", "[formats]           # how each file is written (table = the input contract)"]
+        lines += [f"{k} = {_toml(v)}" for k, v in formats.items()]
+    if units:
+        lines += ["", "[units]             # units of the per-zone climate file, converted once"]
+        lines += [f"{k} = {_toml(v)}" for k, v in units.items()]
     lines += [
         "",
         "[calibration]       # period for fitting index distributions (30-year normals)",

@@ -58,7 +58,7 @@ def check_raw(raw: Mapping[str, Any], *, option_values: bool = True) -> list[Pro
     out: list[Problem] = []
     out += _unknown("", raw, TOP_LEVEL, "top-level table")
     for section in ("project", "calibration", "indices", "link", "models", "skill", "triggers",
-                    "contrast"):
+                    "contrast", "formats", "units"):
         d = raw.get(section, {})
         if _is_table(section, "", d, out):
             out += _keys(section, d, SECTIONS[section])

@@ -153,6 +153,11 @@ SECTIONS: dict[str, dict[str, Key]] = {
     },
     "triggers": {"entry_weeks": _int(1, 520, "2"), "exit_weeks": _int(1, 520, "4"),
                  "plan": Key("text", example='"trigger_plan.toml"')},
+    "formats": {"climate": _choice("table", "zones"), "indicators": _choice("table", "zones"),
+                "yields": _choice("table", "quickstats"), "counties": _choice("table", "topojson"),
+                "zones": Key("text", example='"county_to_zone.csv"'),
+                "zone_column": Key("text", example='"climdiv_id"')},
+    "units": {"precip_unit": _choice("mm", "in"), "temp_unit": _choice("C", "F")},
     "contrast": {"counties": Key("texts", order="unique", empty=True, example='["90001", "90003"]'),
                  "period": Key("text", example='"2011-2013"'), "n_boot": _int(0, 100_000, "200")},
 }
@@ -215,7 +220,7 @@ IMPACT_TABLES: dict[str, tuple[tuple[str, ...], ...]] = {
 INPUT_STAGE_OPTIONS = frozenset({"ladder", "stage_names", "severity_range"})
 
 TOP_LEVEL = ("project", "tables", "calibration", "indices", "audit", "impacts", "link", "models",
-        "skill", "triggers", "contrast")
+        "skill", "triggers", "contrast", "formats", "units")
 
 
 # --------------------------------------------------------------------------- one value

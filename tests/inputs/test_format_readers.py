@@ -65,7 +65,7 @@ def test_each_marker_is_rejected_with_its_own_reason(tmp_path):
     res = read_quickstats(_write_qs(tmp_path / "download.csv", rows))
     assert res.frame["yield"].tolist() == [1234.5]  # "1,234.5": thousands separator removed
     rej = res.rejected
-    assert rej["row"].tolist() == [3, 4, 5, 6, 7]  # header is row 1, first data row is row 2
+    assert rej["row"].tolist() == [2, 3, 4, 5, 6]  # header excluded: first data row is row 1
     assert rej["reason"].tolist() == list(MARKER_REASONS.values())
     assert rej["value"].tolist() == list(MARKER_REASONS)
     assert len(set(MARKER_REASONS.values())) == 5
@@ -79,7 +79,7 @@ def test_each_marker_is_rejected_with_its_own_reason(tmp_path):
 def test_bad_values(tmp_path, value, reason):
     res = read_quickstats(_write_qs(tmp_path / "q.csv", [_qs_row(), _qs_row(Value=value,
                                                                             Year="2021")]))
-    assert res.rejected["reason"].tolist() == [reason] and res.rejected["row"].tolist() == [3]
+    assert res.rejected["reason"].tolist() == [reason] and res.rejected["row"].tolist() == [2]
 
 
 def test_geoid_pooled_state_and_other_levels(tmp_path):
@@ -112,7 +112,7 @@ def test_several_crops_practices_and_items(tmp_path):
         _qs_row(Domain="AREA OPERATED", Value="1"),
         _qs_row(Period="YEAR - AUG FORECAST", Value="1"),
         _qs_row(**{"Data Item": "NOT A NASS ITEM"}),
-        _qs_row(Value="151"),  # same county, year, crop and practice as row 2
+        _qs_row(Value="151"),  # same county, year, crop and practice as data row 1
     ]
     res = read_quickstats(_write_qs(tmp_path / "q.csv", rows))
     f = res.frame.sort_values(["crop", "practice"])
@@ -122,7 +122,7 @@ def test_several_crops_practices_and_items(tmp_path):
         ("corn silage", "all", 20.0, "tons / acre"), ("soybeans", "all", 55.0, "bu / acre")]
     r = QUICKSTATS_REASONS
     assert res.rejected["reason"].tolist() == [r["not_yield"], r["not_yield"], r["domain"],
-                                               r["period"], r["data_item"], "duplicate of row 2"]
+                                               r["period"], r["data_item"], "duplicate of row 1"]
     items = res.details["items"]
     assert len(items) == 8 and items["rows"].sum() == 11 and items["rows_used"].sum() == 5
 
@@ -175,7 +175,7 @@ def test_zone_table_forms(tmp_path):
                                "A1,Z2,0.75\nA2,Z1,0\nA2,Z2,x\nA1,Z1,0.1\n"))
     assert w.frame["weight"].tolist() == [0.25, 0.75]
     assert w.rejected["reason"].tolist() == [ZONE_REASONS["weight"], "unparseable number",
-                                             "duplicate of row 2"]
+                                             "duplicate of row 1"]
     with pytest.raises(InputError, match=r"d\.csv: cannot tell the county and zone columns"):
         read_zone_table(_write(tmp_path / "d.csv", "a,b,c\n1,2,3\n"))
 
@@ -212,17 +212,17 @@ def test_zone_rows_rejected_with_reasons(tmp_path):
     zones = pd.DataFrame({"county_id": ["A1", "A2"], "zone": ["0101", "0102"],
                           "weight": [1.0, 1.0]})
     p = _write(tmp_path / "c.csv", "climdiv_id,year,month,precip_in,tavg_f\n"
-               "0101,2000,1,1.0,50\n"    # row 2 used
-               "101,2000,1,1.0,50\n"     # row 3: "101" is not "0101" (ids matched as text)
-               "0102,2000,13,1.0,50\n"   # row 4: month 13
-               "0102,2000,2,-99.99,50\n"  # row 5: NCEI missing code
-               "0102,2000,3,-1,50\n"     # row 6: negative
-               "0102,2000,4,1,200\n"     # row 7: 93 C
-               ",2000,5,1,50\n"          # row 8: blank zone
-               "0102,2000,6,x,50\n")     # row 9: not a number
+               "0101,2000,1,1.0,50\n"    # data row 1 used
+               "101,2000,1,1.0,50\n"     # data row 2: "101" is not "0101" (ids matched as text)
+               "0102,2000,13,1.0,50\n"   # data row 3: month 13
+               "0102,2000,2,-99.99,50\n"  # data row 4: NCEI missing code
+               "0102,2000,3,-1,50\n"     # data row 5: negative
+               "0102,2000,4,1,200\n"     # data row 6: 93 C
+               ",2000,5,1,50\n"          # data row 7: blank zone
+               "0102,2000,6,x,50\n")     # data row 8: not a number
     res = read_zone_climate(p, zones, counties=["A1", "A2", "A9"])
     assert res.frame[["county_id", "precip_mm"]].values.tolist() == [["A1", 25.4]]
-    assert res.rejected["row"].tolist() == [3, 4, 5, 6, 7, 8, 9]
+    assert res.rejected["row"].tolist() == [2, 3, 4, 5, 6, 7, 8]
     assert res.rejected["reason"].tolist() == [
         ZONE_REASONS["no_county"], "unparseable date", "sentinel value",
         "negative precipitation", "temperature out of range", "missing required value",

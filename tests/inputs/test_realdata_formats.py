@@ -71,9 +71,9 @@ def test_quickstats_every_row_used_or_rejected(data, quickstats):
 
 def test_quickstats_pooled_rows_rejected_with_their_reason(data, quickstats):
     raw = _rows(data / QS)
-    pooled_lines = [i + 2 for i, r in enumerate(raw) if r["County ANSI"] == ""]  # header = line 1
+    pooled_lines = [i + 1 for i, r in enumerate(raw) if r["County ANSI"] == ""]  # header excluded
     assert len(pooled_lines) == 14  # README: 14 OTHER (COMBINED) COUNTIES / OTHER COUNTIES rows
-    assert {raw[i - 2]["County"] for i in pooled_lines} == {"OTHER (COMBINED) COUNTIES",
+    assert {raw[i - 1]["County"] for i in pooled_lines} == {"OTHER (COMBINED) COUNTIES",
                                                            "OTHER COUNTIES"}
     rej = quickstats.rejected
     assert rej["row"].tolist() == pooled_lines

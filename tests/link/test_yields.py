@@ -152,7 +152,7 @@ def test_too_short_series_is_rejected(counties):
 def test_errors(counties):
     weeks = pd.date_range("2000-01-03", periods=10, freq="7D")
     ys = _yields_table()
-    with pytest.raises(LinkError, match="trend must be linear, quadratic or lowess"):
+    with pytest.raises(LinkError, match="trend must be auto, linear, quadratic or lowess"):
         build_targets(ImpactSpec("x", "yields", {"trend": "cubic"}), {"yields": ys},
                       counties=counties, weeks=weeks)
     with pytest.raises(LinkError, match="needs a yields table"):
@@ -162,3 +162,56 @@ def test_errors(counties):
                       counties=counties, weeks=weeks)
     with pytest.raises(LinkError, match="need at least 3 years"):
         loo_trend(np.array([1.0, 2.0]), np.array([1.0, 2.0]))
+
+
+def _curved_yields(seed=3):
+    """Planted-signal panel: four counties on a quadratic technology trend with noise."""
+    rng = np.random.default_rng(seed)
+    years = np.arange(1960, 2010)
+    rows = [(c, int(yr), "corn grain", "all",
+             40.0 + 0.02 * (yr - 1960) ** 2 + rng.normal(0, 2.0))
+            for c in ("a", "b", "c", "d") for yr in years]
+    return pd.DataFrame(rows, columns=["county_id", "year", "crop", "practice", "yield"])
+
+
+def test_auto_trend_is_chosen_by_held_out_error_and_recorded(counties):
+    from impactlink.link.yields import AUTO_TRENDS
+
+    ys = _curved_yields()
+    res = build_targets(ImpactSpec("corn", "yields", {"trend": "auto"}), {"yields": ys},
+                        counties=counties, weeks=pd.date_range("1960-01-04", periods=10,
+                                                               freq="7D"))
+    ordinal = res.targets[0]
+    prov = ordinal.provenance
+    errs = pd.DataFrame(prov["trend_errors"])
+    assert prov["trend_requested"] == "auto"
+    assert errs["trend"].tolist() == [t.name for t in AUTO_TRENDS]  # every candidate reported
+    assert errs["chosen"].sum() == 1 and errs.loc[errs["chosen"], "rank"].item() == 1
+    assert prov["trend"] == errs.loc[errs["rank"] == 1, "trend"].item()
+    # a bending trend is not left to the straight line
+    assert prov["trend"] != "linear"
+    assert errs.set_index("trend").loc["quadratic", "rmse"] < errs.set_index(
+        "trend").loc["linear", "rmse"]
+    # the expected yield is the chosen trend refitted without the year: for a quadratic,
+    # numpy.polyfit on the other years (reference implementation); for LOWESS, statsmodels
+    fr = ordinal.frame[ordinal.frame["county_id"] == "a"].sort_values("year")
+    g = ys[ys["county_id"] == "a"]
+    x, y = g["year"].to_numpy(float), g["yield"].to_numpy(float)
+    if prov["trend"] == "quadratic":
+        want = [np.polyval(np.polyfit(np.delete(x, i), np.delete(y, i), 2), x[i])
+                for i in range(len(x))]
+    else:
+        from statsmodels.nonparametric.smoothers_lowess import lowess
+
+        span = float(prov["trend"].split("_")[1])
+        want = [lowess(np.delete(y, i), np.delete(x, i), frac=span, it=0,
+                       xvals=x[i:i + 1])[0] for i in range(len(x))]
+    np.testing.assert_allclose(fr["expected_yield"].to_numpy(), want, rtol=1e-6)
+
+
+def test_explicit_trends_still_work_beside_auto(counties):
+    ys = _curved_yields()
+    weeks = pd.date_range("1960-01-04", periods=10, freq="7D")
+    lin = build_targets(ImpactSpec("corn", "yields", {"trend": "linear"}), {"yields": ys},
+                        counties=counties, weeks=weeks).targets[0]
+    assert lin.provenance["trend"] == "linear" and "trend_errors" not in lin.provenance

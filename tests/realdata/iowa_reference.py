@@ -11,12 +11,14 @@ package (gamma and Pearson III fits, Thornthwaite PET), not from impactlink.
 
 from __future__ import annotations
 
+import os
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
-REALDATA = Path(__file__).resolve().parents[2].parent / "shared" / "realdata"
+REALDATA = Path(os.environ.get("IMPACTLINK_REALDATA",
+                               Path(__file__).resolve().parents[2].parent / "shared" / "realdata"))
 IOWA = REALDATA / "iowa"
 
 

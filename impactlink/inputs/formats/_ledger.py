@@ -21,9 +21,10 @@ __all__ = ["FormatResult", "RowLedger", "REJECTED_COLUMNS", "HEADER_ROWS", "read
 #: Columns of a rejected-rows frame (the same as the inputs stage's ``rejected_rows.csv``).
 REJECTED_COLUMNS = ["table", "file", "row", "column", "value", "reason"]
 
-#: Rows above the first data row. ``row`` in a rejected-rows frame is the 1-based line of the
-#: file as a spreadsheet shows it: the header is row 1, the first data row is row 2.
-HEADER_ROWS = 1
+#: Offset of the first data row. ``row`` in a rejected-rows frame follows the inputs stage
+#: (:class:`impactlink.inputs._rules.TableCheck`): the 1-based data row with the header
+#: excluded (row 1 is the first line under the header).
+HEADER_ROWS = 0
 
 
 @dataclass(frozen=True)

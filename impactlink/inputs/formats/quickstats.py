@@ -5,7 +5,7 @@ quoted text columns, written by the publisher as :data:`QUICKSTATS_COLUMNS`. The
 recognised by that header (:func:`sniff_quickstats`), never by its name.
 
 What the reader does, in order (each raw row is used or rejected once, with the first rule it
-breaks; ``row`` is the file line with the header as row 1):
+breaks; ``row`` is the data row, header excluded, as in the inputs stage):
 
 1. ``Data Item`` is split as NASS composes it, ``COMMODITY[, descriptor...] - STATISTIC[,
    MEASURED IN UNIT]``, e.g. ``CORN, GRAIN, IRRIGATED - YIELD, MEASURED IN BU / ACRE``:

@@ -266,7 +266,7 @@ def read_zone_climate(path: str | Path, zones: pd.DataFrame, *, zone_column: str
         raise InputError(f"{path}: no precipitation column among {list(raw.columns)}; name it "
                          "precip_in or precip_mm")
     units = _resolve_units(path, cols, precip_unit, temp_unit)
-    led, zone, dates = _zone_rows(path, raw, zone_column, zones)
+    led, zone, dates = _zone_rows(path, raw, zone_column, zones, "climate")
     out = {}
     for rawcol, (contract, _) in cols.items():
         v = _numbers(led, raw[rawcol], rawcol)
@@ -310,7 +310,7 @@ def read_zone_indicators(path: str | Path, zones: pd.DataFrame, *,
     """
     path = Path(path)
     raw = read_text_csv(path, what="per-zone indicator file")
-    led, zone, dates = _zone_rows(path, raw, zone_column, zones)
+    led, zone, dates = _zone_rows(path, raw, zone_column, zones, "indicators")
     time_cols = {"date", "year", "month", "day"}
     names = [c for c in raw.columns if c.lower() not in time_cols
              and c != (zone_column or zone_column_of(raw.columns))]
@@ -410,14 +410,14 @@ def _resolve_units(path: Path, cols: dict[str, tuple[str, str]], precip_unit: st
     return out
 
 
-def _zone_rows(path: Path, raw: pd.DataFrame, zone_column: str | None, zones: pd.DataFrame
-               ) -> tuple[RowLedger, np.ndarray, np.ndarray]:
+def _zone_rows(path: Path, raw: pd.DataFrame, zone_column: str | None, zones: pd.DataFrame,
+               table: str) -> tuple[RowLedger, np.ndarray, np.ndarray]:
     """Ledger, zone id (text) and date of every raw row; rejects blank zones and bad dates."""
     zcol = zone_column or zone_column_of(raw.columns)
     if zcol is None or zcol not in raw.columns:
         raise InputError(f"{path}: no zone column (looked for {zone_column or ZONE_COLUMNS}) "
                          f"among {list(raw.columns)}; name the zone id column 'zone'")
-    led = RowLedger(path.stem, str(path), len(raw))
+    led = RowLedger(table, str(path), len(raw))
     zone = raw[zcol].str.strip()
     led.reject((zone == "").to_numpy(), zcol, zone, REASONS["missing"])
     lower = {c.lower(): c for c in raw.columns}
