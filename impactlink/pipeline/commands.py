@@ -38,8 +38,13 @@ NEEDS = {
 
 
 def init_project(folder: str | Path, *, force: bool = False) -> Path:
-    """Find the contract's tables in ``folder`` and write a commented ``impactlink.toml``."""
-    from impactlink.inputs import discover_tables
+    """Find the tables in ``folder`` and write a commented ``impactlink.toml``.
+
+    Contract files are found by name, downloaded publisher files (Quick Stats, per-zone
+    climate and indicators, zone tables, TopoJSON) by their headers; only settings the data
+    support are written (see :func:`impactlink.inputs.plan_project`).
+    """
+    from impactlink.inputs.init_plan import plan_project
 
     folder = Path(folder)
     if not folder.is_dir():
@@ -47,12 +52,8 @@ def init_project(folder: str | Path, *, force: bool = False) -> Path:
     target = folder / "impactlink.toml"
     if target.exists() and not force:
         raise ProjectError(f"{target} exists; use --force to overwrite it")
-    tables = discover_tables(folder)
-    text = render_project_file(
-        {k: Path(v).name for k, v in tables.items()},
-        name=folder.resolve().name,
-        output_dir="impactlink_output",
-    )
+    text = render_project_file(**plan_project(folder), name=folder.resolve().name,
+                               output_dir="impactlink_output")
     target.write_text(text, encoding="utf-8")
     return target
 
