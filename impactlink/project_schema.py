@@ -172,13 +172,15 @@ IMPACT_OPTIONS: dict[str, dict[str, Key]] = {
     "yields": {
         "crop": Key("text_or_texts", example='"maize"'),
         "practice": Key("text_or_texts", example='"rainfed"'),
-        "trend": _choice("linear", "quadratic", "lowess"), "robust": _BOOL,
+        "trend": _choice("auto", "linear", "quadratic", "lowess"), "robust": _BOOL,
         "lowess_frac": Key("number", 0, 1, open_lo=True, example="0.6"),
         "min_years": _int(2, 400, "10"),
         "class_pct": Key("numbers", 0, 100, open_lo=True, order="increasing",
                          example="[10, 20, 30]"),
         "binary_pct": Key("number", 0, 100, open_lo=True, example="20"),
         **_SEASON, "defined_by": _TEXT,
+        "season_weeks": Key("ints", 1, 53, order="increasing", example="[22, 40]"),
+        "season_step_weeks": _int(1, 26, "2"),
     },
     "prices": {
         "commodity": Key("text_or_texts", example='"hay"'),

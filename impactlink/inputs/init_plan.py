@@ -32,6 +32,7 @@ from impactlink.errors import ProjectError
 from impactlink.inputs.discover import discover_tables
 from impactlink.inputs.formats.zones import climate_columns, units_from_header
 from impactlink.inputs.recognise import Recognised, csv_header, recognise_files
+from impactlink.link.yields import DEFAULT_SEASON_WEEKS
 
 __all__ = ["plan_project", "pet_method_for", "periods_for"]
 
@@ -209,5 +210,7 @@ def _impacts(rec: Recognised | None) -> tuple[dict[str, dict[str, Any]], tuple[i
         if practice != "all":
             name += "_" + str(practice).replace("-", "_")
         impacts[name] = {"source": "yields", "crop": str(crop), "practice": str(practice),
-                         "trend": "auto"}
+                         "trend": "auto",
+                         # the end of the index window is searched over the growing season
+                         "season_weeks": list(DEFAULT_SEASON_WEEKS)}
     return impacts, (int(frame["year"].min()), int(frame["year"].max()))

@@ -15,6 +15,7 @@ from impactlink.link._common import (
     expand_to_counties,
     interval_covered,
 )
+from impactlink.link.features import season_end_weeks
 from impactlink.link.notices import _regions, summarize
 from impactlink.link.target import FeatureRule, Target
 from impactlink.link.trend import DEFAULT_TRENDS, TrendSpec, choose_trend
@@ -30,8 +31,16 @@ AUTO_TRENDS: tuple[TrendSpec, ...] = tuple(t for t in DEFAULT_TRENDS if t.robust
 
 YIELD_OPTIONS = {
     "crop", "practice", "trend", "robust", "lowess_frac", "min_years", "class_pct",
-    "binary_pct", "season_week", "window_weeks", "window_stat", "defined_by",
+    "binary_pct", "season_week", "season_weeks", "season_step_weeks", "window_weeks",
+    "window_stat", "defined_by",
 }
+
+#: Season searched for the end of the accumulation window when no season_week is fixed:
+#: ISO weeks 22-40 (June to early October), every 2 weeks: the growing season of summer
+#: crops in the temperate northern hemisphere, flowering and grain fill included (common
+#: practice).
+DEFAULT_SEASON_WEEKS = (22, 40)
+DEFAULT_SEASON_STEP_WEEKS = 2
 
 
 def link_yields(spec, tables, *, counties, weeks=None, lags_weeks=(), equal_area_crs=EQUAL_AREA_CRS
@@ -93,7 +102,7 @@ def link_yields(spec, tables, *, counties, weeks=None, lags_weeks=(), equal_area
     min_years = int(opts.get("min_years", 10))
     edges = sorted(float(x) for x in opts.get("class_pct", (10, 20, 30)))
     bin_pct = float(opts.get("binary_pct", 20))
-    rule = FeatureRule(reference="season_week", season_week=int(opts.get("season_week", 31)),
+    rule = FeatureRule(reference="season_week", **_season(opts),
                        window_weeks=int(opts.get("window_weeks", 1)),
                        window_stat=opts.get("window_stat", "value"))
     ledger = Ledger(spec.name)
@@ -307,3 +316,17 @@ def _auto_trend(d: pd.DataFrame, *, min_years: int, robust: bool
 def _gap_years(d: pd.DataFrame) -> int:
     g = d.groupby(["county_id", "crop", "practice"])["year"].agg(["min", "max", "count"])
     return int((g["max"] - g["min"] + 1 - g["count"]).sum())
+
+
+def _season(opts: dict) -> dict:
+    """``season_week`` fixed by the user, else the searched end weeks (:data:`DEFAULT_SEASON_WEEKS`)."""
+    if "season_week" in opts and "season_weeks" not in opts:
+        return {"season_week": int(opts["season_week"])}
+    weeks = list(opts.get("season_weeks", DEFAULT_SEASON_WEEKS))
+    if len(weeks) != 2:
+        raise LinkError(f"season_weeks: give the first and last ISO week of the season, e.g. "
+                        f"[22, 40]; got {weeks}")
+    first, last = (int(w) for w in weeks)
+    ends = season_end_weeks(first, last, int(opts.get("season_step_weeks",
+                                                       DEFAULT_SEASON_STEP_WEEKS)))
+    return {"season_week": max(ends), "season_end_weeks": ends}

@@ -126,7 +126,7 @@ def link(project: Project, inputs: InputsResult, ind: IndicesResult,
             lags_weeks=tuple(project.link.lags_weeks),
             equal_area_crs=project.link.equal_area_crs,
         )
-        targets.extend(res.targets)
+        targets.extend(_season_in_months(t, ind.cube) for t in res.targets)
         rejected.append(res.rejected)
         recon.append(res.reconciliation)
         summaries.append(res.summary)
@@ -412,6 +412,18 @@ def _with_end_week(table: pd.DataFrame, target: Any, lag_col: str, monthly: bool
         out.insert(at + 1, name.replace("week", "month"),
                    ew.map(lambda w: end_month(int(w)) if pd.notna(w) else pd.NA).astype("Int64"))
     return out
+
+
+def _season_in_months(target: Any, cube: Any) -> Any:
+    """A monthly index changes once a month: search one mid-month end week per month."""
+    from impactlink.link.features import season_end_weeks
+
+    ends = target.rule.season_end_weeks
+    if not ends or not cube.provenance.get("scale_months_of_key"):
+        return target
+    months = season_end_weeks(min(ends), max(ends), 1, cadence="monthly")
+    rule = dataclasses.replace(target.rule, season_week=max(months), season_end_weeks=months)
+    return dataclasses.replace(target, rule=rule)
 
 
 def _source_of(project: Project, impact: str) -> str | None:
