@@ -152,7 +152,7 @@ def binary_variant(target: Target, label: str, event: np.ndarray) -> Target:
     return Target(name=f"{target.name}:{label}", impact=target.impact, kind="binary",
                   grain=target.grain, role=target.role, frame=frame, levels=("no", label),
                   rule=target.rule, horizon_weeks=target.horizon_weeks,
-                  provenance=dict(target.provenance))
+                  provenance={**target.provenance, "derived_from": target.name})
 
 
 # --------------------------------------------------------------------------- time helpers

@@ -191,8 +191,8 @@ def _timed(name: str, run: Run, tmp: Path, reporter: Reporter, result: RunResult
     with _warnings.catch_warnings(record=True) as caught:
         _warnings.simplefilter("always")
         run, written = _STEPS[name](run, tmp, reporter)
-    messages = list(getattr(getattr(run, name, None), "warnings", ()))
-    messages += [f"{w.category.__name__}: {w.message}" for w in caught]
+    messages = [str(m) for m in getattr(getattr(run, name, None), "warnings", ())]
+    messages += [str(w.message) for w in caught]
     for msg in messages:  # kept in the manifest, shown once as a progress line
         if msg not in result.warnings:
             result.warnings.append(msg)

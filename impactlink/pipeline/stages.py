@@ -366,7 +366,8 @@ def _explain_pairs(project: Project, inputs: InputsResult, ind: IndicesResult,
         "contrast.csv", "contrast_summary.csv", "contrast_lookalikes.csv",
         "contrast_trajectories.csv", "contrast_traits.csv")}
     for target in lk.targets:
-        if target.grain != "county_year" or target.name not in rk.best:
+        if (target.grain != "county_year" or target.name not in rk.best
+                or target.provenance.get("derived_from")):  # binary variants: same pairs
             continue
         cand = rk.best[target.name][1]
         progress(f"contrast {target.name}: explaining a county pair")
