@@ -247,6 +247,8 @@ def mixed_cadence(frame: pd.DataFrame, *, file: str = "") -> list[UnitFinding]:
     (:func:`county_cadence`); counties off the most common cadence are flagged.
     """
     cad = county_cadence(frame)
+    n_dates = frame.groupby(frame[COUNTY].astype(str))[DATE].nunique()
+    cad = cad[n_dates.reindex(cad.index).to_numpy() >= 3]  # too few dates to judge a cadence
     if cad.nunique() < 2:
         return []
     main = cad.value_counts().index[0]

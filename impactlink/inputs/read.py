@@ -12,6 +12,7 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 import pandas as pd
 
 from impactlink.inputs._errors import InputError, InputWarning
@@ -111,6 +112,8 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
             rejected.append(check.rejected())
             counts.append(_count_row(name, path, check, clean))
             checksums.update(checksums_for(path))
+        clean, implausible = _plausible(name, path, clean, counts[-1])
+        rejected.append(implausible)
         if name == "counties":
             ctx.set_counties(clean)
         tables[name] = clean
@@ -130,6 +133,40 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
         notes=[n for p in published.values() for n in p.notes],
         provenance={f"{k}_{d}": v for k, p in published.items() for d, v in p.details.items()},
     )
+
+
+def _plausible(name: str, path: Path, clean: pd.DataFrame, count: dict[str, Any]
+               ) -> tuple[pd.DataFrame, pd.DataFrame]:
+    """Plausibility checks after the row rules and before any index is computed.
+
+    A unit mistake (Fahrenheit under a Celsius name, inches under a millimetre name, a county
+    scaled by a power of ten, mixed cadences) stops the run with the fix spelled out; a value
+    beyond a physical limit rejects its row with the reason (``count`` is updated so the
+    manifest still reconciles). See :mod:`impactlink.inputs.plausibility`.
+    """
+    from impactlink.inputs.plausibility import check_plausibility
+
+    res = check_plausibility(clean, name, file=path.name)
+    if res.fatal:
+        raise InputError(" | ".join(f.message() for f in res.fatal))
+    if not len(res.rejected):
+        return clean, pd.DataFrame(columns=REJECTED_COLUMNS)
+    source = clean.attrs.get("source_rows")
+    pos = clean.index.get_indexer(res.rejected["row"])
+    rows = np.asarray(source)[pos] if source is not None else res.rejected["row"].to_numpy()
+    bad = pd.DataFrame({"table": name, "file": str(path), "row": rows,
+                        "column": res.rejected["column"].to_numpy(),
+                        "value": res.rejected["value"].astype(str).to_numpy(),
+                        "reason": res.rejected["reason"].to_numpy()})
+    keep = np.ones(len(clean), dtype=bool)
+    keep[np.unique(pos)] = False
+    n_bad = int((~keep).sum())
+    out = clean.loc[keep].copy()
+    if source is not None:
+        out.attrs["source_rows"] = type(source)(np.asarray(source)[keep])
+    count["rows_used"] = int(count["rows_used"]) - n_bad
+    count["rows_rejected"] = int(count["rows_rejected"]) + n_bad
+    return out, bad
 
 
 def _declares_formats(project: Project) -> bool:

@@ -106,11 +106,11 @@ def test_init_on_zone_files_writes_formats_and_units(tmp_path):
 
 def test_formats_and_units_are_validated(tmp_path):
     base = {"project": {"data_dir": str(tmp_path)}}
-    with pytest.raises(ProjectError, match=r"\[formats\] yields must be one of"):
+    with pytest.raises(ProjectError, match=r"formats.yields: got \"csv\" \(text\), expected one of"):
         project_from_dict({**base, "formats": {"yields": "csv"}})
     with pytest.raises(ProjectError, match="needs the zone-to-county table"):
         project_from_dict({**base, "formats": {"climate": "zones"}})
-    with pytest.raises(ProjectError, match=r"\[units\] temp_unit must be one of"):
+    with pytest.raises(ProjectError, match=r"units.temp_unit: got \"K\" \(text\), expected one of"):
         project_from_dict({**base, "units": {"temp_unit": "K"}})
     with pytest.raises(ProjectError, match="unknown key"):
         project_from_dict({**base, "formats": {"climat": "zones"}})

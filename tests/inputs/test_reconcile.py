@@ -21,7 +21,7 @@ from impactlink.inputs import read_inputs
 GOOD_DATES = [f"2001-{m:02d}-01" for m in range(1, 13)] + [f"2002-{m:02d}-01" for m in range(1, 13)]
 COUNTY_CHOICES = [*COUNTY_IDS, "99999", ""]
 DATE_CHOICES = [*GOOD_DATES[:6], "2001-02-30", "", "soon"]
-PRECIP_CHOICES = ["0", "1.5", "-2", "-999", "x", "", "nan"]
+PRECIP_CHOICES = ["0", "41.5", "-2", "-999", "x", "", "nan"]
 
 row = st.tuples(
     st.sampled_from(COUNTY_CHOICES), st.sampled_from(DATE_CHOICES), st.sampled_from(PRECIP_CHOICES)
@@ -60,7 +60,8 @@ def test_rows_read_equal_used_plus_rejected(rows):
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
         counties_frame().to_file(folder / "counties.gpkg")
-        good = [(COUNTY_IDS[0], d, "1") for d in GOOD_DATES[6 : 6 + n_good]]
+        good = [(COUNTY_IDS[0], d, "40")  # plausible monthly millimetres
+                for d in GOOD_DATES[6 : 6 + n_good]]
         frame = pd.DataFrame(good + rows, columns=["county_id", "date", "precip_mm"])
         path = write_csv(folder, "climate", frame)
         b = read_inputs(make_project(folder, min_years=1))
