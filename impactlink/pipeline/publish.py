@@ -279,7 +279,12 @@ def write_manifest(folder: Path, run: Run, timings: dict[str, float], warnings: 
              "events": t.events,
              # onset / escalation targets: the explicit risk set (county-weeks at risk)
              "rows_at_risk": _jsonable(t.provenance.get("at_risk")),
-             "flags": _jsonable(t.provenance.get("flags", []))}
+             "flags": _jsonable(t.provenance.get("flags", [])),
+             # yields: the trend used and, with trend = "auto", every candidate's held-out error
+             **{k: _jsonable(t.provenance[k]) for k in ("trend", "trend_errors", "season_end_weeks")
+                if k in t.provenance},
+             **({"season_end_weeks": list(t.rule.season_end_weeks)}
+                if getattr(t.rule, "season_end_weeks", ()) else {})}
             for t in targets
         ],
         "indices": {str(k): _jsonable(v) for k, v in getattr(cube, "provenance", {}).items()},
