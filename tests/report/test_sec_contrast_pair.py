@@ -11,14 +11,13 @@ import numpy as np
 import pandas as pd
 import pytest
 from _pageparse import SectionPage
+from conftest import COUNTY_NAMES
 
 from impactlink.report import words_contrast as W
 from impactlink.report.common import FigureSink
 from impactlink.report.runfolder import read_run_folder
 from impactlink.report.sec_contrast import contrast_section
 from impactlink.report.words_contrast import contrast_paragraph
-
-from conftest import COUNTY_NAMES
 
 TARGET = "crop_shortfall:class"
 IDS = [f"9{k:04d}" for k in range(len(COUNTY_NAMES))]

@@ -11,6 +11,7 @@ import numpy as np
 import pandas as pd
 import pytest
 from _pageparse import SectionPage
+from conftest import COUNTY_NAMES
 
 from impactlink.report import maps as M
 from impactlink.report import words_triggers as W
@@ -19,8 +20,6 @@ from impactlink.report.runfolder import read_run_folder
 from impactlink.report.sec_triggers import triggers_section
 from impactlink.report.text import fmt_interval
 from impactlink.report.words_plan import memo_sentence
-
-from conftest import COUNTY_NAMES
 
 STAGES = ("watch", "conserve", "ration")
 IDS = [f"9{k:04d}" for k in range(len(COUNTY_NAMES))]
