@@ -178,7 +178,7 @@ def _uniform_local(run: RunFolder, figs: FigureSink, ul: pd.DataFrame | None,
         "weeks_in_stage_share"
     out = [el("h4", W.MAP_HEAD)]
     if len(pooled):
-        out.append(paragraph(W.uniform_local_sentence(pooled, column)))
+        out.append(paragraph(W.uniform_local_sentence(pooled, column, per)))
     pct = per["percentile"].dropna().iloc[0] if "percentile" in per.columns and \
         per["percentile"].notna().any() else None
     titles = W.map_panel_titles(pct)

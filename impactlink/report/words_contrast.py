@@ -147,8 +147,11 @@ def contrast_paragraph(row: Mapping) -> str:
     differed = ("differed little" if abs(dx) < LITTLE else
                 f"differed by {abs(dx):.2f} (mean {float(row['index_mean_a']):.2f} against "
                 f"{float(row['index_mean_b']):.2f})")
-    exposure = (f"Their {idx} {differed} (exposure explains {_pts(row['exposure_pts'])} of "
-                "the gap)")
+    share = (f"exposure explains {_pts(row['exposure_pts'])} of the gap"
+             if round(float(row["exposure_pts"])) >= 0 else
+             f"exposure works the other way: {_pts(row['exposure_pts'])}, {name_b} was the "
+             "more exposed")
+    exposure = f"Their {idx} {differed} ({share})"
     unit = str(row["top_trait_unit"])
     va = _trait(row["top_trait_a"], unit)
     vb = _trait(row["top_trait_b"], unit)

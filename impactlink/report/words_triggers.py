@@ -121,31 +121,39 @@ def _row(tuned: pd.DataFrame, quantity: str) -> Mapping | None:
     return None if hit.empty else hit.iloc[0]
 
 
-def tuned_sentence(tuned: pd.DataFrame, *, stage: str = "", rule: str = "") -> str:
+def tuned_sentence(tuned: pd.DataFrame) -> str:
     """The tuned threshold, its bootstrap interval and held-out skill in one or two sentences.
 
     Parameters
     ----------
     tuned : pandas.DataFrame
-        ``trigger_plan_tuned.csv``: ``quantity, estimate, lo, hi, held_out`` (and ``ci``).
-    stage, rule : str
-        Names of the tuned stage and rule, when known.
+        ``trigger_plan_tuned.csv``: ``quantity, estimate, lo, hi, held_out`` (and ``ci``;
+        ``stage``, ``rule`` and ``kind`` are used when present).
     """
     thr = _row(tuned, "threshold")
     if thr is None:
         return ""
+
+    def first(col: str) -> str:
+        if col not in tuned.columns or not tuned[col].notna().any():
+            return ""
+        return str(tuned[col].dropna().iloc[0])
+
     ci = tuned["ci"].iloc[0] if "ci" in tuned.columns else math.nan
     level = f"{100 * float(ci):.0f} % " if pd.notna(ci) else ""
+    stage, rule, kind = first("stage"), first("rule"), first("kind")
     what = f"stage {stage}" if stage else "the tuned stage"
     if rule:
         what += f" ({rule})"
-    text = (f"Tuned on the whole record, {what} enters at "
-            f"{fmt_interval(thr['estimate'], thr['lo'], thr['hi'])} "
-            f"({level}year-block bootstrap interval)")
+    value = fmt_interval(thr["estimate"], thr["lo"], thr["hi"])
+    where = (f"the local percentile {value}" if kind == "percentile" else
+             f"{value} (in the rule's own units: index value, percentile or percent of normal)"
+             if not kind else f"{value} ({kind})")
+    text = f"Tuned on the whole record, {what} enters at {where}"
     wk = _row(tuned, "enter_weeks")
     if wk is not None and pd.notna(wk["estimate"]):
         text += f" after {fmt_num(wk['estimate'], 0)} weeks"
-    text += "."
+    text += f"; {level}year-block bootstrap interval in brackets."
     pss = _row(tuned, "peirce_skill_score")
     if pss is not None:
         text += (f" Its Peirce skill score is {fmt_interval(pss['estimate'], pss['lo'], pss['hi'])}"
@@ -185,27 +193,39 @@ def map_panel_titles(percentile) -> tuple[str, str]:
     return "one statewide threshold", local
 
 
-def uniform_local_sentence(pooled: pd.DataFrame, column: str) -> str:
+def uniform_local_sentence(pooled: pd.DataFrame, column: str,
+                           per_unit: pd.DataFrame | None = None) -> str:
     """Statewide against local thresholds from the pooled rows (``unit`` or ``county_id``
     "all") of ``trigger_plan_uniform_local.csv``; ``column`` is the mapped quantity
-    (``entries_per_decade`` or ``weeks_in_stage_share``)."""
+    (``entries_per_decade`` or ``weeks_in_stage_share``); ``per_unit`` (the other rows) adds
+    the range over units of each plan."""
     by = {str(r["plan"]): r for _, r in pooled.iterrows()}
     if not {"uniform", "local"} <= set(by):
         return ""
     u, loc = by["uniform"], by["local"]
+    scale = 1.0 if column == "entries_per_decade" else 100.0
+    unit = " entries per decade" if column == "entries_per_decade" else " % of weeks in the stage"
+    digits = 1 if column == "entries_per_decade" else 0
 
     def amount(r) -> str:
-        if column == "entries_per_decade":
-            return f"{fmt_num(r[column], 1)} entries per decade"
-        return f"{fmt_num(100 * float(r[column]), 0)} % of weeks in the stage"
+        return f"{fmt_num(scale * float(r[column]), digits)}{unit}"
+
+    def spread(plan: str) -> str:
+        if per_unit is None or "plan" not in per_unit.columns:
+            return ""
+        v = pd.to_numeric(per_unit.loc[per_unit["plan"].astype(str) == plan, column],
+                          errors="coerce").dropna() * scale
+        if v.empty:
+            return ""
+        return f" (from {fmt_num(v.min(), digits)} to {fmt_num(v.max(), digits)} by unit)"
 
     text = (f"With one statewide threshold ({fmt_num(u['threshold_value'])}) a unit has on "
-            f"average {amount(u)}, against {amount(loc)} with each unit's own "
-            f"{fmt_num(loc['percentile'], 0)}th percentile. The two maps share one colour "
-            "scale: a statewide number fires often where the record is dry and rarely "
-            "elsewhere, while a local percentile fires about equally often everywhere.")
+            f"average {amount(u)}{spread('uniform')}, against {amount(loc)}{spread('local')} "
+            f"with each unit's own {fmt_num(loc['percentile'], 0)}th percentile. The two maps "
+            "share one colour scale, so the same shade means the same frequency in both.")
     if "peirce_skill_score" in pooled.columns:
-        text += (f" Peirce skill score: {fmt_num(u['peirce_skill_score'])} statewide, "
+        text += (f" Peirce skill score over all scored units: "
+                 f"{fmt_num(u['peirce_skill_score'])} statewide, "
                  f"{fmt_num(loc['peirce_skill_score'])} local.")
     return text
 

@@ -126,3 +126,12 @@ def test_pair_figure_and_odds_ratios_from_contrast_terms(pair_page):
     alts = " ".join(page.alts)
     assert "irrigated_share 0.70 (0.50 to 0.95)" in alts
     assert f"{NAME_A} beside {NAME_B}" in alts
+
+
+def test_paragraph_says_when_exposure_works_against_the_gap(pair_page):
+    _, _, frames = pair_page
+    row = frames["contrast_summary.csv"].iloc[0].copy()
+    row["exposure_pts"], row["sensitivity_pts"] = -16.0, 44.0
+    text = contrast_paragraph(row)
+    assert f"exposure works the other way: -16 points, {NAME_B} was the more exposed" in text
+    assert "exposure explains" not in text

@@ -122,7 +122,8 @@ def test_tuned_threshold_table_has_intervals_and_held_out_skill(plan_page):
     assert (rows["threshold"]["estimate"], rows["threshold"]["lo"], rows["threshold"]["hi"]) \
         == ("10", "5", "20")
     assert rows["peirce_skill_score"]["held_out"] == "0.350"
-    assert f"enters at {fmt_interval(10.0, 5.0, 20.0)} (90 % year-block" in page.text
+    assert f"enters at {fmt_interval(10.0, 5.0, 20.0)} (in the rule" in page.text
+    assert "after 2 weeks; 90 % year-block bootstrap interval" in page.text
     assert "0.35 on years held out of the tuning" in page.text
     assert "trigger_plan_tradeoff.png" in sink.files
     assert "chosen threshold 10.00 with 2 entry weeks" in " ".join(page.alts)
@@ -145,6 +146,8 @@ def test_uniform_and_local_map_share_one_scale_and_cover_every_county(plan_page)
     assert panels[0].vmax == pytest.approx(4.0) and panels[0].vmin == 0.0
     for p in panels:  # every county has a value in each panel, pooled row left out
         assert sorted(p.values["county_id"].astype(str)) == IDS
+    assert "(from 0.2 to 4.0 by unit), against 1.5 entries per decade (from 1.5 to 1.5" \
+        in page.text
     t = page.table_with("scored")
     names = {r[t["header"].index("county_name")] for r in t["rows"]}
     assert names == set(COUNTY_NAMES)
