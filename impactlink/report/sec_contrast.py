@@ -165,7 +165,8 @@ def _terms(run: RunFolder, figs: FigureSink, tgt, terms, excess) -> list[Markup]
             out.append(figs.add(f"contrast_{tgt or 'all'}",
                                 lambda s=sub, t=tgt: odds_ratio_chart(s, target=t),
                                 alt=W.terms_alt(tgt or "all targets", items)))
-        out.append(table(sub))
+        drop = [c for c in ("impact", "target", "index", "scale_weeks", "lag_weeks") if c in sub]
+        out.append(table(sub.drop(columns=drop)))
     if excess is not None and run.counties is not None and "ratio" in excess.columns:
         ex = _for(excess, tgt)
         if ex is not None and not ex.empty:

@@ -86,7 +86,7 @@ def terms_alt(target: str, items: list[str]) -> str:
 
 def excess_title(target: str) -> str:
     """Title of the observed-over-expected map."""
-    return f"observed / expected events \u2014 {target}"
+    return f"observed / expected events\n{target}"
 
 
 def excess_alt(target: str, lo: str, hi: str) -> str:
