@@ -57,5 +57,5 @@ def odds_ratio_chart(contrast: pd.DataFrame, *, target: str | None = None) -> Fi
     ax.set_yticks(y, sub["term"].astype(str))
     ax.set_xlabel("odds ratio per standard deviation of the trait (log scale; 1 = no association)")
     ax.set_title("county traits and impacts at similar index values" + (
-        f" \u2014 {target}" if target else ""))
+        f"\n{target}" if target else ""), fontsize=9)
     return fig

@@ -13,11 +13,87 @@ from collections.abc import Mapping
 from impactlink.errors import ReportError
 from impactlink.report.text import index_name
 
-__all__ = ["contrast_paragraph", "CAUTION"]
+__all__ = ["contrast_paragraph", "CAUTION", "PAIR_HEAD", "PAIR_INTRO", "LOOKALIKE_HEAD",
+           "LOOKALIKE_INTRO", "TERMS_HEAD", "PART_LABELS", "parts_caption", "pair_figure_alt",
+           "terms_alt", "excess_alt", "excess_title", "EXCESS_LABEL", "EXCESS_DETAILS",
+           "PAIRS_HEAD", "PAIRS_DETAILS", "lookalike_caption"]
 
 #: The caution that closes every contrast paragraph.
 CAUTION = ("This is a statistical association in past records, not a verdict on anyone's "
            "management; decisions rest with the responsible authorities.")
+
+PAIR_HEAD = "Two counties that looked alike but fared differently"
+PAIR_INTRO = (
+    "The pair below was chosen among the counties whose index trajectories were closest in the "
+    "same weeks of the same drought but whose impacts differed most. The difference in the "
+    "modelled chance of an impact is split into exposure (their index values differed), "
+    "sensitivity (their traits differ, trait by trait) and the unexplained remainder (the "
+    "county effect left after both: management, luck or data). The parts add up to the gap; "
+    "intervals are year-block bootstrap intervals."
+)
+LOOKALIKE_HEAD = "Look-alike pairs, ranked"
+LOOKALIKE_INTRO = (
+    "Pairs of counties with nearly the same index trajectory in the same drought year, "
+    "ranked by how different their impacts were; traits are in their own units (percent, "
+    "millimetres, head per km²)."
+)
+TERMS_HEAD = "County traits in the index model"
+EXCESS_LABEL = "ratio (1 = as the index predicts)"
+EXCESS_DETAILS = "Per-county observed and expected events"
+PAIRS_HEAD = "Matched pairs"
+PAIRS_DETAILS = "Counties with similar dryness but different impacts"
+
+#: Labels of the parts of ``contrast.csv`` (probability scale).
+PART_LABELS = {
+    "p_a": "modelled chance of an impact, first county",
+    "p_b": "modelled chance of an impact, second county",
+    "total": "gap (first minus second)",
+    "exposure": "exposure (different index values)",
+    "sensitivity": "sensitivity (different traits), all traits",
+    "unexplained": "unexplained (remaining county effect)",
+}
+
+
+def parts_caption(row: Mapping) -> str:
+    """Caption of the parts table: which county minus which, when, in what unit."""
+    when = (f"{int(row['period_start'])}" if row["period_start"] == row["period_end"]
+            else f"{int(row['period_start'])}-{int(row['period_end'])}")
+    return (f"{row['county_name_a']} ({_id(row['county_a'])}) minus {row['county_name_b']} "
+            f"({_id(row['county_b'])}), {when}: modelled chance of an impact and its parts "
+            "[percentage points]")
+
+
+def lookalike_caption(target: str) -> str:
+    """Caption of the ranked look-alike table."""
+    return f"Look-alike pairs for {target}: impacts and traits in real units"
+
+
+def pair_figure_alt(row: Mapping) -> str:
+    """Alt text of the side-by-side contrast figure."""
+    return (f"{row['county_name_a']} beside {row['county_name_b']}: their "
+            f"{int(row['scale_weeks'])}-week {index_name(row['index'])} trajectories, the "
+            f"modelled chance of an impact ({_num(row['expected_a'])} % against "
+            f"{_num(row['expected_b'])} %) with the exposure ({_pts(row['exposure_pts'])}), "
+            f"sensitivity ({_pts(row['sensitivity_pts'])}) and unexplained "
+            f"({_pts(row['unexplained_pts'])}) parts, and their traits in real units.")
+
+
+def terms_alt(target: str, items: list[str]) -> str:
+    """Alt text of the trait odds-ratio chart; ``items`` are "term interval" strings."""
+    return (f"Odds ratios per standard deviation of each county trait for {target}: "
+            + "; ".join(items) + ".")
+
+
+def excess_title(target: str) -> str:
+    """Title of the observed-over-expected map."""
+    return f"observed / expected events\n{target}"
+
+
+def excess_alt(target: str, lo: str, hi: str) -> str:
+    """Alt text of the observed-over-expected map."""
+    return (f"County map of observed over expected impact events for {target}, given the "
+            f"index alone; ratios range from {lo} to {hi}.")
+
 
 _NEEDED = ("county_name_a", "county_name_b", "county_a", "county_b", "period_start",
            "period_end", "index", "scale_weeks", "expected_a", "expected_b", "gap_pts",
@@ -71,8 +147,11 @@ def contrast_paragraph(row: Mapping) -> str:
     differed = ("differed little" if abs(dx) < LITTLE else
                 f"differed by {abs(dx):.2f} (mean {float(row['index_mean_a']):.2f} against "
                 f"{float(row['index_mean_b']):.2f})")
-    exposure = (f"Their {idx} {differed} (exposure explains {_pts(row['exposure_pts'])} of "
-                "the gap)")
+    share = (f"exposure explains {_pts(row['exposure_pts'])} of the gap"
+             if round(float(row["exposure_pts"])) >= 0 else
+             f"exposure works the other way: {_pts(row['exposure_pts'])}, {name_b} was the "
+             "more exposed")
+    exposure = f"Their {idx} {differed} ({share})"
     unit = str(row["top_trait_unit"])
     va = _trait(row["top_trait_a"], unit)
     vb = _trait(row["top_trait_b"], unit)
