@@ -69,7 +69,8 @@ TABLE_COLUMNS: dict[str, tuple[str, ...]] = {
 #: Columns read as strings whatever they look like (ids keep their leading zeros).
 _STRING_COLUMNS = (COUNTY, "county_name", "region", "impact", "target", "index", "index2",
                    "model", "stage", "ladder", "level_label", "table", "file", "reason",
-                   "scope", "term", "unit", "level", "grain", "events_by_level")
+                   "scope", "term", "unit", "level", "grain", "events_by_level", "county_a",
+                   "county_b")
 
 
 @dataclass(frozen=True)

@@ -51,10 +51,3 @@ MAPS_INTRO = (
     "estimate rests on. Few events mean a fragile estimate."
 )
 
-TRIGGERS_INTRO = (
-    "How a trigger plan (switch on after the index stays beyond its threshold for the entry"
-    " weeks, off after the exit weeks) would have performed over the record: one threshold "
-    "for every county (uniform) against thresholds tuned per county (local). Hit rate and "
-    "false-alarm ratio are shares of impact episodes and activations; the Peirce skill "
-    "score is hit rate minus false-alarm rate (0 = no skill)."
-)

@@ -41,9 +41,9 @@ def test_singular_counts_missing_lead_and_supplied_indicator():
 def test_trigger_figures_draw_from_the_run_frames():
     import pandas as pd
     import pytest
-    from impactlink.report.figures import figure_png
 
     from impactlink.errors import ReportError
+    from impactlink.report.fig_style import figure_png
     from impactlink.report.figures_plan import plan_timeline, tuning_tradeoff
 
     curve = pd.DataFrame({"threshold": [5.0, 10.0, 5.0, 10.0], "enter_weeks": [1, 1, 2, 2],
