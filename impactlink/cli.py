@@ -140,7 +140,7 @@ def _dispatch(args: argparse.Namespace) -> int:
         from impactlink.pipeline import check_project
 
         summary = check_project(args.project, out=args.out, force=args.force)
-        _print_check(summary)
+        _print_check(summary, args.project)
         return 0 if summary.ok else 1
     if cmd == "report":
         from impactlink.pipeline import rebuild_report
@@ -173,18 +173,32 @@ def _dispatch(args: argparse.Namespace) -> int:
     return 0
 
 
-def _print_check(summary) -> None:  # noqa: ANN001  (CheckSummary; pandas stays lazy)
-    import pandas as pd
+def _print_check(summary, project: str) -> None:  # noqa: ANN001  (CheckSummary; lazy pandas)
+    """Per-table counts in at most 100 columns, reasons, warnings, and a verdict line."""
+    import textwrap
 
-    with pd.option_context("display.width", 160, "display.max_columns", 20):
-        print(summary.tables.to_string(index=False))
+    t = summary.tables
+    width = {"table": 14, "file": 34}
+    print(f"{'table':<14} {'file':<34} {'read':>9} {'used':>9} {'rejected':>9} {'counties':>8}")
+    for r in t.itertuples(index=False):
+        name = str(r.file)
+        name = name if len(name) <= width["file"] else "..." + name[-(width["file"] - 3):]
+        counties = "" if r.counties is None or str(r.counties) in ("<NA>", "nan") else r.counties
+        print(f"{str(r.table):<14} {name:<34} {r.rows_read:>9,} {r.rows_used:>9,} "
+              f"{r.rows_rejected:>9,} {counties!s:>8}")
     if len(summary.rejected_by_reason):
-        print("\nrejected rows by reason:")
-        print(summary.rejected_by_reason.to_string(index=False))
+        print("\nrejected rows by reason (all listed in rejected_rows.csv with file and row):")
+        for r in summary.rejected_by_reason.itertuples(index=False):
+            line = f"{r.table}: {r.rows:,} x {r.reason}"
+            print(textwrap.fill(line, width=100, subsequent_indent="    "))
     for w in summary.warnings:
-        print(f"warning: {w}")
+        print(textwrap.fill(f"warning: {w}", width=100, subsequent_indent="    "))
     for path in summary.written:
         print(f"wrote {path}")
+    read = int(t["rows_read"].sum())
+    rejected = int(t["rows_rejected"].sum())
+    print(f"all tables read: {read:,} rows, {read - rejected:,} used, {rejected:,} rejected "
+          f"with reasons. next: impactlink run {project}")
 
 
 def _project_with_options(args: argparse.Namespace):  # noqa: ANN202

@@ -53,7 +53,7 @@ def test_scenario_then_check_counts_reconcile(tmp_path, capsys):
     capsys.readouterr()
     assert main(["check", str(tmp_path), "--out", str(tmp_path / "out")]) == 0
     out = capsys.readouterr().out
-    assert "rows_read" in out and "climate.parquet" in out
+    assert "read" in out and "climate.parquet" in out and "next: impactlink run" in out
     import json
 
     m = json.loads((tmp_path / "out" / "manifest.json").read_text())
