@@ -18,9 +18,16 @@ from impactlink.report.common import FigureSink, not_drawn
 from impactlink.report.figures_audit import record_period
 from impactlink.report.html import Markup, page
 from impactlink.report.runfolder import ReportWarning, RunFolder, read_run_folder
-from impactlink.report.sec_answers import answer_cards, cautions_banner, contents
+from impactlink.report.sec_answers import (
+    answer_cards,
+    appendix_section,
+    contents,
+    first_screen,
+    glossary_section,
+)
 from impactlink.report.sec_audit import audit_section
 from impactlink.report.sec_contrast import contrast_section
+from impactlink.report.sec_counties import finder_section
 from impactlink.report.sec_curves import curves_section
 from impactlink.report.sec_data import data_section, provenance_section
 from impactlink.report.sec_methods import cautions_section, methods_section
@@ -34,6 +41,7 @@ __all__ = ["build_report", "render_html", "SECTIONS"]
 #: Sections after the first screen, in page order: (id, title, builder). Each builder is
 #: ``(run, figs) -> Markup`` and lives in the ``sec_*`` module of its stage.
 SECTIONS = (
+    ("glossary", "Glossary", glossary_section),
     ("data", "Data and coverage", data_section),
     ("curves", "Impact curves", curves_section),
     ("skill", "Skill by index, time scale and lag", skill_section),
@@ -46,6 +54,13 @@ SECTIONS = (
     ("methods", "Methods", methods_section),
     ("cautions", "Cautions", cautions_section),
     ("provenance", "Provenance", provenance_section),
+)
+
+#: Sections after the main part (they may run over the printed page budget): the county
+#: finder with one card per county, then the appendix of derived targets.
+AFTER_MAIN = (
+    ("finder", "County finder", finder_section),
+    ("appendix", "Appendix: derived targets", appendix_section),
 )
 
 #: Tables that also get a Parquet copy beside their CSV.
@@ -126,10 +141,13 @@ def render_html(run: RunFolder, *, progress: Callable[[str], None] | None = None
         f"impactlink {man['impactlink_version']}" if man.get("impactlink_version") else None,
         f"seed {man['seed']}" if man.get("seed") is not None else None,
     ) if p) or "run details not recorded"
-    body: list[Markup] = [cautions_banner(), answer_cards(run, sink)]
+    body: list[Markup] = [first_screen(run)]
     body.append(contents([("summary", "What this run found")]
-                           + [(sid, title) for sid, title, _ in SECTIONS]))
-    for sid, stitle, builder in SECTIONS:
+                           + [(sid, title) for sid, title, _ in SECTIONS + AFTER_MAIN]))
+    body.append(answer_cards(run, sink))
+    for sid, stitle, builder in SECTIONS + AFTER_MAIN:
+        if sid == AFTER_MAIN[0][0]:
+            body.append(Markup('<div class="after-main">'))
         say(f"report: {stitle}")
         try:
             body.append(builder(run, sink))
@@ -139,6 +157,7 @@ def render_html(run: RunFolder, *, progress: Callable[[str], None] | None = None
             warnings.warn(f"report section {sid!r} failed: {type(exc).__name__}: {exc}",
                           ReportWarning, stacklevel=2)
             body.append(not_drawn(sid, stitle, exc))
+    body.append(Markup("</div>"))
     return page(title=title, subtitle=subtitle, body=body), sink
 
 

@@ -14,7 +14,7 @@ from impactlink.errors import ReportError, ReportWarning
 from impactlink.report.fig_style import figure_png
 from impactlink.report.html import Markup, el, image, join, link, paragraph
 from impactlink.report.runfolder import RunFolder
-from impactlink.report.text import target_label
+from impactlink.report.text import impact_name, target_name
 from impactlink.schema import COUNTY
 
 NOT_COMPUTED = "Not computed in this run."
@@ -59,7 +59,7 @@ def slug(text: str) -> str:
 
 
 def pair_title(impact, target) -> str:
-    return f"{impact} \u2014 {target_label(impact, target)}"
+    return f"{impact_name(impact)}: {target_name(impact, target)}"
 
 
 def absent(what: str = NOT_COMPUTED) -> Markup:

@@ -6,7 +6,6 @@ from __future__ import annotations
 
 import pandas as pd
 
-from impactlink.report import maps as M
 from impactlink.report._select import PERSISTENCE_COMBOS, single_candidates
 from impactlink.report.common import (
     FigureSink,
@@ -29,10 +28,12 @@ from impactlink.report.figures_skill import (
 )
 from impactlink.report.html import Markup, details, el, join, link, paragraph, table
 from impactlink.report.runfolder import RunFolder
+from impactlink.report.svgmap import map_shapes, svg_map
 from impactlink.report.text import (
     candidate_label,
     fmt_interval,
     fmt_num,
+    impact_name,
     index_name,
     persistence_sentence,
     score_label,
@@ -153,30 +154,38 @@ def reliability_section(run: RunFolder, figs: FigureSink) -> Markup:
 
 
 def maps_section(run: RunFolder, figs: FigureSink) -> Markup:
-    best = _best_per_county(run)
+    best = best_per_county(run)
     if run.counties is None or best is None or len(best) == 0:
         return section("maps", "County maps", absent())
     parts = [paragraph(MAPS_INTRO)]
+    shapes = map_shapes(run.counties)
     keys = ["impact", "target"] if "target" in best.columns else ["impact"]
+    # One colour scale for skill across every panel (0 to the highest county skill).
+    top = float(pd.to_numeric(best.get("skill"), errors="coerce").max()) if "skill" in best else 1.0
+    top = max(top if top == top else 1.0, 0.05)
     for key, sub in best.groupby(keys, sort=False):
         key = key if isinstance(key, tuple) else (key,)
-        title = " \u2014 ".join(str(k) for k in key)
+        title = pair_title(*key) if len(key) == 2 else impact_name(key[0])
         sub = sub.assign(candidate=[
             candidate_label(r.get("index"), r.get("scale_weeks"), r.get("lag_weeks"), short=True)
             for _, r in sub.iterrows()])
-        panels = [M.MapPanel(sub, "candidate", title="best candidate", label="candidate",
-                             kind="categorical")]
-        if "skill" in sub.columns:
-            panels.append(M.MapPanel(sub, "skill", title="skill", label="skill score (0 = base rate)"))
+        extra = None
         if "events" in sub.columns:
-            panels.append(M.MapPanel(sub, "events", title="events", label="events (count)"))
-        n_cand = sub["candidate"].nunique()
+            extra = {str(c): f"{int(e)} cases" for c, e in zip(sub[COUNTY], sub["events"],
+                                                             strict=True) if pd.notna(e)}
         parts.append(el("h3", title))
-        parts.append(figs.add(
-            f"map_best_{'_'.join(map(str, key))}",
-            lambda p=panels, t=title: M.county_panels(run.counties, p, suptitle=t),
-            alt=(f"County maps for {title}: best candidate ({n_cand} different candidates across "
-                 f"{len(sub)} counties), skill score, and number of events per county.")))
+        row = [svg_map(shapes, sub, "candidate", title="Best predictor in each county",
+                       unit="", kind="categorical", extra=extra,
+                       caption=f"{title}: the candidate that scored best in each county "
+                               f"({sub['candidate'].nunique()} different ones).")]
+        if "skill" in sub.columns:
+            row.append(svg_map(shapes, sub, "skill", title="Skill in each county",
+                               unit="skill score (0 = base rate)", vmin=0.0, vmax=top,
+                               extra=extra,
+                               caption=f"{title}: skill score of that candidate in each county "
+                                       "(same colour scale on every skill map; negative "
+                                       "values shown as 0)."))
+        parts.append(el("div", *row, class_="maprow"))
         cols = [c for c in ("county_id", "candidate", "skill", "events") if c in sub.columns]
         parts.append(details("Per-county values", table(with_names(run, sub[cols]))))
     parts.append(paragraph("Layers for GIS use are in ", link("counties.gpkg", "counties.gpkg"),
@@ -185,7 +194,7 @@ def maps_section(run: RunFolder, figs: FigureSink) -> Markup:
     return section("maps", "County maps", *parts)
 
 
-def _best_per_county(run: RunFolder) -> pd.DataFrame | None:
+def best_per_county(run: RunFolder) -> pd.DataFrame | None:
     """Best candidate per county: the ``best_candidate`` layer, else the county rows
     (``level == "unit"``) of ``skill_local.csv``."""
     layer = run.layers.get("best_candidate")
