@@ -32,7 +32,12 @@ from impactlink.report.sec_curves import curves_section
 from impactlink.report.sec_data import data_section, provenance_section
 from impactlink.report.sec_methods import cautions_section, methods_section
 from impactlink.report.sec_outlook import outlook_section
-from impactlink.report.sec_skill import maps_section, reliability_section, skill_section
+from impactlink.report.sec_skill import (
+    maps_section,
+    reliability_section,
+    skill_detail_section,
+    skill_section,
+)
 from impactlink.report.sec_triggers import triggers_section
 from impactlink.schema import COUNTY
 
@@ -45,22 +50,24 @@ SECTIONS = (
     ("data", "Data and coverage", data_section),
     ("curves", "Impact curves", curves_section),
     ("skill", "Skill by index, time scale and lag", skill_section),
-    ("reliability", "Reliability", reliability_section),
     ("maps", "County maps", maps_section),
     ("audit", "Threshold audit", audit_section),
     ("triggers", "Trigger plan replay and tuning", triggers_section),
-    ("contrast", "County contrasts", contrast_section),
     ("outlook", "Outlook", outlook_section),
-    ("methods", "Methods", methods_section),
     ("cautions", "Cautions", cautions_section),
-    ("provenance", "Provenance", provenance_section),
 )
 
 #: Sections after the main part (they may run over the printed page budget): the county
-#: finder with one card per county, then the appendix of derived targets.
+#: finder with one card per county, then the appendix for researchers.
 AFTER_MAIN = (
     ("finder", "County finder", finder_section),
+    ("summary", "Answer details", answer_cards),
     ("appendix", "Appendix: derived targets", appendix_section),
+    ("reliability", "Reliability", reliability_section),
+    ("contrast", "County contrasts", contrast_section),
+    ("skill_detail", "Skill of every candidate", skill_detail_section),
+    ("methods", "Methods", methods_section),
+    ("provenance", "Provenance", provenance_section),
 )
 
 #: Tables that also get a Parquet copy beside their CSV.
@@ -142,9 +149,7 @@ def render_html(run: RunFolder, *, progress: Callable[[str], None] | None = None
         f"seed {man['seed']}" if man.get("seed") is not None else None,
     ) if p) or "run details not recorded"
     body: list[Markup] = [first_screen(run)]
-    body.append(contents([("summary", "What this run found")]
-                           + [(sid, title) for sid, title, _ in SECTIONS + AFTER_MAIN]))
-    body.append(answer_cards(run, sink))
+    body.append(contents([(sid, title) for sid, title, _ in SECTIONS + AFTER_MAIN]))
     for sid, stitle, builder in SECTIONS + AFTER_MAIN:
         if sid == AFTER_MAIN[0][0]:
             body.append(Markup('<div class="after-main">'))

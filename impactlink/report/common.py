@@ -144,3 +144,17 @@ def not_drawn(sid: str, title: str, exc: Exception) -> Markup:
     return section(sid, title, absent(
         f"This section could not be built from this run's tables ({type(exc).__name__}: "
         f"{exc})."))
+
+
+def primary_pairs(run: RunFolder, pairs: list[tuple[str, str]]) -> list[tuple[str, str]]:
+    """The (impact, target) pairs that are an impact's primary target; the main sections
+    draw figures for these only (derived thresholds and horizons are in the appendix). All
+    pairs when the run has no skill summary to tell them apart."""
+    summary = run.table("skill_summary")
+    if summary is None or summary.empty or "target" not in summary.columns:
+        return pairs
+    from impactlink.report.sec_answers import primary_rows
+
+    keep = set(primary_rows(summary)["target"].astype(str))
+    known = set(summary["target"].astype(str))
+    return [(i, t) for i, t in pairs if t in keep or t not in known]

@@ -215,16 +215,23 @@ a { color: var(--ink); }
 .answer dl { margin: 0; } .answer dt { font-weight: 700; margin-top: 0.25rem; }
 .answer dd { margin: 0; }
 .foryou { font-size: 0.9rem; padding-left: 1.1rem; margin: 0.5rem 0; }
-.glossary dt { font-weight: 700; margin-top: 0.4rem; } .glossary dd { margin: 0 0 0 1rem; }
+.glossary { columns: 2 22rem; font-size: 0.9rem; }
+.glossary dt { font-weight: 700; margin-top: 0.3rem; break-after: avoid; }
+.glossary dd { margin: 0 0 0 0.8rem; break-before: avoid; }
 .finder { columns: 4 10rem; list-style: none; padding: 0; font-size: 0.95rem; }
 .maprow { display: grid; grid-template-columns: repeat(auto-fit, minmax(20rem, 1fr));
           gap: 0.8rem; }
 .svgmap svg { display: block; width: 100%; min-width: 300px; height: auto; }
-.svgmap text { font-size: 15px; fill: #222; }
-.svgmap .lab text { font-size: 14px; paint-order: stroke; stroke: #fff; stroke-width: 3px;
+.svgmap text { font-size: 17px; fill: #222; }
+.svgmap .lab text { font-size: 15px; paint-order: stroke; stroke: #fff; stroke-width: 3px;
                     text-anchor: middle; }
 .svgmap a:hover path, .svgmap a:focus path { stroke: #000; stroke-width: 2; }
 .maptitle { font-size: 1rem; margin-bottom: 0.2rem; }
+.legend { list-style: none; padding: 0; margin: 0.2rem 0; font-size: 0.85rem;
+          display: flex; flex-wrap: wrap; gap: 0.1rem 0.9rem; }
+.legend .sw { display: inline-block; width: 0.9rem; height: 0.9rem; margin-right: 0.3rem;
+              vertical-align: -0.1rem; border: 1px solid #5a5a5a; }
+.legend .nv { background: radial-gradient(#6b6b6b 20%, #fff 25%) 0 0 / 5px 5px; }
 .county-card { border: 1px solid var(--grid); border-top: 6px solid var(--accent);
                padding: 0.4rem 0.9rem; margin: 1rem 0; }
 .county-card h3 .meta { font-weight: 400; font-size: 0.9rem; }

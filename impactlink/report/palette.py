@@ -190,4 +190,4 @@ def sequential_hex(values, vmin: float, vmax: float) -> list[str | None]:
     pos = np.linspace(0.0, 1.0, len(anchors))
     rgb = np.stack([np.interp(np.nan_to_num(t), pos, anchors[:, k]) for k in range(3)], axis=1)
     codes = np.rint(rgb * 255).astype(int)
-    return [None if np.isnan(t[i]) else "#%02x%02x%02x" % tuple(codes[i]) for i in range(len(t))]
+    return [None if np.isnan(t[i]) else "#{:02x}{:02x}{:02x}".format(*tuple(codes[i])) for i in range(len(t))]

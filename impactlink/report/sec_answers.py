@@ -97,7 +97,7 @@ def answer_cards(run: RunFolder, figs: FigureSink | None = None) -> Markup:
     good, against which baselines, how sure."""
     summary = run.table("skill_summary")
     if summary is None or summary.empty:
-        return section("summary", "What this run found", absent(
+        return section("summary", "Answer details", absent(
             "Not computed in this run: no skill summary was written, so no index can be "
             "recommended."))
     skill = run.table("skill")
@@ -107,7 +107,7 @@ def answer_cards(run: RunFolder, figs: FigureSink | None = None) -> Markup:
         glance.append(el("li", el("strong", f"{impact_name(row['impact'])}: "),
                          _glance(row, main)))
         cards.append(_card(main))
-    return section("summary", "What this run found",
+    return section("summary", "Answer details",
                     el("ul", *glance, class_="glance", aria_label="at a glance"),
                     paragraph(ANSWERS_NOTE, class_="note"),
                     el("div", *cards, class_="cards"),

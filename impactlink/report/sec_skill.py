@@ -14,6 +14,7 @@ from impactlink.report.common import (
     impact_of,
     impact_target_pairs,
     pair_title,
+    primary_pairs,
     score_for,
     section,
     sel,
@@ -48,13 +49,20 @@ from impactlink.report.words_sections import (
 from impactlink.schema import COUNTY
 
 
-def skill_section(run: RunFolder, figs: FigureSink) -> Markup:
+def skill_detail_section(run: RunFolder, figs: FigureSink) -> Markup:
+    """Appendix: heat maps of every candidate's skill, for the primary targets."""
+    return skill_section(run, figs, detail=True)
+
+
+def skill_section(run: RunFolder, figs: FigureSink, *, detail: bool = False) -> Markup:
+    sid, stitle = (("skill_detail", "Skill of every candidate") if detail
+                   else ("skill", "Skill by index, time scale and lag"))
     skill = run.table("skill")
     if skill is None or skill.empty:
-        return section("skill", "Skill by index, time scale and lag", absent())
+        return section(sid, stitle, absent())
     parts = [paragraph(
         SKILL_INTRO)]
-    for impact, target in impact_target_pairs(skill):
+    for impact, target in primary_pairs(run, impact_target_pairs(skill)):
         score = score_for(run, impact, target)
         if score not in skill.columns:
             continue
@@ -65,14 +73,18 @@ def skill_section(run: RunFolder, figs: FigureSink) -> Markup:
         best = cand.loc[cand[score].idxmax()]
         parts.append(el("h3", pair_title(impact, target)))
         label = candidate_label(best["index"], best["scale_weeks"], best["lag_weeks"])
-        parts.append(figs.add(
-            f"skill_{impact}_{target}",
-            lambda s=sub, i=impact, t=target, sc=score: skill_heatmap(
-                s, impact=i, target=t, score=sc),
-            alt=(f"Heat maps of {score_label(score)} for {impact}, {target}, by time scale "
-                 f"(weeks, rows) and lag (weeks, columns), one panel per index "
-                 f"({', '.join(index_name(i) for i in sorted(cand['index'].unique()))}). "
-                 f"Best: {label}, score {fmt_num(best[score])}.")))
+        if detail:
+            parts.append(figs.add(
+                f"skill_{impact}_{target}",
+                lambda s=sub, i=impact, t=target, sc=score: skill_heatmap(
+                    s, impact=i, target=t, score=sc),
+                alt=(f"Heat maps of {score_label(score)} for {impact}, {target}, by time scale "
+                     f"(weeks, rows) and lag (weeks, columns), one panel per index "
+                     f"({', '.join(index_name(i) for i in sorted(cand['index'].unique()))}). "
+                     f"Best: {label}, score {fmt_num(best[score])}."),
+                caption=(f"{score_label(score).capitalize()} of every candidate for "
+                         f"{pair_title(impact, target)}, by time scale and lag.")))
+            continue
         if {f"{score}_lo", f"{score}_hi"} <= set(sub.columns):
             parts.append(figs.add(
                 f"candidates_{impact}_{target}",
@@ -81,9 +93,10 @@ def skill_section(run: RunFolder, figs: FigureSink) -> Markup:
                 alt=(f"Dot-and-interval chart of the ten best candidates for {impact}, "
                      f"{target}, with seasonal and persistence baselines as vertical lines. "
                      f"Best: {label}, {fmt_interval(best[score], best[f'{score}_lo'], best[f'{score}_hi'])}.")))
-    parts.append(_persistence_part(run, figs))
+    if not detail:
+        parts.append(_persistence_part(run, figs))
     parts.append(data_files(run, "skill", "skill_summary"))
-    return section("skill", "Skill by index, time scale and lag", *parts)
+    return section(sid, stitle, *parts)
 
 
 def _persistence_part(run: RunFolder, figs: FigureSink) -> Markup:
@@ -139,7 +152,7 @@ def reliability_section(run: RunFolder, figs: FigureSink) -> Markup:
         rel = rel.assign(impact=rel["target"].map(impact_of(run)).fillna(""))
     if "model" not in rel.columns:
         rel = rel.assign(model="best candidate")
-    for impact, target in impact_target_pairs(rel):
+    for impact, target in primary_pairs(run, impact_target_pairs(rel)):
         sub = sel(rel, impact=impact, target=target)
         models = ", ".join(dict.fromkeys(sub["model"].astype(str)))
         parts.append(el("h3", pair_title(impact, target)))
@@ -165,19 +178,21 @@ def maps_section(run: RunFolder, figs: FigureSink) -> Markup:
     top = max(top if top == top else 1.0, 0.05)
     for key, sub in best.groupby(keys, sort=False):
         key = key if isinstance(key, tuple) else (key,)
+        if len(key) == 2 and not primary_pairs(run, [(str(key[0]), str(key[1]))]):
+            continue  # derived targets: numbers in skill_local.csv and the county cards
         title = pair_title(*key) if len(key) == 2 else impact_name(key[0])
         sub = sub.assign(candidate=[
             candidate_label(r.get("index"), r.get("scale_weeks"), r.get("lag_weeks"), short=True)
-            for _, r in sub.iterrows()])
-        extra = None
-        if "events" in sub.columns:
-            extra = {str(c): f"{int(e)} cases" for c, e in zip(sub[COUNTY], sub["events"],
-                                                             strict=True) if pd.notna(e)}
+            for _, r in sub.iterrows()], index_shown=sub["index"].map(index_name))
+        events = sub["events"] if "events" in sub.columns else pd.Series(pd.NA, index=sub.index)
+        extra = {str(c): f"{cand}" + (f", {int(e)} cases" if pd.notna(e) else "")
+                 for c, cand, e in zip(sub[COUNTY], sub["candidate"], events, strict=True)}
         parts.append(el("h3", title))
-        row = [svg_map(shapes, sub, "candidate", title="Best predictor in each county",
+        row = [svg_map(shapes, sub, "index_shown", title="Best index in each county",
                        unit="", kind="categorical", extra=extra,
-                       caption=f"{title}: the candidate that scored best in each county "
-                               f"({sub['candidate'].nunique()} different ones).")]
+                       caption=f"{title}: the index of the candidate that scored best in each "
+                               f"county ({sub['candidate'].nunique()} different candidates; "
+                               "hover a county for its time scale and lead).")]
         if "skill" in sub.columns:
             row.append(svg_map(shapes, sub, "skill", title="Skill in each county",
                                unit="skill score (0 = base rate)", vmin=0.0, vmax=top,
@@ -199,18 +214,22 @@ def best_per_county(run: RunFolder) -> pd.DataFrame | None:
     (``level == "unit"``) of ``skill_local.csv``."""
     layer = run.layers.get("best_candidate")
     if layer is not None and len(layer):
-        return pd.DataFrame(layer.drop(columns="geometry", errors="ignore"))
+        return _with_skill(pd.DataFrame(layer.drop(columns="geometry", errors="ignore")))
     local = run.table("skill_local")
     if local is None or local.empty:
         return None
     if "level" in local.columns:
         local = local[(local["level"] == "unit").fillna(False).to_numpy(bool)]
-    out = local.rename(columns={"unit": COUNTY})
-    if "skill" not in out.columns:
-        for score in ("rpss", "bss"):
-            if score in out.columns:
-                out = out.assign(skill=out[score])
-                break
+    out = _with_skill(local.rename(columns={"unit": COUNTY}))
     if "impact" not in out.columns:
         out = out.assign(impact=out["target"].map(impact_of(run)).fillna(""))
     return out
+
+
+def _with_skill(frame: pd.DataFrame) -> pd.DataFrame:
+    """Name the county's score column ``skill`` (from ``rpss`` or ``bss``)."""
+    if "skill" not in frame.columns:
+        for score in ("rpss", "bss"):
+            if score in frame.columns:
+                return frame.assign(skill=frame[score])
+    return frame

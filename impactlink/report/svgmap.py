@@ -97,6 +97,7 @@ def svg_map(shapes: MapShapes, values: pd.DataFrame | None, column: str | None, 
     caption : str, optional
         Caption under the map.
     """
+    key = Markup("")
     vals: dict[str, object] = {}
     if values is not None and column is not None and len(values):
         v = values.drop_duplicates(COUNTY)
@@ -108,7 +109,11 @@ def svg_map(shapes: MapShapes, values: pd.DataFrame | None, column: str | None, 
         colours = dict(zip(cats, category_colours(len(cats)), strict=True))
         fills = [colours.get(str(x)) if _has(x) else None for x in raw]
         text = [str(x) if _has(x) else "no value" for x in raw]
-        legend = _cat_legend(colours, shapes.height)
+        legend = []
+        key = el("ul", *[el("li", el("span", "", class_="sw", style=f"background:{c}"), cat)
+                         for cat, c in colours.items()],
+                 *([el("li", el("span", "", class_="sw nv"), "no value")] if None in fills
+                   else []), class_="legend")
     else:
         nums = pd.to_numeric(pd.Series(raw, dtype=object), errors="coerce").to_numpy(float)
         fills = sequential_hex(nums, vmin, vmax)
@@ -123,7 +128,7 @@ def svg_map(shapes: MapShapes, values: pd.DataFrame | None, column: str | None, 
                     f"<title>{esc(tip)}</title></path></a>")
     labels = [f'<text x="{x}" y="{y}">{esc(shapes.names[k])}</text>'
               for k, (x, y) in enumerate(shapes.label_xy) if shapes.area_rank[k] < n_labels]
-    h = shapes.height + 60
+    h = shapes.height + (60 if kind != "categorical" else 10)
     svg = (f'<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 {_WIDTH:.0f} {h:.0f}" '
            f'role="img" aria-label="{esc(title)}" class="map">'
            f'<defs><pattern id="nv" width="6" height="6" patternUnits="userSpaceOnUse">'
@@ -132,7 +137,7 @@ def svg_map(shapes: MapShapes, values: pd.DataFrame | None, column: str | None, 
            f'<g stroke="{NEUTRAL["edge"]}" stroke-width="0.6">{"".join(body)}</g>'
            f'<g class="lab">{"".join(labels)}</g>{"".join(legend)}</svg>')
     cap = el("figcaption", caption) if caption else Markup("")
-    return el("figure", el("div", el("strong", title), class_="maptitle"), Markup(svg), cap,
+    return el("figure", el("div", el("strong", title), class_="maptitle"), Markup(svg), key, cap,
               class_="svgmap")
 
 
@@ -159,22 +164,10 @@ def _ramp_legend(vmin: float, vmax: float, unit: str, top: float, digits: int) -
         f'stroke="{NEUTRAL["edge"]}" stroke-width="0.5"/>'
         f'<text x="20" y="{y + 28:.0f}">{vmin:.{digits}f}</text>'
         f'<text x="280" y="{y + 28:.0f}" text-anchor="end">{vmax:.{digits}f}</text>'
-        f'<text x="300" y="{y + 11:.0f}">{esc(unit)}</text>'
-        f'<rect x="440" y="{y:.0f}" width="14" height="12" fill="url(#nv)" '
+        f'<text x="295" y="{y + 11:.0f}">{esc(unit)}</text>'
+        f'<rect x="295" y="{y + 17:.0f}" width="14" height="12" fill="url(#nv)" '
         f'stroke="{NEUTRAL["edge"]}" stroke-width="0.5"/>'
-        f'<text x="460" y="{y + 11:.0f}">no value</text>')]
-
-
-def _cat_legend(colours: dict[str, str], top: float) -> list[Markup]:
-    out, x, y = [], 20.0, top + 14
-    for cat, colour in colours.items():
-        if x > 460:
-            x, y = 20.0, y + 18
-        out.append(Markup(f'<rect x="{x:.0f}" y="{y:.0f}" width="12" height="12" fill="{colour}" '
-                          f'stroke="{NEUTRAL["edge"]}" stroke-width="0.5"/>'
-                          f'<text x="{x + 16:.0f}" y="{y + 11:.0f}">{esc(cat)}</text>'))
-        x += 16 + 7.2 * len(cat) + 14
-    return out
+        f'<text x="315" y="{y + 28:.0f}">no value</text>')]
 
 
 def _has(value) -> bool:
