@@ -41,7 +41,9 @@ def audit_section(run: RunFolder, figs: FigureSink) -> Markup:
             unit = "percentile" if "percentile" in str(ladder) or (
                 pd.to_numeric(rec.get("threshold"), errors="coerce").abs().max() > 5) else "index value"
             maps = []
-            for stage, st in rec.groupby("stage", sort=False):
+            # One map per ladder, for its first (most often reached, so best measured)
+            # stage; every stage is in the county cards and the per-county table.
+            for stage, st in list(rec.groupby("stage", sort=False))[:1]:
                 extra = {}
                 if "local_threshold" in st.columns:
                     extra = {str(c): f"threshold {fmt_num(t)} {unit}, local threshold "

@@ -7,7 +7,14 @@ from __future__ import annotations
 
 import pandas as pd
 
-from impactlink.report.common import FigureSink, absent, county_names, section, sel
+from impactlink.report.common import (
+    FigureSink,
+    absent,
+    county_names,
+    impact_of,
+    section,
+    sel,
+)
 from impactlink.report.html import Markup, el, link, paragraph, table
 from impactlink.report.runfolder import RunFolder
 from impactlink.report.svgmap import map_shapes, svg_map
@@ -62,12 +69,12 @@ class _Cards:
     """Per-county slices of each table, grouped once (not filtered once per county)."""
 
     def __init__(self, run: RunFolder) -> None:
-        self.best = _group(_best(run), COUNTY)
+        owner = impact_of(run)
+        self.best = _group(_with_impact(_best(run), owner), COUNTY)
         self.audit = _group(_full_period(run.table("audit")), COUNTY)
-        self.outlook = _group(run.table("outlook"), COUNTY)
+        self.outlook = _group(_with_impact(run.table("outlook"), owner), COUNTY)
         self.triggers = _group(run.table("triggers"), COUNTY)
-        pairs = run.table("contrast_pairs")
-        self.pairs = pairs
+        self.pairs = _with_impact(run.table("contrast_pairs"), owner)
         self.crossings = run.table("crossings")
         self.names = {}
         n = county_names(run)
@@ -184,6 +191,13 @@ def _group(frame: pd.DataFrame | None, key: str) -> dict[str, pd.DataFrame]:
     if frame is None or frame.empty or key not in frame.columns:
         return {}
     return {str(k): g for k, g in frame.groupby(frame[key].astype(str), sort=False)}
+
+
+def _with_impact(frame: pd.DataFrame | None, owner: dict[str, str]) -> pd.DataFrame | None:
+    """Add an ``impact`` column from ``target`` where a table lacks it."""
+    if frame is None or "impact" in frame.columns or "target" not in frame.columns:
+        return frame
+    return frame.assign(impact=frame["target"].astype(str).map(owner).fillna(""))
 
 
 def _full_period(audit: pd.DataFrame | None) -> pd.DataFrame | None:
