@@ -177,11 +177,10 @@ def target_name(impact, target) -> str:
     'field reports of crop damage each week'
     """
     rest = target_label(impact, target).split(":")
-    if rest[0] in ("onset", "escalation") and len(rest) > 1:
-        span = rest[1].rstrip("w")
+    if rest[0] in ("onset", "escalation"):
         what = ("a new restriction episode starting" if rest[0] == "onset"
                 else "a move to a stricter level")
-        return f"{what} within {span} weeks"
+        return f"{what} within {rest[1].rstrip('w')} weeks" if len(rest) > 1 else what
     if rest == ["state"]:
         return "restriction level in force each week"
     if rest == ["count"]:
@@ -431,7 +430,7 @@ def persistence_sentence(summary: pd.Series) -> str:
     gain = fmt_interval(g("persistence_gain"), g("persistence_gain_lo"), g("persistence_gain_hi"))
     if _present(g("index_adds_skill")) and _present(g("persistence_gain")):
         word = "adds" if _truthy(g("index_adds_skill")) else "does not clearly add"
-        return (f"For {target_label(g('impact'), g('target'))}, the index {word} warning "
+        return (f"For {target_name(g('impact'), g('target'))}, the index {word} warning "
                 f"beyond persistence (knowing the current impact level): skill gain {gain}.")
     if _present(g("persistence_gain")):
         return f"Gain over persistence: {gain}."

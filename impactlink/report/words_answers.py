@@ -135,7 +135,7 @@ def plain_answer(row: pd.Series, skill: pd.DataFrame | None, link_row: pd.Series
                              short=True, cadence=cadence)
     week = (options or {}).get("season_week")
     if cadence == "annual" and _present(week):
-        answer += f", read at the end of ISO week {int(week)} (end of the season window)"
+        answer += f", read at the end of ISO week {int(float(str(week)))} (end of the season window)"
     sk = summary_skill(row)
     shown = "bss" if sk.score == "rpss" and str(g("kind", "")) == "binary" else sk.score
     level = f"{round(100 * (ci or 0.9))} % interval"
@@ -187,7 +187,7 @@ def _events(row: pd.Series, link_row: pd.Series | None) -> str:
     years = row.get("n_years")
     tail = f" in {int(years)} years" if _present(years) else ""
     if _present(episodes):
-        return f"{int(episodes)} restriction episodes{tail}."
+        return f"{int(float(str(episodes)))} restriction episodes{tail}."
     if not _present(events):
         return "Event count not recorded."
     unit = {"county_year": "county-years", "region_month": "region-months",
