@@ -221,6 +221,7 @@ a { color: var(--ink); }
 .finder { columns: 4 10rem; list-style: none; padding: 0; font-size: 0.95rem; }
 .maprow { display: grid; grid-template-columns: repeat(auto-fit, minmax(20rem, 1fr));
           gap: 0.8rem; }
+.svgmap { max-width: 36rem; margin: 0.4rem 0; }
 .svgmap svg { display: block; width: 100%; min-width: 300px; height: auto; }
 .svgmap text { font-size: 17px; fill: #222; }
 .svgmap .lab text { font-size: 15px; paint-order: stroke; stroke: #fff; stroke-width: 3px;

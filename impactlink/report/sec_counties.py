@@ -17,6 +17,7 @@ from impactlink.report.common import (
 )
 from impactlink.report.html import Markup, el, link, paragraph, table
 from impactlink.report.runfolder import RunFolder
+from impactlink.report.sec_answers import primary_rows
 from impactlink.report.svgmap import map_shapes, svg_map
 from impactlink.report.text import (
     candidate_label,
@@ -76,6 +77,9 @@ class _Cards:
         self.triggers = _group(run.table("triggers"), COUNTY)
         self.pairs = _with_impact(run.table("contrast_pairs"), owner)
         self.crossings = run.table("crossings")
+        summary = run.table("skill_summary")
+        self.primary = (set(primary_rows(summary)["target"].astype(str))
+                        if summary is not None and not summary.empty else None)
         self.names = {}
         n = county_names(run)
         if n is not None and "county_name" in n.columns:
@@ -103,10 +107,14 @@ class _Cards:
             return absent("No county-level skill in this run.")
         items = []
         for _, r in rows.iterrows():
+            if self.primary is not None and str(r.get("target")) not in self.primary:
+                continue
             what = candidate_label(r.get("index"), r.get("scale_weeks"), r.get("lag_weeks"),
                                    short=True)
             skill = f", local skill score {fmt_num(r['skill'])}" if "skill" in r.index else ""
             ev = f", {int(r['events'])} cases" if pd.notna(r.get("events")) else ""
+            if pd.notna(r.get("events")) and int(r["events"]) == 0:
+                skill, ev = "", ", not scored here (no cases in this county)"
             curve = self._curve(r)
             items.append(el("li", el("strong", f"{impact_name(r['impact'])}"
                                                f" ({target_name(r['impact'], r['target'])}): "),
@@ -122,6 +130,8 @@ class _Cards:
         if sub.empty:
             return ""
         first = sub.sort_values("level_k").iloc[0]
+        if not pd.notna(first.get("x_cross")):
+            return ""
         return (f" State-wide curve: a 50 % chance of {level_name(first.get('level_label'))} "
                 f"at index {fmt_num(first['x_cross'])}.")
 
@@ -132,16 +142,24 @@ class _Cards:
         if "level_k" in rows.columns:
             rows = rows[rows["level_k"] == rows.groupby("target")["level_k"].transform("min")]
         items = []
-        for _, r in rows.iterrows():
-            chance = (f"{fmt_interval(r['prob'], r.get('prob_lo'), r.get('prob_hi'))}"
-                      if pd.notna(r.get("prob")) else f"no value ({r.get('note') or 'not given'})")
-            h = r.get("horizon_weeks")
-            when = "now" if not pd.notna(h) or int(h) == 0 else f"within {int(h)} weeks"
+        for target, sub in rows.groupby("target", sort=False):
+            if self.primary is not None and str(target) not in self.primary:
+                continue
+            r = sub.iloc[0]
+            have = sub[pd.to_numeric(sub["prob"], errors="coerce").notna().to_numpy(bool)]
             lev = f", {level_name(r['level_label'])}" if pd.notna(r.get("level_label")) else ""
-            items.append(el("li", f"{impact_name(r['impact'])}, "
-                                  f"{target_name(r['impact'], r['target'])}{lev} ({when}): "
-                                  f"{chance}"))
-        return el("ul", *items[:8])
+            head = f"{impact_name(r['impact'])}, {target_name(r['impact'], target)}{lev}: "
+            if have.empty:
+                items.append(el("li", head + f"no value ({r.get('note') or 'not given'})."))
+                continue
+            if "lag_weeks" in have.columns:
+                have = have.sort_values("lag_weeks")
+            near = have.iloc[0]
+            week = near.get("valid_week")
+            items.append(el("li", head + fmt_interval(near["prob"], near.get("prob_lo"),
+                                                      near.get("prob_hi"))
+                            + (f" for the week of {week}" if pd.notna(week) else "") + "."))
+        return el("ul", *items) if items else absent("No outlook for this county.")
 
     def _audit(self, cid: str) -> Markup:
         rows = self.audit.get(cid)

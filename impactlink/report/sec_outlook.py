@@ -56,21 +56,17 @@ def outlook_section(run: RunFolder, figs: FigureSink) -> Markup:
         closed = season_note(first, options.get(str(key[0])) or {})
         if closed:
             parts.append(paragraph(closed, class_="season"))
-        horizons = sorted(pd.to_numeric(first["horizon_weeks"], errors="coerce").dropna().unique())
         maps = []
-        for h in horizons:
-            at = sel(first, horizon_weeks=h)
-            when = "now" if h == 0 else f"{int(h)} weeks ahead"
+        leads = _leads(first)
+        if not closed and shapes is not None and not leads:
+            notes = "; ".join(dict.fromkeys(first.get("note", pd.Series(dtype=str))
+                                            .dropna().astype(str))) or "no value was computed"
+            parts.append(paragraph(f"No map: {notes}, at every lead, so no chance can be given "
+                                   "yet for this impact.", class_="absent"))
+        for lag in ([] if closed or shapes is None else leads):
+            at = sel(first, lag_weeks=lag) if "lag_weeks" in first.columns else first
+            when = _when(at, lag)
             prob = pd.to_numeric(at["prob"], errors="coerce")
-            if closed or shapes is None:
-                continue
-            if prob.notna().sum() == 0:
-                notes = "; ".join(dict.fromkeys(at.get("note", pd.Series(dtype=str))
-                                                .dropna().astype(str))) or "no value was computed"
-                parts.append(paragraph(f"No map for {when}: {notes} (for "
-                                       f"{_candidate(at)}), so no chance can be given.",
-                                       class_="absent"))
-                continue
             gaps = int(prob.isna().sum())
             maps.append(svg_map(
                 shapes, at, "prob", title=f"Chance {when}", unit="chance (0 to 1)",
@@ -80,9 +76,9 @@ def outlook_section(run: RunFolder, figs: FigureSink) -> Markup:
                          + (f" {gaps} counties have no value." if gaps else ""))))
         if maps:
             parts.append(el("div", *maps, class_="maprow"))
-        cols = [c for c in (COUNTY, "horizon_weeks", "level_label", "prob", "prob_lo", "prob_hi",
-                            "note") if c in sub.columns]
-        order = [c for c in ("horizon_weeks", "level_k", "prob") if c in sub.columns]
+        cols = [c for c in (COUNTY, "valid_week", "lag_weeks", "level_label", "prob", "prob_lo",
+                            "prob_hi", "note") if c in sub.columns]
+        order = [c for c in ("lag_weeks", "horizon_weeks", "level_k", "prob") if c in sub.columns]
         ranked = sub.sort_values(order, ascending=[True] * (len(order) - 1) + [False])[cols]
         parts.append(details("Per-county chances", table(with_names(run, ranked), digits=2)))
     parts.append(data_files(run, "outlook"))
@@ -117,8 +113,8 @@ def season_note(rows: pd.DataFrame, options: dict) -> str:
     if lead >= ahead:
         return text + f" The {as_of.year + 1} season is within the model's {lead}-week lead."
     return (text + f" A chance for the {as_of.year + 1} season cannot be given yet: the model "
-            f"reads {_candidate(rows)} at the window's end, {ahead} weeks away, beyond its "
-            f"{lead}-week lead.")
+            f"needs the index at the window's end, {ahead} weeks away, beyond its "
+            f"longest fitted lead ({lead} weeks).")
 
 
 def scalar_columns(frame: pd.DataFrame) -> pd.DataFrame:
@@ -146,6 +142,21 @@ def _untuple(value):
         if isinstance(parsed, tuple):
             return ", ".join(map(str, parsed))
     return value
+
+
+def _leads(rows: pd.DataFrame) -> list[float]:
+    """Up to two leads (weeks ahead) to map: the nearest and the farthest with values."""
+    if "lag_weeks" not in rows.columns:
+        return [0.0] if pd.to_numeric(rows["prob"], errors="coerce").notna().any() else []
+    have = rows[pd.to_numeric(rows["prob"], errors="coerce").notna().to_numpy(bool)]
+    lags = sorted(pd.to_numeric(have["lag_weeks"], errors="coerce").dropna().unique())
+    return [float(x) for x in dict.fromkeys([lags[0], lags[-1]])] if lags else []
+
+
+def _when(rows: pd.DataFrame, lag) -> str:
+    week = (f" (week of {rows['valid_week'].dropna().astype(str).iloc[0]})"
+            if "valid_week" in rows.columns and rows["valid_week"].notna().any() else "")
+    return ("now" if not lag else f"{int(lag)} weeks ahead") + week
 
 
 def _candidate(rows: pd.DataFrame) -> str:
