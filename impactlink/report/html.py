@@ -127,7 +127,10 @@ def table(frame: pd.DataFrame, *, caption: str | None = None, digits: int = 3,
         Longer frames are cut, with a note saying so.
     """
     shown = frame.head(max_rows)
-    head = el("tr", *[el("th", c, scope="col") for c in shown.columns])
+    # A break opportunity after each underscore lets long column names wrap, so the main
+    # tables fit the page width without sideways scrolling (the text itself is unchanged).
+    head = el("tr", *[el("th", Markup(esc(c).replace("_", "_<wbr>")), scope="col")
+                      for c in shown.columns])
     body = [
         el("tr", *[el("td", _cell(v, digits)) for v in row])
         for row in shown.itertuples(index=False, name=None)
@@ -192,8 +195,9 @@ figcaption { font-size: 0.9rem; color: #444; margin-top: 0.2rem; }
 .scroll { overflow-x: auto; max-width: 100%; margin: 0.5rem 0; }
 table { border-collapse: collapse; font-size: 0.8rem; min-width: 50%; }
 caption { text-align: left; font-weight: 600; padding: 0.2rem 0; }
-th, td { border: 1px solid var(--grid); padding: 0.2rem 0.45rem; text-align: left;
+th, td { border: 1px solid var(--grid); padding: 0.2rem 0.35rem; text-align: left;
          vertical-align: top; }
+td { overflow-wrap: anywhere; }
 th { background: var(--band); }
 tbody tr:nth-child(even) { background: #fafafa; }
 .note, .absent { color: #555; font-style: italic; }
@@ -224,7 +228,7 @@ a { color: var(--ink); }
 .svgmap { max-width: 36rem; margin: 0.4rem 0; }
 .svgmap svg { display: block; width: 100%; min-width: 300px; height: auto; }
 .svgmap text { font-size: 17px; fill: #222; }
-.svgmap .lab text { font-size: 15px; paint-order: stroke; stroke: #fff; stroke-width: 3px;
+.svgmap .lab text { font-size: 17px; paint-order: stroke; stroke: #fff; stroke-width: 3px;
                     text-anchor: middle; }
 .svgmap a:hover path, .svgmap a:focus path { stroke: #000; stroke-width: 2; }
 .maptitle { font-size: 1rem; margin-bottom: 0.2rem; }

@@ -276,6 +276,20 @@ _NARROW = """JSON.stringify(Array.from(document.querySelectorAll('img, svg.map')
   .map(e => (e.alt || e.getAttribute('aria-label') || '').slice(0, 60)))"""
 
 
+#: Main-part tables (outside collapsed blocks and the appendix) that scroll sideways.
+_SCROLLING_TABLES = """JSON.stringify(Array.from(document.querySelectorAll('main .scroll'))
+  .filter(e => !e.closest('.after-main') && !e.closest('details')
+               && e.scrollWidth > e.clientWidth + 1)
+  .map(e => [e.closest('section').id, e.scrollWidth, e.clientWidth]))"""
+
+#: Visible page text under 12 CSS px (9 pt); SVG map text by its rendered height.
+_SMALL_TEXT = """JSON.stringify(Array.from(document.querySelectorAll(
+  'main p, main li, main td, main th, main figcaption, main dd, main dt, svg.map text'))
+  .filter(e => e.getClientRects().length && (e.tagName === 'text'
+     ? e.getBoundingClientRect().height * 0.8 : parseFloat(getComputedStyle(e).fontSize)) < 12)
+  .slice(0, 5).map(e => [e.tagName, (e.textContent || '').slice(0, 30)]))"""
+
+
 def _centre(client: _Pipe, session: str, selector: str) -> tuple[float, float]:
     """Scroll an element into view and return its centre (CSS px in the viewport)."""
     box = json.loads(_eval(client, session, f"""JSON.stringify((() => {{
@@ -326,6 +340,8 @@ def test_scenario_report_first_screen_maps_weight_and_county_finder(chromium, sc
             assert m["titled"] == m["paths"] == counties, f"map without a title per county: {m}"
             assert m["linked"] == counties, f"map whose counties do not link to cards: {m}"
         assert json.loads(_eval(client, session, _NARROW)) == []
+        assert json.loads(_eval(client, session, _SCROLLING_TABLES)) == []
+        assert json.loads(_eval(client, session, _SMALL_TEXT)) == []
 
         client.send("Emulation.setEmulatedMedia", {"media": "print"}, session=session)
         _eval(client, session, "document.querySelectorAll('.after-main').forEach(e => e.remove()); 1")
