@@ -34,6 +34,7 @@ from impactlink.report.sec_methods import cautions_section, methods_section
 from impactlink.report.sec_outlook import outlook_section
 from impactlink.report.sec_skill import (
     maps_section,
+    persistence_section,
     reliability_section,
     skill_detail_section,
     skill_section,
@@ -46,7 +47,6 @@ __all__ = ["build_report", "render_html", "SECTIONS"]
 #: Sections after the first screen, in page order: (id, title, builder). Each builder is
 #: ``(run, figs) -> Markup`` and lives in the ``sec_*`` module of its stage.
 SECTIONS = (
-    ("glossary", "Glossary", glossary_section),
     ("data", "Data and coverage", data_section),
     ("curves", "Impact curves", curves_section),
     ("skill", "Skill by index, time scale and lag", skill_section),
@@ -60,9 +60,11 @@ SECTIONS = (
 #: Sections after the main part (they may run over the printed page budget): the county
 #: finder with one card per county, then the appendix for researchers.
 AFTER_MAIN = (
+    ("glossary", "Glossary", glossary_section),
     ("finder", "County finder", finder_section),
     ("summary", "Answer details", answer_cards),
     ("appendix", "Appendix: derived targets", appendix_section),
+    ("persistence", "Warning beyond persistence", persistence_section),
     ("reliability", "Reliability", reliability_section),
     ("contrast", "County contrasts", contrast_section),
     ("skill_detail", "Skill of every candidate", skill_detail_section),
@@ -151,7 +153,7 @@ def render_html(run: RunFolder, *, progress: Callable[[str], None] | None = None
     body: list[Markup] = [first_screen(run)]
     body.append(contents([(sid, title) for sid, title, _ in SECTIONS + AFTER_MAIN]))
     for sid, stitle, builder in SECTIONS + AFTER_MAIN:
-        if sid == AFTER_MAIN[0][0]:
+        if sid == AFTER_MAIN[0][0]:  # the appendix part starts here
             body.append(Markup('<div class="after-main">'))
         say(f"report: {stitle}")
         try:

@@ -38,7 +38,8 @@ class FigureSink:
     def add(self, name: str, draw, *, alt: str, caption: str | None = None) -> Markup:
         """Draw a figure (``draw()`` returns a Figure) and return its embedded image.
 
-        Any error from ``draw`` becomes a short note in the page and a warning.
+        Any error from ``draw`` becomes a short note in the page and a warning. Without a
+        ``caption`` the first sentence of ``alt`` is shown under the figure.
         """
         try:
             fig = draw()
@@ -47,6 +48,8 @@ class FigureSink:
             warnings.warn(message, ReportWarning, stacklevel=2)
             return paragraph(message, class_="absent")
         png = figure_png(fig)
+        if caption is None:  # every figure gets a caption: the first sentence of its alt text
+            caption = alt.split(". ")[0].rstrip(".") + "."
         file = slug(name) + ".png"
         self.files[file] = png
         self.alts[file] = alt

@@ -127,10 +127,7 @@ def table(frame: pd.DataFrame, *, caption: str | None = None, digits: int = 3,
         Longer frames are cut, with a note saying so.
     """
     shown = frame.head(max_rows)
-    # A break opportunity after each underscore lets long column names wrap, so the main
-    # tables fit the page width without sideways scrolling (the text itself is unchanged).
-    head = el("tr", *[el("th", Markup(esc(c).replace("_", "_<wbr>")), scope="col")
-                      for c in shown.columns])
+    head = el("tr", *[el("th", c, scope="col") for c in shown.columns])
     body = [
         el("tr", *[el("td", _cell(v, digits)) for v in row])
         for row in shown.itertuples(index=False, name=None)
@@ -197,8 +194,8 @@ table { border-collapse: collapse; font-size: 0.8rem; min-width: 50%; }
 caption { text-align: left; font-weight: 600; padding: 0.2rem 0; }
 th, td { border: 1px solid var(--grid); padding: 0.2rem 0.35rem; text-align: left;
          vertical-align: top; }
-td { overflow-wrap: anywhere; }
 th { background: var(--band); }
+@media screen { th { overflow-wrap: anywhere; } }
 tbody tr:nth-child(even) { background: #fafafa; }
 .note, .absent { color: #555; font-style: italic; }
 .files { font-size: 0.9rem; }
@@ -251,7 +248,9 @@ a { color: var(--ink); }
   h1 { font-size: 1.25rem; }
 }
 @media print {
-  body { font-size: 10.5pt; }
+  body { font-size: 10pt; }
+  table { font-size: 9pt; }
+  h2 { margin-top: 1rem; }
   main { max-width: none; padding: 0; }
   nav { display: none; }
   h2 { break-after: avoid; }

@@ -8,7 +8,7 @@ from __future__ import annotations
 import pandas as pd
 
 from impactlink.report._select import summary_skill
-from impactlink.report.common import FigureSink, absent, data_files, section
+from impactlink.report.common import FigureSink, absent, data_files, primary_pairs, section
 from impactlink.report.html import Markup, el, link, paragraph
 from impactlink.report.runfolder import RunFolder
 from impactlink.report.text import (
@@ -18,6 +18,7 @@ from impactlink.report.text import (
     fmt_interval,
     impact_name,
     is_primary,
+    level_name,
     target_name,
 )
 from impactlink.report.words_answers import (
@@ -82,6 +83,18 @@ def primary_rows(summary: pd.DataFrame) -> pd.DataFrame:
 def glossary_section(run: RunFolder, figs: FigureSink | None = None) -> Markup:
     """Definitions of the words the page uses."""
     items = [Markup(el("dt", term) + el("dd", text)) for term, text in GLOSSARY]
+    curves = run.table("curves")
+    if curves is not None and {"impact", "target", "level_label"} <= set(curves.columns):
+        levels = curves.dropna(subset=["level_label"]).drop_duplicates(["target", "level_label"])
+        keep = set(primary_pairs(run, list(dict.fromkeys(zip(
+            levels["impact"].astype(str), levels["target"].astype(str), strict=True)))))
+        for (impact, target), sub in levels.groupby(["impact", "target"], sort=False):
+            if (str(impact), str(target)) not in keep:
+                continue
+            names = [level_name(v) for v in sub["level_label"]]
+            items.append(Markup(el("dt", f"Levels of {impact_name(impact)}: "
+                                         f"{target_name(impact, target)}")
+                                + el("dd", "; ".join(names) + ".")))
     return section("glossary", "Glossary", el("dl", *items, class_="glossary"))
 
 

@@ -16,7 +16,7 @@ from impactlink.report.common import (
 from impactlink.report.figures_curves import impact_curves
 from impactlink.report.html import Markup, details, el, paragraph, table
 from impactlink.report.runfolder import RunFolder
-from impactlink.report.text import candidate_label, fmt_num
+from impactlink.report.text import candidate_label, fmt_num, level_name
 from impactlink.report.words_sections import CURVES_INTRO
 
 
@@ -49,7 +49,10 @@ def curves_section(run: RunFolder, figs: FigureSink) -> Markup:
         if cr is not None and not cr.empty:
             cols = [c for c in ("level_label", "prob_level", "x_cross", "x_lo", "x_hi")
                     if c in cr.columns]
+            shown = cr[cols]
+            if "level_label" in shown.columns:
+                shown = shown.assign(level_label=shown["level_label"].map(level_name))
             parts.append(details("Index value at which each chance is reached",
-                                 table(cr[cols], digits=2)))
+                                 table(shown, digits=2)))
     parts.append(data_files(run, "curves", "crossings"))
     return section("curves", "Impact curves", *parts)

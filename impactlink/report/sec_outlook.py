@@ -64,7 +64,8 @@ def outlook_section(run: RunFolder, figs: FigureSink) -> Markup:
             parts.append(paragraph(f"No map: {notes}, at every lead, so no chance can be given "
                                    "yet for this impact.", class_="absent"))
         for lag in ([] if closed or shapes is None else leads):
-            at = sel(first, lag_weeks=lag) if "lag_weeks" in first.columns else first
+            assert shapes is not None
+            at = sel(first, **{_lead_column(first): lag})
             when = _when(at, lag)
             prob = pd.to_numeric(at["prob"], errors="coerce")
             gaps = int(prob.isna().sum())
@@ -80,6 +81,8 @@ def outlook_section(run: RunFolder, figs: FigureSink) -> Markup:
                             "prob_hi", "note") if c in sub.columns]
         order = [c for c in ("lag_weeks", "horizon_weeks", "level_k", "prob") if c in sub.columns]
         ranked = sub.sort_values(order, ascending=[True] * (len(order) - 1) + [False])[cols]
+        if "level_label" in ranked.columns:
+            ranked = ranked.assign(level_label=ranked["level_label"].map(level_name))
         parts.append(details("Per-county chances", table(with_names(run, ranked), digits=2)))
     parts.append(data_files(run, "outlook"))
     return section("outlook", "Outlook", *parts)
@@ -144,12 +147,17 @@ def _untuple(value):
     return value
 
 
+def _lead_column(rows: pd.DataFrame) -> str:
+    """Weeks ahead of each row: ``lag_weeks`` (one refit per lag), else ``horizon_weeks``."""
+    return "lag_weeks" if "lag_weeks" in rows.columns else "horizon_weeks"
+
+
 def _leads(rows: pd.DataFrame) -> list[float]:
     """Up to two leads (weeks ahead) to map: the nearest and the farthest with values."""
-    if "lag_weeks" not in rows.columns:
-        return [0.0] if pd.to_numeric(rows["prob"], errors="coerce").notna().any() else []
     have = rows[pd.to_numeric(rows["prob"], errors="coerce").notna().to_numpy(bool)]
-    lags = sorted(pd.to_numeric(have["lag_weeks"], errors="coerce").dropna().unique())
+    if _lead_column(rows) not in rows.columns:
+        return []
+    lags = sorted(pd.to_numeric(have[_lead_column(rows)], errors="coerce").dropna().unique())
     return [float(x) for x in dict.fromkeys([lags[0], lags[-1]])] if lags else []
 
 

@@ -38,7 +38,7 @@ from impactlink.report.text import (
     index_name,
     persistence_sentence,
     score_label,
-    target_label,
+    target_name,
 )
 from impactlink.report.words_sections import (
     MAPS_INTRO,
@@ -47,6 +47,13 @@ from impactlink.report.words_sections import (
     SKILL_INTRO,
 )
 from impactlink.schema import COUNTY
+
+
+def persistence_section(run: RunFolder, figs: FigureSink) -> Markup:
+    """Warning beyond persistence: the index alone, persistence alone and both together."""
+    part = _persistence_part(run, figs)
+    return section("persistence", "Warning beyond persistence",
+                   part if part else absent("No persistence comparison in this run."))
 
 
 def skill_detail_section(run: RunFolder, figs: FigureSink) -> Markup:
@@ -93,8 +100,6 @@ def skill_section(run: RunFolder, figs: FigureSink, *, detail: bool = False) -> 
                 alt=(f"Dot-and-interval chart of the ten best candidates for {impact}, "
                      f"{target}, with seasonal and persistence baselines as vertical lines. "
                      f"Best: {label}, {fmt_interval(best[score], best[f'{score}_lo'], best[f'{score}_hi'])}.")))
-    if not detail:
-        parts.append(_persistence_part(run, figs))
     parts.append(data_files(run, "skill", "skill_summary"))
     return section(sid, stitle, *parts)
 
@@ -107,8 +112,7 @@ def _persistence_part(run: RunFolder, figs: FigureSink) -> Markup:
     impacts = list(dict.fromkeys(skill.loc[combo, "impact"].astype(str)))
     if not impacts:
         return Markup("")
-    parts = [el("h3", "Warning beyond persistence"),
-             paragraph(PERSISTENCE_INTRO)]
+    parts = [paragraph(PERSISTENCE_INTRO)]
     summary = run.table("skill_summary")
     for impact in impacts:
         targets = list(dict.fromkeys(sel(skill, impact=impact)["target"].astype(str)))
@@ -125,7 +129,7 @@ def _persistence_part(run: RunFolder, figs: FigureSink) -> Markup:
                     continue
                 what = (candidate_label(r["index"], r["scale_weeks"], r["lag_weeks"], short=True)
                         if pd.notna(r["index"]) else "")
-                rows.append({"target": target_label(impact, tgt),
+                rows.append({"target": target_name(impact, tgt),
                              "lag_weeks": lag if lag is not None else r.get("lag_weeks"),
                              "model": label, "candidate": what,
                              score_label(score): fmt_interval(r[score], r[f"{score}_lo"],
@@ -133,9 +137,13 @@ def _persistence_part(run: RunFolder, figs: FigureSink) -> Markup:
         parts.append(figs.add(
             f"persistence_{impact}",
             lambda i=impact, sc=score: persistence_comparison(skill, impact=i, score=sc),
-            alt=(f"Dot-and-interval chart for {impact}: {score_label(score)} of the index alone, "
-                 f"persistence alone and index plus persistence, for {', '.join(targets)}.")))
-        parts.append(table(pd.DataFrame(rows), caption=f"{impact}: with and without persistence"))
+            alt=(f"Dot-and-interval chart for {impact_name(impact)}: {score_label(score)} of the "
+                 "index alone, persistence alone and index plus persistence, for "
+                 f"{'; '.join(target_name(impact, t) for t in targets)}."),
+            caption=(f"{impact_name(impact)}: the index alone, persistence alone and both "
+                     "together, with intervals.")))
+        parts.append(table(pd.DataFrame(rows),
+                           caption=f"{impact_name(impact)}: with and without persistence"))
         if summary is not None:
             sentences = [persistence_sentence(r)
                          for _, r in sel(summary, impact=impact).iterrows()]

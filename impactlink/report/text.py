@@ -299,12 +299,17 @@ def verdict(nested, nested_lo, *, beats_seasonal=None, beats_persistence=None) -
     if _present(nested_lo) and nested_lo > 0:
         small = nested < SMALL_SKILL
         if others and all(bool(b) for b in others):
+            names = " and ".join(n for n, b in (("seasonal", beats_seasonal),
+                                                ("persistence", beats_persistence))
+                                 if b is not None and _present(b))
             if small:
-                return "Clear but small signal: the index beats every baseline by a little."
-            return "Clear signal: the index beats every baseline out of sample."
+                return (f"Clear but small signal: the index beats climatology and the {names} "
+                        "baseline by a little.")
+            return (f"Clear signal: the index beats climatology and the {names} baseline out "
+                    "of sample.")
         if small:
-            return "Small signal, and it does not beat every baseline."
-        return "Real signal, but it does not beat every baseline."
+            return "Small signal, and a baseline does as well or better."
+        return "Real signal, but a baseline does as well or better."
     if nested > 0:
         return "Weak signal: the interval reaches down to no skill."
     return "No usable signal: no better than the base rate."

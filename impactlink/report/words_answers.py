@@ -35,6 +35,8 @@ FOR_YOU = (
      "threshold check, outlook and contrast", "#finder", "county finder"),
     ("Researcher", "every score with its interval, derived targets and horizons, methods and "
      "files", "#appendix", "appendix"),
+    ("Everyone", "time scale, lead, impact levels and each score (its range and no-skill "
+     "value) explained", "#glossary", "glossary"),
 )
 
 #: (term, definition) shown on the page.

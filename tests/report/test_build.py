@@ -18,7 +18,12 @@ from impactlink.report.common import FigureSink
 from impactlink.report.sec_contrast import contrast_section
 from impactlink.report.sec_data import data_section
 from impactlink.report.sec_outlook import outlook_section
-from impactlink.report.sec_skill import maps_section, reliability_section, skill_section
+from impactlink.report.sec_skill import (
+    maps_section,
+    persistence_section,
+    reliability_section,
+    skill_section,
+)
 from impactlink.report.sec_triggers import triggers_section
 from impactlink.report.text import CAUTIONS
 from impactlink.report.words_methods import METHODS, REFERENCES
@@ -117,7 +122,8 @@ def test_first_screen_has_cautions_then_an_answer_per_impact(built):
     assert "beats every baseline" not in top
     for who in ("Drought committee", "Extension agent", "Researcher"):
         assert who in top
-    assert p.order[0] == "glossary"
+    assert p.order[0] == "data"  # the main part follows the first screen
+    assert "glossary" in p.order and "finder" in p.order
     summary = p.section("summary")
     for words in ("13-week time scale", "skill score", "statistically as good",
                   "events among 600", "the index adds warning beyond persistence"):
@@ -155,7 +161,7 @@ def test_cautions_and_methods_carry_required_text(built):
 def test_persistence_comparison_for_restriction_targets(built):
     _, html, _ = built
     _, p = _parse(html)
-    skill = p.section("skill")
+    skill = p.section("persistence")
     assert "Warning beyond persistence" in skill
     for target in ("restriction level in force each week", "a new restriction episode starting",
                    "a move to a stricter level"):
@@ -285,8 +291,8 @@ def test_skill_stage_model_names_are_understood(tmp_path, make_run):
     pd.concat([skill, extra]).to_csv(folder / "skill.csv", index=False)
     run = read_run_folder(folder)
     sink = FigureSink()
-    _, p = _parse_markup(skill_section(run, sink))
-    text = p.section("skill")
+    _, p = _parse_markup(persistence_section(run, sink))
+    text = p.section("persistence")
     assert "Warning beyond persistence" in text and "index + persistence" in text
     assert "persistence_restrictions.png" in sink.files
 
@@ -379,7 +385,7 @@ def test_outlook_says_when_a_season_has_closed_and_reads_tuple_cells(tmp_path, m
     markup = outlook_section(read_run_folder(folder), FigureSink())
     assert "<svg" not in markup  # a closed season is not drawn as a forecast
     assert "season window (ending ISO week 34" in markup and "closed" in markup
-    assert "cannot be given yet" in markup and "0-week lead" in markup
+    assert "cannot be given yet" in markup and "longest fitted lead (0 weeks)" in markup
     from impactlink.report.sec_outlook import scalar_columns
 
     tidy = scalar_columns(pd.DataFrame(rows))
