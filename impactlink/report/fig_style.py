@@ -2,7 +2,7 @@
 
 No function here touches disk or the pyplot state machine: each figure is a
 :class:`matplotlib.figure.Figure` built directly (rendered by the Agg canvas), in the report's
-own "estuary" colour scheme (:mod:`impactlink.report.palette`). Every figure has labelled
+own colour scheme (:mod:`impactlink.report.palette`). Every figure has labelled
 axes with units; colours are backed by markers, line styles or hatching so a grey-scale
 print still reads.
 """

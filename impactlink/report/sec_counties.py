@@ -18,12 +18,14 @@ from impactlink.report.common import (
 from impactlink.report.html import Markup, el, link, paragraph, table
 from impactlink.report.runfolder import RunFolder
 from impactlink.report.sec_answers import primary_rows
+from impactlink.report.sec_outlook import _impact_options, season_note
 from impactlink.report.svgmap import map_shapes, svg_map
 from impactlink.report.text import (
     candidate_label,
     fmt_interval,
     fmt_num,
     impact_name,
+    index_name,
     level_name,
     target_name,
 )
@@ -77,6 +79,7 @@ class _Cards:
         self.triggers = _group(run.table("triggers"), COUNTY)
         self.pairs = _with_impact(run.table("contrast_pairs"), owner)
         self.crossings = run.table("crossings")
+        self.options = _impact_options(run.manifest or {})
         summary = run.table("skill_summary")
         self.primary = (set(primary_rows(summary)["target"].astype(str))
                         if summary is not None and not summary.empty else None)
@@ -152,6 +155,10 @@ class _Cards:
             if have.empty:
                 items.append(el("li", head + f"no value ({r.get('note') or 'not given'})."))
                 continue
+            if season_note(sub, self.options.get(str(r["impact"])) or {}):
+                items.append(el("li", head + "this year's season window has closed; no chance "
+                                             "for the next season yet (see the outlook)."))
+                continue
             if "lag_weeks" in have.columns:
                 have = have.sort_values("lag_weeks")
             near = have.iloc[0]
@@ -171,14 +178,17 @@ class _Cards:
         if {"ratio_lo", "ratio_hi"} <= set(rows.columns):
             out["observed / expected"] = [fmt_interval(a, b, c) for a, b, c in zip(
                 rows["ratio"], rows["ratio_lo"], rows["ratio_hi"], strict=True)]
-        return table(out.assign(ladder=out["ladder"].astype(str).str.replace("_", " ")),
-                     digits=2)
+        tidy = {c: out[c].astype(str).str.replace("_", " ") for c in ("ladder", "stage")
+                if c in out.columns}
+        return table(out.assign(**tidy), digits=2)
 
     def _triggers(self, cid: str) -> Markup:
         rows = self.triggers.get(cid)
         if rows is None or rows.empty:
             return absent("No trigger replay row for this county.")
-        cols = {"index": "index", "scale_weeks": "time scale (weeks)", "threshold": "threshold",
+        rows = rows.assign(index=rows["index"].map(index_name)) if "index" in rows else rows
+        cols = {"scope": "plan", "index": "index", "scale_weeks": "time scale (weeks)",
+                "threshold": "threshold",
                 "activations": "activations", "hit_rate": "hit rate",
                 "false_alarm_ratio": "false-alarm ratio", "peirce_skill": "Peirce skill"}
         return table(rows[[c for c in cols if c in rows.columns]].rename(columns=cols).head(4),
