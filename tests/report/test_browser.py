@@ -365,7 +365,7 @@ def test_scenario_report_first_screen_maps_weight_and_county_finder(chromium, sc
           const r = c.getBoundingClientRect();
           return {{top: r.top, h: c.querySelector('h3').innerText,
                    sections: Array.from(c.querySelectorAll('h4')).map(h => h.innerText)}}; }})())"""))
-        assert 0 <= card["top"] < 100 and "Tovova" in card["h"], card
+        assert -2 <= card["top"] < 100 and "Tovova" in card["h"], card  # sub-pixel scroll
         assert {"Best predictor here", "Outlook", "Threshold audit"} <= set(card["sections"])
         shot = client.send("Page.captureScreenshot", {"format": "png"}, session=session)
         (ARTIFACTS / "county-card.png").write_bytes(base64.b64decode(shot["data"]))
