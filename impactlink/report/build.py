@@ -18,14 +18,27 @@ from impactlink.report.common import FigureSink, not_drawn
 from impactlink.report.figures_audit import record_period
 from impactlink.report.html import Markup, page
 from impactlink.report.runfolder import ReportWarning, RunFolder, read_run_folder
-from impactlink.report.sec_answers import answer_cards, cautions_banner, contents
+from impactlink.report.sec_answers import (
+    answer_cards,
+    appendix_section,
+    contents,
+    first_screen,
+    glossary_section,
+)
 from impactlink.report.sec_audit import audit_section
 from impactlink.report.sec_contrast import contrast_section
+from impactlink.report.sec_counties import finder_section
 from impactlink.report.sec_curves import curves_section
 from impactlink.report.sec_data import data_section, provenance_section
 from impactlink.report.sec_methods import cautions_section, methods_section
 from impactlink.report.sec_outlook import outlook_section
-from impactlink.report.sec_skill import maps_section, reliability_section, skill_section
+from impactlink.report.sec_skill import (
+    maps_section,
+    persistence_section,
+    reliability_section,
+    skill_detail_section,
+    skill_section,
+)
 from impactlink.report.sec_triggers import triggers_section
 from impactlink.schema import COUNTY
 
@@ -37,14 +50,25 @@ SECTIONS = (
     ("data", "Data and coverage", data_section),
     ("curves", "Impact curves", curves_section),
     ("skill", "Skill by index, time scale and lag", skill_section),
-    ("reliability", "Reliability", reliability_section),
     ("maps", "County maps", maps_section),
     ("audit", "Threshold audit", audit_section),
     ("triggers", "Trigger plan replay and tuning", triggers_section),
-    ("contrast", "County contrasts", contrast_section),
     ("outlook", "Outlook", outlook_section),
-    ("methods", "Methods", methods_section),
     ("cautions", "Cautions", cautions_section),
+)
+
+#: Sections after the main part (they may run over the printed page budget): the county
+#: finder with one card per county, then the appendix for researchers.
+AFTER_MAIN = (
+    ("glossary", "Glossary", glossary_section),
+    ("finder", "County finder", finder_section),
+    ("summary", "Answer details", answer_cards),
+    ("appendix", "Appendix: derived targets", appendix_section),
+    ("persistence", "Warning beyond persistence", persistence_section),
+    ("reliability", "Reliability", reliability_section),
+    ("contrast", "County contrasts", contrast_section),
+    ("skill_detail", "Skill of every candidate", skill_detail_section),
+    ("methods", "Methods", methods_section),
     ("provenance", "Provenance", provenance_section),
 )
 
@@ -126,10 +150,11 @@ def render_html(run: RunFolder, *, progress: Callable[[str], None] | None = None
         f"impactlink {man['impactlink_version']}" if man.get("impactlink_version") else None,
         f"seed {man['seed']}" if man.get("seed") is not None else None,
     ) if p) or "run details not recorded"
-    body: list[Markup] = [cautions_banner(), answer_cards(run, sink)]
-    body.append(contents([("summary", "What this run found")]
-                           + [(sid, title) for sid, title, _ in SECTIONS]))
-    for sid, stitle, builder in SECTIONS:
+    body: list[Markup] = [first_screen(run)]
+    body.append(contents([(sid, title) for sid, title, _ in SECTIONS + AFTER_MAIN]))
+    for sid, stitle, builder in SECTIONS + AFTER_MAIN:
+        if sid == AFTER_MAIN[0][0]:  # the appendix part starts here
+            body.append(Markup('<div class="after-main">'))
         say(f"report: {stitle}")
         try:
             body.append(builder(run, sink))
@@ -139,6 +164,7 @@ def render_html(run: RunFolder, *, progress: Callable[[str], None] | None = None
             warnings.warn(f"report section {sid!r} failed: {type(exc).__name__}: {exc}",
                           ReportWarning, stacklevel=2)
             body.append(not_drawn(sid, stitle, exc))
+    body.append(Markup("</div>"))
     return page(title=title, subtitle=subtitle, body=body), sink
 
 

@@ -14,7 +14,7 @@ from impactlink.errors import ReportError, ReportWarning
 from impactlink.report.fig_style import figure_png
 from impactlink.report.html import Markup, el, image, join, link, paragraph
 from impactlink.report.runfolder import RunFolder
-from impactlink.report.text import target_label
+from impactlink.report.text import impact_name, target_name
 from impactlink.schema import COUNTY
 
 NOT_COMPUTED = "Not computed in this run."
@@ -38,7 +38,8 @@ class FigureSink:
     def add(self, name: str, draw, *, alt: str, caption: str | None = None) -> Markup:
         """Draw a figure (``draw()`` returns a Figure) and return its embedded image.
 
-        Any error from ``draw`` becomes a short note in the page and a warning.
+        Any error from ``draw`` becomes a short note in the page and a warning. Without a
+        ``caption`` the first sentence of ``alt`` is shown under the figure.
         """
         try:
             fig = draw()
@@ -47,6 +48,8 @@ class FigureSink:
             warnings.warn(message, ReportWarning, stacklevel=2)
             return paragraph(message, class_="absent")
         png = figure_png(fig)
+        if caption is None:  # every figure gets a caption: the first sentence of its alt text
+            caption = alt.split(". ")[0].rstrip(".") + "."
         file = slug(name) + ".png"
         self.files[file] = png
         self.alts[file] = alt
@@ -59,7 +62,7 @@ def slug(text: str) -> str:
 
 
 def pair_title(impact, target) -> str:
-    return f"{impact} \u2014 {target_label(impact, target)}"
+    return f"{impact_name(impact)}: {target_name(impact, target)}"
 
 
 def absent(what: str = NOT_COMPUTED) -> Markup:
@@ -144,3 +147,17 @@ def not_drawn(sid: str, title: str, exc: Exception) -> Markup:
     return section(sid, title, absent(
         f"This section could not be built from this run's tables ({type(exc).__name__}: "
         f"{exc})."))
+
+
+def primary_pairs(run: RunFolder, pairs: list[tuple[str, str]]) -> list[tuple[str, str]]:
+    """The (impact, target) pairs that are an impact's primary target; the main sections
+    draw figures for these only (derived thresholds and horizons are in the appendix). All
+    pairs when the run has no skill summary to tell them apart."""
+    summary = run.table("skill_summary")
+    if summary is None or summary.empty or "target" not in summary.columns:
+        return pairs
+    from impactlink.report.sec_answers import primary_rows
+
+    keep = set(primary_rows(summary)["target"].astype(str))
+    known = set(summary["target"].astype(str))
+    return [(i, t) for i, t in pairs if t in keep or t not in known]

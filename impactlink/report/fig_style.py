@@ -2,7 +2,7 @@
 
 No function here touches disk or the pyplot state machine: each figure is a
 :class:`matplotlib.figure.Figure` built directly (rendered by the Agg canvas), in the report's
-own "estuary" colour scheme (:mod:`impactlink.report.palette`). Every figure has labelled
+own colour scheme (:mod:`impactlink.report.palette`). Every figure has labelled
 axes with units; colours are backed by markers, line styles or hatching so a grey-scale
 print still reads.
 """
@@ -85,14 +85,17 @@ def row_chart(n_rows: int, *, row_height: float, pad: float):
     return fig, fig.subplots(), np.arange(n_rows)[::-1]
 
 
-def figure_png(fig: Figure, *, dpi: int = 110) -> bytes:
-    """Render a Figure to PNG bytes with the Agg canvas.
+def figure_png(fig: Figure, *, dpi: int = 110, colours: int = 128) -> bytes:
+    """Render a Figure to PNG bytes with the Agg canvas, quantised to a palette.
 
     Parameters
     ----------
     fig : matplotlib.figure.Figure
     dpi : int, default 110
         Dots per inch.
+    colours : int, default 128
+        Size of the PNG palette (median-cut quantisation with Pillow, no dithering);
+        0 keeps full colour. A chart's flat colours survive; the file is a third the size.
 
     Returns
     -------
@@ -102,8 +105,16 @@ def figure_png(fig: Figure, *, dpi: int = 110) -> bytes:
     import io
 
     from matplotlib.backends.backend_agg import FigureCanvasAgg
+    from PIL import Image
 
     FigureCanvasAgg(fig)
     buf = io.BytesIO()
     fig.savefig(buf, format="png", dpi=dpi, facecolor="white")
-    return buf.getvalue()
+    if not colours:
+        return buf.getvalue()
+    buf.seek(0)
+    img = Image.open(buf).convert("RGB").quantize(colors=colours, method=Image.Quantize.MEDIANCUT,
+                                                  dither=Image.Dither.NONE)
+    out = io.BytesIO()
+    img.save(out, format="PNG", optimize=True)
+    return out.getvalue()

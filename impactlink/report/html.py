@@ -190,17 +190,56 @@ figure { margin: 0.8rem 0; break-inside: avoid; }
 figure img { display: block; max-width: 100%; height: auto; border: 1px solid var(--grid); }
 figcaption { font-size: 0.9rem; color: #444; margin-top: 0.2rem; }
 .scroll { overflow-x: auto; max-width: 100%; margin: 0.5rem 0; }
-table { border-collapse: collapse; font-size: 0.85rem; min-width: 50%; }
+table { border-collapse: collapse; font-size: 0.8rem; min-width: 50%; }
 caption { text-align: left; font-weight: 600; padding: 0.2rem 0; }
-th, td { border: 1px solid var(--grid); padding: 0.2rem 0.45rem; text-align: left;
+th, td { border: 1px solid var(--grid); padding: 0.2rem 0.35rem; text-align: left;
          vertical-align: top; }
 th { background: var(--band); }
+@media screen { th { overflow-wrap: anywhere; } }
 tbody tr:nth-child(even) { background: #fafafa; }
 .note, .absent { color: #555; font-style: italic; }
 .files { font-size: 0.9rem; }
 pre { white-space: pre-wrap; word-break: break-word; font-size: 0.8rem; background: #f6f6f6;
       padding: 0.5rem; }
 a { color: var(--ink); }
+.demo { background: #fff3c4; border: 2px solid #8a6d00; padding: 0.35rem 0.8rem;
+        margin: 0.4rem 0; font-size: 1rem; }
+.first .cautions { margin: 0.4rem 0; padding: 0.3rem 0.8rem; font-size: 0.9rem; }
+.first .cautions ul { display: flex; flex-wrap: wrap; gap: 0 1.2rem; list-style: none;
+                      padding: 0; margin: 0.1rem 0 0; }
+.first h2 { margin: 0.8rem 0 0.4rem; }
+.answers { display: grid; grid-template-columns: repeat(auto-fit, minmax(14rem, 1fr));
+           gap: 0.6rem; }
+.answer { border: 1px solid var(--grid); border-top: 5px solid var(--ink);
+          padding: 0.35rem 0.6rem; font-size: 0.85rem; line-height: 1.35; }
+.answer h3 { margin: 0 0 0.2rem; font-size: 0.95rem; }
+.answer dl { margin: 0; } .answer dt { font-weight: 700; margin-top: 0.25rem; }
+.answer dd { margin: 0; }
+.foryou { font-size: 0.9rem; padding-left: 1.1rem; margin: 0.5rem 0; }
+.glossary { columns: 2 22rem; font-size: 0.9rem; }
+.glossary dt { font-weight: 700; margin-top: 0.3rem; break-after: avoid; }
+.glossary dd { margin: 0 0 0 0.8rem; break-before: avoid; }
+.finder { columns: 4 10rem; list-style: none; padding: 0; font-size: 0.95rem; }
+.maprow { display: grid; grid-template-columns: repeat(auto-fit, minmax(20rem, 1fr));
+          gap: 0.8rem; }
+.svgmap { max-width: 36rem; margin: 0.4rem 0; }
+.svgmap svg { display: block; width: 100%; min-width: 300px; height: auto; }
+.svgmap text { font-size: 17px; fill: #222; }
+.svgmap .lab text { font-size: 17px; paint-order: stroke; stroke: #fff; stroke-width: 3px;
+                    text-anchor: middle; }
+.svgmap a:hover path, .svgmap a:focus path { stroke: #000; stroke-width: 2; }
+.maptitle { font-size: 1rem; margin-bottom: 0.2rem; }
+.legend { list-style: none; padding: 0; margin: 0.2rem 0; font-size: 0.85rem;
+          display: flex; flex-wrap: wrap; gap: 0.1rem 0.9rem; }
+.legend .sw { display: inline-block; width: 0.9rem; height: 0.9rem; margin-right: 0.3rem;
+              vertical-align: -0.1rem; border: 1px solid #5a5a5a; }
+.legend .nv { background: radial-gradient(#6b6b6b 20%, #fff 25%) 0 0 / 5px 5px; }
+.county-card { border: 1px solid var(--grid); border-top: 6px solid var(--accent);
+               padding: 0.4rem 0.9rem; margin: 1rem 0; }
+.county-card h3 .meta { font-weight: 400; font-size: 0.9rem; }
+.county-card h4 { margin: 0.6rem 0 0.2rem; font-size: 0.95rem; }
+.county-card ul { margin: 0.1rem 0; padding-left: 1.1rem; }
+.county-card:target { outline: 3px solid var(--accent); }
 @media (max-width: 40rem) {
   body { font-size: 15px; }
   .cautions { font-size: 0.9rem; padding: 0.4rem 0.6rem; }
@@ -209,13 +248,17 @@ a { color: var(--ink); }
   h1 { font-size: 1.25rem; }
 }
 @media print {
-  body { font-size: 10.5pt; }
+  body { font-size: 10pt; }
+  table { font-size: 9pt; }
+  h2 { margin-top: 1rem; }
   main { max-width: none; padding: 0; }
   nav { display: none; }
   h2 { break-after: avoid; }
   .scroll { overflow: visible; }
   a { color: inherit; text-decoration: none; }
   .card, figure, table { break-inside: avoid; }
+  .county-card { break-before: page; break-inside: avoid; border: none; margin: 0; }
+  .after-main > section { break-before: page; }
 }
 """).substitute({
     "ink": CATEGORICAL["ink"], "accent": CATEGORICAL["marigold"], "pale": SEQUENCE[0],

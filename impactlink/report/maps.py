@@ -1,6 +1,6 @@
 """County maps of the report: pure functions, (Geo)DataFrames in, matplotlib Figure out.
 
-Sequential quantities use the "estuary" ramp (light = low, dark = high); categories use
+Sequential quantities use the single-hue umber ramp (light = low, dark = high); categories use
 the named categorical colours with a hatch pattern each, so a grey-scale print still
 separates them; counties without a value are white with a grey outline and a dotted hatch.
 """

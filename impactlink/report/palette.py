@@ -6,8 +6,9 @@ Two parts:
   entries differ strongly in lightness, so they stay apart when printed in grey, and the
   hues sit on the blue/orange axis that colour-vision deficiencies keep (red/green pairs
   are avoided).
-- :data:`SEQUENCE` -- anchor colours of a sequential ramp from pale shell to deep ink whose
-  lightness falls monotonically, so larger values are always darker, in colour or in grey.
+- :data:`SEQUENCE` -- anchor colours of a continuous single-hue ramp from pale linen to deep
+  umber whose lightness falls monotonically, so larger values are always darker, in colour
+  or in grey; a warm neutral hue, so a high chance of impact does not read as wet.
 
 The scheme is our own; it is not taken from any map product. Tests check the lightness
 order with the WCAG 2 relative-luminance formula and the separation of categories under
@@ -42,6 +43,7 @@ __all__ = [
     "category_colours",
     "sequential_cmap",
     "relative_luminance",
+    "sequential_hex",
 ]
 
 PALETTE_NAME = "estuary"
@@ -59,15 +61,17 @@ CATEGORICAL = MappingProxyType(
     }
 )
 
-#: Anchors of the sequential ramp, lightest to darkest.
+#: Anchors of the sequential ramp, lightest to darkest: one warm-neutral hue ("umber",
+#: hue angle about 30-35 degrees) from pale linen to deep umber, so a high chance of impact
+#: reads as dry and dark, never as wet. Continuous (interpolated), with no classes.
 SEQUENCE = (
-    "#f7f3e8",  # shell
-    "#d8e3c9",  # pale sage
-    "#9fc7bd",  # sea glass
-    "#5f9db3",  # harbour haze
-    "#3a6a9a",  # deep water
-    "#283f70",  # dusk
-    "#161d3d",  # ink
+    "#f8f4ee",  # linen
+    "#eadfcf",  # oat
+    "#d6c1a6",  # sand
+    "#bb9b78",  # tan
+    "#96714f",  # umber
+    "#6a4a31",  # deep umber
+    "#3a2718",  # bark
 )
 
 #: Neutral colours for text, grid, baselines and "no data".
@@ -156,3 +160,34 @@ def relative_luminance(colours) -> np.ndarray:
     )[:, :3]
     lin = np.where(rgb <= 0.04045, rgb / 12.92, ((rgb + 0.055) / 1.055) ** 2.4)
     return lin @ np.array([0.2126, 0.7152, 0.0722])
+
+
+def sequential_hex(values, vmin: float, vmax: float) -> list[str | None]:
+    """Colours of the sequential ramp for ``values`` scaled to ``[vmin, vmax]`` (hex strings;
+    ``None`` for missing values), for maps drawn as SVG.
+
+    Parameters
+    ----------
+    values : array-like of float
+    vmin, vmax : float
+        Values at the lightest and darkest ends (shared across panels of one quantity).
+
+    Returns
+    -------
+    list of str or None
+
+    Examples
+    --------
+    >>> sequential_hex([0.0, 1.0, float("nan")], 0.0, 1.0)
+    ['#f8f4ee', '#3a2718', None]
+    """
+    from matplotlib.colors import to_rgb
+
+    v = np.asarray(values, dtype=float)
+    span = max(float(vmax) - float(vmin), 1e-12)
+    t = np.clip((v - float(vmin)) / span, 0.0, 1.0)
+    anchors = np.asarray([to_rgb(c) for c in SEQUENCE])
+    pos = np.linspace(0.0, 1.0, len(anchors))
+    rgb = np.stack([np.interp(np.nan_to_num(t), pos, anchors[:, k]) for k in range(3)], axis=1)
+    codes = np.rint(rgb * 255).astype(int)
+    return [None if np.isnan(t[i]) else "#{:02x}{:02x}{:02x}".format(*tuple(codes[i])) for i in range(len(t))]

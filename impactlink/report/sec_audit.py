@@ -3,14 +3,13 @@
 
 from __future__ import annotations
 
-import numpy as np
 import pandas as pd
 
-from impactlink.report import maps as M
 from impactlink.report.common import FigureSink, absent, data_files, section, sel, with_names
 from impactlink.report.figures_audit import audit_shares, record_period
 from impactlink.report.html import Markup, details, el, paragraph, table
 from impactlink.report.runfolder import RunFolder
+from impactlink.report.svgmap import map_shapes, svg_map
 from impactlink.report.text import fmt_num
 from impactlink.report.words_sections import AUDIT_INTRO
 from impactlink.schema import COUNTY
@@ -22,6 +21,9 @@ def audit_section(run: RunFolder, figs: FigureSink) -> Markup:
         return section("audit", "Threshold audit", absent())
     parts = [paragraph(
         AUDIT_INTRO)]
+    shapes = map_shapes(run.counties) if run.counties is not None else None
+    ratio = pd.to_numeric(sel(audit, period=record_period(audit)).get("ratio"), errors="coerce")
+    ratio_top = max(float(ratio.max()) if ratio is not None and ratio.notna().any() else 2.0, 1.0)
     for ladder, sub in audit.groupby("ladder", sort=False):
         parts.append(el("h3", f"Ladder {ladder}"))
         rec = sel(sub, period=record_period(sub))
@@ -35,31 +37,27 @@ def audit_section(run: RunFolder, figs: FigureSink) -> Markup:
             alt=(f"Threshold audit for ladder {ladder}: observed over expected share of weeks "
                  f"per county and stage, and early versus late period. {alt_stages}.")))
         parts.append(table(_audit_summary(sub), caption="Summary over counties (medians)"))
-        if run.counties is not None and "local_threshold" in rec.columns:
-            for stage, st in rec.groupby("stage", sort=False):
-                thr = pd.to_numeric(st.get("threshold"), errors="coerce")
-                uniform = float(thr.median()) if thr is not None and thr.notna().any() else None
-                loc = pd.to_numeric(st["local_threshold"], errors="coerce")
-                lo = np.nanmin([loc.min(), uniform if uniform is not None else np.nan])
-                hi = np.nanmax([loc.max(), uniform if uniform is not None else np.nan])
-                panels = []
-                if uniform is not None:
-                    panels.append(M.MapPanel(st.assign(_u=uniform), "_u",
-                                             title=f"uniform threshold {fmt_num(uniform)}",
-                                             label="index value", vmin=lo, vmax=hi))
-                panels.append(M.MapPanel(st, "local_threshold", title="local threshold",
-                                         label="index value", vmin=lo, vmax=hi))
-                if "ratio" in st.columns:
-                    panels.append(M.MapPanel(st, "ratio", title="observed / expected",
-                                             label="ratio (1 = as defined)"))
-                parts.append(figs.add(
-                    f"audit_map_{ladder}_{stage}",
-                    lambda p=panels, t=f"{ladder} \u2014 {stage}": M.county_panels(
-                        run.counties, p, suptitle=t),
-                    alt=(f"County maps for stage {stage} of ladder {ladder}: the uniform "
-                         f"threshold {fmt_num(uniform)} beside the local threshold per county "
-                         f"(from {fmt_num(loc.min())} to {fmt_num(loc.max())}) and the "
-                         "observed over expected ratio.")))
+        if shapes is not None and "ratio" in rec.columns:
+            unit = "percentile" if "percentile" in str(ladder) or (
+                pd.to_numeric(rec.get("threshold"), errors="coerce").abs().max() > 5) else "index value"
+            maps = []
+            # One map per ladder, for its first (most often reached, so best measured)
+            # stage; every stage is in the county cards and the per-county table.
+            for stage, st in list(rec.groupby("stage", sort=False))[:1]:
+                extra = {}
+                if "local_threshold" in st.columns:
+                    extra = {str(c): f"threshold {fmt_num(t)} {unit}, local threshold "
+                                     f"{fmt_num(lt)} {unit}"
+                             for c, t, lt in zip(st[COUNTY], st["threshold"],
+                                                 st["local_threshold"], strict=True)}
+                maps.append(svg_map(
+                    shapes, st, "ratio", title=f"Stage {str(stage).replace('_', ' ')}",
+                    unit="observed / expected (1 = as defined)", vmin=0.0, vmax=ratio_top,
+                    extra=extra,
+                    caption=(f"Ladder {ladder}, stage {stage}: how often the stage was reached "
+                             "against how often its definition implies, per county (same scale "
+                             "on every audit map); hover for the local threshold.")))
+            parts.append(el("div", *maps, class_="maprow"))
         cols = [c for c in (COUNTY, "stage", "period", "threshold", "expected_share",
                             "observed_share", "ratio", "ratio_lo", "ratio_hi", "local_threshold",
                             "local_threshold_lo", "local_threshold_hi", "weeks") if c in sub.columns]

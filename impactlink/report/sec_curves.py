@@ -9,13 +9,14 @@ from impactlink.report.common import (
     data_files,
     impact_target_pairs,
     pair_title,
+    primary_pairs,
     section,
     sel,
 )
 from impactlink.report.figures_curves import impact_curves
-from impactlink.report.html import Markup, el, paragraph, table
+from impactlink.report.html import Markup, details, el, paragraph, table
 from impactlink.report.runfolder import RunFolder
-from impactlink.report.text import candidate_label, fmt_num
+from impactlink.report.text import candidate_label, fmt_num, level_name
 from impactlink.report.words_sections import CURVES_INTRO
 
 
@@ -25,7 +26,7 @@ def curves_section(run: RunFolder, figs: FigureSink) -> Markup:
         return section("curves", "Impact curves", absent())
     crossings = run.table("crossings")
     parts = [paragraph(CURVES_INTRO)]
-    for impact, target in impact_target_pairs(curves):
+    for impact, target in primary_pairs(run, impact_target_pairs(curves)):
         sub = sel(curves, impact=impact, target=target)
         first = sub.iloc[0]
         parts.append(el("h3", pair_title(impact, target)))
@@ -41,10 +42,17 @@ def curves_section(run: RunFolder, figs: FigureSink) -> Markup:
                     f"{fmt_num(mid['prob_level'])} at index value {fmt_num(mid['x_cross'])}.")
         parts.append(figs.add(f"curve_{impact}_{target}",
                               lambda s=sub, c=cr, i=impact, t=target: impact_curves(
-                                  s, c, impact=i, target=t), alt=alt))
+                                  s, c, impact=i, target=t), alt=alt,
+                              caption=(f"Chance of each level of {pair_title(impact, target)} "
+                                       "against the index, with its 90 % band (state-wide "
+                                       "model).")))
         if cr is not None and not cr.empty:
             cols = [c for c in ("level_label", "prob_level", "x_cross", "x_lo", "x_hi")
                     if c in cr.columns]
-            parts.append(table(cr[cols], caption="Index value at which each chance is reached"))
+            shown = cr[cols]
+            if "level_label" in shown.columns:
+                shown = shown.assign(level_label=shown["level_label"].map(level_name))
+            parts.append(details("Index value at which each chance is reached",
+                                 table(shown, digits=2)))
     parts.append(data_files(run, "curves", "crossings"))
     return section("curves", "Impact curves", *parts)

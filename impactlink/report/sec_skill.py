@@ -6,7 +6,6 @@ from __future__ import annotations
 
 import pandas as pd
 
-from impactlink.report import maps as M
 from impactlink.report._select import PERSISTENCE_COMBOS, single_candidates
 from impactlink.report.common import (
     FigureSink,
@@ -15,6 +14,7 @@ from impactlink.report.common import (
     impact_of,
     impact_target_pairs,
     pair_title,
+    primary_pairs,
     score_for,
     section,
     sel,
@@ -29,14 +29,16 @@ from impactlink.report.figures_skill import (
 )
 from impactlink.report.html import Markup, details, el, join, link, paragraph, table
 from impactlink.report.runfolder import RunFolder
+from impactlink.report.svgmap import map_shapes, svg_map
 from impactlink.report.text import (
     candidate_label,
     fmt_interval,
     fmt_num,
+    impact_name,
     index_name,
     persistence_sentence,
     score_label,
-    target_label,
+    target_name,
 )
 from impactlink.report.words_sections import (
     MAPS_INTRO,
@@ -47,13 +49,27 @@ from impactlink.report.words_sections import (
 from impactlink.schema import COUNTY
 
 
-def skill_section(run: RunFolder, figs: FigureSink) -> Markup:
+def persistence_section(run: RunFolder, figs: FigureSink) -> Markup:
+    """Warning beyond persistence: the index alone, persistence alone and both together."""
+    part = _persistence_part(run, figs)
+    return section("persistence", "Warning beyond persistence",
+                   part if part else absent("No persistence comparison in this run."))
+
+
+def skill_detail_section(run: RunFolder, figs: FigureSink) -> Markup:
+    """Appendix: heat maps of every candidate's skill, for the primary targets."""
+    return skill_section(run, figs, detail=True)
+
+
+def skill_section(run: RunFolder, figs: FigureSink, *, detail: bool = False) -> Markup:
+    sid, stitle = (("skill_detail", "Skill of every candidate") if detail
+                   else ("skill", "Skill by index, time scale and lag"))
     skill = run.table("skill")
     if skill is None or skill.empty:
-        return section("skill", "Skill by index, time scale and lag", absent())
+        return section(sid, stitle, absent())
     parts = [paragraph(
         SKILL_INTRO)]
-    for impact, target in impact_target_pairs(skill):
+    for impact, target in primary_pairs(run, impact_target_pairs(skill)):
         score = score_for(run, impact, target)
         if score not in skill.columns:
             continue
@@ -64,14 +80,18 @@ def skill_section(run: RunFolder, figs: FigureSink) -> Markup:
         best = cand.loc[cand[score].idxmax()]
         parts.append(el("h3", pair_title(impact, target)))
         label = candidate_label(best["index"], best["scale_weeks"], best["lag_weeks"])
-        parts.append(figs.add(
-            f"skill_{impact}_{target}",
-            lambda s=sub, i=impact, t=target, sc=score: skill_heatmap(
-                s, impact=i, target=t, score=sc),
-            alt=(f"Heat maps of {score_label(score)} for {impact}, {target}, by time scale "
-                 f"(weeks, rows) and lag (weeks, columns), one panel per index "
-                 f"({', '.join(index_name(i) for i in sorted(cand['index'].unique()))}). "
-                 f"Best: {label}, score {fmt_num(best[score])}.")))
+        if detail:
+            parts.append(figs.add(
+                f"skill_{impact}_{target}",
+                lambda s=sub, i=impact, t=target, sc=score: skill_heatmap(
+                    s, impact=i, target=t, score=sc),
+                alt=(f"Heat maps of {score_label(score)} for {impact}, {target}, by time scale "
+                     f"(weeks, rows) and lag (weeks, columns), one panel per index "
+                     f"({', '.join(index_name(i) for i in sorted(cand['index'].unique()))}). "
+                     f"Best: {label}, score {fmt_num(best[score])}."),
+                caption=(f"{score_label(score).capitalize()} of every candidate for "
+                         f"{pair_title(impact, target)}, by time scale and lag.")))
+            continue
         if {f"{score}_lo", f"{score}_hi"} <= set(sub.columns):
             parts.append(figs.add(
                 f"candidates_{impact}_{target}",
@@ -80,9 +100,8 @@ def skill_section(run: RunFolder, figs: FigureSink) -> Markup:
                 alt=(f"Dot-and-interval chart of the ten best candidates for {impact}, "
                      f"{target}, with seasonal and persistence baselines as vertical lines. "
                      f"Best: {label}, {fmt_interval(best[score], best[f'{score}_lo'], best[f'{score}_hi'])}.")))
-    parts.append(_persistence_part(run, figs))
     parts.append(data_files(run, "skill", "skill_summary"))
-    return section("skill", "Skill by index, time scale and lag", *parts)
+    return section(sid, stitle, *parts)
 
 
 def _persistence_part(run: RunFolder, figs: FigureSink) -> Markup:
@@ -93,8 +112,7 @@ def _persistence_part(run: RunFolder, figs: FigureSink) -> Markup:
     impacts = list(dict.fromkeys(skill.loc[combo, "impact"].astype(str)))
     if not impacts:
         return Markup("")
-    parts = [el("h3", "Warning beyond persistence"),
-             paragraph(PERSISTENCE_INTRO)]
+    parts = [paragraph(PERSISTENCE_INTRO)]
     summary = run.table("skill_summary")
     for impact in impacts:
         targets = list(dict.fromkeys(sel(skill, impact=impact)["target"].astype(str)))
@@ -111,7 +129,7 @@ def _persistence_part(run: RunFolder, figs: FigureSink) -> Markup:
                     continue
                 what = (candidate_label(r["index"], r["scale_weeks"], r["lag_weeks"], short=True)
                         if pd.notna(r["index"]) else "")
-                rows.append({"target": target_label(impact, tgt),
+                rows.append({"target": target_name(impact, tgt),
                              "lag_weeks": lag if lag is not None else r.get("lag_weeks"),
                              "model": label, "candidate": what,
                              score_label(score): fmt_interval(r[score], r[f"{score}_lo"],
@@ -119,9 +137,13 @@ def _persistence_part(run: RunFolder, figs: FigureSink) -> Markup:
         parts.append(figs.add(
             f"persistence_{impact}",
             lambda i=impact, sc=score: persistence_comparison(skill, impact=i, score=sc),
-            alt=(f"Dot-and-interval chart for {impact}: {score_label(score)} of the index alone, "
-                 f"persistence alone and index plus persistence, for {', '.join(targets)}.")))
-        parts.append(table(pd.DataFrame(rows), caption=f"{impact}: with and without persistence"))
+            alt=(f"Dot-and-interval chart for {impact_name(impact)}: {score_label(score)} of the "
+                 "index alone, persistence alone and index plus persistence, for "
+                 f"{'; '.join(target_name(impact, t) for t in targets)}."),
+            caption=(f"{impact_name(impact)}: the index alone, persistence alone and both "
+                     "together, with intervals.")))
+        parts.append(table(pd.DataFrame(rows),
+                           caption=f"{impact_name(impact)}: with and without persistence"))
         if summary is not None:
             sentences = [persistence_sentence(r)
                          for _, r in sel(summary, impact=impact).iterrows()]
@@ -138,7 +160,7 @@ def reliability_section(run: RunFolder, figs: FigureSink) -> Markup:
         rel = rel.assign(impact=rel["target"].map(impact_of(run)).fillna(""))
     if "model" not in rel.columns:
         rel = rel.assign(model="best candidate")
-    for impact, target in impact_target_pairs(rel):
+    for impact, target in primary_pairs(run, impact_target_pairs(rel)):
         sub = sel(rel, impact=impact, target=target)
         models = ", ".join(dict.fromkeys(sub["model"].astype(str)))
         parts.append(el("h3", pair_title(impact, target)))
@@ -153,30 +175,40 @@ def reliability_section(run: RunFolder, figs: FigureSink) -> Markup:
 
 
 def maps_section(run: RunFolder, figs: FigureSink) -> Markup:
-    best = _best_per_county(run)
+    best = best_per_county(run)
     if run.counties is None or best is None or len(best) == 0:
         return section("maps", "County maps", absent())
     parts = [paragraph(MAPS_INTRO)]
+    shapes = map_shapes(run.counties)
     keys = ["impact", "target"] if "target" in best.columns else ["impact"]
+    # One colour scale for skill across every panel (0 to the highest county skill).
+    top = float(pd.to_numeric(best.get("skill"), errors="coerce").max()) if "skill" in best else 1.0
+    top = max(top if top == top else 1.0, 0.05)
     for key, sub in best.groupby(keys, sort=False):
         key = key if isinstance(key, tuple) else (key,)
-        title = " \u2014 ".join(str(k) for k in key)
+        if len(key) == 2 and not primary_pairs(run, [(str(key[0]), str(key[1]))]):
+            continue  # derived targets: numbers in skill_local.csv and the county cards
+        title = pair_title(*key) if len(key) == 2 else impact_name(key[0])
         sub = sub.assign(candidate=[
             candidate_label(r.get("index"), r.get("scale_weeks"), r.get("lag_weeks"), short=True)
-            for _, r in sub.iterrows()])
-        panels = [M.MapPanel(sub, "candidate", title="best candidate", label="candidate",
-                             kind="categorical")]
-        if "skill" in sub.columns:
-            panels.append(M.MapPanel(sub, "skill", title="skill", label="skill score (0 = base rate)"))
-        if "events" in sub.columns:
-            panels.append(M.MapPanel(sub, "events", title="events", label="events (count)"))
-        n_cand = sub["candidate"].nunique()
+            for _, r in sub.iterrows()], index_shown=sub["index"].map(index_name))
+        events = sub["events"] if "events" in sub.columns else pd.Series(pd.NA, index=sub.index)
+        extra = {str(c): f"{cand}" + (f", {int(e)} cases" if pd.notna(e) else "")
+                 for c, cand, e in zip(sub[COUNTY], sub["candidate"], events, strict=True)}
         parts.append(el("h3", title))
-        parts.append(figs.add(
-            f"map_best_{'_'.join(map(str, key))}",
-            lambda p=panels, t=title: M.county_panels(run.counties, p, suptitle=t),
-            alt=(f"County maps for {title}: best candidate ({n_cand} different candidates across "
-                 f"{len(sub)} counties), skill score, and number of events per county.")))
+        row = [svg_map(shapes, sub, "index_shown", title="Best index in each county",
+                       unit="", kind="categorical", extra=extra,
+                       caption=f"{title}: the index of the candidate that scored best in each "
+                               f"county ({sub['candidate'].nunique()} different candidates; "
+                               "hover a county for its time scale and lead).")]
+        if "skill" in sub.columns:
+            row.append(svg_map(shapes, sub, "skill", title="Skill in each county",
+                               unit="skill score (0 = base rate)", vmin=0.0, vmax=top,
+                               extra=extra,
+                               caption=f"{title}: skill score of that candidate in each county "
+                                       "(same colour scale on every skill map; negative "
+                                       "values shown as 0)."))
+        parts.append(el("div", *row, class_="maprow"))
         cols = [c for c in ("county_id", "candidate", "skill", "events") if c in sub.columns]
         parts.append(details("Per-county values", table(with_names(run, sub[cols]))))
     parts.append(paragraph("Layers for GIS use are in ", link("counties.gpkg", "counties.gpkg"),
@@ -185,23 +217,27 @@ def maps_section(run: RunFolder, figs: FigureSink) -> Markup:
     return section("maps", "County maps", *parts)
 
 
-def _best_per_county(run: RunFolder) -> pd.DataFrame | None:
+def best_per_county(run: RunFolder) -> pd.DataFrame | None:
     """Best candidate per county: the ``best_candidate`` layer, else the county rows
     (``level == "unit"``) of ``skill_local.csv``."""
     layer = run.layers.get("best_candidate")
     if layer is not None and len(layer):
-        return pd.DataFrame(layer.drop(columns="geometry", errors="ignore"))
+        return _with_skill(pd.DataFrame(layer.drop(columns="geometry", errors="ignore")))
     local = run.table("skill_local")
     if local is None or local.empty:
         return None
     if "level" in local.columns:
         local = local[(local["level"] == "unit").fillna(False).to_numpy(bool)]
-    out = local.rename(columns={"unit": COUNTY})
-    if "skill" not in out.columns:
-        for score in ("rpss", "bss"):
-            if score in out.columns:
-                out = out.assign(skill=out[score])
-                break
+    out = _with_skill(local.rename(columns={"unit": COUNTY}))
     if "impact" not in out.columns:
         out = out.assign(impact=out["target"].map(impact_of(run)).fillna(""))
     return out
+
+
+def _with_skill(frame: pd.DataFrame) -> pd.DataFrame:
+    """Name the county's score column ``skill`` (from ``rpss`` or ``bss``)."""
+    if "skill" not in frame.columns:
+        for score in ("rpss", "bss"):
+            if score in frame.columns:
+                return frame.assign(skill=frame[score])
+    return frame

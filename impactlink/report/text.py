@@ -13,6 +13,7 @@ from dataclasses import dataclass
 import pandas as pd
 
 from impactlink.report._select import single_candidates, summary_skill
+from impactlink.report.words_sections import CAUTIONS, CAUTIONS_SHORT
 
 __all__ = [
     "index_name",
@@ -27,6 +28,13 @@ __all__ = [
     "CAUTIONS_SHORT",
     "target_label",
     "persistence_sentence",
+    "impact_name",
+    "target_name",
+    "level_name",
+    "model_name",
+    "in_cadence",
+    "cadence_of",
+    "is_primary",
 ]
 
 _INDEX_NAMES = {
@@ -41,40 +49,23 @@ _SCORE_LABELS = {
     "bss": "Brier skill score",
     "rpss": "ranked probability skill score",
     "brier": "Brier score",
+    "rps": "ranked probability score",
     "roc_auc": "ROC area",
+    "log_loss": "log loss",
+    "calibration_slope": "calibration slope",
 }
 
-#: Short form of the cautions for the banner on the first screen: (heading, sentence).
-CAUTIONS_SHORT = (
-    ("Association, not cause", "the numbers show what tends to go together, not what causes what."),
-    ("Data limits", "coverage, reporting effort, short records and few events make every "
-     "estimate uncertain."),
-    ("Decisions", "rest with the responsible authorities, local codes and licensed practice."),
-)
-
-#: The cautions every report carries, in full: (heading, text).
-CAUTIONS = (
-    (
-        "Association, not cause",
-        "These results describe statistical association between index values and recorded "
-        "impacts. They do not show that dryness caused any impact, nor that acting on an "
-        "index will prevent one.",
-    ),
-    (
-        "Limits of the data",
-        "Impact records are only as complete as their coverage and the effort spent "
-        "reporting them. Short records and few events make every estimate uncertain; "
-        "weeks outside a source's coverage are unknown, not impact-free. Intervals shown "
-        "are the honest range, not decoration.",
-    ),
-    (
-        "Decisions belong to the responsible authorities",
-        "Declarations, restrictions and relief decisions rest with the responsible "
-        "authorities, under local codes and licensed professional practice. This report is "
-        "one input to their judgement, not a substitute for it.",
-    ),
-)
-
+_MODEL_NAMES = {
+    "climatology": "climatology (the long-run base rate)",
+    "seasonal": "seasonal base rate",
+    "persistence": "persistence (the current impact level carried forward)",
+    "index": "index model",
+    "index_pair": "two-time-scale index model",
+    "boosted": "boosted challenger (flexible curve)",
+    "index_persistence": "index plus persistence",
+    "logistic": "logistic",
+    "ordinal_logit": "proportional-odds",
+}
 
 def index_name(index) -> str:
     """Display name of an index ("spi" -> "SPI"); unknown names are kept as given."""
@@ -88,8 +79,9 @@ def score_label(score: str) -> str:
     return _SCORE_LABELS.get(str(score), str(score))
 
 
-def candidate_label(index, scale_weeks, lag_weeks, *, short: bool = False) -> str:
-    """Describe one candidate.
+def candidate_label(index, scale_weeks, lag_weeks, *, short: bool = False,
+                    cadence: str = "weekly") -> str:
+    """Describe one candidate in words a reader can decode.
 
     Parameters
     ----------
@@ -97,24 +89,156 @@ def candidate_label(index, scale_weeks, lag_weeks, *, short: bool = False) -> st
     scale_weeks, lag_weeks : int or float
         Time scale and lag in weeks (missing values are left out).
     short : bool, default False
-        "SPI 13w lag 4w" instead of "SPI, 13-week time scale, 4-week lag".
+        "SPI over 13 weeks, 4 weeks ahead" instead of
+        "SPI, 13-week time scale, 4-week lag".
+    cadence : {"weekly", "monthly", "annual"}, default "weekly"
+        The impact input's cadence: monthly input is described in months.
 
     Examples
     --------
     >>> candidate_label("spi", 13, 4)
     'SPI, 13-week time scale, 4-week lag'
-    >>> candidate_label("spei", 26, 0, short=True)
-    'SPEI 26w lag 0w'
+    >>> candidate_label("spei", 26, 8, short=True)
+    'SPEI over 26 weeks, 8 weeks ahead'
+    >>> candidate_label("spei", 26, 8, short=True, cadence="monthly")
+    'SPEI over 6 months, 2 months ahead'
     """
-    parts = [index_name(index)]
+    head, parts = index_name(index), []
     if _present(scale_weeks) and float(scale_weeks) == 0:
-        parts.append("as supplied" if not short else "")  # a supplied indicator, not summed
-        parts = [p for p in parts if p]
+        parts.append("as supplied")  # a supplied indicator, not summed
     elif _present(scale_weeks):
-        parts.append(f"{int(scale_weeks)}w" if short else f"{int(scale_weeks)}-week time scale")
+        span = in_cadence(scale_weeks, cadence)
+        parts.append(f"over {span}" if short else f"{span.replace(' ', '-').rstrip('s')} time scale")
     if _present(lag_weeks):
-        parts.append(f"lag {int(lag_weeks)}w" if short else f"{int(lag_weeks)}-week lag")
-    return " ".join(parts) if short else ", ".join(parts)
+        lead = in_cadence(lag_weeks, cadence)
+        same = "same month" if cadence == "monthly" else "same week"
+        parts.append((same if float(lag_weeks) == 0 else f"{lead} ahead") if short
+                     else f"{lead.replace(' ', '-').rstrip('s')} lag")
+    if short and parts and parts[0].startswith("over"):
+        return ", ".join([f"{head} {parts[0]}", *parts[1:]])
+    return ", ".join([head, *parts])
+
+
+def in_cadence(weeks, cadence: str = "weekly") -> str:
+    """A span in weeks written in the input's cadence ("13 weeks"; "3 months" for monthly
+    input, using 52 / 12 weeks a month).
+
+    Examples
+    --------
+    >>> in_cadence(13, "monthly"), in_cadence(1), in_cadence(4, "monthly")
+    ('3 months', '1 week', '1 month')
+    """
+    if not _present(weeks):
+        return "n/a"
+    w = float(weeks)
+    if cadence == "monthly":
+        months = int(round(w * 12 / 52))
+        return f"{months} month" + ("" if months == 1 else "s")
+    return f"{int(w)} week" + ("" if int(w) == 1 else "s")
+
+
+def cadence_of(grain) -> str:
+    """Cadence of an impact from its grain ("region_month" -> "monthly")."""
+    text = str(grain or "")
+    if text.endswith("month"):
+        return "monthly"
+    if text.endswith("year"):
+        return "annual"
+    return "weekly"
+
+
+def impact_name(impact) -> str:
+    """Display name of an impact ("maize_shortfall" -> "Maize shortfall").
+
+    Examples
+    --------
+    >>> impact_name("hay_price_spike"), impact_name("restrictions")
+    ('Hay price spike', 'Water-use restrictions')
+    """
+    text = str(impact)
+    if text == "restrictions":
+        return "Water-use restrictions"
+    words = text.replace("_", " ").strip()
+    return words[:1].upper() + words[1:]
+
+
+def target_name(impact, target) -> str:
+    """Display name of a target, decoded from its id.
+
+    Examples
+    --------
+    >>> target_name("restrictions", "restrictions:state")
+    'restriction level in force each week'
+    >>> target_name("restrictions", "restrictions:onset:4w")
+    'a new restriction episode starting within 4 weeks'
+    >>> target_name("maize_shortfall", "maize_shortfall:maize:rainfed:shortfall_20pct")
+    'rainfed maize: yield at least 20 % below trend'
+    >>> target_name("crop_reports", "crop_reports:count")
+    'field reports of crop damage each week'
+    """
+    rest = target_label(impact, target).split(":")
+    if rest[0] in ("onset", "escalation"):
+        what = ("a new restriction episode starting" if rest[0] == "onset"
+                else "a move to a stricter level")
+        return f"{what} within {rest[1].rstrip('w')} weeks" if len(rest) > 1 else what
+    if rest == ["state"]:
+        return "restriction level in force each week"
+    if rest == ["count"]:
+        return "field reports of crop damage each week"
+    level = [p for p in rest if p.startswith(("shortfall_", "spike_"))]
+    words = [p for p in rest if p not in level]
+    if len(words) == 2:  # crop:practice
+        head = f"{words[1]} {words[0]}"
+    else:
+        head = " ".join(w.replace("_", " ") for w in words) or str(target)
+    if level:
+        return f"{head}: {level_name(level[0])}"
+    if str(impact).endswith("shortfall"):
+        return f"{head}: yield-shortfall class"
+    if str(impact).endswith("spike"):
+        return f"{head}: price-rise class"
+    return head
+
+
+def level_name(label) -> str:
+    """Display name of an impact level ("shortfall_10pct" -> "yield at least 10 % below
+    trend", "stage_2" -> "level 2 or stricter").
+
+    Examples
+    --------
+    >>> level_name("spike_25pct"), level_name("severity_1"), level_name("yes")
+    ('price at least 25 % above its recent level', 'severity 1 or worse', 'yes')
+    """
+    text = str(label)
+    head, _, tail = text.rpartition("_")
+    pct = tail[:-3] if tail.endswith("pct") else None
+    if head == "shortfall" and pct:
+        return f"yield at least {pct} % below trend"
+    if head == "spike" and pct:
+        return f"price at least {pct} % above its recent level"
+    if head == "stage" and tail.isdigit():
+        return f"level {tail} or stricter"
+    if head == "severity" and tail.isdigit():
+        return f"severity {tail} or worse"
+    return text.replace("_", " ")
+
+
+def model_name(model) -> str:
+    """Display name of a model or baseline ("boosted" -> "boosted challenger (flexible
+    curve)")."""
+    return _MODEL_NAMES.get(str(model), str(model).replace("_", " "))
+
+
+def is_primary(row) -> bool:
+    """Whether a ``skill_summary.csv`` row is an impact's primary target, rather than a
+    derived one (a single shortfall threshold, an onset or escalation horizon)."""
+    role = str(row.get("role", ""))
+    if role in ("primary", "secondary"):
+        return role == "primary"
+    if role in ("onset", "escalation"):
+        return False
+    last = str(row.get("target", "")).split(":")[-1]
+    return not last.startswith(("shortfall_", "spike_"))
 
 
 def fmt_num(value, digits: int = 2) -> str:
@@ -175,12 +299,17 @@ def verdict(nested, nested_lo, *, beats_seasonal=None, beats_persistence=None) -
     if _present(nested_lo) and nested_lo > 0:
         small = nested < SMALL_SKILL
         if others and all(bool(b) for b in others):
+            names = " and ".join(n for n, b in (("seasonal", beats_seasonal),
+                                                ("persistence", beats_persistence))
+                                 if b is not None and _present(b))
             if small:
-                return "Clear but small signal: the index beats every baseline by a little."
-            return "Clear signal: the index beats every baseline out of sample."
+                return (f"Clear but small signal: the index beats climatology and the {names} "
+                        "baseline by a little.")
+            return (f"Clear signal: the index beats climatology and the {names} baseline out "
+                    "of sample.")
         if small:
-            return "Small signal, and it does not beat every baseline."
-        return "Real signal, but it does not beat every baseline."
+            return "Small signal, and a baseline does as well or better."
+        return "Real signal, but a baseline does as well or better."
     if nested > 0:
         return "Weak signal: the interval reaches down to no skill."
     return "No usable signal: no better than the base rate."
@@ -306,7 +435,7 @@ def persistence_sentence(summary: pd.Series) -> str:
     gain = fmt_interval(g("persistence_gain"), g("persistence_gain_lo"), g("persistence_gain_hi"))
     if _present(g("index_adds_skill")) and _present(g("persistence_gain")):
         word = "adds" if _truthy(g("index_adds_skill")) else "does not clearly add"
-        return (f"For {target_label(g('impact'), g('target'))}, the index {word} warning "
+        return (f"For {target_name(g('impact'), g('target'))}, the index {word} warning "
                 f"beyond persistence (knowing the current impact level): skill gain {gain}.")
     if _present(g("persistence_gain")):
         return f"Gain over persistence: {gain}."

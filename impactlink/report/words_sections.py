@@ -51,3 +51,33 @@ MAPS_INTRO = (
     "estimate rests on. Few events mean a fragile estimate."
 )
 
+#: Short form of the cautions for the banner on the first screen: (heading, sentence).
+CAUTIONS_SHORT = (
+    ("Association, not cause", "the numbers show what tends to go together, not what causes what."),
+    ("Data limits", "coverage, reporting effort, short records and few events make every "
+     "estimate uncertain."),
+    ("Decisions", "rest with the responsible authorities, local codes and licensed practice."),
+)
+
+#: The cautions every report carries, in full: (heading, text).
+CAUTIONS = (
+    (
+        "Association, not cause",
+        "These results describe statistical association between index values and recorded "
+        "impacts. They do not show that dryness caused any impact, nor that acting on an "
+        "index will prevent one.",
+    ),
+    (
+        "Limits of the data",
+        "Impact records are only as complete as their coverage and the effort spent "
+        "reporting them. Short records and few events make every estimate uncertain; "
+        "weeks outside a source's coverage are unknown, not impact-free. Intervals shown "
+        "are the honest range, not decoration.",
+    ),
+    (
+        "Decisions belong to the responsible authorities",
+        "Declarations, restrictions and relief decisions rest with the responsible "
+        "authorities, under local codes and licensed professional practice. This report is "
+        "one input to their judgement, not a substitute for it.",
+    ),
+)

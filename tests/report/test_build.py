@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import base64
+import json
 import re
 from html.parser import HTMLParser
 
@@ -12,12 +13,17 @@ import pytest
 
 from impactlink.report import ReportError, ReportWarning, build_report, read_run_folder
 from impactlink.report import build as build_module
-from impactlink.report.build import SECTIONS
+from impactlink.report.build import AFTER_MAIN, SECTIONS
 from impactlink.report.common import FigureSink
 from impactlink.report.sec_contrast import contrast_section
 from impactlink.report.sec_data import data_section
 from impactlink.report.sec_outlook import outlook_section
-from impactlink.report.sec_skill import maps_section, reliability_section, skill_section
+from impactlink.report.sec_skill import (
+    maps_section,
+    persistence_section,
+    reliability_section,
+    skill_section,
+)
 from impactlink.report.sec_triggers import triggers_section
 from impactlink.report.text import CAUTIONS
 from impactlink.report.words_methods import METHODS, REFERENCES
@@ -104,24 +110,26 @@ def test_first_screen_has_cautions_then_an_answer_per_impact(built):
     top = p.section("_top")
     assert "Read with care" in top
     assert "Association, not cause" in top and "Decisions" in top
-    assert p.order[0] == "summary", "the answer cards come before any other section"
+    # The fake run is not the scenario (project name "Tallow Creek..."): no demo banner.
+    assert "Invented data" not in top
+    # One plain answer per primary impact (derived targets onset / escalation are not on it).
+    for words in ("Crop shortfall", "Water-use restrictions: restriction level in force",
+                  "ranked probability skill score", "Brier skill score", "90 % interval",
+                  "Climatology (score 0)", "Persistence (score 0.12)"):
+        assert words in top, words
+    assert "new restriction episode" not in top and "onset" not in top
+    # Persistence scores 0.12 in the fake skill table; the read-off must follow the numbers.
+    assert "beats every baseline" not in top
+    for who in ("Drought committee", "Extension agent", "Researcher"):
+        assert who in top
+    assert p.order[0] == "data"  # the main part follows the first screen
+    assert "glossary" in p.order and "finder" in p.order
     summary = p.section("summary")
-    for impact in ("crop_shortfall", "restrictions"):
-        assert impact in summary
-    # Which index and time scale, how good, how sure, evidence.
     for words in ("13-week time scale", "skill score", "statistically as good",
-                  "events among 600"):
-        assert words in summary
-    # The restriction card says whether the index adds warning beyond persistence
-    # (index_adds_skill and persistence_gain of skill_summary.csv).
-    assert "the index adds warning beyond persistence" in summary
-    # At a glance: one line per impact before the cards.
-    for impact in ("crop_shortfall", "restrictions"):
-        line = re.search(rf"{impact}: (SPI|SPEI|EDDI) \d+w lag \d+w \u2014 skill "
-                         r"[-\d.]+ \([-\d.]+ to [-\d.]+\); [a-z ]+signal[^.]*, 40 events\.",
-                         summary)
-        assert line, impact
-        assert line.start() < summary.index("Best predictor")
+                  "events among 600", "the index adds warning beyond persistence"):
+        assert words in summary, words
+    # The derived targets are in the appendix.
+    assert "a new restriction episode starting" in p.section("appendix")
 
 
 def test_data_section_shows_inputs_rejections_and_event_counts(built):
@@ -153,9 +161,10 @@ def test_cautions_and_methods_carry_required_text(built):
 def test_persistence_comparison_for_restriction_targets(built):
     _, html, _ = built
     _, p = _parse(html)
-    skill = p.section("skill")
+    skill = p.section("persistence")
     assert "Warning beyond persistence" in skill
-    for target in ("state", "onset", "escalation"):
+    for target in ("restriction level in force each week", "a new restriction episode starting",
+                   "a move to a stricter level"):
         assert f"For {target}, the index adds warning beyond persistence (knowing" in skill
     for label in ("index alone", "persistence alone", "index + persistence"):
         assert label in skill
@@ -203,7 +212,7 @@ def test_every_section_survives_when_all_tables_are_missing(tmp_path, make_run):
 ])
 def test_one_missing_table_costs_only_its_own_section(tmp_path, make_run, missing, sid):
     run = read_run_folder(make_run(tmp_path / "run", skip=[missing]))
-    builders = {s: b for s, _, b in SECTIONS}
+    builders = {s: b for s, _, b in SECTIONS + AFTER_MAIN}
     sink = FigureSink()
     assert NOT_COMPUTED in builders[sid](run, sink)
     # A section that does not need the missing file still draws.
@@ -282,8 +291,8 @@ def test_skill_stage_model_names_are_understood(tmp_path, make_run):
     pd.concat([skill, extra]).to_csv(folder / "skill.csv", index=False)
     run = read_run_folder(folder)
     sink = FigureSink()
-    _, p = _parse_markup(skill_section(run, sink))
-    text = p.section("skill")
+    _, p = _parse_markup(persistence_section(run, sink))
+    text = p.section("persistence")
     assert "Warning beyond persistence" in text and "index + persistence" in text
     assert "persistence_restrictions.png" in sink.files
 
@@ -309,9 +318,9 @@ def test_skill_stage_reliability_and_local_tables_are_drawn(tmp_path, make_run):
     _, p = _parse_markup(reliability_section(run, sink) + maps_section(run, sink))
     assert "reliability_restrictions_state.png" in sink.files
     maps = p.section("maps")
-    assert "SPEI 13w lag 4w" in maps and "Brackwater" in maps
+    assert "SPEI over 13 weeks, 4 weeks ahead" in maps and "Brackwater" in maps
     assert "0.150" not in maps  # the region row (level "region") is not a county
-    assert "map_best_restrictions_state.png" in sink.files
+    assert "Brackwater: SPEI" in maps  # the county's name and value in the map's <title>
 
 
 def test_every_reference_is_cited_and_every_citation_listed():
@@ -353,7 +362,31 @@ def test_outlook_maps_the_first_level_and_tabulates_all(tmp_path, make_run):
     run = read_run_folder(folder)
     sink = FigureSink()
     _, p = _parse_markup(outlook_section(run, sink))
-    assert list(sink.files) == ["outlook_crop_crop_class.png"]
-    assert "at least 'minor'" in sink.alts["outlook_crop_crop_class.png"]
+    assert sink.files == {}  # maps are inline SVG now, not PNG figures
+    markup = outlook_section(run, FigureSink())
+    assert markup.count('<svg') == 2 and markup.count("<title>") == 2 * 6
     text = p.section("outlook")
-    assert "crop \u2014 class" in text and "major" in text and "2025-06-02" in text
+    assert "Chance now" in text and "Chance 4 weeks ahead" in text
+    assert "minor" in text and "major" in text and "2025-06-02" in text
+
+
+def test_outlook_says_when_a_season_has_closed_and_reads_tuple_cells(tmp_path, make_run):
+    # A crop season ending ISO week 34; the outlook is dated week 52 of the same year.
+    folder = make_run(tmp_path / "run")
+    rows = [dict(county_id=c, impact="crop", target="crop:class", index="spei", scale_weeks=13,
+                 lag_weeks=0, horizon_weeks=0, level_k=1, level_label="shortfall_10pct",
+                 prob=0.97, as_of_week="2025-12-22", model="('crop:class', 'spei', 13, 0)")
+            for c in ("90000", "90001")]
+    pd.DataFrame(rows).to_csv(folder / "outlook.csv", index=False)
+    man = json.loads((folder / "manifest.json").read_text())
+    man.setdefault("project", {})["impacts"] = [
+        {"name": "crop", "source": "yields", "options": {"season_week": 34}}]
+    (folder / "manifest.json").write_text(json.dumps(man))
+    markup = outlook_section(read_run_folder(folder), FigureSink())
+    assert "<svg" not in markup  # a closed season is not drawn as a forecast
+    assert "season window (ending ISO week 34" in markup and "closed" in markup
+    assert "cannot be given yet" in markup and "longest fitted lead (0 weeks)" in markup
+    from impactlink.report.sec_outlook import scalar_columns
+
+    tidy = scalar_columns(pd.DataFrame(rows))
+    assert tidy["model"].iloc[0] == "crop:class, spei, 13, 0"

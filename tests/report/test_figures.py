@@ -65,8 +65,8 @@ def test_candidate_intervals_orders_by_score_and_draws_baselines():
     by_height = sorted(((t.get_position()[1], t.get_text()) for t in ax.get_yticklabels()),
                        reverse=True)
     # The two best scores are 0.30 (logistic) and 0.25 (boosting), best at the top.
-    assert [text for _, text in by_height] == ["SPI 13w lag 0w (logistic)",
-                                               "SPI 13w lag 0w (boosting)"]
+    assert [text for _, text in by_height] == ["SPI over 13 weeks, same week (logistic)",
+                                               "SPI over 13 weeks, same week (boosting)"]
     vlines = sorted(round(ln.get_xdata()[0], 3) for ln in ax.get_lines() if len(ln.get_xdata()) == 2
                     and ln.get_xdata()[0] == ln.get_xdata()[1])
     assert vlines == [0.0, 0.05, 0.12]

@@ -21,10 +21,13 @@ from impactlink.report.text import (
 
 def test_labels_and_numbers():
     assert candidate_label("spi", 13, 4) == "SPI, 13-week time scale, 4-week lag"
-    assert candidate_label("spei", 26.0, 0.0, short=True) == "SPEI 26w lag 0w"
+    assert candidate_label("spei", 26.0, 0.0, short=True) == "SPEI over 26 weeks, same week"
+    assert candidate_label("spei", 26, 8, short=True, cadence="monthly") == (
+        "SPEI over 6 months, 2 months ahead")  # 26 weeks = 6 months, 8 weeks = 2 months
     assert candidate_label("my_gauge", np.nan, 2) == "my gauge, 2-week lag"
     assert candidate_label("soil_moisture", 0, 4) == "soil moisture, as supplied, 4-week lag"
-    assert candidate_label("soil_moisture", 0, 4, short=True) == "soil moisture lag 4w"
+    assert candidate_label("soil_moisture", 0, 4, short=True) == (
+        "soil moisture, as supplied, 4 weeks ahead")
     assert index_name(None) == "no index" and index_name("EDDI") == "EDDI"
     assert score_label("rpss") == "ranked probability skill score"
     assert fmt_num(0.2049) == "0.20" and fmt_num(None) == "n/a" and fmt_num(pd.NA) == "n/a"
@@ -76,7 +79,7 @@ def test_answer_card_reads_best_baselines_ties_and_evidence():
     assert a.baselines == ("Baseline scores: seasonal 0.10, persistence 0.33. Beats climatology, "
                            "seasonal. Does not beat persistence.")
     assert a.how_sure == ("2 other candidates are statistically as good as the best: "
-                          "SPEI 13w lag 4w; SPI 26w lag 8w.")
+                          "SPEI over 13 weeks, 4 weeks ahead; SPI over 26 weeks, 8 weeks ahead.")
     assert a.rests_on == "Rests on 27 events among 900 scored cases."
     assert a.verdict.startswith("Real signal")
     assert a.persistence == "Gain over persistence: 0.04 (-0.01 to 0.09)."
@@ -108,7 +111,7 @@ def test_summary_is_read_under_the_skill_stage_column_names():
     assert a.how_good.startswith("Ranked probability skill score 0.20 (0.10 to 0.28)")
     assert "own score 0.30" in a.how_good
     assert a.persistence == persistence_sentence(raw) == (
-        "For onset, the index does not clearly add warning beyond persistence (knowing the "
+        "For a new restriction episode starting, the index does not clearly add warning beyond persistence (knowing the "
         "current impact level): skill gain 0.01 (-0.02 to 0.04).")
     missing = summary_skill(raw.drop(labels=["ranking_score", "nested_rpss"]))
     assert missing.score == "bss" and np.isnan(missing.nested)
@@ -141,7 +144,7 @@ def test_ties_are_single_candidates_listed_once_and_flags_come_from_the_index_mo
     skill["impact"], skill["target"] = "restrictions", "onset"
     summary["n_indistinguishable"] = 2
     a = answer_card(summary, skill)
-    assert a.how_sure == "1 other candidate is statistically as good as the best: SPEI 8w lag 0w."
+    assert a.how_sure == "1 other candidate is statistically as good as the best: SPEI over 8 weeks, same week."
     assert a.baselines.endswith("Beats climatology, seasonal. Does not beat persistence.")
 
 
