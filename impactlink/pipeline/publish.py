@@ -264,6 +264,9 @@ def write_manifest(folder: Path, run: Run, timings: dict[str, float], warnings: 
         "impactlink_version": __version__,
         "created_utc": datetime.now(UTC).strftime("%Y-%m-%dT%H:%M:%SZ"),
         "project": project.settings_dict(),
+        # the committed fictional scenario: the report shows a banner that the data are invented
+        "scenario": (Path(project.data_dir).resolve()
+                     == (Path(__file__).resolve().parents[2] / "scenario_data").resolve()),
         "seed": project.seed,
         "inputs": inputs,
         "rows_total": {
