@@ -285,7 +285,8 @@ def _one_model(key, model, cube, units, have_counties, state, as_of_week, ci) ->
             "prob": probs.ravel(),
             "prob_lo": lo.ravel(),
             "prob_hi": hi.ravel(),
-            "model": str(key),
+            # one scalar per cell: the model's key joined, e.g. "maize:spei:13:0"
+            "model": ":".join(str(k) for k in key) if isinstance(key, tuple) else str(key),
             "note": np.repeat(note, K),
         }
     )
