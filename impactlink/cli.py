@@ -15,10 +15,41 @@ STAGE_COMMANDS = {
     "link": "turn impact records into targets with aligned index features (writes panel.parquet)",
     "rank": "fit impact models and rank index x time scale x lag out of sample (writes skill.csv)",
     "outlook": "chance of each impact now and at each lag ahead (writes outlook.csv)",
-    "triggers": "replay, tune and audit trigger thresholds (writes triggers.csv)",
-    "contrast": "explain county differences from county traits (writes contrast.csv)",
+    "triggers": "replay and score a trigger plan against impacts, tune its thresholds "
+                "(writes trigger_plan_*.csv, triggers.csv)",
+    "contrast": "explain why two counties fared differently: exposure, sensitivity, "
+                "unexplained (writes contrast.csv)",
     "run": "run every stage and write the report",
 }
+
+
+#: Example of each command, shown under its help (``impactlink COMMAND --help``).
+EXAMPLES = {
+    "scenario": "impactlink scenario --out vellmora/",
+    "init": "impactlink init my_data/      # finds the tables, writes my_data/impactlink.toml",
+    "check": "impactlink check my_data/     # counts, rejected rows by reason, a verdict",
+    "indices": "impactlink indices my_data/",
+    "audit": "impactlink audit my_data/",
+    "link": "impactlink link my_data/",
+    "rank": "impactlink rank my_data/ --jobs 2",
+    "outlook": "impactlink outlook my_data/",
+    "triggers": "impactlink triggers my_data/plan.toml   # the project is my_data/impactlink.toml",
+    "contrast": "impactlink contrast my_data/ --counties Tovova Brambeth --period 2011-2013",
+    "run": "impactlink run my_data/ --out results/",
+    "report": "impactlink report results/",
+    "demo": "impactlink demo              # writes reports/demo/report.html",
+}
+
+
+def _sub(sub, name: str, helptext: str) -> argparse.ArgumentParser:  # noqa: ANN001
+    """A subcommand whose --help shows a description and an example."""
+    return sub.add_parser(
+        name, help=helptext,
+        description=helptext[0].upper() + helptext[1:] + ". Results are statistical "
+        "associations, not causes; decisions rest with the responsible authorities.",
+        epilog=f"example:\n  {EXAMPLES[name]}",
+        formatter_class=argparse.RawDescriptionHelpFormatter,
+    )
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -33,21 +64,21 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--version", action="store_true", help="print the version and exit")
     sub = p.add_subparsers(dest="command", metavar="COMMAND")
 
-    s = sub.add_parser("scenario", help="generate the fictional demonstration scenario")
+    s = _sub(sub, "scenario", "generate the fictional demonstration scenario")
     s.add_argument("--seed", type=int, default=20261202, help="random seed (default 20261202)")
     s.add_argument("--out", required=True, help="folder to write the scenario tables into")
 
-    s = sub.add_parser("init", help="write a commented project file for the tables in a folder")
+    s = _sub(sub, "init", "write a commented project file for the tables in a folder")
     s.add_argument("folder", help="folder holding counties, climate, notices, ... files")
     s.add_argument("--force", action="store_true", help="overwrite an existing impactlink.toml")
 
-    s = sub.add_parser("check", help="read and validate every input table; print a summary")
+    s = _sub(sub, "check", "read and validate every input table; print a summary")
     s.add_argument("project", help="project file (TOML) or a folder holding impactlink.toml")
     s.add_argument("--out", help="also write rejected_rows.csv and manifest.json here")
     s.add_argument("--force", action="store_true", help=_FORCE_HELP)
 
     for name, helptext in STAGE_COMMANDS.items():
-        s = sub.add_parser(name, help=helptext)
+        s = _sub(sub, name, helptext)
         s.add_argument("project", help="project file (TOML) or a folder holding impactlink.toml"
                        + ("; or a trigger plan file (the project is impactlink.toml beside it)"
                           if name == "triggers" else ""))
@@ -61,11 +92,11 @@ def build_parser() -> argparse.ArgumentParser:
             s.add_argument("--period", metavar="YYYY-YYYY", default=None,
                            help="years to compare, e.g. 2011-2013 (default: the drought year)")
 
-    s = sub.add_parser("report", help="rebuild report.html from an existing run folder")
+    s = _sub(sub, "report", "rebuild report.html from an existing run folder")
     s.add_argument("run_dir", help="a folder written by `impactlink run`")
     s.add_argument("--force", action="store_true", help=_FORCE_HELP)
 
-    s = sub.add_parser("demo", help="run everything on the fictional scenario into reports/demo")
+    s = _sub(sub, "demo", "run everything on the fictional scenario into reports/demo")
     s.add_argument("--out", help="output folder (default reports/demo)")
     s.add_argument("--jobs", type=int, default=1, help="worker processes (default 1)")
     s.add_argument("--quiet", action="store_true", help="no progress lines")

@@ -58,3 +58,17 @@ def test_scenario_then_check_counts_reconcile(tmp_path, capsys):
 
     m = json.loads((tmp_path / "out" / "manifest.json").read_text())
     assert all(r["rows_read"] == r["rows_used"] + r["rows_rejected"] for r in m["inputs"])
+
+
+def test_every_subcommand_help_has_a_description_and_an_example(capsys):
+    import pytest
+
+    from impactlink.cli import EXAMPLES, build_parser
+
+    parser = build_parser()
+    for name, example in EXAMPLES.items():
+        with pytest.raises(SystemExit):
+            parser.parse_args([name, "--help"])
+        out = capsys.readouterr().out
+        assert "example:" in out and example.split("#")[0].strip() in out, name
+        assert "not causes" in out, name
