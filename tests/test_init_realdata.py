@@ -66,7 +66,8 @@ def test_init_declares_formats_units_and_settings_the_data_support(folder):
     assert audit["late"][1] == 2022 and audit["early"][0] == 1926
     assert audit["early"][1] + 1 == audit["late"][0]
     assert raw["impacts"] == {"corn_grain": {"source": "yields", "crop": "corn grain",
-                                             "practice": "all", "trend": "auto"}}
+                                             "practice": "all", "trend": "auto",
+                                             "season_weeks": [22, 40]}}
     project = load_project(folder / "impactlink.toml")
     assert project.formats.climate == "zones" and project.units.temp_unit == "F"
     assert 1895 <= project.calibration.start_year <= project.calibration.end_year <= 2022

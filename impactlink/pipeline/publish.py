@@ -204,7 +204,8 @@ def with_scale_months(frame: pd.DataFrame, months_of: dict[str, int]) -> pd.Data
     """``frame`` with ``scale_months`` after ``scale_weeks`` (and ``scale2_months``)."""
     out = frame
     for idx_col, wk_col, mo_col in (("index", "scale_weeks", "scale_months"),
-                                    ("index2", "scale2_weeks", "scale2_months")):
+                                    ("index2", "scale2_weeks", "scale2_months"),
+                                    ("best_index", "best_scale_weeks", "best_scale_months")):
         if idx_col in out.columns and wk_col in out.columns and mo_col not in out.columns:
             weeks = pd.to_numeric(out[wk_col], errors="coerce")
             keys = out[idx_col].astype(str) + ":" + weeks.astype("Int64").astype(str)

@@ -71,8 +71,8 @@ CASES = [
     ("misspelt_section_key", "seed = 20261202", "seeds = 20261202",
      "project.seeds: unknown key; did you mean seed?"),
     ("unknown_section", "[triggers]", "[colour]\nramp = 1\n\n[triggers]",
-     "colour: unknown top-level table; remove it; known: audit, calibration, contrast, impacts, indices, "
-     "link, models, project, skill, tables, triggers"),
+     "colour: unknown top-level table; remove it; known: audit, calibration, contrast, formats, "
+     "impacts, indices, link, models, project, skill, tables, triggers, units"),
     ("calibration_reversed", "end_year = 2020", "end_year = 1985",
      "calibration.end_year: 1985 is before start_year 1991; write end_year = 1991 or later (or "
      "swap the two years)"),
