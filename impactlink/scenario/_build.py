@@ -11,7 +11,13 @@ import shapely
 
 from impactlink.errors import ProjectError
 
-from ._geography import Geography, build_geography, km_to_lonlat
+from ._geography import (
+    DEFAULT_COUNTIES,
+    MAX_COUNTIES,
+    Geography,
+    build_geography,
+    km_to_lonlat,
+)
 from ._hydrology import Hydrology, Traits, draw_traits, simulate_hydrology, weekly_sum
 from ._impacts import Impacts, simulate_impacts
 from ._weather import Weather, simulate_weather
@@ -37,6 +43,7 @@ SCENARIO_FILES = (
 
 
 def generate(out_dir: str | Path, *, seed: int = DEFAULT_SEED,
+             counties: int = DEFAULT_COUNTIES,
              progress: Callable[[str], None] | None = None) -> dict[str, Path]:
     """Generate the fictional scenario world and write all its files.
 
@@ -47,6 +54,11 @@ def generate(out_dir: str | Path, *, seed: int = DEFAULT_SEED,
     seed : int, default 20261202
         Seed of the single :func:`numpy.random.default_rng` threaded through every step.
         The same seed gives the same bytes (with the same numpy/pyarrow/shapely versions).
+    counties : int, default 60
+        Number of counties, 1 to 3143 (the national count). 60 gives the committed world
+        in ``scenario_data/``; other sizes scale the state so that counties keep their
+        size (about 3 600 km2), with regions of about 12 counties and two water systems
+        per three counties. Every file keeps the daily cadence of the contract at any size.
     progress : callable, optional
         Called with a short message (str) before each step, e.g. ``print``.
 
@@ -57,8 +69,9 @@ def generate(out_dir: str | Path, *, seed: int = DEFAULT_SEED,
 
     Raises
     ------
-    ValueError
-        If ``seed`` is not a non-negative integer.
+    ProjectError
+        If ``seed`` is not a non-negative integer or ``counties`` is not an integer in
+        1-3143.
     NotADirectoryError
         If ``out_dir`` exists and is not a folder.
 
@@ -78,6 +91,10 @@ def generate(out_dir: str | Path, *, seed: int = DEFAULT_SEED,
     if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0:
         raise ProjectError(f"generate: seed must be a non-negative integer; got {seed!r}. "
                          "Pass e.g. seed=20261202.")
+    if (isinstance(counties, bool) or not isinstance(counties, (int, np.integer))
+            or not 1 <= counties <= MAX_COUNTIES):
+        raise ProjectError(f"generate: counties must be an integer from 1 to {MAX_COUNTIES}; "
+                           f"got {counties!r}. Pass e.g. counties=60.")
     out = Path(out_dir)
     if out.exists() and not out.is_dir():
         raise ProjectError(f"generate: out_dir {str(out)!r} exists and is not a folder; "
@@ -87,7 +104,7 @@ def generate(out_dir: str | Path, *, seed: int = DEFAULT_SEED,
     rng = np.random.default_rng(int(seed))
 
     say("drawing the map (counties, regions, water systems)")
-    geo = build_geography(rng)
+    geo = build_geography(rng, int(counties))
     say("simulating daily weather 1981-2025")
     wx = simulate_weather(geo, rng)
     say("county traits, soil-water bucket and streamflow")
@@ -142,7 +159,7 @@ def _write_all(out: Path, geo: Geography, wx: Weather, traits: Traits, hyd: Hydr
     })
 
     sysd = geo.systems
-    lon, lat = km_to_lonlat(sysd["x_km"], sysd["y_km"])
+    lon, lat = km_to_lonlat(sysd["x_km"], sysd["y_km"], geo.scale)
     paths["water_systems.csv"] = write_csv(out / "water_systems.csv", {
         "system_id": sysd["system_id"],
         "system_name": sysd["system_name"],
@@ -201,7 +218,7 @@ def _features(geo: Geography) -> list[dict]:
         coords = []
         for ring in rings:
             xy = np.asarray(ring.coords)
-            lon, lat = km_to_lonlat(xy[:, 0], xy[:, 1])
+            lon, lat = km_to_lonlat(xy[:, 0], xy[:, 1], geo.scale)
             pts = np.round(np.column_stack([lon, lat]), 5)
             keep = np.ones(len(pts), bool)
             keep[1:] = np.any(pts[1:] != pts[:-1], axis=1)  # drop repeats made by rounding

@@ -107,9 +107,11 @@ def _anomaly_field(geo: Geography, months: pd.DatetimeIndex, rng: np.random.Gene
     yearly = _ar1(e_y, PHI_YEAR)[10:]
     z = W_YEAR * yearly[np.arange(len(months)) // 12] + W_MONTH * monthly
     # Planted drought at the end of the record (south-west, March-December 2025).
+    # A scaled world scales the centre and radius with its size (Geography.scale).
     cx, cy = PLANTED_2025_CENTRE_KM
+    cx, cy, radius = cx * geo.scale, cy * geo.scale, PLANTED_2025_RADIUS_KM * geo.scale
     dist2 = (geo.centroids_km[:, 0] - cx) ** 2 + (geo.centroids_km[:, 1] - cy) ** 2
-    weight = np.exp(-dist2 / (2.0 * PLANTED_2025_RADIUS_KM**2))
+    weight = np.exp(-dist2 / (2.0 * radius**2))
     planted = (months.year == 2025) & (months.month >= 3)
     z[planted] += PLANTED_2025_OFFSET * weight
     return z
