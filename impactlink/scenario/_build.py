@@ -14,6 +14,7 @@ from impactlink.errors import ProjectError
 from ._geography import (
     DEFAULT_COUNTIES,
     MAX_COUNTIES,
+    MIN_COUNTIES,
     Geography,
     build_geography,
     km_to_lonlat,
@@ -21,7 +22,14 @@ from ._geography import (
 from ._hydrology import Hydrology, Traits, draw_traits, simulate_hydrology, weekly_sum
 from ._impacts import Impacts, simulate_impacts
 from ._weather import Weather, simulate_weather
-from ._writers import fmt_date, fmt_float, write_csv, write_geojson, write_parquet
+from ._writers import (
+    fmt_date,
+    fmt_float,
+    repeat_strings,
+    write_csv,
+    write_geojson,
+    write_parquet,
+)
 
 DEFAULT_SEED = 20261202
 
@@ -55,7 +63,7 @@ def generate(out_dir: str | Path, *, seed: int = DEFAULT_SEED,
         Seed of the single :func:`numpy.random.default_rng` threaded through every step.
         The same seed gives the same bytes (with the same numpy/pyarrow/shapely versions).
     counties : int, default 60
-        Number of counties, 1 to 3143 (the national count). 60 gives the committed world
+        Number of counties, 10 to 3143 (the national count). 60 gives the committed world
         in ``scenario_data/``; other sizes scale the state so that counties keep their
         size (about 3 600 km2), with regions of about 12 counties and two water systems
         per three counties. Every file keeps the daily cadence of the contract at any size.
@@ -71,9 +79,7 @@ def generate(out_dir: str | Path, *, seed: int = DEFAULT_SEED,
     ------
     ProjectError
         If ``seed`` is not a non-negative integer or ``counties`` is not an integer in
-        1-3143.
-    NotADirectoryError
-        If ``out_dir`` exists and is not a folder.
+        10-3143, or if ``out_dir`` exists and is not a folder.
 
     Notes
     -----
@@ -92,8 +98,9 @@ def generate(out_dir: str | Path, *, seed: int = DEFAULT_SEED,
         raise ProjectError(f"generate: seed must be a non-negative integer; got {seed!r}. "
                          "Pass e.g. seed=20261202.")
     if (isinstance(counties, bool) or not isinstance(counties, (int, np.integer))
-            or not 1 <= counties <= MAX_COUNTIES):
-        raise ProjectError(f"generate: counties must be an integer from 1 to {MAX_COUNTIES}; "
+            or not MIN_COUNTIES <= counties <= MAX_COUNTIES):
+        raise ProjectError(f"generate: counties must be an integer from {MIN_COUNTIES} to "
+                           f"{MAX_COUNTIES}; "
                            f"got {counties!r}. Pass e.g. counties=60.")
     out = Path(out_dir)
     if out.exists() and not out.is_dir():
@@ -129,7 +136,7 @@ def _write_all(out: Path, geo: Geography, wx: Weather, traits: Traits, hyd: Hydr
                                 ("tmax_c", pa.float64())])
     dates = wx.dates.values.astype("datetime64[D]")
     paths["climate.parquet"] = write_parquet(out / "climate.parquet", {
-        "county_id": np.repeat(ids, nd),
+        "county_id": repeat_strings(ids, np.repeat(np.arange(nc), nd)),
         "date": np.tile(dates, nc),
         "precip_mm": wx.precip_mm.T.ravel(),
         "tmin_c": wx.tmin_c.T.ravel(),
@@ -144,9 +151,10 @@ def _write_all(out: Path, geo: Geography, wx: Weather, traits: Traits, hyd: Hydr
     ind_schema = pa.schema([("county_id", pa.string()), ("date", pa.date32()),
                             ("indicator", pa.string()), ("value", pa.float64())])
     paths["indicators.parquet"] = write_parquet(out / "indicators.parquet", {
-        "county_id": np.tile(np.repeat(ids, nw), 2),
+        "county_id": repeat_strings(ids, np.tile(np.repeat(np.arange(nc), nw), 2)),
         "date": np.tile(wk, 2 * nc),
-        "indicator": np.repeat(np.array(["soil_moisture", "streamflow"]), nw * nc),
+        "indicator": repeat_strings(np.array(["soil_moisture", "streamflow"]),
+                                    np.repeat(np.arange(2), nw * nc)),
         "value": np.concatenate([soil.T.ravel(), flow.T.ravel()]),
     }, ind_schema)
 

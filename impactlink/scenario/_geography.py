@@ -33,6 +33,8 @@ N_ROWS = 6
 N_SYSTEMS = 40
 #: County count of the default world (the committed scenario).
 DEFAULT_COUNTIES = 60
+#: Smallest world (the map needs a few counties on each side of the state).
+MIN_COUNTIES = 10
 #: Largest world: the number of county-equivalents of the United States (common practice).
 MAX_COUNTIES = 3143
 #: Region blocks of a scaled world, in seed-grid cells (columns x rows): about 12 counties.
