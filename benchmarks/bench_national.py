@@ -7,7 +7,9 @@ impact kinds, leave-one-year-out, 200 bootstrap replicates, triggers, contrast, 
 runs ``impactlink.pipeline.run_project(..., until="run")``. Wall time per stage comes from the
 run's own timings (``RunResult.timings_s``, also in ``manifest.json``); peak memory per stage
 is the largest resident set size sampled every 50 ms inside that stage's time window (psutil
-when installed, else ``/proc/self/status``). The growth exponent ``b`` of ``time ~ a * N**b``
+when installed, else ``/proc/self/status``), and CPU seconds (user + system, all threads of
+the process, from :func:`os.times`) over the same window: on a busy machine CPU time is the
+steadier measure of the work, wall time the honest measure of the wait. The growth exponent ``b`` of ``time ~ a * N**b``
 is a least-squares line through ``(log N, log time)`` over the sizes run (two sizes or more).
 
 Run:  .venv/bin/python benchmarks/bench_national.py                  # quick: 500 counties
@@ -52,17 +54,18 @@ def _rss_bytes() -> int:
 
 
 class _Sampler(threading.Thread):
-    """Samples this process's resident set size every ``every`` seconds."""
+    """Samples this process's resident set size and CPU time every ``every`` seconds."""
 
     def __init__(self, every: float = 0.05) -> None:
         super().__init__(daemon=True)
         self.every = every
-        self.samples: list[tuple[float, int]] = []
+        self.samples: list[tuple[float, int, float]] = []
         self._stop_event = threading.Event()
 
     def run(self) -> None:
         while not self._stop_event.is_set():
-            self.samples.append((time.perf_counter(), _rss_bytes()))
+            cpu = os.times()
+            self.samples.append((time.perf_counter(), _rss_bytes(), cpu.user + cpu.system))
             self._stop_event.wait(self.every)
 
     def stop(self) -> None:
@@ -71,8 +74,13 @@ class _Sampler(threading.Thread):
 
     def peak(self, t0: float, t1: float) -> float:
         """Peak RSS (MB) of the samples in [t0, t1]."""
-        vals = [r for t, r in self.samples if t0 <= t <= t1]
+        vals = [r for t, r, _ in self.samples if t0 <= t <= t1]
         return round(max(vals) / 2**20, 1) if vals else float("nan")
+
+    def cpu(self, t0: float, t1: float) -> float:
+        """CPU seconds (user + system, all threads) used between the samples nearest t0, t1."""
+        inside = [c for t, _, c in self.samples if t0 <= t <= t1]
+        return round(inside[-1] - inside[0], 2) if len(inside) > 1 else 0.0
 
 
 def _project_file(world: Path) -> Path:
@@ -103,7 +111,8 @@ def run_one(n: int, workdir: Path, jobs: int) -> dict:
     t0 = time.perf_counter()
     generate(world, seed=SEED, counties=n)
     t1 = time.perf_counter()
-    stages = {"scenario": {"wall_s": round(t1 - t0, 2), "peak_rss_mb": sampler.peak(t0, t1)}}
+    stages = {"scenario": {"wall_s": round(t1 - t0, 2), "cpu_s": sampler.cpu(t0, t1),
+                           "peak_rss_mb": sampler.peak(t0, t1)}}
     project = _project_file(world)
     t_run = time.perf_counter()
     result = run_project(project, until="run", out=world / "run", jobs=jobs, quiet=True)
@@ -111,7 +120,8 @@ def run_one(n: int, workdir: Path, jobs: int) -> dict:
     sampler.stop()
     start = t_run
     for stage, secs in result.timings_s.items():  # stages run back to back, in this order
-        stages[stage] = {"wall_s": round(secs, 2), "peak_rss_mb": sampler.peak(start, start + secs)}
+        stages[stage] = {"wall_s": round(secs, 2), "cpu_s": sampler.cpu(start, start + secs),
+                         "peak_rss_mb": sampler.peak(start, start + secs)}
         start += secs
     return {
         "counties": n,
@@ -119,7 +129,8 @@ def run_one(n: int, workdir: Path, jobs: int) -> dict:
         "stages": stages,
         "run_wall_s": round(t_end - t_run, 2),
         "total_wall_s": round(t_end - t0, 2),
-        "peak_rss_mb": round(max(r for _, r in sampler.samples) / 2**20, 1),
+        "peak_rss_mb": round(max(r for _, r, _ in sampler.samples) / 2**20, 1),
+        "load_average_at_end": [round(x, 2) for x in os.getloadavg()],
     }
 
 
@@ -160,9 +171,9 @@ def main(argv: list[str] | None = None) -> dict:
         res = json.loads(proc.stdout.strip().splitlines()[-1])
         results.append(res)
         print(f"\n{n} counties: total {res['total_wall_s']} s, peak {res['peak_rss_mb']} MB")
-        print(f"{'stage':<10} {'wall s':>9} {'peak MB':>9}")
+        print(f"{'stage':<10} {'wall s':>9} {'CPU s':>9} {'peak MB':>9}")
         for stage, v in res["stages"].items():
-            print(f"{stage:<10} {v['wall_s']:>9.2f} {v['peak_rss_mb']:>9.1f}")
+            print(f"{stage:<10} {v['wall_s']:>9.2f} {v['cpu_s']:>9.2f} {v['peak_rss_mb']:>9.1f}")
 
     sizes = [r["counties"] for r in results]
     exponents = {"total": growth_exponent(sizes, [r["total_wall_s"] for r in results])}

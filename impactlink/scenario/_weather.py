@@ -170,7 +170,6 @@ def _ar1(innov: np.ndarray, phi: float) -> np.ndarray:
 def _anomaly_field(geo: Geography, months: pd.DatetimeIndex, rng: np.random.Generator
                    ) -> np.ndarray:
     """Monthly wetness anomaly z (months, counties), about N(0, 1), negative = dry."""
-    nc = len(geo.county_ids)
     n_years = len(months) // 12
     burn = 36
     exact = geo.scale == 1.0

@@ -105,28 +105,34 @@ def _ra(doy: np.ndarray, lat_deg: np.ndarray) -> np.ndarray:
                                            + np.cos(phi) * np.cos(dec) * np.sin(ws))
 
 
-def _wbz(world, counties, scale: int, end_week: int) -> pd.DataFrame:
-    """z-score (1991-2020, per county) of the trailing ``scale``-week P - PET at ISO week
-    ``end_week`` of each year, as a (year, county) frame."""
+@pytest.fixture(scope="module")
+def weekly_balance(world, counties):
+    """Weekly (Monday-Sunday) sums of daily P - PET, (weeks, counties), and the Mondays."""
     clim = pd.read_parquet(world["climate.parquet"])
     ids = counties["county_id"].to_numpy()
     lat = np.array([g.centroid.y for g in counties["geometry"]])
     days = pd.DatetimeIndex(np.unique(clim["date"]))
-    assert (clim["county_id"].to_numpy().reshape(len(ids), -1)[:, 0] == ids).all()
     nd = days.size
+    assert (clim["county_id"].to_numpy().reshape(len(ids), nd)[:, 0] == ids).all()
     tmin = clim["tmin_c"].to_numpy().reshape(len(ids), nd).T
     tmax = clim["tmax_c"].to_numpy().reshape(len(ids), nd).T
     precip = clim["precip_mm"].to_numpy().reshape(len(ids), nd).T
     pet = 0.0023 * 0.408 * _ra(days.day_of_year.to_numpy().astype(float), lat) * (
         (tmin + tmax) / 2 + 17.8) * np.sqrt(np.maximum(tmax - tmin, 0))
     wb = precip - np.maximum(pet, 0)
-    first_monday = int(np.flatnonzero(days.weekday == 0)[0])
+    first_monday = int(np.flatnonzero(days.day_of_week == 0)[0])
     n_w = (nd - first_monday) // 7
     weekly = wb[first_monday: first_monday + 7 * n_w].reshape(n_w, 7, -1).sum(axis=1)
-    mondays = days[first_monday: first_monday + 7 * n_w: 7]
+    return days[first_monday: first_monday + 7 * n_w: 7], weekly, ids
+
+
+def _wbz(weekly_balance, scale: int, end_week: int) -> pd.DataFrame:
+    """z-score (1991-2020, per county) of the trailing ``scale``-week P - PET at ISO week
+    ``end_week`` of each year, as a (year, county) frame."""
+    mondays, weekly, ids = weekly_balance
     acc = pd.DataFrame(weekly).rolling(scale).sum().to_numpy()
     iso = mondays.isocalendar()
-    sel = (iso.week.to_numpy() == end_week)
+    sel = iso.week.to_numpy() == end_week
     frame = pd.DataFrame(acc[sel], index=iso.year.to_numpy()[sel], columns=ids)
     ref = frame.loc[1991:2020]
     return (frame - ref.mean()) / ref.std()
@@ -147,11 +153,11 @@ def _maize_shortfall(world) -> pd.DataFrame:
     return pd.DataFrame(out, index=wide.index)
 
 
-def test_maize_follows_the_planted_13_week_balance_ending_week_34(world, counties):
+def test_maize_follows_the_planted_13_week_balance_ending_week_34(world, weekly_balance):
     resid = _maize_shortfall(world)
 
     def corr(scale: int, week: int) -> float:
-        x = _wbz(world, counties, scale, week).reindex(index=resid.index,
+        x = _wbz(weekly_balance, scale, week).reindex(index=resid.index,
                                                       columns=resid.columns)
         a, b = x.to_numpy().ravel(), resid.to_numpy().ravel()
         ok = ~np.isnan(a) & ~np.isnan(b)
