@@ -164,7 +164,7 @@ def test_maize_follows_the_planted_13_week_balance_ending_week_34(world, weekly_
         return float(np.corrcoef(a[ok], b[ok])[0, 1])
 
     planted = corr(13, 34)
-    others = {(s, w): corr(s, w) for s, w in [(4, 34), (26, 34), (13, 26), (13, 42)]}
+    others = {(s, w): corr(s, w) for s, w in [(4, 34), (8, 34), (26, 34), (13, 30), (13, 38)]}
     assert planted > 0.4
     assert all(planted > c for c in others.values()), (planted, others)
 
