@@ -174,3 +174,30 @@ def test_counties_out_of_range_is_a_project_error(tmp_path):
         generate(tmp_path, counties=5000)
     with pytest.raises(ProjectError, match="got 2.5"):
         generate(tmp_path, counties=2.5)
+
+
+def test_national_map_has_unique_codes_names_and_regions_of_about_twelve():
+    from impactlink.scenario._geography import MAX_COUNTIES, build_geography
+
+    geo = build_geography(np.random.default_rng(3), MAX_COUNTIES)
+    assert len(set(geo.county_ids)) == len(geo.county_names) == MAX_COUNTIES
+    assert len(set(geo.county_names)) == MAX_COUNTIES
+    assert all(len(c) == 5 and c[:2] in {f"9{k}" for k in range(7)} for c in geo.county_ids)
+    sizes = pd.Series(geo.regions).value_counts()
+    assert 8 <= sizes.median() <= 16
+    names = set(geo.systems["system_name"])
+    assert len(names) == len(geo.systems["system_id"]) > 2000
+    assert not {n.split(" ")[0] for n in names} & set(geo.county_names)
+
+
+def test_low_rank_noise_factor_reproduces_the_gaussian_correlation():
+    # The implied covariance f f' + diag(sd^2) of the predictive-process factor against the
+    # exact matrix 0.98 exp(-(d/L)^2) + 0.02 I (the definition in scenario_data/README.md).
+    from impactlink.scenario._weather import _knot_factor
+
+    pts = np.random.default_rng(0).uniform(0, 2000, (1000, 2))
+    f, sd = _knot_factor(pts, 500.0)
+    d = np.linalg.norm(pts[:, None] - pts[None], axis=-1)
+    exact = 0.98 * np.exp(-((d / 500.0) ** 2)) + 0.02 * np.eye(len(pts))
+    assert f.shape[1] < len(pts)
+    np.testing.assert_allclose(f @ f.T + np.diag(sd**2), exact, atol=1e-4)
