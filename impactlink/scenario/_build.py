@@ -11,11 +11,25 @@ import shapely
 
 from impactlink.errors import ProjectError
 
-from ._geography import Geography, build_geography, km_to_lonlat
+from ._geography import (
+    DEFAULT_COUNTIES,
+    MAX_COUNTIES,
+    MIN_COUNTIES,
+    Geography,
+    build_geography,
+    km_to_lonlat,
+)
 from ._hydrology import Hydrology, Traits, draw_traits, simulate_hydrology, weekly_sum
 from ._impacts import Impacts, simulate_impacts
 from ._weather import Weather, simulate_weather
-from ._writers import fmt_date, fmt_float, write_csv, write_geojson, write_parquet
+from ._writers import (
+    fmt_date,
+    fmt_float,
+    repeat_strings,
+    write_csv,
+    write_geojson,
+    write_parquet,
+)
 
 DEFAULT_SEED = 20261202
 
@@ -37,6 +51,7 @@ SCENARIO_FILES = (
 
 
 def generate(out_dir: str | Path, *, seed: int = DEFAULT_SEED,
+             counties: int = DEFAULT_COUNTIES,
              progress: Callable[[str], None] | None = None) -> dict[str, Path]:
     """Generate the fictional scenario world and write all its files.
 
@@ -47,6 +62,11 @@ def generate(out_dir: str | Path, *, seed: int = DEFAULT_SEED,
     seed : int, default 20261202
         Seed of the single :func:`numpy.random.default_rng` threaded through every step.
         The same seed gives the same bytes (with the same numpy/pyarrow/shapely versions).
+    counties : int, default 60
+        Number of counties, 10 to 3143 (the national count). 60 gives the committed world
+        in ``scenario_data/``; other sizes scale the state so that counties keep their
+        size (about 3 600 km2), with regions of about 12 counties and two water systems
+        per three counties. Every file keeps the daily cadence of the contract at any size.
     progress : callable, optional
         Called with a short message (str) before each step, e.g. ``print``.
 
@@ -57,10 +77,9 @@ def generate(out_dir: str | Path, *, seed: int = DEFAULT_SEED,
 
     Raises
     ------
-    ValueError
-        If ``seed`` is not a non-negative integer.
-    NotADirectoryError
-        If ``out_dir`` exists and is not a folder.
+    ProjectError
+        If ``seed`` is not a non-negative integer or ``counties`` is not an integer in
+        10-3143, or if ``out_dir`` exists and is not a folder.
 
     Notes
     -----
@@ -78,6 +97,11 @@ def generate(out_dir: str | Path, *, seed: int = DEFAULT_SEED,
     if isinstance(seed, bool) or not isinstance(seed, (int, np.integer)) or seed < 0:
         raise ProjectError(f"generate: seed must be a non-negative integer; got {seed!r}. "
                          "Pass e.g. seed=20261202.")
+    if (isinstance(counties, bool) or not isinstance(counties, (int, np.integer))
+            or not MIN_COUNTIES <= counties <= MAX_COUNTIES):
+        raise ProjectError(f"generate: counties must be an integer from {MIN_COUNTIES} to "
+                           f"{MAX_COUNTIES}; "
+                           f"got {counties!r}. Pass e.g. counties=60.")
     out = Path(out_dir)
     if out.exists() and not out.is_dir():
         raise ProjectError(f"generate: out_dir {str(out)!r} exists and is not a folder; "
@@ -87,7 +111,7 @@ def generate(out_dir: str | Path, *, seed: int = DEFAULT_SEED,
     rng = np.random.default_rng(int(seed))
 
     say("drawing the map (counties, regions, water systems)")
-    geo = build_geography(rng)
+    geo = build_geography(rng, int(counties))
     say("simulating daily weather 1981-2025")
     wx = simulate_weather(geo, rng)
     say("county traits, soil-water bucket and streamflow")
@@ -112,7 +136,7 @@ def _write_all(out: Path, geo: Geography, wx: Weather, traits: Traits, hyd: Hydr
                                 ("tmax_c", pa.float64())])
     dates = wx.dates.values.astype("datetime64[D]")
     paths["climate.parquet"] = write_parquet(out / "climate.parquet", {
-        "county_id": np.repeat(ids, nd),
+        "county_id": repeat_strings(ids, np.repeat(np.arange(nc), nd)),
         "date": np.tile(dates, nc),
         "precip_mm": wx.precip_mm.T.ravel(),
         "tmin_c": wx.tmin_c.T.ravel(),
@@ -127,9 +151,10 @@ def _write_all(out: Path, geo: Geography, wx: Weather, traits: Traits, hyd: Hydr
     ind_schema = pa.schema([("county_id", pa.string()), ("date", pa.date32()),
                             ("indicator", pa.string()), ("value", pa.float64())])
     paths["indicators.parquet"] = write_parquet(out / "indicators.parquet", {
-        "county_id": np.tile(np.repeat(ids, nw), 2),
+        "county_id": repeat_strings(ids, np.tile(np.repeat(np.arange(nc), nw), 2)),
         "date": np.tile(wk, 2 * nc),
-        "indicator": np.repeat(np.array(["soil_moisture", "streamflow"]), nw * nc),
+        "indicator": repeat_strings(np.array(["soil_moisture", "streamflow"]),
+                                    np.repeat(np.arange(2), nw * nc)),
         "value": np.concatenate([soil.T.ravel(), flow.T.ravel()]),
     }, ind_schema)
 
@@ -142,7 +167,7 @@ def _write_all(out: Path, geo: Geography, wx: Weather, traits: Traits, hyd: Hydr
     })
 
     sysd = geo.systems
-    lon, lat = km_to_lonlat(sysd["x_km"], sysd["y_km"])
+    lon, lat = km_to_lonlat(sysd["x_km"], sysd["y_km"], geo.scale)
     paths["water_systems.csv"] = write_csv(out / "water_systems.csv", {
         "system_id": sysd["system_id"],
         "system_name": sysd["system_name"],
@@ -201,7 +226,7 @@ def _features(geo: Geography) -> list[dict]:
         coords = []
         for ring in rings:
             xy = np.asarray(ring.coords)
-            lon, lat = km_to_lonlat(xy[:, 0], xy[:, 1])
+            lon, lat = km_to_lonlat(xy[:, 0], xy[:, 1], geo.scale)
             pts = np.round(np.column_stack([lon, lat]), 5)
             keep = np.ones(len(pts), bool)
             keep[1:] = np.any(pts[1:] != pts[:-1], axis=1)  # drop repeats made by rounding

@@ -4,6 +4,11 @@ Everything is built in a local plane in kilometres (x east, y north, origin at t
 south-west corner) and converted to lon/lat (EPSG:4326) with an equirectangular mapping
 around the state's middle latitude, which is accurate to well under 1 % over a state-sized
 area. Distances used for spatial correlation are taken in the local plane.
+
+The default world has 60 counties on a 640 km x 330 km state. A world of ``n`` counties
+keeps the county size (about 3 600 km2): the outline is scaled by ``sqrt(n / 60)`` in both
+directions around the same middle latitude, the seed grid grows with it, and regions are
+blocks of 4 x 3 grid cells (about 12 counties each).
 """
 
 from __future__ import annotations
@@ -26,6 +31,14 @@ KM_PER_DEG_LAT = 110.57
 N_COLS = 10
 N_ROWS = 6
 N_SYSTEMS = 40
+#: County count of the default world (the committed scenario).
+DEFAULT_COUNTIES = 60
+#: Smallest world (the map needs a few counties on each side of the state).
+MIN_COUNTIES = 10
+#: Largest world: the number of county-equivalents of the United States (common practice).
+MAX_COUNTIES = 3143
+#: Region blocks of a scaled world, in seed-grid cells (columns x rows): about 12 counties.
+REGION_BLOCK = (4, 3)
 
 
 @dataclass(frozen=True)
@@ -47,6 +60,8 @@ class Geography:
     systems : dict of arrays
         ``system_id``, ``system_name``, ``x_km``, ``y_km``, ``county_index``,
         ``population_served``.
+    scale : float
+        Linear size relative to the default world (``sqrt(n_counties / 60)``).
     """
 
     county_ids: tuple[str, ...]
@@ -58,32 +73,63 @@ class Geography:
     lat_deg: np.ndarray
     west_east: np.ndarray
     systems: dict
+    scale: float = 1.0
 
 
-def km_to_lonlat(x: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Local plane (km) -> lon/lat (degrees), equirectangular around the middle latitude."""
+def km_to_lonlat(x: np.ndarray, y: np.ndarray, scale: float = 1.0
+                 ) -> tuple[np.ndarray, np.ndarray]:
+    """Local plane (km) -> lon/lat (degrees), equirectangular around the middle latitude.
+
+    ``scale`` is :attr:`Geography.scale`: a scaled world keeps the middle latitude and
+    longitude of the default one and moves its south-west corner out.
+    """
     lat_mid = LAT0 + 165.0 / KM_PER_DEG_LAT
     km_per_deg_lon = KM_PER_DEG_LAT * np.cos(np.deg2rad(lat_mid))
-    return LON0 + np.asarray(x) / km_per_deg_lon, LAT0 + np.asarray(y) / KM_PER_DEG_LAT
+    lon0, lat0 = LON0, LAT0
+    if scale != 1.0:
+        lon0 = LON0 - 320.0 * (scale - 1.0) / km_per_deg_lon
+        lat0 = LAT0 - 165.0 * (scale - 1.0) / KM_PER_DEG_LAT
+    return lon0 + np.asarray(x) / km_per_deg_lon, lat0 + np.asarray(y) / KM_PER_DEG_LAT
 
 
-def build_geography(rng: np.random.Generator) -> Geography:
-    """Draw the state outline, the county tessellation, regions and water systems."""
+def build_geography(rng: np.random.Generator, n_counties: int = DEFAULT_COUNTIES
+                    ) -> Geography:
+    """Draw the state outline, the county tessellation, regions and water systems.
+
+    Parameters
+    ----------
+    rng : numpy.random.Generator
+        The scenario's single generator.
+    n_counties : int, default 60
+        Number of counties (1 to :data:`MAX_COUNTIES`). 60 gives the committed world.
+    """
+    scale = float(np.sqrt(n_counties / DEFAULT_COUNTIES))
     outline = _state_outline(rng)
-    seeds, cols, rows = _county_seeds(outline, rng)
+    if n_counties == DEFAULT_COUNTIES:
+        seeds, cols, rows = _county_seeds(outline, rng)
+    else:
+        outline = shapely.transform(outline, lambda c: c * scale)
+        seeds, cols, rows = _scaled_seeds(outline, n_counties, scale, rng)
     polygons = _voronoi_counties(seeds, outline)
-    centroids = np.array([[p.centroid.x, p.centroid.y] for p in polygons])
-    area = np.array([p.area for p in polygons])
+    centroids = shapely.get_coordinates(shapely.centroid(np.array(polygons, dtype=object)))
+    area = shapely.area(np.array(polygons, dtype=object))
     xmin, _, xmax, _ = outline.bounds
     west_east = (centroids[:, 0] - xmin) / (xmax - xmin)
-    _, lat = km_to_lonlat(centroids[:, 0], centroids[:, 1])
+    _, lat = km_to_lonlat(centroids[:, 0], centroids[:, 1], scale)
     n = len(polygons)
-    county_ids = tuple(f"90{2 * i + 1:03d}" for i in range(n))  # odd codes, state code 90
+    # Five-character codes: odd county numbers under state code 90 (no real state uses
+    # 90-99); every 500 counties move to the next state code (91, 92, ...).
+    county_ids = tuple(f"{90 + i // 500}{2 * (i % 500) + 1:03d}" for i in range(n))
     names = tuple(invent_names(n, rng))
-    regions = tuple(_region_of(c, r) for c, r in zip(cols, rows))
-    systems = _water_systems(polygons, rng, exclude=frozenset(names))
+    if n_counties == DEFAULT_COUNTIES:
+        regions = tuple(_region_of(c, r) for c, r in zip(cols, rows))
+    else:
+        regions = _block_regions(cols, rows, rng, exclude=frozenset(names))
+    n_sys = N_SYSTEMS if n == DEFAULT_COUNTIES else max(2, round(n * N_SYSTEMS / 60))
+    systems = _water_systems(polygons, rng, exclude=frozenset(names) | frozenset(regions),
+                             n_systems=n_sys)
     return Geography(county_ids, names, regions, tuple(polygons), centroids, area, lat,
-                     west_east, systems)
+                     west_east, systems, scale)
 
 
 def _state_outline(rng: np.random.Generator) -> Polygon:
@@ -126,22 +172,75 @@ def _county_seeds(outline: Polygon, rng: np.random.Generator):
     return np.array(seeds), cols, rows
 
 
+def _scaled_seeds(outline: Polygon, n: int, scale: float, rng: np.random.Generator):
+    """Jittered seed grid of a scaled world: exactly ``n`` seeds inside the outline.
+
+    The grid starts at the default 10 x 6 layout times ``scale`` and grows until enough
+    jittered points fall inside the outline (10 km in from the edge); the surplus points are
+    dropped at random. Returns seeds ordered west -> east, then south -> north.
+    """
+    inner = outline.buffer(-10.0)
+    xmin, ymin, xmax, ymax = outline.bounds
+    n_cols = max(1, round(N_COLS * scale))
+    n_rows = max(1, round(N_ROWS * scale))
+    while True:  # a few rounds at most: each adds a column and a row
+        dx = (xmax - xmin) / n_cols
+        dy = (ymax - ymin) / n_rows
+        col_grid, row_grid = np.meshgrid(np.arange(n_cols), np.arange(n_rows), indexing="ij")
+        cols, rows = col_grid.ravel(), row_grid.ravel()
+        px = xmin + (cols + 0.5 + rng.uniform(-0.3, 0.3, cols.size)) * dx
+        py = ymin + (rows + 0.5 + rng.uniform(-0.3, 0.3, rows.size)) * dy
+        inside = shapely.contains_xy(inner, px, py)
+        if inside.sum() >= n:
+            break
+        n_cols += 1
+        n_rows += 1
+    keep = np.flatnonzero(inside)
+    keep = np.sort(rng.choice(keep, size=n, replace=False))
+    return np.column_stack([px[keep], py[keep]]), cols[keep], rows[keep]
+
+
+def _block_regions(cols: np.ndarray, rows: np.ndarray, rng: np.random.Generator, *,
+                   exclude: frozenset[str]) -> tuple[str, ...]:
+    """Regions of a scaled world: blocks of :data:`REGION_BLOCK` seed-grid cells.
+
+    Blocks at the ragged edge of the state with fewer than 4 counties join the nearest
+    block (in block units) that has more, so regions hold about 12 counties.
+    """
+    bc, br = REGION_BLOCK
+    key = (cols // bc) * 100_000 + rows // br
+    ukeys, block, counts = np.unique(key, return_inverse=True, return_counts=True)
+    bx, by = ukeys // 100_000, ukeys % 100_000
+    big = np.flatnonzero(counts >= 4)
+    if big.size == 0:
+        big = np.array([int(np.argmax(counts))])
+    d2 = (bx[:, None] - bx[big][None, :]) ** 2 + (by[:, None] - by[big][None, :]) ** 2
+    target = big[np.argmin(d2, axis=1)]
+    target[big] = big
+    _, region_index = np.unique(target[block], return_inverse=True)
+    names = invent_names(int(region_index.max()) + 1, rng, exclude=exclude)
+    return tuple(np.array(names)[region_index].tolist())
+
+
 def _voronoi_counties(seeds: np.ndarray, outline: Polygon) -> list[Polygon]:
     """Voronoi cells of the seeds, clipped to the outline, in seed order."""
     xmin, ymin, xmax, ymax = outline.bounds
     env = box(xmin - 100, ymin - 100, xmax + 100, ymax + 100)
-    cells = shapely.voronoi_polygons(MultiPoint(seeds), extend_to=env)
-    cells = list(cells.geoms)
-    out = []
-    # Match cells to seeds (60 x 60 containment tests; GEOS does not promise an order).
-    for x, y in seeds:
-        p = Point(x, y)
-        cell = next(c for c in cells if c.contains(p))
-        clipped = cell.intersection(outline)
-        if clipped.geom_type != "Polygon":  # keep the largest part of a rare multipart cell
-            clipped = max(clipped.geoms, key=lambda g: g.area)
-        out.append(shapely.set_precision(clipped, 0.0))
-    return out
+    cells = np.array(list(shapely.voronoi_polygons(MultiPoint(seeds), extend_to=env).geoms),
+                     dtype=object)
+    # Match cells to seeds with a spatial index (GEOS does not promise an order).
+    points = shapely.points(seeds)
+    seed_i, cell_i = shapely.STRtree(cells).query(points, predicate="within")
+    if not np.array_equal(np.sort(seed_i), np.arange(len(seeds))):
+        raise RuntimeError("_voronoi_counties: a seed lies in no cell or in two cells")
+    match = np.empty(len(seeds), dtype=np.int64)
+    match[seed_i] = cell_i
+    clipped = shapely.intersection(cells[match], outline)
+    multi = np.flatnonzero(shapely.get_type_id(clipped) != 3)  # 3 = Polygon
+    # Loop over the rare multipart cells only: keep the largest part.
+    for i in multi:
+        clipped[i] = max(clipped[i].geoms, key=lambda g: g.area)
+    return list(shapely.set_precision(clipped, 0.0))
 
 
 def _region_of(col: int, row: int) -> str:
@@ -154,15 +253,17 @@ def _region_of(col: int, row: int) -> str:
 
 
 def _water_systems(polygons: list[Polygon], rng: np.random.Generator, *,
-                   exclude: frozenset[str]) -> dict:
-    """About 40 public water systems as points inside counties."""
+                   exclude: frozenset[str], n_systems: int = N_SYSTEMS) -> dict:
+    """Public water systems as points inside counties (40 for 60 counties, 2 per 3)."""
     n_c = len(polygons)
-    first = rng.choice(n_c, size=N_SYSTEMS - 6, replace=False)
-    second = rng.choice(first, size=6, replace=False)  # six counties hold two systems
+    n_double = round(n_systems * 6 / N_SYSTEMS)  # six of 40 counties hold two systems
+    first = rng.choice(n_c, size=n_systems - n_double, replace=False)
+    second = rng.choice(first, size=n_double, replace=False)
     county_index = np.sort(np.concatenate([first, second]))
-    towns = invent_names(N_SYSTEMS, rng, exclude=exclude)
+    towns = invent_names(n_systems, rng, exclude=exclude)
     names, xs, ys = [], [], []
-    # Loop over 40 systems (not a hot path): rejection-sample a point inside the county.
+    # Loop over systems (2 per 3 counties, a few cheap GEOS calls each; not a hot path):
+    # rejection-sample a point inside the county, drawing in a fixed order.
     for k, ci in enumerate(county_index):
         poly = polygons[ci].buffer(-4.0)
         x0, y0, x1, y1 = poly.bounds
@@ -173,10 +274,11 @@ def _water_systems(polygons: list[Polygon], rng: np.random.Generator, *,
         xs.append(x)
         ys.append(y)
         names.append(utility_name(towns[k], rng))
-    pop = np.exp(rng.normal(np.log(12000.0), 1.1, N_SYSTEMS))
+    pop = np.exp(rng.normal(np.log(12000.0), 1.1, n_systems))
     pop = np.round(np.clip(pop, 800, 450000), -1).astype(np.int64)
+    width = max(3, len(str(n_systems)))
     return {
-        "system_id": np.array([f"WS{9000 + k + 1}" for k in range(N_SYSTEMS)]),
+        "system_id": np.array([f"WS9{k + 1:0{width}d}" for k in range(n_systems)]),
         "system_name": np.array(names),
         "x_km": np.array(xs),
         "y_km": np.array(ys),

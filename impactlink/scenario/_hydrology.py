@@ -24,7 +24,7 @@ import numpy as np
 import pandas as pd
 
 from ._geography import Geography
-from ._weather import Weather, _gaussian_chol
+from ._weather import Weather, correlated_normal
 
 #: Accumulation lengths (weeks) of the internal water-balance anomaly.
 WB_SCALES = (4, 8, 13, 26)
@@ -60,8 +60,7 @@ class Hydrology:
 def draw_traits(geo: Geography, rng: np.random.Generator) -> Traits:
     """Spatially smooth county traits with a west -> east tendency."""
     g = geo.west_east
-    chol = _gaussian_chol(geo.centroids_km, 150.0)
-    e = rng.standard_normal((4, len(g))) @ chol.T
+    e = correlated_normal(rng, 4, geo.centroids_km, 150.0, exact=geo.scale == 1.0)
     irr = np.clip(0.03 + 0.38 * (1.0 - g) ** 1.5 + 0.04 * e[0], 0.01, 0.6)
     whc = np.clip(150.0 + 20.0 * g + 40.0 * e[1], 70.0, 240.0)
     gw = np.clip(0.85 - 0.6 * g + 0.12 * e[2], 0.05, 0.98)

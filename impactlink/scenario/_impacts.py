@@ -73,6 +73,30 @@ class Impacts:
     roles: dict  # which issuer plays which documented quirk
 
 
+def region_plan(geo: Geography) -> dict:
+    """Hay base price per region and the regions with late coverage.
+
+    The default five regions keep their documented values. In a scaled world, the base
+    price falls from 185 (west) to 150 usd/t (east) with the region's mean west -> east
+    position; the late price and report region is the most south-eastern one and the late
+    notice region the most north-eastern one (by mean centroid, in the local km plane).
+    """
+    names = sorted(set(geo.regions))
+    if set(names) == set(HAY_BASE):
+        return {"hay_base": dict(HAY_BASE), "late_south_east": "Serrowmere",
+                "late_north_east": NOTICE_LATE_REGION[0]}
+    regions = np.array(geo.regions)
+    codes = np.searchsorted(np.array(names), regions)
+    count = np.bincount(codes)
+    g = np.bincount(codes, geo.west_east) / count
+    x = np.bincount(codes, geo.centroids_km[:, 0]) / count
+    y = np.bincount(codes, geo.centroids_km[:, 1]) / count
+    hay = np.round(185.0 - 35.0 * g, 0)
+    return {"hay_base": dict(zip(names, hay.tolist())),
+            "late_south_east": names[int(np.argmax(x - y))],
+            "late_north_east": names[int(np.argmax(x + y))]}
+
+
 def simulate_impacts(geo: Geography, traits: Traits, hyd: Hydrology,
                      rng: np.random.Generator) -> Impacts:
     """Simulate every impact table (draws from ``rng`` in a fixed order)."""
@@ -152,13 +176,15 @@ def _hay_prices(geo: Geography, hyd: Hydrology, price_index: pd.DataFrame,
                 rng: np.random.Generator) -> pd.DataFrame:
     months = pd.DatetimeIndex(price_index["date"])
     regions = np.array(geo.regions)
+    plan = region_plan(geo)
+    late = plan["late_south_east"]
     # Driver for month m: regional mean wbz26 in the last week (Monday) of month m - 1.
     week_month = hyd.weeks.year * 12 + hyd.weeks.month - 1
     month_key = months.year * 12 + months.month - 1
     last_week = pd.Series(np.arange(len(hyd.weeks))).groupby(week_month).max()
     idx = last_week.reindex(month_key - 1).to_numpy()
     frames = []
-    for r in sorted(HAY_BASE):  # five regions: a loop over regions, not counties
+    for r in sorted(plan["hay_base"]):  # a loop over regions (about 12 counties each)
         sel = regions == r
         d = np.full(months.size, np.nan)
         ok = ~np.isnan(idx)
@@ -170,9 +196,9 @@ def _hay_prices(geo: Geography, hyd: Hydrology, price_index: pd.DataFrame,
         for t in range(1, months.size):  # AR(1) over 540 months of one region
             noise[t] = 0.85 * noise[t - 1] + e[t]
         season = 0.04 * np.cos(2 * np.pi * (months.month - 2) / 12.0)
-        real = HAY_BASE[r] * np.exp(-HAY_DRY_COEF * d + season + noise)
+        real = plan["hay_base"][r] * np.exp(-HAY_DRY_COEF * d + season + noise)
         nominal = np.round(real * price_index["price_index"].to_numpy() / 100.0, 2)
-        start = pd.Timestamp(PRICE_START.get(r, PRICE_START["default"]))
+        start = pd.Timestamp(PRICE_START["Serrowmere" if r == late else "default"])
         keep = months >= start
         frames.append(pd.DataFrame({"region": r, "date": months[keep], "commodity": "hay",
                                     "price": nominal[keep], "unit": "usd_per_t"}))
@@ -192,10 +218,12 @@ def _notices(geo: Geography, traits: Traits, hyd: Hydrology, rng: np.random.Gene
     roles = _issuer_roles(geo, level, np.asarray(hyd.weeks.year >= 2004))
     # Coverage: county start dates.
     cov_start = np.full(len(geo.county_ids), np.datetime64(NOTICE_COVERAGE_START))
-    late_r, late_start = NOTICE_LATE_REGION
+    late_start = NOTICE_LATE_REGION[1]
+    late_r = region_plan(geo)["late_north_east"]
     cov_start[np.array(geo.regions) == late_r] = np.datetime64(late_start)
     candidates = np.unique(ci[np.array(geo.regions)[ci] != late_r])
-    late_counties = rng.choice(candidates, size=2, replace=False)
+    n_late = max(2, round(len(geo.county_ids) / 30))  # 2 of the default 60 counties
+    late_counties = rng.choice(candidates, size=min(n_late, candidates.size), replace=False)
     cov_start[late_counties] = np.datetime64(NOTICE_LATE_COUNTIES_START)
 
     weeks = hyd.weeks.values.astype("datetime64[D]")
@@ -284,7 +312,9 @@ def _issuer_roles(geo: Geography, level: np.ndarray, recent: np.ndarray) -> dict
 
 def _non_drought_notices(n_s: int, roles: dict, cov_start: np.ndarray,
                          rng: np.random.Generator) -> list:
-    causes = ["main_break"] * 6 + ["contamination"] * 4
+    n_break = max(1, round(n_s * 6 / 40))  # 6 and 4 of the default 40 systems
+    n_contam = max(1, round(n_s * 4 / 40))
+    causes = ["main_break"] * n_break + ["contamination"] * n_contam
     choices = [s for s in range(n_s) if s != roles["snapshot_index"]]
     rows = []
     for cause in causes:  # ten rows
@@ -303,7 +333,7 @@ def _notice_frame(rows: list, geo: Geography, cov_start: np.ndarray, roles: dict
     from ._geography import km_to_lonlat
 
     sysd = geo.systems
-    lon, lat = km_to_lonlat(sysd["x_km"], sysd["y_km"])
+    lon, lat = km_to_lonlat(sysd["x_km"], sysd["y_km"], geo.scale)
     s_idx = np.array([r[0] for r in rows])
     start = np.array([r[1] for r in rows], dtype="datetime64[D]")
     end = np.array([r[2] if r[2] is not None else np.datetime64("NaT") for r in rows],
@@ -345,8 +375,9 @@ def _snapshots(level: np.ndarray, offsets: np.ndarray, weeks: np.ndarray, issuer
 # ------------------------------------------------------------------- field reports
 def _field_reports(geo: Geography, traits: Traits, hyd: Hydrology, rng: np.random.Generator):
     regions = np.array(geo.regions)
-    start = np.array([np.datetime64(REPORT_START.get(r, REPORT_START["default"]))
-                      for r in regions])
+    late = region_plan(geo)["late_south_east"]
+    start = np.where(regions == late, np.datetime64(REPORT_START["Serrowmere"]),
+                     np.datetime64(REPORT_START["default"]))
     weeks = hyd.weeks.values.astype("datetime64[D]")
     woy = hyd.weeks.isocalendar().week.to_numpy()[:, None]
     t_year = (hyd.weeks.year + (hyd.weeks.day_of_year - 1) / 365.25).to_numpy()[:, None]
@@ -386,17 +417,19 @@ def _field_reports(geo: Geography, traits: Traits, hyd: Hydrology, rng: np.rando
 def _coverage(geo: Geography, notice_start: np.ndarray, report_start: np.ndarray,
               roles: dict) -> pd.DataFrame:
     regions = sorted(set(geo.regions))
+    late = region_plan(geo)["late_south_east"]
     rows = []
-    for r in regions:
+    for r in regions:  # loops over regions and counties build a small table of strings
         rows.append(("yields", "", r, "1981-01-01", END_DATE))
     for r in regions:
-        rows.append(("prices", "", r, PRICE_START.get(r, PRICE_START["default"]), END_DATE))
+        rows.append(("prices", "", r, PRICE_START["Serrowmere" if r == late else "default"],
+                     END_DATE))
     for i, c in enumerate(geo.county_ids):
         rows.append(("notices", c, "", str(notice_start[i]), END_DATE))
     snap_county = geo.county_ids[geo.systems["county_index"][roles["snapshot_index"]]]
     rows.append(("notice_snapshots", snap_county, "", SNAPSHOT_START, END_DATE))
     for r in regions:
-        rows.append(("field_reports", "", r, REPORT_START.get(r, REPORT_START["default"]),
-                     END_DATE))
+        rows.append(("field_reports", "", r,
+                     REPORT_START["Serrowmere" if r == late else "default"], END_DATE))
     return pd.DataFrame(rows, columns=["source", "county_id", "region", "start_date",
                                        "end_date"])

@@ -30,12 +30,33 @@ PARQUET_OPTIONS = dict(
 )
 
 
-def write_parquet(path: Path, columns: dict[str, np.ndarray], schema: pa.Schema) -> Path:
-    """Write columns with an explicit schema and fixed options."""
-    table = pa.Table.from_arrays([pa.array(columns[f.name], type=f.type) for f in schema],
-                                 schema=schema)
-    pq.write_table(table, path, **PARQUET_OPTIONS)
+#: Files with more rows than this use zstd level 3 instead of 9 (a national climate table
+#: of 52 M rows compresses about 3 times faster, and about 10 % larger). The default
+#: 60-county world stays below it, so its bytes do not change.
+FAST_COMPRESSION_ROWS = 5_000_000
+
+
+def write_parquet(path: Path, columns: dict[str, np.ndarray | pa.Array], schema: pa.Schema
+                  ) -> Path:
+    """Write columns (numpy arrays or Arrow arrays) with an explicit schema and fixed options.
+
+    Repeated strings such as county ids are best passed as Arrow arrays built with
+    ``pa.array(unique).take(codes)``, which avoids one Python string object per row.
+    """
+    arrays = [columns[f.name] if isinstance(columns[f.name], pa.Array)
+              else pa.array(columns[f.name], type=f.type) for f in schema]
+    table = pa.Table.from_arrays(arrays, schema=schema)
+    options = dict(PARQUET_OPTIONS)
+    if table.num_rows > FAST_COMPRESSION_ROWS:
+        options["compression_level"] = 3
+    pq.write_table(table, path, **options)
     return path
+
+
+def repeat_strings(values: np.ndarray, codes: np.ndarray) -> pa.Array:
+    """Arrow string array ``values[codes]`` without per-row Python objects."""
+    return pa.array(np.asarray(values).tolist(), type=pa.string()).take(
+        pa.array(np.asarray(codes, dtype=np.int32)))
 
 
 def fmt_float(x: np.ndarray, decimals: int) -> np.ndarray:
@@ -64,8 +85,9 @@ def write_csv(path: Path, columns: dict[str, object]) -> Path:
         if len(c) != n:
             raise ProjectError(f"write_csv({path.name}): column {name!r} has {len(c)} rows; "
                              f"expected {n}")
-        bad = [v for v in c if "," in v or '"' in v or "\n" in v]
-        if bad:
+        joined = "".join(c.tolist())  # one scan in C instead of one test per cell
+        if "," in joined or '"' in joined or "\n" in joined:
+            bad = [v for v in c if "," in v or '"' in v or "\n" in v]
             raise ProjectError(f"write_csv({path.name}): column {name!r} holds a comma, quote "
                              f"or newline ({bad[0]!r}); the scenario writer does not quote")
     lines = [",".join(names)]
