@@ -67,6 +67,8 @@ def build_parser() -> argparse.ArgumentParser:
     s = _sub(sub, "scenario", "generate the fictional demonstration scenario")
     s.add_argument("--seed", type=int, default=20261202, help="random seed (default 20261202)")
     s.add_argument("--out", required=True, help="folder to write the scenario tables into")
+    s.add_argument("--counties", type=int, default=60,
+                   help="number of counties, 10 to 3143 (default 60: the committed scenario)")
 
     s = _sub(sub, "init", "write a commented project file for the tables in a folder")
     s.add_argument("folder", help="folder holding counties, climate, notices, ... files")
@@ -156,7 +158,7 @@ def _dispatch(args: argparse.Namespace) -> int:
     if cmd == "scenario":
         from impactlink.scenario import generate
 
-        paths = generate(args.out, seed=args.seed)
+        paths = generate(args.out, seed=args.seed, counties=args.counties)
         for name, path in paths.items():
             print(f"{name}: {path}")
         return 0
