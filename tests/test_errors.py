@@ -114,30 +114,34 @@ def test_project_mistake_is_one_line(project, capsys):
     _one_line_error(capsys, ["check", str(p)], "sede")
 
 
-def test_inputs_missing_file_is_one_line(project, capsys):
+@pytest.mark.parametrize("command", ["check", "run"])
+def test_inputs_missing_file_is_one_line(project, capsys, command):
     (project / "yields.csv").unlink()
-    _one_line_error(capsys, ["check", str(project / "impactlink.toml")], "yields.csv")
+    _one_line_error(capsys, [command, str(project / "impactlink.toml")], "yields.csv")
 
 
-def test_inputs_missing_column_is_one_line(project, capsys):
+@pytest.mark.parametrize("command", ["check", "run"])
+def test_inputs_missing_column_is_one_line(project, capsys, command):
     path = project / "yields.csv"
     path.write_text(path.read_text().replace("yield", "harvest", 1), encoding="utf-8")
-    _one_line_error(capsys, ["check", str(project / "impactlink.toml")], "yields.csv", "yield")
+    _one_line_error(capsys, [command, str(project / "impactlink.toml")], "yields.csv", "yield")
 
 
-def test_inputs_latin1_csv_is_one_line(project, capsys):
+@pytest.mark.parametrize("command", ["check", "run"])
+def test_inputs_latin1_csv_is_one_line(project, capsys, command):
     path = project / "yields.csv"
     text = path.read_text(encoding="utf-8")
     lines = text.splitlines()
     lines[1] = lines[1].replace("maize", "maïze")
     path.write_bytes("\n".join(lines).encode("latin-1"))
-    _one_line_error(capsys, ["check", str(project / "impactlink.toml")], "yields.csv")
+    _one_line_error(capsys, [command, str(project / "impactlink.toml")], "yields.csv")
 
 
-def test_link_unknown_impact_option_is_one_line(project, capsys):
+@pytest.mark.parametrize("command", ["check", "run"])
+def test_link_unknown_impact_option_is_one_line(project, capsys, command):
     p = project / "impactlink.toml"
     p.write_text(p.read_text() + "clas_pct = [10, 20]\n", encoding="utf-8")
-    _one_line_error(capsys, ["check", str(p)], "clas_pct")
+    _one_line_error(capsys, [command, str(p)], "clas_pct")
 
 
 def test_report_on_a_folder_that_is_not_a_run_is_one_line(tmp_path, capsys):
