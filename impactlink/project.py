@@ -23,7 +23,7 @@ from impactlink.project_formats import (  # [formats] / [units]: publisher layou
     check_formats,
 )
 from impactlink.project_schema import toml_text
-from impactlink.schema import TABLES
+from impactlink.schema import EQUAL_AREA_CRS, TABLES
 
 __all__ = [
     "ProjectError",
@@ -113,7 +113,7 @@ class ImpactSpec:
 @dataclass(frozen=True)
 class LinkSettings:
     lags_weeks: tuple[int, ...] = (0, 2, 4, 8, 13, 26)
-    equal_area_crs: str = "EPSG:5070"
+    equal_area_crs: str = EQUAL_AREA_CRS
 
 
 @dataclass(frozen=True)

@@ -13,6 +13,7 @@ from scipy.stats import chi2
 from impactlink.errors import ContrastError, ContrastWarning
 from impactlink.link.target import Target
 from impactlink.schema import COUNTY
+from impactlink.skill.folds import year_bootstrap_weights
 
 __all__ = ["ContrastResult", "ContrastWarning", "county_contrast", "poisson_ratio_interval"]
 
@@ -413,9 +414,8 @@ def _brier_cv(y, xv, z, years, n_boot, alpha, seed) -> dict:
     change = (s1.sum() - s0.sum()) / cnt.sum()
     lo = hi = np.nan
     if n_boot > 0:
-        rng = np.random.default_rng(seed)
-        draw = rng.integers(0, n_y, size=(n_boot, n_y))
-        boot = (s1[draw].sum(1) - s0[draw].sum(1)) / cnt[draw].sum(1)
+        w = year_bootstrap_weights(int(n_y), n_boot, seed=seed)  # the one year-block bootstrap
+        boot = (w @ s1 - w @ s0) / (w @ cnt)
         lo, hi = np.quantile(boot, [alpha / 2, 1 - alpha / 2])
     return {"brier_index": float(s0.sum() / cnt.sum()), "brier_traits": float(s1.sum() / cnt.sum()),
             "brier_change": float(change), "brier_change_lo": float(lo),

@@ -12,6 +12,7 @@ import pandas as pd
 from scipy import special
 
 from impactlink.schema import COUNTY
+from impactlink.skill.folds import year_bootstrap_weights
 
 from .cube import IndexCube
 from .errors import IndicesError
@@ -220,9 +221,8 @@ def _audit_period(x, years, z_thr, cum_p, expected, n_boot, rng, ci, county_ids,
     local = _local_thresholds(x, yidx, ny, cum_p, None)
     lo_q, hi_q = (1 - ci) / 2, 1 - (1 - ci) / 2
     if n_boot > 0 and ny > 1:
-        draws = rng.integers(0, ny, size=(n_boot, ny))
-        mult = np.zeros((n_boot, ny))
-        np.add.at(mult, (np.arange(n_boot)[:, None], draws), 1.0)
+        # the one year-block bootstrap; one seed per audited period, drawn from the audit's seed
+        mult = year_bootstrap_weights(ny, n_boot, seed=int(rng.integers(2**62)))
         with np.errstate(invalid="ignore", divide="ignore"):
             obs_b = np.einsum("by,yck->bck", mult, counts) / np.einsum("by,yc->bc", mult, nvalid)[..., None]
         ratio_b = obs_b / expected[None, None, :]
