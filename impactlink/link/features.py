@@ -6,6 +6,7 @@ Features are never stored as a wide table: each call reads one (weeks, counties)
 
 from __future__ import annotations
 
+import dataclasses
 import weakref
 
 import numpy as np
@@ -17,7 +18,8 @@ from impactlink.link.target import Target
 from impactlink.schema import COUNTY
 
 __all__ = ["feature_values", "feature_matrix", "reference_weeks", "candidate_lags",
-           "season_end_weeks", "end_week", "end_month"]
+           "season_end_weeks", "end_week", "end_month", "with_end_week",
+           "season_in_months"]
 
 #: A region value needs index values for at least this share of the region's weight.
 MIN_REGION_WEIGHT = 0.5
@@ -193,6 +195,36 @@ def end_week(target: Target, lag: int) -> int | None:
     if rule.reference != "season_week" or rule.season_week is None:
         return None
     return int(rule.season_week) - int(lag)
+
+
+def with_end_week(table: pd.DataFrame, target: Target, lag_col: str,
+                  monthly: bool) -> pd.DataFrame:
+    """Add ``end_week`` (ISO week the accumulation window ends; seasonal targets only) and,
+    for monthly input, ``end_month`` (1-12) after the lag column."""
+    if table is None or table.empty or lag_col not in table.columns:
+        return table
+    if end_week(target, 0) is None:
+        return table
+    lag = pd.to_numeric(table[lag_col], errors="coerce")
+    ew = (end_week(target, 0) - lag).astype("Int64")
+    out = table.copy()
+    at = out.columns.get_loc(lag_col) + 1
+    name = "end_week" if lag_col == "lag_weeks" else "best_end_week"
+    out.insert(at, name, ew)
+    if monthly:
+        out.insert(at + 1, name.replace("week", "month"),
+                   ew.map(lambda w: end_month(int(w)) if pd.notna(w) else pd.NA).astype("Int64"))
+    return out
+
+
+def season_in_months(target: Target, cube) -> Target:
+    """A monthly index changes once a month: search one mid-month end week per month."""
+    ends = target.rule.season_end_weeks
+    if not ends or not cube.provenance.get("scale_months_of_key"):
+        return target
+    months = season_end_weeks(min(ends), max(ends), 1, cadence="monthly")
+    rule = dataclasses.replace(target.rule, season_week=max(months), season_end_weeks=months)
+    return dataclasses.replace(target, rule=rule)
 
 
 # --------------------------------------------------------------------------- private steps

@@ -16,6 +16,7 @@ import numpy as np
 import pandas as pd
 
 from impactlink.errors import ContrastError, ContrastWarning
+from impactlink.link import features as link_features
 from impactlink.project import Project
 from impactlink.schema import COUNTY
 
@@ -126,7 +127,7 @@ def link(project: Project, inputs: InputsResult, ind: IndicesResult,
             lags_weeks=tuple(project.link.lags_weeks),
             equal_area_crs=project.link.equal_area_crs,
         )
-        targets.extend(_season_in_months(t, ind.cube) for t in res.targets)
+        targets.extend(link_features.season_in_months(t, ind.cube) for t in res.targets)
         rejected.append(res.rejected)
         recon.append(res.reconciliation)
         summaries.append(res.summary)
@@ -174,8 +175,8 @@ def rank(project: Project, inputs: InputsResult, ind: IndicesResult, lk: LinkSta
         )
         monthly = bool(cube.provenance.get("scale_months_of_key"))
         res = dataclasses.replace(
-            res, table=_with_end_week(res.table, target, "lag_weeks", monthly),
-            summary=_with_end_week(res.summary, target, "best_lag_weeks", monthly))
+            res, table=link_features.with_end_week(res.table, target, "lag_weeks", monthly),
+            summary=link_features.with_end_week(res.summary, target, "best_lag_weeks", monthly))
         for key, frame in (("skill", res.table), ("summary", res.summary),
                            ("reliability", res.reliability), ("local", res.local),
                            ("persistence", res.persistence)):
@@ -394,39 +395,6 @@ def _explain_pairs(project: Project, inputs: InputsResult, ind: IndicesResult,
 
 
 # ----------------------------------------------------------------------------- helpers
-def _with_end_week(table: pd.DataFrame, target: Any, lag_col: str, monthly: bool) -> pd.DataFrame:
-    """Add ``end_week`` (ISO week the accumulation window ends; seasonal targets only) and,
-    for monthly input, ``end_month`` (1-12) after the lag column."""
-    from impactlink.link.features import end_month, end_week
-
-    if table is None or table.empty or lag_col not in table.columns:
-        return table
-    if end_week(target, 0) is None:
-        return table
-    lag = pd.to_numeric(table[lag_col], errors="coerce")
-    ew = (end_week(target, 0) - lag).astype("Int64")
-    out = table.copy()
-    at = out.columns.get_loc(lag_col) + 1
-    name = "end_week" if lag_col == "lag_weeks" else "best_end_week"
-    out.insert(at, name, ew)
-    if monthly:
-        out.insert(at + 1, name.replace("week", "month"),
-                   ew.map(lambda w: end_month(int(w)) if pd.notna(w) else pd.NA).astype("Int64"))
-    return out
-
-
-def _season_in_months(target: Any, cube: Any) -> Any:
-    """A monthly index changes once a month: search one mid-month end week per month."""
-    from impactlink.link.features import season_end_weeks
-
-    ends = target.rule.season_end_weeks
-    if not ends or not cube.provenance.get("scale_months_of_key"):
-        return target
-    months = season_end_weeks(min(ends), max(ends), 1, cadence="monthly")
-    rule = dataclasses.replace(target.rule, season_week=max(months), season_end_weeks=months)
-    return dataclasses.replace(target, rule=rule)
-
-
 def _source_of(project: Project, impact: str) -> str | None:
     return next((s.source for s in project.impacts if s.name == impact), None)
 

@@ -484,10 +484,8 @@ def target_label(impact, target) -> str:
 
 
 def _present(value) -> bool:
-    if value is None or value is pd.NA:
-        return False
-    try:
-        return not (isinstance(value, float) and math.isnan(value)) and not pd.isna(value)
+    try:  # None, NA and NaN are absent; an array-like is present
+        return value is not None and value is not pd.NA and not bool(pd.isna(value))
     except (TypeError, ValueError):
         return True
 
