@@ -29,7 +29,7 @@ class FormatSettings:
     ``"zones"``: one series per zone (climate division, basin, grid cell) given to counties
     by the zone-to-county table ``zones`` (a file, relative to the data folder);
     ``zone_column`` names the zone id column of the per-zone files (blank = found by name).
-    ``"quickstats"``: a USDA NASS Quick Stats CSV export. ``"topojson"``: TopoJSON counties
+    ``"quickstats"``: a NASS Quick Stats CSV export. ``"topojson"``: TopoJSON counties
     with the GEOID as feature id, kept for the counties in the data.
     """
 

@@ -3,7 +3,7 @@
 The files are copied from ../shared/realdata (skipped, with the reason, where absent) into a
 temporary folder, never into the repository. Every expected number is computed here from the
 raw files with the standard library's csv module (independent of the readers), or quoted
-from the data's README (/work/shared/realdata/README.md: NASS Quick Stats, NCEI nClimDiv and
+from the data's README (/work/shared/realdata/README.md: NASS Quick Stats, nClimDiv nClimDiv and
 county-to-division files, Census/us-atlas TopoJSON).
 """
 
@@ -20,7 +20,7 @@ from realdata_paths import realdata_dir
 
 from impactlink.cli import main
 from impactlink.inputs import read_inputs
-from impactlink.inputs.formats.quickstats import QUICKSTATS_REASONS
+from impactlink.inputs.formats.crop_survey import QUICKSTATS_REASONS
 from impactlink.pipeline import init_project
 from impactlink.project import load_project
 

@@ -69,7 +69,7 @@ def plan_project(folder: str | Path) -> dict[str, Any]:
             raise ProjectError(
                 f"{folder}: {tables[zoned[0]].name} gives one series per zone (column "
                 f"{recognised[zoned[0]].zone_column!r}) but no zone-to-county table was found; "
-                "add a CSV with a county column and a zone column (e.g. NCEI's "
+                "add a CSV with a county column and a zone column (e.g. nClimDiv's "
                 "county-to-division file) and run init again")
         formats["zones"] = recognised["zones"].path.name
         formats["zone_column"] = str(recognised[zoned[0]].zone_column)
@@ -198,7 +198,7 @@ def _impacts(rec: Recognised | None) -> tuple[dict[str, dict[str, Any]], tuple[i
     if rec is None:
         return {}, None
     from impactlink.errors import InputError
-    from impactlink.inputs.formats.quickstats import read_quickstats
+    from impactlink.inputs.formats.crop_survey import read_quickstats
 
     try:
         frame = read_quickstats(rec.path).frame

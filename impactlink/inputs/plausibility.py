@@ -30,7 +30,7 @@ WMO Weather and Climate Extremes Archive, https://wmo.asu.edu (accessed 2026).
 Zhang, X. et al. (2011). Indices for monitoring changes in extremes based on daily temperature
 and precipitation data. WIREs Climate Change 2, 851-870. doi:10.1002/wcc.147 (a wet day is a
 day with at least 1 mm).
-NIST Handbook 130 / USDA: 1 bushel of maize = 56 lb = 25.40 kg; 1 acre = 0.404686 ha.
+NIST Handbook 130: 1 bushel of maize = 56 lb = 25.40 kg; 1 acre = 0.404686 ha.
 """
 
 from __future__ import annotations

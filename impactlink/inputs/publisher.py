@@ -22,7 +22,7 @@ from impactlink.inputs._errors import InputError, InputWarning
 from impactlink.inputs._files import checksums_for
 from impactlink.inputs.counties import _read_counties
 from impactlink.inputs.formats._ledger import FormatResult
-from impactlink.inputs.formats.quickstats import read_quickstats
+from impactlink.inputs.formats.crop_survey import read_quickstats
 from impactlink.inputs.formats.topojson import read_topojson_counties
 from impactlink.inputs.formats.zones import read_zone_climate, read_zone_indicators, read_zone_table
 from impactlink.project import Project

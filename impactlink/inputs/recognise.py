@@ -23,7 +23,7 @@ from pathlib import Path
 
 from impactlink.inputs._errors import InputError
 from impactlink.inputs.discover import _candidates
-from impactlink.inputs.formats.quickstats import sniff_quickstats
+from impactlink.inputs.formats.crop_survey import sniff_quickstats
 from impactlink.inputs.formats.topojson import sniff_topojson
 from impactlink.inputs.formats.zones import climate_columns, zone_column_of
 

@@ -23,7 +23,7 @@ from impactlink.inputs.formats import (
     read_quickstats,
     sniff_quickstats,
 )
-from impactlink.inputs.formats.quickstats import QUICKSTATS_REASONS
+from impactlink.inputs.formats.crop_survey import QUICKSTATS_REASONS
 from impactlink.inputs.formats.topojson import read_topojson_counties, sniff_topojson
 from impactlink.inputs.formats.zones import (
     ZONE_REASONS,
@@ -163,9 +163,9 @@ def _write(path, text):
 
 
 def test_zone_table_forms(tmp_path):
-    ncei = read_zone_table(_write(tmp_path / "a.csv", "postal_fips_id,ncdc_fips_id,climdiv_id\n"
+    divtable = read_zone_table(_write(tmp_path / "a.csv", "postal_fips_id,ncdc_fips_id,climdiv_id\n"
                                   "19001,13001,1307\n19003,13003,1307\n"))
-    assert ncei.frame.to_dict("list") == {"county_id": ["19001", "19003"],
+    assert divtable.frame.to_dict("list") == {"county_id": ["19001", "19003"],
                                           "zone": ["1307", "1307"], "weight": [1.0, 1.0]}
     two = read_zone_table(_write(tmp_path / "b.csv", "c,basin\nA1,B07\nA2,\nA1,B08\n"))
     assert two.frame["zone"].tolist() == ["B07"]
@@ -215,7 +215,7 @@ def test_zone_rows_rejected_with_reasons(tmp_path):
                "0101,2000,1,1.0,50\n"    # data row 1 used
                "101,2000,1,1.0,50\n"     # data row 2: "101" is not "0101" (ids matched as text)
                "0102,2000,13,1.0,50\n"   # data row 3: month 13
-               "0102,2000,2,-99.99,50\n"  # data row 4: NCEI missing code
+               "0102,2000,2,-99.99,50\n"  # data row 4: nClimDiv missing code
                "0102,2000,3,-1,50\n"     # data row 5: negative
                "0102,2000,4,1,200\n"     # data row 6: 93 C
                ",2000,5,1,50\n"          # data row 7: blank zone

@@ -1,7 +1,7 @@
 """Files recognised by header; `init` writes only what the data support; [formats]/[units].
 
 Small files written here in the publishers' published layouts (NASS Quick Stats column
-names; NCEI's county-to-division columns ``postal_fips_id,ncdc_fips_id,climdiv_id``;
+names; nClimDiv's county-to-division columns ``postal_fips_id,ncdc_fips_id,climdiv_id``;
 TopoJSON's ``"type": "Topology"``). PET methods by input: Hargreaves and Samani (1985) needs
 daily/monthly minimum and maximum temperature, Thornthwaite (1948) only mean temperature.
 """
@@ -44,12 +44,12 @@ def test_files_are_recognised_by_header_not_name(tmp_path):
                                               "BU / ACRE", "150")])
     clim = _write(tmp_path / "a.csv", "climdiv_id,year,month,precip_in,tavg_f\n9001,2000,1,1,30\n")
     pdsi = _write(tmp_path / "b.csv", "climdiv_id,year,month,pdsi\n9001,2000,1,-1.2\n")
-    ncei = _write(tmp_path / "c.csv", "postal_fips_id,ncdc_fips_id,climdiv_id\n90001,41001,9001\n")
+    divtable = _write(tmp_path / "c.csv", "postal_fips_id,ncdc_fips_id,climdiv_id\n90001,41001,9001\n")
     two = _write(tmp_path / "d.csv", "county,basin\n90001,B1\n")
     topo = _write(tmp_path / "e.json", '{"type":"Topology","objects":{},"arcs":[]}')
     other = _write(tmp_path / "f.csv", "site,date,flow,stage,temp\n1,2000-01-01,3,4,5\n")
     got = {p.name: (r.table, r.format) if (r := recognise_file(p)) else None
-           for p in (qs, clim, pdsi, ncei, two, topo, other)}
+           for p in (qs, clim, pdsi, divtable, two, topo, other)}
     assert got == {"download (3).csv": ("yields", "quickstats"), "a.csv": ("climate", "zones"),
                    "b.csv": ("indicators", "zones"), "c.csv": ("zones", "table"),
                    "d.csv": ("zones", "table"), "e.json": ("counties", "topojson"),

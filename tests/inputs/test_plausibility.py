@@ -2,7 +2,7 @@
 
 Sources: WMO Weather and Climate Extremes Archive (https://wmo.asu.edu): 56.7 C Furnace Creek
 1913, -89.2 C Vostok 1983, 1825 mm in 24 h Foc-Foc 1966, 9300 mm in one month Cherrapunji
-1861. NIST SP 811 (2008): C = (F - 32) x 5/9; 1 in = 25.4 mm exactly. USDA/NIST: 1 bushel of
+1861. NIST SP 811 (2008): C = (F - 32) x 5/9; 1 in = 25.4 mm exactly. NIST: 1 bushel of
 maize = 56 lb = 25.40 kg, 1 acre = 0.404686 ha, so 1 bu/acre = 62.77 kg/ha.
 """
 
@@ -103,7 +103,7 @@ def test_kg_per_ha_county_among_t_per_ha():
 
 
 def test_kg_per_ha_county_among_bushels_per_acre():
-    """150 bu/acre of maize = 150 x 62.77 = 9416 kg/ha (USDA/NIST bushel and acre)."""
+    """150 bu/acre of maize = 150 x 62.77 = 9416 kg/ha (NIST bushel and acre)."""
     y = pd.DataFrame({"county_id": list("ABCDE"), "crop": "maize",
                       "yield": [150.0, 160.0, 140.0, 155.0, 150 * 62.77]})
     found = scaled_counties(y, "yield", by=("crop",))

@@ -2,7 +2,7 @@
 
 Every expected number is computed here from the raw files with the standard library's csv
 and json modules (an implementation independent of the readers), or quoted from the data's
-README (/work/shared/realdata/README.md, describing the NASS, NCEI and Census files).
+README (/work/shared/realdata/README.md, describing the NASS, nClimDiv and Census files).
 """
 
 from __future__ import annotations
@@ -18,7 +18,7 @@ from pyproj import Transformer
 from realdata_paths import realdata_dir
 
 from impactlink.inputs.formats import MARKER_REASONS, read_quickstats, sniff_quickstats
-from impactlink.inputs.formats.quickstats import QUICKSTATS_REASONS
+from impactlink.inputs.formats.crop_survey import QUICKSTATS_REASONS
 from impactlink.inputs.formats.topojson import read_topojson_counties, sniff_topojson
 from impactlink.inputs.formats.zones import (
     read_zone_climate,
@@ -109,13 +109,13 @@ def test_zone_table_gives_each_county_one_division(data, zone_table):
     assert zone_table.rows_read == len(raw) == 99 and zone_table.rows_rejected == 0
     assert z["county_id"].is_unique and len(z) == 99
     assert Counter(z["zone"]) == Counter(r["climdiv_id"] for r in raw)
-    # NCEI numbers states alphabetically (Iowa 13); FIPS does not (Iowa 19); same county code
+    # nClimDiv numbers states alphabetically (Iowa 13); FIPS does not (Iowa 19); same county code
     assert {r["ncdc_fips_id"][:2] for r in raw} == {"13"}
     assert {r["postal_fips_id"][:2] for r in raw} == {"19"}
     assert all(r["ncdc_fips_id"][2:] == r["postal_fips_id"][2:] for r in raw)
 
 
-def test_units_are_read_from_the_ncei_header(data):
+def test_units_are_read_from_the_division_header(data):
     with open(data / CLIM) as fh:
         header = fh.readline().strip().split(",")
     assert units_from_header(header) == {"precip_unit": "in", "temp_unit": "F"}

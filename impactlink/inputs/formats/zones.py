@@ -1,15 +1,15 @@
 """Climate and indicators given per zone (climate division, basin, grid cell) -> per county.
 
-Many publishers give climate per zone rather than per county: NOAA NCEI's climate divisional
+Many publishers give climate per zone rather than per county: the national climate centre's climate divisional
 database (nClimDiv) per climate division, hydrologic data per basin, gridded data per cell.
 A zone-to-county table says which zone(s) each county takes its series from:
 
-- NCEI's county-to-division file: ``postal_fips_id`` (5-digit county GEOID), ``ncdc_fips_id``
-  (NCEI state code + county code), ``climdiv_id`` (NCEI state code + 2-digit division);
+- nClimDiv's county-to-division file: ``postal_fips_id`` (5-digit county GEOID), ``ncdc_fips_id``
+  (nClimDiv state code + county code), ``climdiv_id`` (nClimDiv state code + 2-digit division);
 - any two-column table ``county, zone`` (each county one zone);
 - area weights ``county, zone, weight`` (a county takes the weighted mean of its zones).
 
-**NCEI state codes are not FIPS codes.** NCEI numbers the 48 contiguous states
+**nClimDiv state codes are not FIPS codes.** nClimDiv numbers the 48 contiguous states
 alphabetically (Iowa = 13), FIPS does not (Iowa = 19). The county side of the table is the
 FIPS GEOID (``postal_fips_id``); the zone side (``climdiv_id``) is matched to the climate
 file's zone column *as text*, exactly as written (``"1301"``), never converted.
@@ -56,9 +56,9 @@ _COUNTY_COLUMNS = (COUNTY, "postal_fips_id", "geoid", "fips", "county_fips", "co
 _WEIGHT_COLUMNS = ("weight", "area_weight", "share", "fraction")
 #: Exact length of an inch in millimetres (international yard and pound agreement, 1959).
 MM_PER_INCH = 25.4
-#: NCEI's missing-value codes in nClimDiv files: -99.99 (precipitation, PDSI) and -99.90
-#: (temperature) (from memory of NCEI's divisional-data readme), with the contract's own.
-NCEI_SENTINELS = (-99.99, -99.9, *SENTINELS)
+#: nClimDiv's missing-value codes in nClimDiv files: -99.99 (precipitation, PDSI) and -99.90
+#: (temperature) (from memory of nClimDiv's divisional-data readme), with the contract's own.
+CLIMDIV_SENTINELS = (-99.99, -99.9, *SENTINELS)
 #: Plausible air temperature range [degrees C] (recorded extremes about -89 and +57).
 TEMPERATURE_RANGE_C = (-90.0, 60.0)
 
@@ -168,7 +168,7 @@ def zone_column_of(columns: Sequence[str]) -> str | None:
 
 
 def read_zone_table(path: str | Path) -> FormatResult:
-    """Read a zone-to-county table (NCEI county-to-division, two-column, or area weights).
+    """Read a zone-to-county table (nClimDiv county-to-division, two-column, or area weights).
 
     Parameters
     ----------
@@ -231,7 +231,7 @@ def read_zone_climate(path: str | Path, zones: pd.DataFrame, *, zone_column: str
     ----------
     path : str or Path
         CSV with a zone column, ``date`` or ``year`` + ``month`` (+ ``day``), and value
-        columns named as in :func:`climate_columns` (e.g. NCEI's ``climdiv_id, year, month,
+        columns named as in :func:`climate_columns` (e.g. nClimDiv's ``climdiv_id, year, month,
         precip_in, tavg_f``).
     zones : DataFrame
         ``county_id``, ``zone``, ``weight`` (the frame of :func:`read_zone_table`).
@@ -288,7 +288,7 @@ def read_zone_climate(path: str | Path, zones: pd.DataFrame, *, zone_column: str
 def read_zone_indicators(path: str | Path, zones: pd.DataFrame, *,
                          zone_column: str | None = None,
                          counties: Sequence[str] | None = None) -> FormatResult:
-    """Read a per-zone indicator file (e.g. NCEI's division Palmer index) -> indicators contract.
+    """Read a per-zone indicator file (e.g. nClimDiv's division Palmer index) -> indicators contract.
 
     Parameters
     ----------
@@ -445,7 +445,7 @@ def _numbers(led: RowLedger, text: pd.Series, column: str) -> np.ndarray:
     v = pd.to_numeric(s, errors="coerce").to_numpy(float)
     led.reject((s == "").to_numpy(), column, s, REASONS["missing"])
     led.reject(~np.isfinite(v), column, s, REASONS["number"])
-    led.reject(np.isin(np.round(v, 2), NCEI_SENTINELS), column, s, REASONS["sentinel"])
+    led.reject(np.isin(np.round(v, 2), CLIMDIV_SENTINELS), column, s, REASONS["sentinel"])
     return v
 
 
@@ -482,7 +482,7 @@ def _finish(table: str, path: Path, led: RowLedger, assigned: ZoneAssignment,
         raise InputError(f"{path}: no usable row in {led.n} rows (most common reasons: {why}); "
                          "check that the zone ids match the zone table's")
     notes = [*notes, f"{path}: {len(assigned.provenance)} counties take zone series "
-             "(zone ids matched as text; NCEI state codes are not FIPS codes)"]
+             "(zone ids matched as text; nClimDiv state codes are not FIPS codes)"]
     if assigned.counties_without_zone:
         notes.append(f"{path}: {len(assigned.counties_without_zone)} counties have no zone in "
                      f"the zone table (e.g. {list(assigned.counties_without_zone[:5])})")

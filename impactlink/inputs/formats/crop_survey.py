@@ -1,4 +1,4 @@
-"""USDA NASS Quick Stats CSV exports -> the yields contract.
+"""NASS Quick Stats CSV exports -> the yields contract.
 
 A Quick Stats export (the "Spreadsheet" download of https://quickstats.nass.usda.gov) has 21
 quoted text columns, written by the publisher as :data:`QUICKSTATS_COLUMNS`. The file is
