@@ -137,8 +137,8 @@ CASES = [
      'impacts.hay_price_spike.window_stat: got "median" (text), expected one of "value", "min", '
      '"mean"; write e.g. window_stat = "value"'),
     ("trend_cubic", 'trend = "linear"', 'trend = "cubic"',
-     'impacts.maize_shortfall.trend: got "cubic" (text), expected one of "linear", '
-     '"quadratic", "lowess"; write e.g. trend = "linear"'),
+     'impacts.maize_shortfall.trend: got "cubic" (text), expected one of "auto", "linear", '
+     '"quadratic", "lowess"; write e.g. trend = "auto"'),
     ("horizon_repeats", "horizon_weeks = [4, 13]", "horizon_weeks = [4, 4]",
      "impacts.restrictions.horizon_weeks: got [4, 4] (a value repeats), expected a non-empty "
      "list of whole numbers from 1 to 520, each once; write horizon_weeks = [4]"),

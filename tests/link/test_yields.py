@@ -115,7 +115,9 @@ def test_planted_shortfall_is_recovered_and_records_reconcile(counties):
     assert fr.loc[("a", 2008), "level"] == 2
     assert binary.frame["level"].sum() == 1
     assert ordinal.events == 1
-    assert ordinal.rule.reference == "season_week" and ordinal.rule.season_week == 31
+    # no season_week given: the end of the window is searched over ISO weeks 22-40, every 2
+    assert ordinal.rule.reference == "season_week" and ordinal.rule.season_week == 40
+    assert ordinal.rule.season_end_weeks == tuple(range(22, 41, 2))
     # withheld value rejected (not imputed), unknown county rejected, oats not selected
     rec = res.reconciliation.iloc[0]
     assert (rec["records"], rec["used"], rec["rejected"], rec["outside_coverage"],
