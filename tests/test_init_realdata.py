@@ -98,7 +98,7 @@ def test_check_reads_every_raw_row(folder, bundle, capsys):
 
     assert main(["check", str(folder / "impactlink.toml")]) == 0
     out = capsys.readouterr().out
-    assert "9658" in out and "pooled" in out
+    assert "9,658" in out and "pooled" in out
 
 
 def test_units_converted_once(bundle):

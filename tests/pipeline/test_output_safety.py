@@ -30,8 +30,11 @@ def _reduced_toml(folder: Path, output_dir: str) -> Path:
     text = (SCENARIO / "impactlink.toml").read_text()
     text = text.replace('data_dir = "."', f'data_dir = "{SCENARIO.as_posix()}"')
     text = text.replace('output_dir = "../reports/scenario"', f'output_dir = "{output_dir}"')
-    text = text.replace("scales_weeks = [4, 8, 13, 26, 39, 52, 104]", "scales_weeks = [4, 13]")
-    assert str(SCENARIO) in text and output_dir in text and "[4, 13]" in text
+    # the audit ladders and the example trigger plan use SPI-13 and SPEI-26
+    text = text.replace("scales_weeks = [4, 8, 13, 26, 39, 52, 104]", "scales_weeks = [4, 13, 26]")
+    text = text.replace('plan = "trigger_plan.toml"',
+                        f'plan = "{(SCENARIO / "trigger_plan.toml").as_posix()}"')
+    assert str(SCENARIO) in text and output_dir in text and "[4, 13, 26]" in text
     folder.mkdir(parents=True, exist_ok=True)
     path = folder / "impactlink.toml"
     path.write_text(text)
