@@ -2,9 +2,12 @@
 
 from __future__ import annotations
 
+import warnings
+
 import numpy as np
 import pandas as pd
 
+from impactlink.errors import LinkWarning
 from impactlink.link._common import (
     Ledger,
     LinkError,
@@ -118,7 +121,19 @@ def link_yields(spec, tables, *, counties, weeks=None, lags_weeks=(), equal_area
         want = opts.get(col)
         if want is not None:
             want = [want] if isinstance(want, str) else list(want)
-            sel &= y[col].isin([str(w) for w in want]).to_numpy()
+            # matched by normal form (case, surrounding space, Unicode), so "Maize " and
+            # "MAIZE" are the project's "maize"; the project's spelling is kept
+            from impactlink.inputs.keys import match_keys  # one home of key normal forms
+
+            km = match_keys(y[col], [str(w) for w in want], key=col)
+            hit = km.matched.notna().to_numpy()
+            respelt = int((hit & (y[col].to_numpy() != km.matched.fillna("").to_numpy())).sum())
+            if respelt:
+                warnings.warn(LinkWarning(
+                    f"[impacts.{spec.name}] {respelt} {col} value(s) written differently from "
+                    f"{want} (case, spaces or Unicode form) were matched to them"), stacklevel=2)
+            y.loc[hit, col] = km.matched[hit].astype(str).to_numpy()
+            sel &= hit
     not_selected = int((~sel).sum())
     y = y.loc[sel]
     if len(y) == 0:

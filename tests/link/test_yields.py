@@ -217,3 +217,29 @@ def test_explicit_trends_still_work_beside_auto(counties):
     lin = build_targets(ImpactSpec("corn", "yields", {"trend": "linear"}), {"yields": ys},
                         counties=counties, weeks=weeks).targets[0]
     assert lin.provenance["trend"] == "linear" and "trend_errors" not in lin.provenance
+
+
+def test_crop_keys_match_by_normal_form_and_are_not_counted_as_withheld():
+    """"Maize ", "MAIZE" and full-width "Ｍａｉｚｅ" are the project's "maize" (NFKC, case,
+    surrounding space: Unicode Standard Annex #15); nothing vanishes as withheld."""
+    import warnings as _w
+
+    import pandas as pd
+
+    from impactlink.link.yields import link_yields
+    from impactlink.project import ImpactSpec
+
+    years = list(range(2000, 2012))
+    spellings = ["maize", "Maize ", "MAIZE", "Ｍａｉｚｅ"]
+    ys = pd.DataFrame({"county_id": "a", "year": years,
+                       "crop": [spellings[i % 4] for i in range(len(years))],
+                       "yield": [5.0 + 0.1 * i for i in range(len(years))]})
+    counties = pd.DataFrame({"county_id": ["a"], "region": ["r"]})
+    spec = ImpactSpec(name="m", source="yields", options={"crop": "maize", "trend": "linear",
+                                                           "min_years": 5, "season_week": 31})
+    with _w.catch_warnings(record=True) as caught:
+        _w.simplefilter("always")
+        res = link_yields(spec, {"yields": ys}, counties=counties,
+                          weeks=pd.date_range("2000-01-03", periods=700, freq="7D"))
+    assert len(res.targets[0].frame) == len(years)
+    assert any("matched" in str(w.message) for w in caught)
