@@ -310,7 +310,7 @@ def test_topojson_errors(tmp_path):
     assert not sniff_topojson(csvfile)
 
 
-@pytest.mark.parametrize("name", ["quickstats", "zones"])
+@pytest.mark.parametrize("name", ["crop_survey", "zones"])
 def test_docstring_examples_run(name):
     import doctest
     import importlib
