@@ -74,9 +74,10 @@ def _score_chunk(task) -> list[list[dict]]:
         G = layout.n_blocks
         ji, gi = np.nonzero(layout.scored[layout.n_main:])
         for u, h in enumerate(hists):
-            P_oof = E.predict_blocks(h, coef[u], use_cells=use_cells, n_levels=layout.n_levels,
-                                     jobs=layout.block_fold, blocks=np.arange(G))
-            rec = _score_oof(P_oof, h.N, layout, W)
+            P_oof, eta = E.predict_blocks(h, coef[u], use_cells=use_cells,
+                                          n_levels=layout.n_levels, jobs=layout.block_fold,
+                                          blocks=np.arange(G), return_eta=True)
+            rec = _score_oof(P_oof, h.N, layout, W, rank=eta)
             rec["model"] = model
             rec["coef_main"] = coef[u, : layout.n_main]
             rec["n_unconverged"] = int((~conv[u]).sum())
@@ -86,7 +87,7 @@ def _score_chunk(task) -> list[list[dict]]:
                                         n_levels=layout.n_levels, jobs=ji + layout.n_main,
                                         blocks=gi)
                 rps = E.block_losses(P_in, h.N[gi])["rps"]
-                inner = np.zeros(layout.n_folds)
+                inner = np.zeros(layout.n_groups)
                 np.add.at(inner, layout.inner_of[ji + layout.n_main], rps)
                 rec["inner"] = inner
             out[u].append(rec)

@@ -22,11 +22,11 @@ def _local_and_predictions(ctx, features, units, records, base, table, *, n_loca
     clim_P = base[0]["P_oof"][ctx.block, 0]
     clim_loss = rps_per_row(clim_P, lvl)
     losses = []
-    best_P = None
+    best_P = best_eta = None
     for j, row in enumerate(order):
-        P = _row_probs(ctx, features, units, recs[row])
+        P, eta = _row_probs(ctx, features, units, recs[row])
         if j == 0:
-            best_P = P
+            best_P, best_eta = P, eta
         losses.append(rps_per_row(P, lvl))
     losses = np.array(losses)
     event = (lvl >= 1).astype(float)
@@ -67,6 +67,7 @@ def _local_and_predictions(ctx, features, units, records, base, table, *, n_loca
         "level": lvl,
         "event": event.astype(int),
         "p_event_best": q_best,
+        "eta_best": best_eta,  # held-out linear predictor: the ROC area's ordering
         "p_event_climatology": 1 - clim_P[:, 0],
         "p_event_seasonal": 1 - base[1]["P_oof"][ctx.block, base[1]["cat"], 0],
     })
@@ -77,13 +78,14 @@ def _local_and_predictions(ctx, features, units, records, base, table, *, n_loca
     return local, preds, rel
 
 
-def _row_probs(ctx, features, units, rec) -> np.ndarray:
-    """Out-of-fold level probabilities (rows, K) of one single candidate, row by row."""
+def _row_probs(ctx, features, units, rec) -> tuple[np.ndarray, np.ndarray]:
+    """Out-of-fold level probabilities (rows, K) and linear predictor (rows,) of one single
+    candidate, row by row."""
     u = units[rec["unit"]]
     lay = ctx.layout
-    P_oof = E.predict_blocks(u.hist, rec["coef_main"], use_cells=u.use_cells,
-                             n_levels=lay.n_levels, jobs=lay.block_fold,
-                             blocks=np.arange(lay.n_blocks))
+    P_oof, eta = E.predict_blocks(u.hist, rec["coef_main"], use_cells=u.use_cells,
+                                  n_levels=lay.n_levels, jobs=lay.block_fold,
+                                  blocks=np.arange(lay.n_blocks), return_eta=True)
     x = _feature(features, u.key, len(ctx.target.frame))[ctx.rows]
     mu, sd = u.transform[0][:2]
     b = E.bin_codes((x - mu) / sd, u.n_bins)
@@ -91,4 +93,4 @@ def _row_probs(ctx, features, units, rec) -> np.ndarray:
         b = b * u.n_season + ctx.seasons.code
     cell = ctx.pers_cells[u.lag] if u.hist.n_cells > 1 else np.zeros_like(b)
     r = u.row_map[b * u.hist.n_cells + cell]
-    return P_oof[ctx.block, r]
+    return P_oof[ctx.block, r], eta[ctx.block, r]

@@ -19,9 +19,9 @@ def _nested(ctx, records, base) -> dict:
     singles = [r for r in records if r["model"] == "index" and "inner" in r]
     if not singles or ctx.layout.excl.shape[0] == ctx.layout.n_main:
         return {}
-    inner = np.array([r["inner"] for r in singles])  # (S, F)
-    chosen = np.argmin(inner, axis=0)  # (F,)
+    inner = np.array([r["inner"] for r in singles])  # (S, groups)
     lay = ctx.layout
+    chosen = np.argmin(inner, axis=0)[lay.group_of_fold]  # (F,) the pick of each fold
     rps = np.array([r["rps_g"] for r in singles])
     pick = chosen[lay.block_fold]
     rps_nested = rps[pick, np.arange(lay.n_blocks)]

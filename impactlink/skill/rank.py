@@ -156,7 +156,9 @@ def rank_candidates(
     with the best of its model type reaches 0; ``beats_*`` flags need the lower end of
     the paired difference with that baseline above 0. The nested estimate picks the best
     ``index`` candidate afresh inside each outer fold by an inner year-blocked CV on the
-    remaining folds (Varma & Simon 2006) and scores that pick on the outer fold.
+    remaining folds (Varma & Simon 2006) and scores that pick on the outer fold; with more
+    than 10 outer folds they are first dealt into 10 interleaved selection groups, each
+    pick made without its whole group (:func:`impactlink.skill._engine.make_layout`).
 
     References
     ----------

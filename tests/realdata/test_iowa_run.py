@@ -77,9 +77,8 @@ def test_shortfall_roc_area_and_selection_aware_interval(iowa_run):
                  & (skill["index"] == binary["best_index"])
                  & (skill["scale_weeks"] == binary["best_scale_weeks"])
                  & (skill["lag_weeks"] == binary["best_lag_weeks"])]
-    # measured: 0.695 for the 20 % shortfall (the issue asks for 0.70; see the closing note),
-    # 0.706 for any shortfall of 10 % or more (the ordinal target's event)
-    assert float(rows["roc_auc"].iloc[0]) >= 0.65
+    # measured: 0.703 for the 20 % shortfall, 0.713 for any shortfall of 10 % or more
+    assert float(rows["roc_auc"].iloc[0]) >= 0.70
     primary = summary[~summary["target"].str.contains("shortfall_")].iloc[0]
     assert float(primary["best_roc_auc"]) >= 0.70
     assert float(primary["nested_rpss_lo"]) > 0  # selection-aware interval excludes zero
