@@ -25,6 +25,7 @@ from impactlink.inputs.bundle import (
     _count_row,
     summary_frame,
 )
+from impactlink.inputs.counties import counties_without_polygon
 from impactlink.inputs.discover import _candidates, _unsupported
 from impactlink.inputs.loss import degree_extent, raise_losses, table_loss
 from impactlink.inputs.publisher import read_published
@@ -131,9 +132,10 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
     raise_losses(losses)  # before the record-length check and before any index is computed
     _check_record_length(tables["climate"], files["climate"], project)
     notes += _climate_gaps(tables["climate"], tables["counties"], files["climate"], project)
+    rej = pd.concat(rejected, ignore_index=True)[REJECTED_COLUMNS]
+    notes += counties_without_polygon(rej, files["counties"])
     for message in notes:
         warnings.warn(message, InputWarning, stacklevel=2)
-    rej = pd.concat(rejected, ignore_index=True)[REJECTED_COLUMNS]
     rej = rej.sort_values(["table", "row"], kind="stable").reset_index(drop=True)
     return InputBundle(
         tables=tables,
