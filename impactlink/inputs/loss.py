@@ -91,8 +91,9 @@ def table_loss(name: str, path: Path | str, count: dict[str, Any], rejected: pd.
     reasons = _top_reasons(rejected)
     if outside:
         reasons.append(f"{outside:,} points outside the counties' extent")
-    hints = [h for h in (swap_hint, _lat_hint(frame), _order_hint(rejected, n),
-                         _unit_hint(rejected, lost), _date_hint(rejected, lost)) if h]
+    swap = _lat_hint(frame) or swap_hint  # one lon/lat hint: the plainer evidence first
+    hints = [h for h in (swap, _order_hint(rejected, n),
+                         _unit_hint(rejected, lost, converted=frame is None), _date_hint(rejected, lost)) if h]
     hint = f"; hint: {'; '.join(dict.fromkeys(hints))}" if hints else ""
     return (f"{path}: the {name} table loses {how} in the inputs stage, more than "
             f"max_rejected_share = {limit:g} allows (top reasons: {'; '.join(reasons)}){hint}; "
@@ -193,7 +194,9 @@ def _order_hint(rejected: pd.DataFrame, n: int) -> str:
             f"they start; exchange the two column names")
 
 
-def _unit_hint(rejected: pd.DataFrame, lost: int) -> str:
+def _unit_hint(rejected: pd.DataFrame, lost: int, *, converted: bool) -> str:
+    """A unit hint: the column's unit suffix for a contract table; for a publisher file whose
+    units the project converts (``converted``), the ``[units]`` key."""
     if not len(rejected):
         return ""
     mask = rejected["reason"].astype(str).str.contains("|".join(map(re.escape, _LIMIT_REASONS)))
@@ -205,10 +208,10 @@ def _unit_hint(rejected: pd.DataFrame, lost: int) -> str:
     suffix = next((s for s in _UNIT_NAME if col.endswith(s)), "")
     unit = f"{_UNIT_NAME[suffix]}, as the suffix {suffix!r} says" if suffix else "its declared unit"
     key = _UNIT_KEY.get(col)
-    declare = (f", or declare the file's unit under [units] ({key} = ...) so it is converted"
-               if key else "")
+    fix = (f"declare the file's unit under [units] ({key} = ...) so it is converted"
+           if converted and key else f"give the column in {unit} (convert the values)")
     return (f"column {col} looks like it is in another unit: {len(sub):,} values lie beyond a "
-            f"physical limit (e.g. {e}); give the column in {unit}{declare}")
+            f"physical limit (e.g. {e}); {fix}")
 
 
 def _date_hint(rejected: pd.DataFrame, lost: int) -> str:
