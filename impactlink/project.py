@@ -15,7 +15,7 @@ from pathlib import Path
 from typing import Any, TypeVar
 
 from impactlink.errors import ProjectError
-from impactlink.project_check import check_files, check_raw
+from impactlink.project_check import check_files, check_raw, found_tables
 from impactlink.project_formats import (  # [formats] / [units]: publisher layouts and units
     TABLE_FORMATS,
     FormatSettings,
@@ -23,7 +23,7 @@ from impactlink.project_formats import (  # [formats] / [units]: publisher layou
     check_formats,
 )
 from impactlink.project_schema import toml_text
-from impactlink.schema import EQUAL_AREA_CRS, TABLES
+from impactlink.schema import EQUAL_AREA_CRS
 
 __all__ = [
     "ProjectError",
@@ -166,6 +166,7 @@ class Project:
     tables: dict[str, Path]
     seed: int = 0
     jobs: int = 1
+    max_rejected_share: float = 0.2  # a table losing more of its rows stops the run; 1 = never
     calibration: Calibration = field(default_factory=Calibration)
     indices: IndexSettings = field(default_factory=IndexSettings)
     audit: tuple[AuditLadder, ...] = (AuditLadder(),)
@@ -271,7 +272,7 @@ def project_from_dict(
     where = str(path) if path else "project settings"
     problems = check_raw(raw, option_values=complete)
     if not problems and complete:
-        problems = check_files(raw, Path(base), tables_found=_found_tables(raw, Path(base)))
+        problems = check_files(raw, Path(base), tables_found=found_tables(raw, Path(base)))
     if problems:
         lines = tuple(p.line(where) for p in problems)
         if len(lines) == 1:
@@ -281,18 +282,6 @@ def project_from_dict(
             problems=lines,
         )
     return _build(raw, base=Path(base), path=path, output_dir=output_dir)
-
-
-def _found_tables(raw: dict[str, Any], base: Path) -> set[str]:
-    """Contract tables found by file name in the data folder (as the inputs stage finds them)."""
-    from impactlink.inputs.discover import SUPPORTED_EXTENSIONS
-
-    folder = (base / raw.get("project", {}).get("data_dir", ".")).resolve()
-    if not folder.is_dir():
-        return set()
-    names = {n.lower(): n for n in TABLES}
-    return {names[p.stem.lower()] for p in folder.iterdir()
-            if p.is_file() and p.stem.lower() in names and p.suffix.lower() in SUPPORTED_EXTENSIONS}
 
 
 def _build(raw: dict[str, Any], *, base: Path, path: Path | None,
@@ -318,6 +307,7 @@ def _build(raw: dict[str, Any], *, base: Path, path: Path | None,
         tables=tables,
         seed=int(proj.get("seed", 0)),
         jobs=int(proj.get("jobs", 1)),
+        max_rejected_share=float(proj.get("max_rejected_share", 0.2)),
         calibration=_section(Calibration, raw.get("calibration", {})),
         indices=_section(IndexSettings, raw.get("indices", {})),
         audit=tuple(_section(AuditLadder, a) for a in audit_raw),
@@ -413,6 +403,7 @@ def render_project_file(
         f"output_dir = {_toml(output_dir)}",
         "seed = 0            # seed for every random step (bootstrap, folds)",
         "jobs = 1            # worker processes for independent work",
+        "max_rejected_share = 0.2   # a table losing a larger share of its rows stops (1 = never)",
         "",
         "[tables]            # contract table -> file",
     ]

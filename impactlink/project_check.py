@@ -35,7 +35,7 @@ from impactlink.project_schema import (
 )
 from impactlink.schema import TABLES
 
-__all__ = ["check_raw", "check_files"]
+__all__ = ["check_raw", "check_files", "found_tables"]
 
 
 # --------------------------------------------------------------------------- the walk
@@ -127,6 +127,18 @@ def check_files(raw: Mapping[str, Any], base: Path, *, tables_found: set[str]) -
 
 
 # --------------------------------------------------------------------------- steps
+def found_tables(raw: dict[str, Any], base: Path) -> set[str]:
+    """Contract tables found by file name in the data folder (as the inputs stage finds them)."""
+    from impactlink.inputs.discover import SUPPORTED_EXTENSIONS  # the inputs stage's list
+
+    folder = (base / raw.get("project", {}).get("data_dir", ".")).resolve()
+    if not folder.is_dir():
+        return set()
+    names = {n.lower(): n for n in TABLES}
+    return {names[p.stem.lower()] for p in folder.iterdir()
+            if p.is_file() and p.stem.lower() in names and p.suffix.lower() in SUPPORTED_EXTENSIONS}
+
+
 def _is_table(section: str, key: str, d: Any, out: list[Problem]) -> bool:
     if isinstance(d, Mapping):
         return True

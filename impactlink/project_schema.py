@@ -114,6 +114,8 @@ SECTIONS: dict[str, dict[str, Key]] = {
         "name": Key("text", example='"my drought project"'), "data_dir": Key("text", example='"."'),
         "output_dir": Key("text", example='"impactlink_output"'),
         "seed": _int(0, None, "0"), "jobs": _int(1, 1024, "1"),
+        # share of a table's rows the inputs stage may reject before the run stops (1 = never)
+        "max_rejected_share": Key("number", 0, 1, example="0.2"),
     },
     "calibration": {
         "start_year": _int(*YEAR_RANGE, "1991"), "end_year": _int(*YEAR_RANGE, "2020"),

@@ -135,9 +135,14 @@ def _climate_gaps(
     have = pd.Series(np.bincount(pairs // 10_000, minlength=len(ids)), index=ids)
     absent = sorted(set(counties[COUNTY]) - set(have.index))
     if absent:
+        names = counties.set_index(COUNTY)["county_name"] if "county_name" in counties else None
+        named = [f"{c} ({names[c]})" if names is not None and isinstance(names.get(c), str)
+                 and names[c] else str(c) for c in absent[:20]]
+        more = f" and {len(absent) - 20} more" if len(absent) > 20 else ""
         out.append(
-            f"{path}: {len(absent)} of {len(counties)} counties have no climate rows "
-            f"(e.g. {absent[:5]}); they get no index values"
+            f"{path}: {len(absent)} of {len(counties)} counties have a polygon but no climate "
+            f"rows: {', '.join(named)}{more}; they get no index values (add their climate rows, "
+            f"or leave them out of the counties table)"
         )
     short = have[have < project.calibration.min_years]
     if len(short):

@@ -25,7 +25,9 @@ from impactlink.inputs.bundle import (
     _count_row,
     summary_frame,
 )
+from impactlink.inputs.counties import counties_without_polygon
 from impactlink.inputs.discover import _candidates, _unsupported
+from impactlink.inputs.loss import degree_extent, raise_losses, table_loss
 from impactlink.inputs.publisher import read_published
 from impactlink.inputs.table_rules import (
     DEFAULT_LADDER,
@@ -99,8 +101,11 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
     if "zones" in published:  # counted for the manifest; not a contract table
         rejected.append(published["zones"].rejected)
         counts.append(published["zones"].counts)
+    losses: list[str] = []  # one line per table that lost too many rows (stops the run)
+    where = str(project.path or "the project file")
     for name, path in files.items():
         say(f"reading {name} from {path.name}")
+        raw = None
         if name in published:
             pub = published[name]
             clean = pub.clean
@@ -112,16 +117,25 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
             rejected.append(check.rejected())
             counts.append(_count_row(name, path, check, clean))
             checksums.update(checksums_for(path))
+            raw = check.frame
         clean, implausible = _plausible(name, path, clean, counts[-1])
         rejected.append(implausible)
+        extent = (degree_extent(tables.get("counties"))
+                  if raw is not None and "lon" in raw and "lat" in raw else None)
+        line = table_loss(name, path, counts[-1], pd.concat(rejected[-2:], ignore_index=True),
+                          limit=project.max_rejected_share, frame=raw, extent=extent,
+                          where=where)
+        losses += [line] if line else []
         if name == "counties":
             ctx.set_counties(clean)
         tables[name] = clean
+    raise_losses(losses)  # before the record-length check and before any index is computed
     _check_record_length(tables["climate"], files["climate"], project)
     notes += _climate_gaps(tables["climate"], tables["counties"], files["climate"], project)
+    rej = pd.concat(rejected, ignore_index=True)[REJECTED_COLUMNS]
+    notes += counties_without_polygon(rej, files["counties"])
     for message in notes:
         warnings.warn(message, InputWarning, stacklevel=2)
-    rej = pd.concat(rejected, ignore_index=True)[REJECTED_COLUMNS]
     rej = rej.sort_values(["table", "row"], kind="stable").reset_index(drop=True)
     return InputBundle(
         tables=tables,

@@ -54,11 +54,15 @@ def write_text(folder: Path, name: str, text: str) -> Path:
     return path
 
 
-def make_project(folder: Path, *, min_years: int = 2, impacts: dict | None = None, tables=None):
+def make_project(folder: Path, *, min_years: int = 2, impacts: dict | None = None, tables=None,
+                 max_rejected_share: float = 1.0):
+    """A project over ``folder``. The row-rule tests lose a large share of their tiny tables on
+    purpose, so the table-loss stop is off by default here (1 = never stop); the stop's own
+    tests pass the share they test (tests/corpus/test_tables_loss.py)."""
     from impactlink.project import project_from_dict
 
     raw = {
-        "project": {"name": "test", "data_dir": "."},
+        "project": {"name": "test", "data_dir": ".", "max_rejected_share": max_rejected_share},
         "calibration": {"start_year": 2001, "end_year": 2003, "min_years": min_years},
     }
     if impacts:

@@ -119,7 +119,8 @@ def read_topojson_counties(path: str | Path, *, county_ids: Iterable[str] | None
              else pd.Series("", index=gdf.index))
     out = gpd.GeoDataFrame({COUNTY: ids.to_numpy(), "county_name": names.to_numpy()},
                            geometry=gdf.geometry.to_numpy(), crs=gdf.crs)
-    out = out[~(out.geometry.isna() | out.geometry.is_empty) & (out[COUNTY] != "")]
+    # a feature without geometry is kept: the counties table rejects it by row, naming it
+    out = out[out[COUNTY] != ""]
     if county_ids is not None:
         wanted = pd.Index(sorted({str(c) for c in county_ids}))
         absent = wanted.difference(pd.Index(out[COUNTY]))
@@ -152,8 +153,11 @@ def _geoid_text(ids: pd.Series) -> pd.Series:
 
 def _to_geographic(gdf, path: Path):
     if gdf.crs is not None:
+        from impactlink.inputs.counties import check_crs_range
+
+        check_crs_range(gdf.geometry.to_numpy(), gdf.crs, path)  # a projected topology
         return gdf.to_crs(GEOGRAPHIC_CRS)
-    xmin, ymin, xmax, ymax = (float(b) for b in np.asarray(gdf.total_bounds))
+    xmin, ymin, xmax, ymax = (float(b) for b in np.asarray(gdf.total_bounds))  # nan: no shape
     if not (-180 <= xmin and xmax <= 180 and -90 <= ymin and ymax <= 90):
         raise InputError(f"{path}: coordinates are not longitude/latitude (bounds {xmin:.0f}, "
                          f"{ymin:.0f}, {xmax:.0f}, {ymax:.0f}): a projected topology; use the "
