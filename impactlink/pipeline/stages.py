@@ -174,9 +174,10 @@ def rank(project: Project, inputs: InputsResult, ind: IndicesResult, lk: LinkSta
             seed=project.seed, jobs=jobs, dask_address=dask_address, progress=progress,
         )
         monthly = bool(cube.provenance.get("scale_months_of_key"))
-        res = dataclasses.replace(
+        res = dataclasses.replace(  # every table that names a candidate says its window end
             res, table=link_features.with_end_week(res.table, target, "lag_weeks", monthly),
-            summary=link_features.with_end_week(res.summary, target, "best_lag_weeks", monthly))
+            summary=link_features.with_end_week(res.summary, target, "best_lag_weeks", monthly),
+            local=link_features.with_end_week(res.local, target, "lag_weeks", monthly))
         for key, frame in (("skill", res.table), ("summary", res.summary),
                            ("reliability", res.reliability), ("local", res.local),
                            ("persistence", res.persistence)):
@@ -190,12 +191,15 @@ def rank(project: Project, inputs: InputsResult, ind: IndicesResult, lk: LinkSta
         best[target.name] = (model, cand)
         skill_tables[target.name] = res.table
         if model.ok:
-            parts["curves"].append(impact_curves(model, ci=project.models.curve_ci, meta=meta))
+            parts["curves"].append(link_features.with_end_week(
+                impact_curves(model, ci=project.models.curve_ci, meta=meta), target,
+                "lag_weeks", monthly))
             cr = crossings(model, ci=project.models.curve_ci)
             for k, v in meta.items():
                 if k not in cr.columns:
                     cr.insert(0, k, v)
-            parts["crossings"].append(cr)
+            parts["crossings"].append(link_features.with_end_week(cr, target, "lag_weeks",
+                                                                  monthly))
     c = {k: _concat(v) for k, v in parts.items()}
     return RankResult(skill=c["skill"], summary=c["summary"], reliability=c["reliability"],
                       local=c["local"], persistence=c["persistence"], curves=c["curves"],

@@ -24,7 +24,7 @@ from impactlink.report.fig_style import (
     styled,
 )
 from impactlink.report.palette import CATEGORICAL, NEUTRAL, category_colours, sequential_cmap
-from impactlink.report.text import candidate_label, index_name, score_label, target_label
+from impactlink.report.text import index_name, row_label, score_label, target_label
 
 
 @styled
@@ -211,7 +211,7 @@ def candidate_intervals(
             ax.errorbar(est[m], y[m], xerr=err[:, m], fmt=marker, color=colour, ecolor=colour,
                         capsize=2, label=label, markeredgecolor=CATEGORICAL["ink"])
     labels = [
-        candidate_label(r["index"], r["scale_weeks"], r["lag_weeks"], short=True)
+        row_label(r)
         + (f" ({r['model']})" if pd.notna(r["model"]) and r["model"] != "index" else "")
         for _, r in cand.iterrows()
     ]

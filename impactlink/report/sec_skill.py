@@ -31,12 +31,12 @@ from impactlink.report.html import Markup, details, el, join, link, paragraph, t
 from impactlink.report.runfolder import RunFolder
 from impactlink.report.svgmap import map_shapes, svg_map
 from impactlink.report.text import (
-    candidate_label,
     fmt_interval,
     fmt_num,
     impact_name,
     index_name,
     persistence_sentence,
+    row_label,
     score_label,
     target_name,
 )
@@ -79,7 +79,7 @@ def skill_section(run: RunFolder, figs: FigureSink, *, detail: bool = False) -> 
             continue
         best = cand.loc[cand[score].idxmax()]
         parts.append(el("h3", pair_title(impact, target)))
-        label = candidate_label(best["index"], best["scale_weeks"], best["lag_weeks"])
+        label = row_label(best, short=False)
         if detail:
             parts.append(figs.add(
                 f"skill_{impact}_{target}",
@@ -127,8 +127,7 @@ def _persistence_part(run: RunFolder, figs: FigureSink) -> Markup:
             for label, r in zip(labels, picks, strict=True):
                 if r is None:
                     continue
-                what = (candidate_label(r["index"], r["scale_weeks"], r["lag_weeks"], short=True)
-                        if pd.notna(r["index"]) else "")
+                what = row_label(r) if pd.notna(r["index"]) else ""
                 rows.append({"target": target_name(impact, tgt),
                              "lag_weeks": lag if lag is not None else r.get("lag_weeks"),
                              "model": label, "candidate": what,
@@ -190,8 +189,7 @@ def maps_section(run: RunFolder, figs: FigureSink) -> Markup:
             continue  # derived targets: numbers in skill_local.csv and the county cards
         title = pair_title(*key) if len(key) == 2 else impact_name(key[0])
         sub = sub.assign(candidate=[
-            candidate_label(r.get("index"), r.get("scale_weeks"), r.get("lag_weeks"), short=True)
-            for _, r in sub.iterrows()], index_shown=sub["index"].map(index_name))
+            row_label(r) for _, r in sub.iterrows()], index_shown=sub["index"].map(index_name))
         events = sub["events"] if "events" in sub.columns else pd.Series(pd.NA, index=sub.index)
         extra = {str(c): f"{cand}" + (f", {int(e)} cases" if pd.notna(e) else "")
                  for c, cand, e in zip(sub[COUNTY], sub["candidate"], events, strict=True)}
