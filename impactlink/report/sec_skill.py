@@ -86,11 +86,12 @@ def skill_section(run: RunFolder, figs: FigureSink, *, detail: bool = False) -> 
                 lambda s=sub, i=impact, t=target, sc=score: skill_heatmap(
                     s, impact=i, target=t, score=sc),
                 alt=(f"Heat maps of {score_label(score)} for {impact}, {target}, by time scale "
-                     f"(weeks, rows) and lag (weeks, columns), one panel per index "
+                     f"({_axes(cand)}), one panel per index "
                      f"({', '.join(index_name(i) for i in sorted(cand['index'].unique()))}). "
                      f"Best: {label}, score {fmt_num(best[score])}."),
                 caption=(f"{score_label(score).capitalize()} of every candidate for "
-                         f"{pair_title(impact, target)}, by time scale and lag.")))
+                         f"{pair_title(impact, target)}, by time scale and "
+                         f"{'window end' if 'window' in _axes(cand) else 'lag'}.")))
             continue
         if {f"{score}_lo", f"{score}_hi"} <= set(sub.columns):
             parts.append(figs.add(
@@ -239,3 +240,14 @@ def _with_skill(frame: pd.DataFrame) -> pd.DataFrame:
             if score in frame.columns:
                 return frame.assign(skill=frame[score])
     return frame
+
+
+def _axes(cand: pd.DataFrame) -> str:
+    """The heat map's axes in words: months for monthly input, window ends for seasonal
+    targets (as :func:`impactlink.report.figures_skill.skill_heatmap` draws them)."""
+    monthly = "scale_months" in cand.columns and cand["scale_months"].notna().any()
+    seasonal = "end_week" in cand.columns and cand["end_week"].notna().any()
+    rows = "months" if monthly else "weeks"
+    cols = "where the window ends, columns" if seasonal else "lag in weeks, columns"
+    return f"{rows}, rows; {cols}"
+
