@@ -110,8 +110,16 @@ def link(project: Project, inputs: InputsResult, ind: IndicesResult,
          progress: Progress) -> LinkStageResult:
     """Impact records -> targets on their own grids, with reconciliation counts."""
     from impactlink.link import build_targets, panel_frame
+    from impactlink.link._keys import attach_sources
+    from impactlink.link.build import with_files
+    from impactlink.link.selection import key_normalisation, normalisation_lines, unselected_rows
 
-    tables = inputs.bundle.tables
+    files = {k: str(v) for k, v in inputs.bundle.files.items()}
+    # every impact record carries its file row; text keys are matched by one normal form
+    tables = attach_sources(inputs.bundle.tables, files)
+    keys = key_normalisation(tables, project.impacts)
+    for line in normalisation_lines(keys):
+        progress(line)
     targets: list[Any] = []
     rejected: list[pd.DataFrame] = []
     recon: list[pd.DataFrame] = []
@@ -126,13 +134,20 @@ def link(project: Project, inputs: InputsResult, ind: IndicesResult,
             weeks=ind.cube.weeks,
             lags_weeks=tuple(project.link.lags_weeks),
             equal_area_crs=project.link.equal_area_crs,
+            files=files,
         )
         targets.extend(link_features.season_in_months(t, ind.cube) for t in res.targets)
         rejected.append(res.rejected)
         recon.append(res.reconciliation)
         summaries.append(res.summary)
         warns.extend(res.warnings)
+    # rows of an impact table that no impact selects: listed once, reconciled in one line
+    unused, unused_recon = unselected_rows(project.impacts, tables)
+    rejected.append(unused)
+    recon.append(unused_recon)
     link_rejected = _concat(rejected)
+    if len(link_rejected):
+        link_rejected = with_files(link_rejected, files)
     return LinkStageResult(
         targets=tuple(targets),
         panel=panel_frame(targets) if targets else pd.DataFrame(),
@@ -141,6 +156,7 @@ def link(project: Project, inputs: InputsResult, ind: IndicesResult,
         rejected=link_rejected,
         rejected_all=pd.concat([inputs.bundle.rejected, link_rejected], ignore_index=True),
         warnings=tuple(warns),
+        key_normalisation=keys,
     )
 
 
