@@ -30,6 +30,7 @@ KEY_COLUMNS: dict[str, tuple[str, ...]] = {
     "notice_snapshots": ("issuer",),
     "water_systems": ("system_id", "system_name"),
     "coverage": ("source", "region"),
+    "indicators": ("indicator",),  # matched in the indices stage (pipeline.stages.indices)
 }
 
 #: The project options that select rows, per impact source: (table, column, option).
