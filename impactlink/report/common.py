@@ -96,6 +96,17 @@ def impact_target_pairs(frame: pd.DataFrame) -> list[tuple[str, str]]:
                                   strict=True)))
 
 
+def setting(run: RunFolder, part: str, key: str, default):
+    """One project setting of the run, as recorded in ``manifest.json`` (``project.PART.KEY``)."""
+    value = ((run.manifest or {}).get("project") or {}).get(part, {}).get(key)
+    return default if value is None else value
+
+
+def percent_level(level: float) -> str:
+    """An interval's coverage as the report writes it: 0.9 -> '90 %'."""
+    return f"{100 * float(level):g} %"
+
+
 def score_for(run: RunFolder, impact: str, target: str) -> str:
     summary = run.table("skill_summary")
     if summary is not None:

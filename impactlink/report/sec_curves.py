@@ -9,9 +9,11 @@ from impactlink.report.common import (
     data_files,
     impact_target_pairs,
     pair_title,
+    percent_level,
     primary_pairs,
     section,
     sel,
+    setting,
 )
 from impactlink.report.figures_curves import impact_curves
 from impactlink.report.html import Markup, details, el, paragraph, table
@@ -26,6 +28,7 @@ def curves_section(run: RunFolder, figs: FigureSink) -> Markup:
         return section("curves", "Impact curves", absent())
     crossings = run.table("crossings")
     parts = [paragraph(CURVES_INTRO)]
+    band = percent_level(setting(run, "models", "curve_ci", 0.9))
     for impact, target in primary_pairs(run, impact_target_pairs(curves)):
         sub = sel(curves, impact=impact, target=target)
         first = sub.iloc[0]
@@ -44,8 +47,8 @@ def curves_section(run: RunFolder, figs: FigureSink) -> Markup:
                               lambda s=sub, c=cr, i=impact, t=target: impact_curves(
                                   s, c, impact=i, target=t), alt=alt,
                               caption=(f"Chance of each level of {pair_title(impact, target)} "
-                                       "against the index, with its 90 % band (state-wide "
-                                       "model).")))
+                                       f"against the index, with its {band} band "
+                                       "(state-wide model).")))
         if cr is not None and not cr.empty:
             cols = [c for c in ("level_label", "prob_level", "x_cross", "x_lo", "x_hi")
                     if c in cr.columns]

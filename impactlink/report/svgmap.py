@@ -10,6 +10,7 @@ white with a grey dotted pattern.
 
 from __future__ import annotations
 
+import hashlib
 from dataclasses import dataclass
 
 import numpy as np
@@ -98,6 +99,9 @@ def svg_map(shapes: MapShapes, values: pd.DataFrame | None, column: str | None, 
         Caption under the map.
     """
     key = Markup("")
+    # ids of this map's pattern and gradient: one page holds many maps, and SVG ids are
+    # document-wide (HTML Living Standard, "the id attribute"), so each map gets its own
+    uid = "m" + hashlib.sha1(f"{title}|{column}|{caption}|{kind}".encode()).hexdigest()[:10]
     vals: dict[str, object] = {}
     if values is not None and column is not None and len(values):
         v = values.drop_duplicates(COUNTY)
@@ -118,12 +122,12 @@ def svg_map(shapes: MapShapes, values: pd.DataFrame | None, column: str | None, 
         nums = pd.to_numeric(pd.Series(raw, dtype=object), errors="coerce").to_numpy(float)
         fills = sequential_hex(nums, vmin, vmax)
         text = [f"{x:.{digits}f} {unit}" if np.isfinite(x) else "no value" for x in nums]
-        legend = _ramp_legend(vmin, vmax, unit, shapes.height, digits)
+        legend = _ramp_legend(vmin, vmax, unit, shapes.height, digits, uid)
     body = []
     for k, cid in enumerate(shapes.ids):
         tip = f"{shapes.names[k]}: {text[k]}" + (f"; {extra[cid]}" if extra and cid in extra
                                                  else "")
-        fill = fills[k] or "url(#nv)"
+        fill = fills[k] or f"url(#{uid}nv)"
         body.append(f'<a href="#county-{esc(cid)}"><path d="{shapes.paths[k]}" fill="{fill}">'
                     f"<title>{esc(tip)}</title></path></a>")
     labels = [f'<text x="{x}" y="{y}">{esc(shapes.names[k])}</text>'
@@ -131,7 +135,7 @@ def svg_map(shapes: MapShapes, values: pd.DataFrame | None, column: str | None, 
     h = shapes.height + (60 if kind != "categorical" else 10)
     svg = (f'<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 {_WIDTH:.0f} {h:.0f}" '
            f'role="img" aria-label="{esc(title)}" class="map">'
-           f'<defs><pattern id="nv" width="6" height="6" patternUnits="userSpaceOnUse">'
+           f'<defs><pattern id="{uid}nv" width="6" height="6" patternUnits="userSpaceOnUse">'
            f'<rect width="6" height="6" fill="#fff"/><circle cx="3" cy="3" r="0.9" '
            f'fill="{NEUTRAL["baseline"]}"/></pattern></defs>'
            f'<g stroke="{NEUTRAL["edge"]}" stroke-width="0.6">{"".join(body)}</g>'
@@ -154,18 +158,19 @@ def _path(geom, minx: float, maxy: float, scale: float) -> str:
     return "".join(out)
 
 
-def _ramp_legend(vmin: float, vmax: float, unit: str, top: float, digits: int) -> list[Markup]:
+def _ramp_legend(vmin: float, vmax: float, unit: str, top: float, digits: int,
+                 uid: str) -> list[Markup]:
     y = top + 14
     stops = "".join(f'<stop offset="{k / (len(SEQUENCE) - 1):.3f}" stop-color="{c}"/>'
                     for k, c in enumerate(SEQUENCE))
     return [Markup(
-        f'<defs><linearGradient id="ramp">{stops}</linearGradient></defs>'
-        f'<rect x="20" y="{y:.0f}" width="260" height="12" fill="url(#ramp)" '
+        f'<defs><linearGradient id="{uid}ramp">{stops}</linearGradient></defs>'
+        f'<rect x="20" y="{y:.0f}" width="260" height="12" fill="url(#{uid}ramp)" '
         f'stroke="{NEUTRAL["edge"]}" stroke-width="0.5"/>'
         f'<text x="20" y="{y + 28:.0f}">{vmin:.{digits}f}</text>'
         f'<text x="280" y="{y + 28:.0f}" text-anchor="end">{vmax:.{digits}f}</text>'
         f'<text x="295" y="{y + 11:.0f}">{esc(unit)}</text>'
-        f'<rect x="295" y="{y + 17:.0f}" width="14" height="12" fill="url(#nv)" '
+        f'<rect x="295" y="{y + 17:.0f}" width="14" height="12" fill="url(#{uid}nv)" '
         f'stroke="{NEUTRAL["edge"]}" stroke-width="0.5"/>'
         f'<text x="315" y="{y + 28:.0f}">no value</text>')]
 

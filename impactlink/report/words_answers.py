@@ -76,8 +76,9 @@ GLOSSARY = (
     ("Selection-aware estimate", "Skill re-estimated by repeating the whole search over "
      "indices, time scales and leads without each year's data, so choosing the best of many "
      "candidates does not flatter the score."),
-    ("Interval", "The range the value falls in with the stated probability (here a 90 % "
-     "interval) from a bootstrap over years."),
+    ("Interval", "The range that holds the value with the stated probability, from a "
+     "bootstrap over years: skill intervals at the level of [skill] ci, curve bands at "
+     "[models] curve_ci (both 90 % unless the project file says otherwise)."),
 )
 
 

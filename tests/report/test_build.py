@@ -187,6 +187,20 @@ def test_rebuilding_gives_the_same_page(built):
     assert first == second
 
 
+def test_every_id_on_the_page_is_unique(built):
+    # HTML Living Standard, "the id attribute": an id is unique in its document (maps drawn
+    # inline as SVG share the document, so their patterns and gradients need their own ids)
+    import re
+    from collections import Counter
+
+    page = built[1].read_text(encoding="utf-8")
+    ids = Counter(re.findall(r'\sid="([^"]+)"', page))
+    assert len(ids) > 20
+    assert [i for i, n in ids.items() if n > 1] == []
+    for ref in set(re.findall(r'url\(#([^)]+)\)', page)):
+        assert ref in ids, ref
+
+
 FILES = ["skill.csv", "skill_summary.csv", "reliability.csv", "curves.csv", "crossings.csv",
          "audit.csv", "outlook.csv", "reconciliation.csv", "rejected_rows.csv", "manifest.json",
          "counties.gpkg", "triggers.csv", "trigger_timeline.csv", "contrast.csv",
