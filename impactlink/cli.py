@@ -95,7 +95,9 @@ def build_parser() -> argparse.ArgumentParser:
                            help="years to compare, e.g. 2011-2013 (default: the drought year)")
 
     s = _sub(sub, "report", "rebuild report.html from an existing run folder")
-    s.add_argument("run_dir", help="a folder written by `impactlink run`")
+    s.add_argument("run_dir", help="a folder written by `impactlink run`, or the project file "
+                   "(or project folder) whose output folder it is")
+    s.add_argument("--quiet", action="store_true", help="no progress lines")
     s.add_argument("--force", action="store_true", help=_FORCE_HELP)
 
     s = _sub(sub, "demo", "run everything on the fictional scenario into reports/demo")
@@ -179,7 +181,8 @@ def _dispatch(args: argparse.Namespace) -> int:
         from impactlink.pipeline import rebuild_report
         from impactlink.progress import Reporter
 
-        path = rebuild_report(args.run_dir, progress=Reporter(), force=args.force)
+        path = rebuild_report(args.run_dir, progress=Reporter(quiet=args.quiet),
+                              force=args.force)
         print(f"report: {path}")
         return 0
     if cmd == "demo":

@@ -140,3 +140,27 @@ def test_monthly_climate_runs_through_linking(tmp_path):
     assert (pd.DatetimeIndex(cube.weeks).day_of_week == 0).all()
     panel = pd.read_parquet(tmp_path / "out" / "panel.parquet")
     assert (panel["target"] == "restrictions:state").any()
+
+
+def test_report_command_takes_the_project_file_and_is_quiet(scenario_run, tmp_path, capsys):
+    """`impactlink report PROJECT --quiet` rebuilds the report in the project's output folder."""
+    import shutil
+
+    from impactlink.cli import main
+
+    out, _ = scenario_run
+    run_copy = tmp_path / "results"
+    shutil.copytree(out, run_copy)
+    text = (SCENARIO / "impactlink.toml").read_text(encoding="utf-8")
+    text = text.replace('data_dir = "."', f"data_dir = {json.dumps(str(SCENARIO))}", 1)
+    text = text.replace('output_dir = "../reports/scenario"',
+                        f"output_dir = {json.dumps(str(run_copy))}", 1)
+    (tmp_path / "impactlink.toml").write_text(text, encoding="utf-8")
+    shutil.copy(SCENARIO / "trigger_plan.toml", tmp_path)
+    (run_copy / "report.html").unlink()
+    capsys.readouterr()
+    assert main(["report", str(tmp_path), "--quiet"]) == 0
+    got = capsys.readouterr()
+    assert got.err == ""
+    assert got.out.strip() == f"report: {run_copy / 'report.html'}"
+    assert "statistical association" in (run_copy / "report.html").read_text(encoding="utf-8")

@@ -90,17 +90,29 @@ def rebuild_report(run_dir: str | Path, *, progress: Callable[[str], None] | Non
                    force: bool = False) -> Path:
     """Rebuild ``report.html`` (and figures, Parquet copies, layers) of an existing run folder.
 
-    The folder is copied beside itself, rebuilt there and swapped in whole, like a run.
+    ``run_dir`` is the run folder (holding ``manifest.json``), or the project file or project
+    folder whose ``output_dir`` holds it. The folder is copied beside itself, rebuilt there
+    and swapped in whole, like a run.
     """
     from impactlink.report import build_report
 
-    folder = Path(run_dir)
+    folder = _run_folder_of(Path(run_dir))
     if not folder.is_dir():
         return build_report(folder, progress=progress)  # its ReportError names the folder
     out_dir = publish.guard_output(folder, None, force=force)
     with publish.staged_folder(out_dir, keep_existing=True) as tmp:
         build_report(tmp, progress=progress)
     return out_dir / "report.html"
+
+
+def _run_folder_of(path: Path) -> Path:
+    """The run folder meant by ``path``: itself, or the output folder of the project it names."""
+    if (path / "manifest.json").is_file():
+        return path
+    project_file = path / "impactlink.toml" if path.is_dir() else path
+    if project_file.suffix == ".toml" and project_file.is_file():
+        return load_project(project_file).output_dir
+    return path
 
 
 def run_demo(*, out: str | Path | None = None, jobs: int = 1, quiet: bool = False,
