@@ -162,6 +162,9 @@ SECTIONS: dict[str, dict[str, Key]] = {
     "units": {"precip_unit": _choice("mm", "in"), "temp_unit": _choice("C", "F")},
     "contrast": {"counties": Key("texts", order="unique", empty=True, example='["90001", "90003"]'),
                  "period": Key("text", example='"2011-2013"'), "n_boot": _int(0, 100_000, "200")},
+    "report": {"county_cards": Key("texts", order="unique", empty=True,
+                                   example='["90001", "Tovova"]'),
+               "max_cards": _int(0, 100_000, "300")},
 }
 
 _SEASON = {"season_week": _int(1, 53, "31"), "window_weeks": _int(1, 52, "1"),
@@ -224,7 +227,7 @@ IMPACT_TABLES: dict[str, tuple[tuple[str, ...], ...]] = {
 INPUT_STAGE_OPTIONS = frozenset({"ladder", "stage_names", "severity_range"})
 
 TOP_LEVEL = ("project", "tables", "calibration", "indices", "audit", "impacts", "link", "models",
-        "skill", "triggers", "contrast", "formats", "units")
+        "skill", "triggers", "contrast", "report", "formats", "units")
 
 
 # --------------------------------------------------------------------------- one value

@@ -9,8 +9,8 @@ from impactlink.project import (
     ProjectError,
     load_project,
     project_from_dict,
-    render_project_file,
 )
+from impactlink.project_template import render_project_file
 
 
 def test_rendered_file_round_trips_to_defaults(tmp_path):

@@ -3,7 +3,7 @@
 :func:`plan_project` finds the tables (contract files by name, downloaded files by header,
 :mod:`impactlink.inputs.recognise`), reads just enough of them (headers, the climate years,
 the Quick Stats crops) and returns the keyword arguments of
-:func:`impactlink.project.render_project_file`:
+:func:`impactlink.project_template.render_project_file`:
 
 - ``[formats]`` / ``[units]`` for publisher files (units from headers such as ``precip_in``,
   ``tavg_f``: :func:`~impactlink.inputs.formats.zones.units_from_header`; never from values);
@@ -41,7 +41,7 @@ NORMALS = (1991, 2020)
 
 
 def plan_project(folder: str | Path) -> dict[str, Any]:
-    """Keyword arguments for :func:`~impactlink.project.render_project_file` from a folder.
+    """Keyword arguments for :func:`~impactlink.project_template.render_project_file` from a folder.
 
     Returns
     -------

@@ -17,7 +17,8 @@ from typing import Any
 
 from impactlink.errors import ProjectError
 from impactlink.progress import Reporter
-from impactlink.project import Project, load_project, render_project_file
+from impactlink.project import Project, load_project
+from impactlink.project_template import render_project_file
 
 from . import publish, stages
 from .state import CheckSummary, Run, RunResult

@@ -14,6 +14,7 @@ from impactlink.errors import ReportError, ReportWarning
 from impactlink.report.fig_style import figure_png
 from impactlink.report.html import Markup, el, image, join, link, paragraph
 from impactlink.report.runfolder import RunFolder
+from impactlink.report.svgmap import MapShapes, map_shapes
 from impactlink.report.text import impact_name, target_name
 from impactlink.schema import COUNTY
 
@@ -125,6 +126,47 @@ def county_names(run: RunFolder) -> pd.DataFrame | None:
         return None
     cols = [c for c in (COUNTY, "county_name", "region") if c in run.counties.columns]
     return pd.DataFrame(run.counties[cols])
+
+
+@dataclass(frozen=True)
+class CardChoice:
+    """Which counties get a one-page card (``[report] county_cards`` / ``max_cards``)."""
+
+    ids: tuple[str, ...]          # carded counties, in the run's county order
+    unknown: tuple[str, ...]      # listed ids or names that are not counties of the run
+    total: int                    # counties in the run
+    limit: int                    # max_cards
+    listed: bool                  # True when the project file lists the counties
+
+    @property
+    def every(self) -> bool:
+        return len(self.ids) == self.total
+
+
+def card_counties(run: RunFolder) -> CardChoice:
+    """The counties with a card: those listed in ``[report] county_cards`` (ids or names,
+    matched case-blind), else every county when there are at most ``max_cards``, else none."""
+    names = county_names(run)
+    limit = int(setting(run, "report", "max_cards", 300))
+    wanted = [str(c) for c in setting(run, "report", "county_cards", [])]
+    if names is None or names.empty:
+        return CardChoice((), tuple(wanted), 0, limit, bool(wanted))
+    ids = names[COUNTY].astype(str)
+    if not wanted:
+        chosen = tuple(ids) if len(ids) <= limit else ()
+        return CardChoice(chosen, (), len(ids), limit, False)
+    label = names["county_name"].astype(str) if "county_name" in names.columns else ids
+    key = {k.casefold(): i for k, i in zip(label, ids, strict=True)}
+    key.update({i.casefold(): i for i in ids})
+    hit = {key[w.casefold()] for w in wanted if w.casefold() in key}
+    return CardChoice(tuple(i for i in ids if i in hit),
+                      tuple(w for w in wanted if w.casefold() not in key), len(ids), limit, True)
+
+
+def page_shapes(run: RunFolder) -> MapShapes:
+    """County outlines for the page's maps, linking the counties that have a card."""
+    choice = card_counties(run)
+    return map_shapes(run.counties, linked=None if choice.every else frozenset(choice.ids))
 
 
 def impact_of(run: RunFolder) -> dict[str, str]:

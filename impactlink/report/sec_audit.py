@@ -5,11 +5,19 @@ from __future__ import annotations
 
 import pandas as pd
 
-from impactlink.report.common import FigureSink, absent, data_files, section, sel, with_names
+from impactlink.report.common import (
+    FigureSink,
+    absent,
+    data_files,
+    page_shapes,
+    section,
+    sel,
+    with_names,
+)
 from impactlink.report.figures_audit import audit_shares, record_period
 from impactlink.report.html import Markup, details, el, paragraph, table
 from impactlink.report.runfolder import RunFolder
-from impactlink.report.svgmap import map_shapes, svg_map
+from impactlink.report.svgmap import svg_map
 from impactlink.report.text import fmt_num
 from impactlink.report.words_sections import AUDIT_INTRO
 from impactlink.schema import COUNTY
@@ -21,7 +29,7 @@ def audit_section(run: RunFolder, figs: FigureSink) -> Markup:
         return section("audit", "Threshold audit", absent())
     parts = [paragraph(
         AUDIT_INTRO)]
-    shapes = map_shapes(run.counties) if run.counties is not None else None
+    shapes = page_shapes(run) if run.counties is not None else None
     ratio = pd.to_numeric(sel(audit, period=record_period(audit)).get("ratio"), errors="coerce")
     ratio_top = max(float(ratio.max()) if ratio is not None and ratio.notna().any() else 2.0, 1.0)
     for ladder, sub in audit.groupby("ladder", sort=False):

@@ -8,18 +8,21 @@ from __future__ import annotations
 import pandas as pd
 
 from impactlink.report.common import (
+    CardChoice,
     FigureSink,
     absent,
+    card_counties,
     county_names,
     impact_of,
+    page_shapes,
     section,
     sel,
 )
-from impactlink.report.html import Markup, el, link, paragraph, table
+from impactlink.report.html import Markup, details, el, link, paragraph, table
 from impactlink.report.runfolder import RunFolder
 from impactlink.report.sec_answers import primary_rows
 from impactlink.report.sec_outlook import _impact_options, season_note
-from impactlink.report.svgmap import map_shapes, svg_map
+from impactlink.report.svgmap import svg_map
 from impactlink.report.text import (
     fmt_interval,
     fmt_num,
@@ -40,38 +43,92 @@ def county_anchor(county_id) -> str:
 
 
 def finder_section(run: RunFolder, figs: FigureSink | None = None) -> Markup:
-    """The county index (names as links), a map whose counties link to their cards, and
-    the cards."""
+    """The county index (names as links to their cards), a map whose counties link to their
+    cards, the counties by region, and the cards (every county, or those the project file
+    lists in ``[report] county_cards`` when the run holds more than ``max_cards``)."""
     names = county_names(run)
     if names is None or names.empty:
         return section("finder", "County finder", absent("No county outlines in this run."))
     if "county_name" not in names.columns:
         names = names.assign(county_name=names[COUNTY].astype(str))
     names = names.assign(**{COUNTY: names[COUNTY].astype(str)}).sort_values("county_name")
-    index = el("ul", *[el("li", link("#" + county_anchor(c), n))
-                       for c, n in zip(names[COUNTY], names["county_name"], strict=True)],
-               class_="finder", aria_label="counties by name")
-    parts = [paragraph("Find a county by name, or click it on the map, to open its one-page "
-                       "card."), index]
+    choice = card_counties(run)
+    carded = names[names[COUNTY].isin(choice.ids).to_numpy(bool)]
+    parts = [paragraph(_cards_note(choice))]
+    if len(carded):
+        parts.append(el("ul", *[el("li", link("#" + county_anchor(c), n))
+                                for c, n in zip(carded[COUNTY], carded["county_name"],
+                                                strict=True)],
+                        class_="finder", aria_label="counties by name"))
     if run.counties is not None:
         region = (dict(zip(names[COUNTY], names["region"].astype(str), strict=True))
                   if "region" in names.columns else {})
         vals = names[[COUNTY]].assign(region=names[COUNTY].map(region)) if region else None
-        parts.append(svg_map(map_shapes(run.counties), vals, "region" if region else None,
-                             title="Counties (click one to open its card)", unit="region",
+        click = " (click one to open its card)" if choice.every else ""
+        parts.append(svg_map(page_shapes(run), vals, "region" if region else None,
+                             title="Counties" + click, unit="region",
                              kind="categorical", n_labels=10,
                              caption="Counties coloured by region; hover a county for its "
-                                     "name, click it for its card."))
-    cards = _Cards(run)
-    parts += [cards.card(c, n, names) for c, n in zip(names[COUNTY], names["county_name"],
+                                     "name" + (", click it for its card." if click else ".")))
+    if "region" in names.columns:
+        parts.append(_by_region(run, names, choice))
+    cards = _Cards(run, frozenset(choice.ids))
+    parts += [cards.card(c, n, names) for c, n in zip(carded[COUNTY], carded["county_name"],
                                                      strict=True)]
     return section("finder", "County finder", *parts)
+
+
+def _cards_note(choice: CardChoice) -> str:
+    """What the finder shows: every county's card, the listed ones, or none (and how to ask)."""
+    ask = ("list counties (ids or names) in [report] county_cards of the project file and run "
+           "`impactlink report` again")
+    if choice.every:
+        text = ("Find a county by name, or click it on the map, to open its one-page card.")
+    elif choice.listed:
+        text = (f"Cards for the {len(choice.ids):,} counties listed in [report] county_cards, "
+                f"of {choice.total:,} in this run; to see others, {ask}.")
+    else:
+        text = (f"This run holds {choice.total:,} counties, more than the {choice.limit:,} "
+                "that get a card by default ([report] max_cards), so counties are summarised "
+                f"by region below; for a county's card, {ask}.")
+    if choice.unknown:
+        text += (" Not counties of this run (check the spelling or the county GEOID): "
+                 + ", ".join(choice.unknown) + ".")
+    return text
+
+
+def _by_region(run: RunFolder, names: pd.DataFrame, choice: CardChoice) -> Markup:
+    """Counties per region and, for each primary impact, the county skill of its best
+    candidate: median over the region's counties and the share above zero."""
+    region = names.set_index(COUNTY)["region"].astype(str)
+    out = pd.DataFrame({"counties": region.value_counts().sort_index()})
+    out["with a card"] = region[region.index.isin(choice.ids)].value_counts().reindex(
+        out.index, fill_value=0)
+    best = _best(run)
+    summary = run.table("skill_summary")
+    if best is not None and not best.empty and "skill" in best.columns:
+        if summary is not None and not summary.empty:
+            keep = set(primary_rows(summary)["target"].astype(str))
+            best = best[best["target"].astype(str).isin(keep).to_numpy(bool)]
+        best = best.assign(region=best[COUNTY].astype(str).map(region),
+                           skill=pd.to_numeric(best["skill"], errors="coerce"))
+        for impact, g in best.dropna(subset=["region", "skill"]).groupby("impact", sort=True):
+            by = g.groupby("region")["skill"]
+            name = impact_name(impact)
+            out[f"{name}: median county skill"] = by.median().reindex(out.index)
+            out[f"{name}: share of counties above 0"] = (by.apply(lambda v: (v > 0).mean())
+                                                        .reindex(out.index))
+    shown = table(out.rename_axis("region").reset_index(), digits=2)
+    if choice.every:
+        return details("Counties by region", shown)
+    return el("div", el("h3", "Counties by region"), shown)
 
 
 class _Cards:
     """Per-county slices of each table, grouped once (not filtered once per county)."""
 
-    def __init__(self, run: RunFolder) -> None:
+    def __init__(self, run: RunFolder, carded: frozenset[str]) -> None:
+        self.carded = carded
         owner = impact_of(run)
         self.best = _group(_with_impact(_best(run), owner), COUNTY)
         self.audit = _group(_full_period(run.table("audit")), COUNTY)
@@ -205,8 +262,10 @@ class _Cards:
         for _, r in rows.head(3).iterrows():
             mine = "a" if str(r["county_a"]) == cid else "b"
             other = str(r["county_b"] if mine == "a" else r["county_a"])
+            name = self.names.get(other, other)
             items.append(el("li", f"{impact_name(r['impact'])}: with ",
-                            link("#" + county_anchor(other), self.names.get(other, other)),
+                            link("#" + county_anchor(other), name) if other in self.carded
+                            else name,
                             f": impact rate here {fmt_num(r[f'rate_{mine}'])}, there "
                             f"{fmt_num(r['rate_' + ('b' if mine == 'a' else 'a')])}"
                             + (f"; largest trait gap: {str(r['largest_trait_gap']).replace('_', ' ')}"

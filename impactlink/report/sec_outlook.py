@@ -13,6 +13,7 @@ from impactlink.report.common import (
     FigureSink,
     absent,
     data_files,
+    page_shapes,
     pair_title,
     primary_pairs,
     section,
@@ -21,7 +22,7 @@ from impactlink.report.common import (
 )
 from impactlink.report.html import Markup, details, el, paragraph, table
 from impactlink.report.runfolder import RunFolder
-from impactlink.report.svgmap import map_shapes, svg_map
+from impactlink.report.svgmap import svg_map
 from impactlink.report.text import fmt_num, level_name, row_label
 from impactlink.schema import COUNTY
 
@@ -38,7 +39,7 @@ def outlook_section(run: RunFolder, figs: FigureSink) -> Markup:
                        f"to the week of {as_of}. These are chances, not certainties. Every map "
                        "uses the same scale, 0 to 1; hover a county for its value, click it "
                        "for its card.")]
-    shapes = map_shapes(run.counties) if run.counties is not None else None
+    shapes = page_shapes(run) if run.counties is not None else None
     options = _impact_options(run.manifest or {})
     keys = [k for k in ("impact", "target") if k in out.columns]
     pairs = list(dict.fromkeys(zip(*(out[k].astype(str) for k in keys), strict=True)))

@@ -13,6 +13,7 @@ from impactlink.report.common import (
     data_files,
     impact_of,
     impact_target_pairs,
+    page_shapes,
     pair_title,
     primary_pairs,
     score_for,
@@ -29,7 +30,7 @@ from impactlink.report.figures_skill import (
 )
 from impactlink.report.html import Markup, details, el, join, link, paragraph, table
 from impactlink.report.runfolder import RunFolder
-from impactlink.report.svgmap import map_shapes, svg_map
+from impactlink.report.svgmap import svg_map
 from impactlink.report.text import (
     fmt_interval,
     fmt_num,
@@ -179,7 +180,7 @@ def maps_section(run: RunFolder, figs: FigureSink) -> Markup:
     if run.counties is None or best is None or len(best) == 0:
         return section("maps", "County maps", absent())
     parts = [paragraph(MAPS_INTRO)]
-    shapes = map_shapes(run.counties)
+    shapes = page_shapes(run)
     keys = ["impact", "target"] if "target" in best.columns else ["impact"]
     # One colour scale for skill across every panel (0 to the highest county skill).
     top = float(pd.to_numeric(best.get("skill"), errors="coerce").max()) if "skill" in best else 1.0

@@ -36,9 +36,12 @@ class MapShapes:
     label_xy: tuple[tuple[float, float], ...]
     area_rank: tuple[int, ...]
     height: float
+    #: counties whose shapes link to their card; None = every county
+    linked: frozenset[str] | None = None
 
 
-def map_shapes(counties, *, tolerance_share: float = 0.002) -> MapShapes:
+def map_shapes(counties, *, tolerance_share: float = 0.002,
+               linked: frozenset[str] | None = None) -> MapShapes:
     """Project, simplify and scale county outlines once for all maps of a page.
 
     Parameters
@@ -47,6 +50,8 @@ def map_shapes(counties, *, tolerance_share: float = 0.002) -> MapShapes:
         With ``county_id`` (and ``county_name``) and a CRS.
     tolerance_share : float, default 0.002
         Simplification tolerance as a share of the state's width.
+    linked : frozenset of str, optional
+        Counties that have a card to link to (default: every county).
 
     Raises
     ------
@@ -69,7 +74,7 @@ def map_shapes(counties, *, tolerance_share: float = 0.002) -> MapShapes:
              else gdf[COUNTY].astype(str))
     return MapShapes(ids=tuple(gdf[COUNTY].astype(str)), names=tuple(names), paths=paths,
                      label_xy=xy, area_rank=tuple(int(r) for r in rank),
-                     height=round((maxy - miny) * scale, 1))
+                     height=round((maxy - miny) * scale, 1), linked=linked)
 
 
 def svg_map(shapes: MapShapes, values: pd.DataFrame | None, column: str | None, *, title: str,
@@ -128,8 +133,9 @@ def svg_map(shapes: MapShapes, values: pd.DataFrame | None, column: str | None, 
         tip = f"{shapes.names[k]}: {text[k]}" + (f"; {extra[cid]}" if extra and cid in extra
                                                  else "")
         fill = fills[k] or f"url(#{uid}nv)"
-        body.append(f'<a href="#county-{esc(cid)}"><path d="{shapes.paths[k]}" fill="{fill}">'
-                    f"<title>{esc(tip)}</title></path></a>")
+        path = (f'<path d="{shapes.paths[k]}" fill="{fill}"><title>{esc(tip)}</title></path>')
+        body.append(f'<a href="#county-{esc(cid)}">{path}</a>'
+                    if shapes.linked is None or cid in shapes.linked else path)
     labels = [f'<text x="{x}" y="{y}">{esc(shapes.names[k])}</text>'
               for k, (x, y) in enumerate(shapes.label_xy) if shapes.area_rank[k] < n_labels]
     h = shapes.height + (60 if kind != "categorical" else 10)

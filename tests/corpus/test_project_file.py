@@ -72,7 +72,7 @@ CASES = [
      "project.seeds: unknown key; did you mean seed?"),
     ("unknown_section", "[triggers]", "[colour]\nramp = 1\n\n[triggers]",
      "colour: unknown top-level table; remove it; known: audit, calibration, contrast, formats, "
-     "impacts, indices, link, models, project, skill, tables, triggers, units"),
+     "impacts, indices, link, models, project, report, skill, tables, triggers, units"),
     ("calibration_reversed", "end_year = 2020", "end_year = 1985",
      "calibration.end_year: 1985 is before start_year 1991; write end_year = 1991 or later (or "
      "swap the two years)"),

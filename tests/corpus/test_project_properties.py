@@ -29,7 +29,7 @@ RAW = tomllib.loads((SCENARIO / "impactlink.toml").read_text(encoding="utf-8"))
 RAW["project"]["data_dir"] = str(SCENARIO)
 RAW["project"]["output_dir"] = "out"
 RAW["triggers"]["plan"] = str(SCENARIO / "trigger_plan.toml")
-for _section in ("contrast", "formats", "units"):  # tables the scenario does not write
+for _section in ("contrast", "report", "formats", "units"):  # tables the scenario does not write
     RAW.setdefault(_section, {})
 
 #: Every key the schema knows, as a path into the parsed file.

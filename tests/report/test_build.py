@@ -197,8 +197,8 @@ def test_every_id_on_the_page_is_unique(built):
     ids = Counter(re.findall(r'\sid="([^"]+)"', page))
     assert len(ids) > 20
     assert [i for i, n in ids.items() if n > 1] == []
-    for ref in set(re.findall(r'url\(#([^)]+)\)', page)):
-        assert ref in ids, ref
+    for ref in set(re.findall(r'url\(#([^)]+)\)', page)) | set(re.findall(r'href="#([^"]+)"', page)):
+        assert ref in ids, ref  # every in-page link and fill reference lands on an element
 
 
 FILES = ["skill.csv", "skill_summary.csv", "reliability.csv", "curves.csv", "crossings.csv",
