@@ -89,7 +89,7 @@ def test_unknown_trait_names_in_models_section_are_a_clear_error(tmp_path):
     from types import SimpleNamespace
 
     from impactlink.errors import ContrastError
-    from impactlink.pipeline.stages import _model_options
+    from impactlink.pipeline._stage_parts import _model_options
 
     project = quick_scenario_project(tmp_path)
     project = dataclasses.replace(project, models=dataclasses.replace(project.models,

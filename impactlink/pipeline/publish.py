@@ -35,7 +35,7 @@ from impactlink.errors import ProjectError
 from impactlink.project import Project
 from impactlink.schema import COUNTY
 
-from .state import Run
+from .state import CubeFile, Run
 
 __all__ = ["MARKER", "RunInterrupted", "guard_output", "staged_folder", "write_tables",
            "write_layers", "write_manifest"]
@@ -177,7 +177,7 @@ def _sigterm_aborts() -> Iterator[None]:
 
 
 # ----------------------------------------------------------------------------- writers
-def write_tables(folder: Path, tables: dict[str, pd.DataFrame], *,
+def write_tables(folder: Path, tables: dict[str, pd.DataFrame | CubeFile], *,
                  months_of: dict[str, int] | None = None) -> list[Path]:
     """Write each frame by its file name: ``.csv`` or ``.parquet``, deterministic bytes.
 
@@ -185,10 +185,16 @@ def write_tables(folder: Path, tables: dict[str, pd.DataFrame], *,
     the file, so the same frame gives the same bytes. With ``months_of`` (a monthly input:
     ``"index:scale_weeks"`` -> months, from the cube's provenance) every table with
     ``index`` and ``scale_weeks`` columns also gets ``scale_months`` beside them, so monthly
-    time scales are read in months.
+    time scales are read in months. A :class:`~.state.CubeFile` is written by
+    :func:`write_cube_parquet`.
     """
     written = []
     for name, frame in tables.items():
+        if isinstance(frame, CubeFile):
+            path = folder / name
+            write_cube_parquet(frame, path)
+            written.append(path)
+            continue
         if months_of:
             frame = with_scale_months(frame, months_of)
         path = folder / name
@@ -217,6 +223,48 @@ def with_scale_months(frame: pd.DataFrame, months_of: dict[str, int]) -> pd.Data
 
 def _write_parquet(frame: pd.DataFrame, path: Path) -> None:
     frame.to_parquet(path, index=False, engine="pyarrow", compression="snappy")
+    _test_delay()
+
+
+def write_cube_parquet(file: CubeFile, path: Path) -> None:
+    """``indices.parquet`` straight from the cube: one row group per (index, time scale), so
+    a national cube (3,143 counties x 2,400 weeks x 21 keys, about 160 M rows) is never one
+    frame in memory; a key costs one (weeks x counties) block.
+
+    Rows and columns are those of :meth:`IndexCube.to_frame` (county_id, week, index,
+    scale_weeks, value; week-major, counties in cube order). ``index`` is dictionary-encoded
+    (read as a category); ``value`` is float32: index values are standard-normal scores or
+    percentiles, and float32's 24-bit significand (about 7 significant digits, IEEE 754) is
+    far finer than any threshold read from them; it halves the file. The stages work on the
+    float64 cube, never on this file.
+    """
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    cube = file.cube
+    nw, nc = len(cube.weeks), len(cube.county_ids)
+    keys = cube.keys
+    names = pa.array(sorted({k[0] for k in keys}), pa.string())
+    code = {n: i for i, n in enumerate(names.to_pylist())}
+    county = pa.array(list(cube.county_ids), pa.string()).take(
+        pa.array(np.tile(np.arange(nc, dtype=np.int32), nw)))
+    week = pa.array(np.repeat(cube.weeks.values, nc))
+    schema = pa.schema([(COUNTY, pa.string()), (file.time_col, week.type),
+                        ("index", pa.dictionary(pa.int32(), pa.string())),
+                        (file.scale_col, pa.int16()), ("value", pa.float32())])
+    with pq.ParquetWriter(path, schema, compression="snappy") as writer:
+        for key in keys:
+            n = nw * nc
+            index = pa.DictionaryArray.from_arrays(
+                pa.array(np.full(n, code[key[0]], np.int32)), names)
+            scale = pa.array(np.full(n, key[1], np.int16))
+            value = pa.array(np.asarray(cube.arrays[key], np.float32).ravel(), from_pandas=True)
+            writer.write_table(pa.Table.from_arrays([county, week, index, scale, value],
+                                                    schema=schema))
+    _test_delay()
+
+
+def _test_delay() -> None:
     delay = os.environ.get(_SLOW_WRITE_ENV)
     if delay:  # lets a test interrupt a run while it writes
         time.sleep(float(delay))

@@ -20,7 +20,7 @@ if TYPE_CHECKING:
     from impactlink.project import Project
 
 __all__ = [
-    "Candidate", "InputsResult", "IndicesResult", "AuditResult", "LinkStageResult",
+    "Candidate", "InputsResult", "CubeFile", "IndicesResult", "AuditResult", "LinkStageResult",
     "RankResult", "OutlookResult", "TriggersResult", "ContrastResult", "Run", "RunResult",
     "CheckSummary",
 ]
@@ -44,18 +44,38 @@ class InputsResult:
 
 
 @dataclass(frozen=True)
-class IndicesResult:
-    """The index cube on ISO weeks, and the frame written to ``indices.parquet``.
+class CubeFile:
+    """An index cube to be written as the long table ``indices.parquet`` (columns county_id,
+    ``time_col``, index, ``scale_col``, value), one key at a time, never as one frame."""
 
-    ``frame`` keeps the input cadence (a monthly input keeps ``month`` / ``scale_months``);
+    cube: IndexCube
+    time_col: str = "week"
+    scale_col: str = "scale_weeks"
+
+    def frame(self) -> pd.DataFrame:
+        """The whole long table in memory (for small runs and tests)."""
+        return self.cube.to_frame().rename(columns={"week": self.time_col,
+                                                    "scale_weeks": self.scale_col})
+
+
+@dataclass(frozen=True)
+class IndicesResult:
+    """The index cube on ISO weeks, and the cube written to ``indices.parquet``.
+
+    ``file`` keeps the input cadence (a monthly input keeps ``month`` / ``scale_months``);
     ``cube`` is always weekly, as later stages need.
     """
 
     cube: IndexCube
-    frame: pd.DataFrame
+    file: CubeFile
 
-    def tables(self) -> dict[str, pd.DataFrame]:
-        return {"indices.parquet": self.frame}
+    @property
+    def frame(self) -> pd.DataFrame:
+        """``indices.parquet`` as one frame (builds it: avoid on national runs)."""
+        return self.file.frame()
+
+    def tables(self) -> dict[str, pd.DataFrame | CubeFile]:
+        return {"indices.parquet": self.file}
 
 
 @dataclass(frozen=True)
