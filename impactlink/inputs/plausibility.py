@@ -10,9 +10,11 @@ and per county with ``groupby``. Two kinds of finding:
 - a **value beyond a physical limit** rejects its row: :func:`beyond_physical_limits` returns
   a frame of (row, column, value, reason).
 
-The inputs stage calls :func:`check_plausibility` on each clean table after its row rules and
-before any index is computed, raises one :class:`~impactlink.errors.InputError` listing the
-fatal findings and adds the rejections to ``rejected_rows.csv``.
+The inputs stage calls :func:`unit_findings` on each contract table's values as read (after
+the cells are converted, before the row rules, so a unit mistake is never half-rejected as
+out-of-range rows) and :func:`check_plausibility` on each clean table after its row rules; it
+raises one :class:`~impactlink.errors.InputError` listing the fatal findings and adds the
+rejections to ``rejected_rows.csv``. All before any index is computed.
 
 Physical limits (World Meteorological Organization, Weather and Climate Extremes Archive,
 https://wmo.asu.edu):
@@ -50,6 +52,9 @@ __all__ = [
     "temperature_units",
     "precipitation_units",
     "scaled_counties",
+    "temperature_pairs",
+    "mixed_units",
+    "unit_findings",
     "mixed_cadence",
     "county_cadence",
     "beyond_physical_limits",
@@ -71,6 +76,9 @@ MEDIAN_TEMPERATURE_MAX_C = 45.0
 SPREAD_TEMPERATURE_MAX_C = 80.0
 #: Median of the positive values below this is inches [mm]: a wet day holds at least 1 mm
 #: (Zhang et al. 2011); a positive week or month rarely holds less than the wet day.
+#: A county's median daily ``tmax_c - tmin_c`` above this is a Fahrenheit ``tmax_c`` [C]: the
+#: widest mean day-night ranges, in high deserts, are about 20-25 C (from memory).
+DIURNAL_RANGE_MAX_C = 30.0
 WET_STEP_MIN_MM = {"daily": 1.0, "weekly": 2.0, "monthly": 5.0}
 #: Unit factors between one county and the others (log10 of the ratio) and their names.
 FACTORS: tuple[tuple[float, str, str], ...] = (
@@ -82,9 +90,12 @@ FACTORS: tuple[tuple[float, str, str], ...] = (
     (float(np.log10(15.93)), "a factor of about 16", "bu/acre among t/ha (1 t/ha = 15.93 "
      "bu/acre of maize)"),
 )
-#: Half-width of the log10 window around each factor (a factor of 10 ** 0.12 = 1.32 either
-#: way; county medians of one crop in one state rarely differ by 7x, common practice).
-FACTOR_TOLERANCE = 0.12
+#: Half-width of the log10 window around each factor: three median absolute deviations of the
+#: group's log county medians (about two standard deviations), within 0.12 .. 0.3 (a factor of
+#: 1.32 .. 2 either way; county medians of one crop and practice in one state rarely differ by
+#: 3x, common practice). A county at the low edge of its group, scaled by 1,000, still lands
+#: in the window.
+FACTOR_TOLERANCE = (0.12, 0.3)
 CADENCE_DAYS = {"daily": (1, 1), "weekly": (7, 7), "monthly": (28, 31)}
 
 
@@ -116,7 +127,8 @@ class PlausibilityResult:
         return self.rejected.copy()
 
 
-def check_plausibility(frame: pd.DataFrame, table: str, *, file: str = "") -> PlausibilityResult:
+def check_plausibility(frame: pd.DataFrame, table: str, *, file: str = "", units: bool = True
+                       ) -> PlausibilityResult:
     """Every plausibility check that applies to one clean table.
 
     Parameters
@@ -133,18 +145,46 @@ def check_plausibility(frame: pd.DataFrame, table: str, *, file: str = "") -> Pl
     -------
     PlausibilityResult
     """
-    fatal: list[UnitFinding] = []
+    fatal = unit_findings(frame, table, file=file) if units else []
     rejected = _empty_rejected()
     if table == "climate" and len(frame):
+        rejected = beyond_physical_limits(frame)
+    return PlausibilityResult(fatal=tuple(fatal), rejected=rejected)
+
+
+def unit_findings(frame: pd.DataFrame, table: str, *, file: str = "") -> list[UnitFinding]:
+    """The fatal unit findings of one table, on its values as read (before the row rules).
+
+    The inputs stage runs these on the coerced values before any range rule, so a unit
+    mistake is named as one even where its values would also break a physical limit (a
+    Fahrenheit summer above 60, a Fahrenheit ``tmin_c`` above ``tmax_c``).
+
+    ``climate``: :func:`mixed_cadence`, then :func:`temperature_units`,
+    :func:`temperature_pairs`, :func:`precipitation_units` and :func:`scaled_counties` of
+    ``precip_mm``. ``yields``: :func:`mixed_units` of ``unit`` per crop, then
+    :func:`scaled_counties` of ``yield`` per crop and practice. ``prices``: :func:`mixed_units`
+    per commodity. Other tables: none.
+    """
+    fatal: list[UnitFinding] = []
+    if not len(frame):
+        return fatal
+    if table == "climate":
         fatal += mixed_cadence(frame, file=file)
         if not fatal:
             fatal += temperature_units(frame, file=file)
+            seen = {(f.column, f.county) for f in fatal}  # one finding per column and county
+            fatal += [f for f in temperature_pairs(frame, file=file)
+                      if (f.column, f.county) not in seen]
             fatal += precipitation_units(frame, file=file)
             fatal += scaled_counties(frame, "precip_mm", file=file)
-            rejected = beyond_physical_limits(frame)
-    if table == "yields" and len(frame):
-        fatal += scaled_counties(frame, "yield", by=("crop",), file=file)
-    return PlausibilityResult(fatal=tuple(fatal), rejected=rejected)
+    if table == "yields":
+        fatal += mixed_units(frame, "unit", by="crop", file=file)
+        if not fatal:
+            by = tuple(b for b in ("crop", "practice") if b in frame.columns)
+            fatal += scaled_counties(frame, "yield", by=by, file=file)
+    if table == "prices":
+        fatal += mixed_units(frame, "unit", by="commodity", file=file)
+    return fatal
 
 
 def temperature_units(frame: pd.DataFrame, *, file: str = "",
@@ -173,6 +213,79 @@ def temperature_units(frame: pd.DataFrame, *, file: str = "",
                 f"{MEDIAN_TEMPERATURE_MAX_C:g} or a spread above {SPREAD_TEMPERATURE_MAX_C:g} "
                 f"is hotter or wider than any climate; record high 56.7 C)",
                 "convert the column to degrees Celsius, C = (F - 32) x 5/9"))
+    return out
+
+
+def temperature_pairs(frame: pd.DataFrame, *, file: str = "") -> list[UnitFinding]:
+    """Counties whose ``tmin_c`` and ``tmax_c`` cannot both be Celsius of the same days.
+
+    Rules, per county over the rows holding both: ``tmin_c`` above ``tmax_c`` in more than
+    half of them (a Fahrenheit ``tmin_c``, or the two columns exchanged), or a median
+    ``tmax_c - tmin_c`` above :data:`DIURNAL_RANGE_MAX_C` (a Fahrenheit ``tmax_c``: in a cool
+    county its values stay below the physical limits and its median below 45, so
+    :func:`temperature_units` cannot see it).
+    """
+    if "tmin_c" not in frame.columns or "tmax_c" not in frame.columns:
+        return []
+    lo = pd.to_numeric(frame["tmin_c"], errors="coerce")
+    hi = pd.to_numeric(frame["tmax_c"], errors="coerce")
+    both = lo.notna() & hi.notna()
+    d = pd.DataFrame({"c": frame[COUNTY].astype(str), "inv": lo > hi, "dtr": hi - lo,
+                      "lo": lo, "hi": hi})[both.to_numpy()]
+    g = d.groupby("c", sort=True)
+    s = pd.DataFrame({"n": g.size(), "inv": g["inv"].sum(), "dtr": g["dtr"].median(),
+                      "lo": g["lo"].median(), "hi": g["hi"].median()})
+    out = []
+    medians = "median tmin_c {lo:.1f}, tmax_c {hi:.1f}"
+    for c, r in s[s["inv"] * 2 > s["n"]].iterrows():  # flagged counties only
+        out.append(UnitFinding(
+            file, "tmin_c", str(c),
+            f"tmin_c is above tmax_c in {int(r['inv']):,} of {int(r['n']):,} rows "
+            f"({medians.format(**r)}): tmin_c looks like degrees Fahrenheit, or the two "
+            "columns are exchanged",
+            "convert tmin_c to degrees Celsius, C = (F - 32) x 5/9, or exchange the column "
+            "names"))
+    for c, r in s[(s["dtr"] > DIURNAL_RANGE_MAX_C) & (s["inv"] * 2 <= s["n"])].iterrows():
+        out.append(UnitFinding(
+            file, "tmax_c", str(c),
+            f"the median of tmax_c - tmin_c is {r['dtr']:.1f}, wider than the day-night range "
+            f"of any climate (above {DIURNAL_RANGE_MAX_C:g} C; {medians.format(**r)}): tmax_c "
+            "looks like degrees Fahrenheit",
+            "convert tmax_c to degrees Celsius, C = (F - 32) x 5/9"))
+    return out
+
+
+def mixed_units(frame: pd.DataFrame, column: str, *, by: str, file: str = "",
+                most: int = 5) -> list[UnitFinding]:
+    """Groups (a crop, a commodity) whose rows name more than one unit in ``column``.
+
+    Units are read from the table, never guessed: one group in two units would be compared
+    and modelled as one series, so each such group is fatal, naming the units with their row
+    counts and the counties (or regions) of the less common ones.
+    """
+    if column not in frame.columns or by not in frame.columns:
+        return []
+    unit = frame[column].astype("str").fillna("").str.strip()
+    place = next((c for c in (COUNTY, "region") if c in frame.columns), None)
+    d = pd.DataFrame({"g": frame[by].astype(str), "u": unit,
+                      "p": frame[place].astype(str) if place else ""})[(unit != "").to_numpy()]
+    n = d.groupby(["g", "u"], sort=True).size()
+    out = []
+    for g in sorted({k for k, _ in n.index}):  # one pass per crop or commodity
+        units = n[g].sort_values(ascending=False, kind="stable")
+        if len(units) < 2:
+            continue
+        parts = []
+        for u, k in units.items():
+            where = sorted(set(d.loc[(d["g"] == g) & (d["u"] == u), "p"]))
+            shown = "" if u == units.index[0] or not place else (
+                f"; {place} {', '.join(where[:most])}" + (" ..." if len(where) > most else ""))
+            parts.append(f"{u} ({k:,} rows{shown})")
+        out.append(UnitFinding(
+            file, column, "",
+            f"{by} {g} is given in {len(units)} units: {', '.join(parts)}",
+            f"give all {g} rows in one unit (convert the other rows, e.g. t_per_ha = "
+            "kg_per_ha / 1,000, and write that unit)"))
     return out
 
 
@@ -205,10 +318,11 @@ def scaled_counties(frame: pd.DataFrame, column: str, *, by: tuple[str, ...] = (
     """Counties whose values are a unit factor off the other counties' median.
 
     Rule: per group (``by``, e.g. crop) and county, r = log10(county median / median of the
-    county medians of the group). A county is flagged when |r - f| < 0.12 for a factor f of
+    county medians of the group). A county is flagged when ||r| - f| < tol for a factor f of
     :data:`FACTORS`: 10, 100, 1,000 (values scaled, kg/ha among t/ha), 62.77 (kg/ha among
-    bu/acre) or 15.93 (bu/acre among t/ha), either way. Groups with fewer than ``min_counties``
-    counties are not judged (no majority to compare with).
+    bu/acre) or 15.93 (bu/acre among t/ha), either way, and named by the nearest factor; tol is
+    three median absolute deviations of the group's r, within :data:`FACTOR_TOLERANCE`. Groups
+    with fewer than ``min_counties`` counties are not judged (no majority to compare with).
     """
     if column not in frame.columns or not len(frame):
         return []
@@ -225,18 +339,23 @@ def scaled_counties(frame: pd.DataFrame, column: str, *, by: tuple[str, ...] = (
         ref = pd.Series(med.median(), index=med.index)
         n = pd.Series(len(med), index=med.index)
     r = np.log10(med / ref)
+    dev = (r.abs().groupby(level=level).transform("median") if by
+           else pd.Series(float(r.abs().median()), index=r.index))
+    tol = (3 * dev).clip(*FACTOR_TOLERANCE).to_numpy()
+    gap = np.abs(np.abs(r.to_numpy())[:, None] - np.array([f for f, _, _ in FACTORS])[None, :])
+    nearest = gap.argmin(axis=1)  # one finding per county: the nearest factor
+    hit = (gap.min(axis=1) < tol) & (n.to_numpy() >= min_counties)
     out = []
-    for f, size, meaning in FACTORS:  # a handful of factors, vectorised over counties
-        hit = ((r.abs() - f).abs() < FACTOR_TOLERANCE) & (n >= min_counties)
-        for i in np.flatnonzero(hit.to_numpy()):
-            key = med.index[i] if isinstance(med.index[i], tuple) else (med.index[i],)
-            group = ", ".join(f"{b} {k}" for b, k in zip(by, key[:-1], strict=True))
-            way = "above" if r.iloc[i] > 0 else "below"
-            out.append(UnitFinding(
-                file, column, str(key[-1]),
-                f"{group + ': ' if group else ''}median {med.iloc[i]:.4g} is {size} {way} the "
-                f"median county's {ref.iloc[i]:.4g} ({meaning}?)",
-                "give this county's values in the unit of the others (or fix the unit column)"))
+    for i in np.flatnonzero(hit):  # flagged counties only
+        _, size, meaning = FACTORS[int(nearest[i])]
+        key = med.index[i] if isinstance(med.index[i], tuple) else (med.index[i],)
+        group = ", ".join(f"{b} {k}" for b, k in zip(by, key[:-1], strict=True))
+        way = "above" if r.iloc[i] > 0 else "below"
+        out.append(UnitFinding(
+            file, column, str(key[-1]),
+            f"{group + ': ' if group else ''}median {med.iloc[i]:.4g} is {size} {way} the "
+            f"median county's {ref.iloc[i]:.4g} ({meaning}?)",
+            "give this county's values in the unit of the others (or fix the unit column)"))
     return out
 
 
@@ -260,14 +379,17 @@ def mixed_cadence(frame: pd.DataFrame, *, file: str = "") -> list[UnitFinding]:
 def county_cadence(frame: pd.DataFrame) -> pd.Series:
     """Cadence of each county's rows: "daily", "weekly", "monthly" or "irregular".
 
-    The median step in days between consecutive distinct dates: 1 daily, 7 weekly, 28-31
+    The most common step in days between consecutive distinct dates (the shortest of equally
+    common ones), so gaps (a missing week or month) do not change it: 1 daily, 7 weekly, 28-31
     monthly; a county with one date is "daily" (nothing to judge).
     """
     d = pd.DataFrame({"c": frame[COUNTY].astype(str).to_numpy(),
                       "t": pd.to_datetime(frame[DATE]).to_numpy()}).drop_duplicates()
     d = d.sort_values(["c", "t"], kind="stable")
-    step = d.groupby("c")["t"].diff().dt.days
-    med = step.groupby(d["c"]).median().fillna(1.0)
+    d["s"] = d.groupby("c")["t"].diff().dt.days
+    n = d.dropna(subset=["s"]).groupby(["c", "s"]).size().rename("n").reset_index()
+    n = n.sort_values(["c", "n", "s"], ascending=[True, False, True], kind="stable")
+    med = n.drop_duplicates("c").set_index("c")["s"].reindex(d["c"].unique()).fillna(1.0)
     out = pd.Series("irregular", index=med.index, dtype=object)
     for name, (lo, hi) in CADENCE_DAYS.items():
         out[(med >= lo) & (med <= hi)] = name

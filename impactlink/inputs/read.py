@@ -23,6 +23,7 @@ from impactlink.inputs.bundle import (
     _check_record_length,
     _climate_gaps,
     _count_row,
+    _index_gaps,
     summary_frame,
 )
 from impactlink.inputs.counties import counties_without_polygon
@@ -95,12 +96,11 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
     rejected: list[pd.DataFrame] = []
     counts: list[dict[str, Any]] = []
     checksums: dict[str, str] = {}
+    published: dict[str, Any] = {}
     if _declares_formats(project):
         say("reading tables in publisher formats")
-    published, checksums = read_published(project, files)
-    if "zones" in published:  # counted for the manifest; not a contract table
-        rejected.append(published["zones"].rejected)
-        counts.append(published["zones"].counts)
+    if project.formats.counties == "topojson":  # the counties come from the publisher file
+        published, checksums = read_published(project, files)
     losses: list[str] = []  # one line per table that lost too many rows (stops the run)
     where = str(project.path or "the project file")
     for name, path in files.items():
@@ -118,7 +118,7 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
             counts.append(_count_row(name, path, check, clean))
             checksums.update(checksums_for(path))
             raw = check.frame
-        clean, implausible = _plausible(name, path, clean, counts[-1])
+        clean, implausible = _plausible(name, path, clean, counts[-1], published=raw is None)
         rejected.append(implausible)
         extent = (degree_extent(tables.get("counties"))
                   if raw is not None and "lon" in raw and "lat" in raw else None)
@@ -128,10 +128,20 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
         losses += [line] if line else []
         if name == "counties":
             ctx.set_counties(clean)
+            if not published:  # publisher tables are read against the counties' ids
+                published, sums = read_published(project, files,
+                                                 county_ids=_ids(ctx))
+                checksums.update(sums)
+            if "zones" in published:  # counted for the manifest; not a contract table
+                rejected.append(published["zones"].rejected)
+                counts.append(published["zones"].counts)
+                notes += published["zones"].warnings
         tables[name] = clean
     raise_losses(losses)  # before the record-length check and before any index is computed
     _check_record_length(tables["climate"], files["climate"], project)
     notes += _climate_gaps(tables["climate"], tables["counties"], files["climate"], project)
+    if "price_index" in tables:
+        notes += _index_gaps(tables["price_index"], files["price_index"])
     rej = pd.concat(rejected, ignore_index=True)[REJECTED_COLUMNS]
     notes += counties_without_polygon(rej, files["counties"])
     for message in notes:
@@ -149,18 +159,20 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
     )
 
 
-def _plausible(name: str, path: Path, clean: pd.DataFrame, count: dict[str, Any]
-               ) -> tuple[pd.DataFrame, pd.DataFrame]:
+def _plausible(name: str, path: Path, clean: pd.DataFrame, count: dict[str, Any], *,
+               published: bool) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Plausibility checks after the row rules and before any index is computed.
 
     A unit mistake (Fahrenheit under a Celsius name, inches under a millimetre name, a county
-    scaled by a power of ten, mixed cadences) stops the run with the fix spelled out; a value
+    scaled by a power of ten, mixed cadences) stops the run with the fix spelled out (contract
+    tables were checked for these as read, before their row rules; a table from a publisher
+    format is checked here, after its units were converted); a value
     beyond a physical limit rejects its row with the reason (``count`` is updated so the
     manifest still reconciles). See :mod:`impactlink.inputs.plausibility`.
     """
     from impactlink.inputs.plausibility import check_plausibility
 
-    res = check_plausibility(clean, name, file=path.name)
+    res = check_plausibility(clean, name, file=str(path), units=published)
     if res.fatal:
         raise InputError(" | ".join(f.message() for f in res.fatal))
     if not len(res.rejected):
@@ -181,6 +193,10 @@ def _plausible(name: str, path: Path, clean: pd.DataFrame, count: dict[str, Any]
     count["rows_used"] = int(count["rows_used"]) - n_bad
     count["rows_rejected"] = int(count["rows_rejected"]) + n_bad
     return out, bad
+
+
+def _ids(ctx: _Context) -> list[str] | None:
+    return None if ctx.county_ids is None else [str(c) for c in ctx.county_ids]
 
 
 def _declares_formats(project: Project) -> bool:

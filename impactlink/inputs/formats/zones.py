@@ -31,7 +31,13 @@ import numpy as np
 import pandas as pd
 
 from impactlink.inputs._errors import REASONS, InputError
-from impactlink.inputs.formats._ledger import HEADER_ROWS, FormatResult, RowLedger, read_text_csv
+from impactlink.inputs.formats._ledger import (
+    FormatResult,
+    RowLedger,
+    read_text_csv,
+    reject_repeats,
+    reject_unknown_counties,
+)
 from impactlink.schema import COUNTY, DATE, SENTINELS, VALUE
 
 __all__ = [
@@ -167,7 +173,7 @@ def zone_column_of(columns: Sequence[str]) -> str | None:
     return next((lower[z] for z in ZONE_COLUMNS if z in lower), None)
 
 
-def read_zone_table(path: str | Path) -> FormatResult:
+def read_zone_table(path: str | Path, *, counties: Sequence[str] | None = None) -> FormatResult:
     """Read a zone-to-county table (nClimDiv county-to-division, two-column, or area weights).
 
     Parameters
@@ -181,8 +187,9 @@ def read_zone_table(path: str | Path) -> FormatResult:
     -------
     FormatResult
         ``frame``: ``county_id``, ``zone``, ``weight`` (1.0 without weights), text ids as
-        written. Rejected: blank ids, weights not positive, a repeated county-zone pair, and
-        without weights a county's second zone.
+        written. Rejected: blank ids, weights not positive, a repeated county-zone pair,
+        without weights a county's second zone, and a county not in ``counties`` (the
+        counties table's ids, when given): it would get a series no county polygon takes.
 
     Raises
     ------
@@ -212,7 +219,9 @@ def read_zone_table(path: str | Path) -> FormatResult:
     frame = pd.DataFrame({COUNTY: cid.to_numpy(), "zone": zid.to_numpy(), "weight": w})
     keys = [COUNTY, "zone"] if weight is not None else [COUNTY]
     why = REASONS["duplicate"] if weight is not None else ZONE_REASONS["second_zone"]
-    _reject_repeats(led, frame, keys, why)
+    reject_repeats(led, frame, keys, why)
+    reject_unknown_counties(led, frame[COUNTY].to_numpy(), None if counties is None else
+                            list(counties), path, what="zone table")
     if not led.alive.any():
         raise InputError(f"{path}: no usable county-zone pair in {led.n} rows; each row needs "
                          "a county id and a zone id")
@@ -447,19 +456,6 @@ def _numbers(led: RowLedger, text: pd.Series, column: str) -> np.ndarray:
     led.reject(~np.isfinite(v), column, s, REASONS["number"])
     led.reject(np.isin(np.round(v, 2), CLIMDIV_SENTINELS), column, s, REASONS["sentinel"])
     return v
-
-
-def _reject_repeats(led: RowLedger, frame: pd.DataFrame, keys: list[str], reason: str) -> None:
-    live = np.flatnonzero(led.alive)
-    codes = frame.iloc[live].groupby(keys, sort=False).ngroup().to_numpy()
-    first = pd.Series(live).groupby(codes).transform("min").to_numpy()
-    later = first != live
-    mask = np.zeros(led.n, dtype=bool)
-    mask[live[later]] = True
-    why = np.full(led.n, reason, dtype=object)
-    if "{row}" in reason:
-        why[live[later]] = [reason.format(row=r + 1 + HEADER_ROWS) for r in first[later]]
-    led.reject(mask, keys[-1], frame[keys[-1]].to_numpy(), why)
 
 
 def _provenance(z: pd.DataFrame, frame: pd.DataFrame) -> pd.DataFrame:
