@@ -95,6 +95,14 @@ def _project_file(world: Path) -> Path:
                            f"found {list(words)}")
     text = re.sub(r'^"[^"]+" = \{ caution', f'"{words[0]}" = {{ caution', text, flags=re.M)
     text = text.replace('output_dir = "../reports/scenario"', 'output_dir = "run"')
+    plan = re.search(r'^plan = "([^"]+)"', text, flags=re.M)
+    if plan:  # the example plan names no county; its one regional override gets a region
+        plan_text = (TEMPLATE.parent / plan.group(1)).read_text(encoding="utf-8")
+        geo = json.loads((world / "counties.geojson").read_text(encoding="utf-8"))
+        region = sorted({f["properties"]["region"] for f in geo["features"]})[0]
+        plan_text = re.sub(r'^region = "[^"]+"', f'region = "{region}"', plan_text,
+                           flags=re.M)
+        (world / plan.group(1)).write_text(plan_text, encoding="utf-8")
     path = world / "impactlink.toml"
     path.write_text(text, encoding="utf-8")
     return path

@@ -9,6 +9,7 @@ from typing import Literal
 import numpy as np
 import pandas as pd
 
+from impactlink.contrast.pairwise import pairwise_mean_distance
 from impactlink.contrast.units import display_values, trait_display
 from impactlink.errors import ContrastError
 from impactlink.link.features import feature_values
@@ -167,7 +168,7 @@ def lookalike_pairs(keys: pd.DataFrame, values: np.ndarray, impacts: pd.DataFram
         val = here["impact"].to_numpy(float)
         hit = here["hit"].fillna(0).to_numpy(float)
         traj = values[idx]
-        dist = np.sqrt(((traj[:, None, :] - traj[None, :, :]) ** 2).mean(axis=2))
+        dist = pairwise_mean_distance(traj, "rms")  # (n, n), in row blocks
         i, j = np.triu_indices(len(idx), k=1)
         keep = (dist[i, j] <= max_distance) & np.isfinite(val[i]) & np.isfinite(val[j])
         keep &= (hit[i] + hit[j]) > 0

@@ -22,7 +22,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from impactlink.errors import ModelError
-from impactlink.models import _links
+from impactlink.models import _links, _onefit
 from impactlink.models._newton import (
     _EPS,
     check_batch,
@@ -275,18 +275,7 @@ def fit_cumlogit_batch(
     yi = yf.astype(np.int64)
     B, n, p = X.shape
     q = K - 1 + p
-    # indicator designs of the upper (a_j) and lower (a_{j-1}) active cut-points
-    Du = np.zeros((B, n, q))
-    Dl = np.zeros((B, n, q))
-    bi, ni = np.nonzero(yi < K - 1)
-    Du[bi, ni, yi[bi, ni]] = 1.0
-    Du[:, :, K - 1:] = np.where((yi < K - 1)[..., None], -X, 0.0)
-    bi, ni = np.nonzero(yi > 0)
-    Dl[bi, ni, yi[bi, ni] - 1] = 1.0
-    Dl[:, :, K - 1:] = np.where((yi > 0)[..., None], -X, 0.0)
-    has_u = yi < K - 1
-    has_l = yi > 0
-
+    rows = _LevelRows(X, yi, w, K)
     pen = np.zeros((B, q))
     pen[:, K - 1:] = _ridge(ridge, B, p)
     # start: cut-points at F^-1 of the weighted cumulative proportions, slopes 0
@@ -299,8 +288,21 @@ def fit_cumlogit_batch(
         if K > 2 and not (np.diff(theta[:, : K - 1], axis=1) > 0).all():
             raise ModelError("fit_cumlogit_batch: start cut-points must be increasing")
 
+    one = _onefit.SortedRows(X[0], yi[0], w[0], K) if B == 1 else None
+
+    def loglik(par):
+        if one is not None:  # one large fit: level slices (impactlink.models._onefit)
+            return np.array([_onefit.loglik(par[0], one, link)])
+        return _cum_loglik(par, rows, link)
+
+    def derivatives(par, ra, pa):
+        if one is not None:
+            g, h = _onefit.derivatives(par[0], one, pa[0], link)
+            return g[None], h[None]
+        return _cum_derivatives(par, ra, pa, link)
+
     def objective(par):
-        return _cum_loglik(par, Du, Dl, has_u, has_l, w, link) - 0.5 * (pen * par**2).sum(1)
+        return loglik(par) - 0.5 * (pen * par**2).sum(1)
 
     def ordered(par):
         if K <= 2:
@@ -310,20 +312,21 @@ def fit_cumlogit_batch(
     obj = objective(theta)
 
     def newton_step(A, par):
-        du, dl, hu, hl, wa, pa = Du[A], Dl[A], has_u[A], has_l[A], w[A], pen[A]
-        grad, H = _cum_derivatives(par, du, dl, hu, hl, wa, pa, link)
+        ra, pa = (rows if one is not None else rows.subset(A)), pen[A]
+        grad, H = derivatives(par, ra, pa)
         H[:, np.arange(q), np.arange(q)] -= 1e-12
 
         def obj_a(pp):
-            return _cum_loglik(pp, du, dl, hu, hl, wa, link) - 0.5 * (pa * pp**2).sum(1)
+            ll = loglik(pp) if one is not None else _cum_loglik(pp, ra, link)
+            return ll - 0.5 * (pa * pp**2).sum(1)
 
         return solve(-H, grad), obj_a
 
     converged, it = newton(newton_step, theta, obj, max_iter=max_iter, tol=tol, valid=ordered)
-    ll = _cum_loglik(theta, Du, Dl, has_u, has_l, w, link)
+    ll = loglik(theta)
     cov = None
     if covariance:
-        _, H = _cum_derivatives(theta, Du, Dl, has_u, has_l, w, pen, link)
+        _, H = derivatives(theta, rows, pen)
         cov = inverse(-H)
         cov = 0.5 * (cov + cov.transpose(0, 2, 1))
     return BatchFit(coef=theta, converged=converged, n_iter=it, loglik=ll, cov=cov)
@@ -361,24 +364,68 @@ def _ridge(ridge, B: int, p: int) -> np.ndarray:
     return r
 
 
-def _bounds(par, Du, Dl, has_u, has_l):
-    """Upper and lower arguments a_j, a_{j-1} (+-inf where absent), and the tail sign s."""
-    au = np.where(has_u, mv(Du, par), np.inf)
-    al = np.where(has_l, mv(Dl, par), -np.inf)
+class _LevelRows:
+    """The rows of a batch of cumulative link fits, grouped by their observed level.
+
+    A row at level j has the upper argument :math:`a_j = \\theta_j - x^T\\beta` (none at
+    the top level) and the lower one :math:`a_{j-1}` (none at level 0). Sums over the rows
+    of one level are bincounts on ``code = b * K + j``, so the gradient and Hessian need
+    O(B n p) work and memory, without (B, n, K-1+p) indicator designs.
+    """
+
+    def __init__(self, X, yi, w, K, code=None):
+        self.X, self.yi, self.w, self.K = X, yi, w, K
+        B = X.shape[0]
+        self.code = (np.arange(B)[:, None] * K + yi) if code is None else code
+        self.has_u = yi < K - 1
+        self.has_l = yi > 0
+
+    def subset(self, A) -> _LevelRows:
+        if isinstance(A, slice) and A == slice(None):
+            return self
+        yi = self.yi[A]
+        return _LevelRows(self.X[A], yi, self.w[A], self.K)
+
+    def level_sums(self, v: np.ndarray) -> np.ndarray:
+        """(B, K): the sum of ``v`` (B, n) over the rows of each fit at each level."""
+        B, K = self.X.shape[0], self.K
+        return np.bincount(self.code.ravel(), weights=v.ravel(), minlength=B * K).reshape(B, K)
+
+
+def _bounds(par, rows: _LevelRows):
+    """Upper and lower arguments a_j, a_{j-1} (+-inf where absent), the tail sign s and x'b."""
+    K = rows.K
+    B = par.shape[0]
+    xb = mv(rows.X, par[:, K - 1:])
+    cuts_u = np.concatenate([par[:, : K - 1], np.full((B, 1), np.inf)], axis=1)
+    cuts_l = np.concatenate([np.full((B, 1), -np.inf), par[:, : K - 1]], axis=1)
+    au = np.take_along_axis(cuts_u, rows.yi, axis=1) - xb
+    al = np.take_along_axis(cuts_l, rows.yi, axis=1) - xb
     # s = -1 where both arguments are positive: evaluate F(-a) there (F is symmetric)
     s = np.where(al > 0, -1.0, 1.0)
     return au, al, s
 
 
-def _cum_loglik(par, Du, Dl, has_u, has_l, w, link: str) -> np.ndarray:
-    au, al, s = _bounds(par, Du, Dl, has_u, has_l)
+def _cum_loglik(par, rows: _LevelRows, link: str) -> np.ndarray:
+    au, al, s = _bounds(par, rows)
     P = s * (_links.cdf(s * au, link) - _links.cdf(s * al, link))
-    return (w * np.log(np.maximum(P, _EPS))).sum(1)
+    return (rows.w * np.log(np.maximum(P, _EPS))).sum(1)
 
 
-def _cum_derivatives(par, Du, Dl, has_u, has_l, w, pen, link: str):
-    """Gradient (B, q) and Hessian (B, q, q) of the penalised log-likelihood."""
-    au, al, s = _bounds(par, Du, Dl, has_u, has_l)
+def _cum_derivatives(par, rows: _LevelRows, pen, link: str):
+    """Gradient (B, q) and Hessian (B, q, q) of the penalised log-likelihood.
+
+    With :math:`g_u, g_l, h_{uu}, h_{ll}, h_{ul}` the derivatives of a row's log-probability
+    in its arguments :math:`(a_j, a_{j-1})` (zero where an argument is absent), the chain
+    rule through :math:`a_j = \\theta_j - x^T\\beta` gives per level sums for the
+    cut-points and x-weighted sums for the slopes (the terms of
+    :math:`D_u^T\\,\\mathrm{diag}(h)\\,D_l` with indicator designs, summed level by level).
+    """
+    K = rows.K
+    X, w = rows.X, rows.w
+    B, _, p = X.shape
+    q = K - 1 + p
+    au, al, s = _bounds(par, rows)
     Gu, fu, dfu = _link_terms(au, s, link)
     Gl, fl, dfl = _link_terms(al, s, link)
     P = np.maximum(s * (Gu - Gl), _EPS)
@@ -386,10 +433,29 @@ def _cum_derivatives(par, Du, Dl, has_u, has_l, w, pen, link: str):
     huu = dfu / P - gu**2
     hll = -dfl / P - gl**2
     hul = fu * fl / P**2
-    grad = tv(Du, w * gu) + tv(Dl, w * gl) - pen * par
-    cross = quad(Du, w * hul, Dl)
-    H = quad(Du, w * huu, Du) + quad(Dl, w * hll, Dl) + cross + cross.transpose(0, 2, 1)
-    q = par.shape[1]
+    grad = np.zeros((B, q))
+    H = np.zeros((B, q, q))
+    lu = rows.level_sums(w * gu)  # (B, K): level j's sum, for cut-point j (upper)
+    ll_ = rows.level_sums(w * gl)  # for cut-point j-1 (lower)
+    grad[:, : K - 1] = lu[:, : K - 1] + ll_[:, 1:]
+    grad[:, K - 1:] = -tv(X, w * (gu + gl))
+    suu = rows.level_sums(w * huu)
+    sll = rows.level_sums(w * hll)
+    sul = rows.level_sums(w * hul)
+    k = np.arange(K - 1)
+    H[:, k, k] = suu[:, : K - 1] + sll[:, 1:]
+    if K > 2:  # level j couples cut-points j and j-1
+        H[:, k[1:], k[1:] - 1] = sul[:, 1: K - 1]
+        H[:, k[1:] - 1, k[1:]] = sul[:, 1: K - 1]
+    cu = w * (huu + hul)  # x-weighted, for cut-point j (upper) of the row's level
+    cl = w * (hll + hul)  # for cut-point j-1 (lower)
+    cross = np.stack([rows.level_sums(cu * X[..., c]) for c in range(p)], axis=-1)
+    crossl = np.stack([rows.level_sums(cl * X[..., c]) for c in range(p)], axis=-1)
+    tb = -(cross[:, : K - 1] + crossl[:, 1:])  # (B, K-1, p)
+    H[:, : K - 1, K - 1:] = tb
+    H[:, K - 1:, : K - 1] = tb.transpose(0, 2, 1)
+    H[:, K - 1:, K - 1:] = quad(X, w * (huu + hll + 2.0 * hul), X)
+    grad -= pen * par
     H[:, np.arange(q), np.arange(q)] -= pen
     return grad, H
 
