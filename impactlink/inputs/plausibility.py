@@ -55,6 +55,7 @@ __all__ = [
     "temperature_pairs",
     "mixed_units",
     "unit_findings",
+    "fatal_line",
     "mixed_cadence",
     "county_cadence",
     "beyond_physical_limits",
@@ -70,6 +71,10 @@ TEMPERATURE_COLUMNS = ("tmin_c", "tmax_c", "tmean_c")
 #: A county's median Celsius temperature above this is Fahrenheit [C]: hotter than the
 #: annual mean of any place on Earth (about 35 C, Dallol, Ethiopia; from memory) by 10 C.
 MEDIAN_TEMPERATURE_MAX_C = 45.0
+#: A county's median Celsius temperature above this is kelvin [C]: the coldest air recorded,
+#: -89.2 C, is 184 K, and the hottest, 56.7 C, is 134 F (WMO), so no Fahrenheit median
+#: comes near 150 and no kelvin median falls below it.
+KELVIN_MEDIAN_MIN = 150.0
 #: A 2nd-98th percentile spread above this is Fahrenheit [C]: the largest annual cycle of
 #: daily temperature on Earth, in north-east Siberia (January mean about -45 C, July mean
 #: about +17 C at Verkhoyansk; from memory), spans about 65 C before day-to-day spread.
@@ -187,6 +192,25 @@ def unit_findings(frame: pd.DataFrame, table: str, *, file: str = "") -> list[Un
     return fatal
 
 
+def fatal_line(findings: list[UnitFinding] | tuple[UnitFinding, ...], *, most: int = 3
+               ) -> str:
+    """One line for the error: the findings joined by `` | ``; the findings of one column
+    and fix in more than ``most`` counties are told once, counting and naming the first ones
+    (a whole column in another unit is one mistake, not one per county)."""
+    groups: dict[tuple[str, str, str], list[UnitFinding]] = {}
+    for f in findings:
+        groups.setdefault((f.file, f.column, f.fix), []).append(f)
+    parts = []
+    for (file, column, fix), fs in groups.items():
+        if len(fs) <= most:
+            parts += [f.message() for f in fs]
+            continue
+        shown = ", ".join(f.county for f in fs[:most])
+        parts.append(UnitFinding(file, column, "", f"{len(fs)} counties ({shown} ...), e.g. "
+                                 f"county {fs[0].county}: {fs[0].found}", fix).message())
+    return " | ".join(parts)
+
+
 def temperature_units(frame: pd.DataFrame, *, file: str = "",
                       columns: tuple[str, ...] = TEMPERATURE_COLUMNS) -> list[UnitFinding]:
     """Counties whose Celsius columns hold Fahrenheit values.
@@ -204,7 +228,14 @@ def temperature_units(frame: pd.DataFrame, *, file: str = "",
     for col in (c for c in columns if c in frame.columns):  # at most three columns
         g = pd.to_numeric(frame[col], errors="coerce").groupby(frame[COUNTY].astype(str))
         med, lo, hi = g.median(), g.quantile(0.02), g.quantile(0.98)
-        bad = (med > MEDIAN_TEMPERATURE_MAX_C) | ((hi - lo) > SPREAD_TEMPERATURE_MAX_C)
+        kelvin = med > KELVIN_MEDIAN_MIN
+        bad = ((med > MEDIAN_TEMPERATURE_MAX_C) | ((hi - lo) > SPREAD_TEMPERATURE_MAX_C)) & ~kelvin
+        for county in med.index[kelvin.to_numpy()]:
+            out.append(UnitFinding(
+                file, col, str(county),
+                f"median {med[county]:.1f} looks like kelvin (a median above "
+                f"{KELVIN_MEDIAN_MIN:g} is neither Celsius nor Fahrenheit; record low -89.2 C "
+                "= 184 K)", "convert the column to degrees Celsius, C = K - 273.15"))
         for county in med.index[bad.to_numpy()]:
             out.append(UnitFinding(
                 file, col, str(county),
@@ -280,12 +311,12 @@ def mixed_units(frame: pd.DataFrame, column: str, *, by: str, file: str = "",
             where = sorted(set(d.loc[(d["g"] == g) & (d["u"] == u), "p"]))
             shown = "" if u == units.index[0] or not place else (
                 f"; {place} {', '.join(where[:most])}" + (" ..." if len(where) > most else ""))
-            parts.append(f"{u} ({k:,} rows{shown})")
+            parts.append(f"{u} ({k:,} row{'s' * (k != 1)}{shown})")
         out.append(UnitFinding(
             file, column, "",
             f"{by} {g} is given in {len(units)} units: {', '.join(parts)}",
-            f"give all {g} rows in one unit (convert the other rows, e.g. t_per_ha = "
-            "kg_per_ha / 1,000, and write that unit)"))
+            f"give all {g} rows in one unit (convert the other rows to {units.index[0]} and "
+            "write that unit)"))
     return out
 
 

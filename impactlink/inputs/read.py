@@ -170,11 +170,11 @@ def _plausible(name: str, path: Path, clean: pd.DataFrame, count: dict[str, Any]
     beyond a physical limit rejects its row with the reason (``count`` is updated so the
     manifest still reconciles). See :mod:`impactlink.inputs.plausibility`.
     """
-    from impactlink.inputs.plausibility import check_plausibility
+    from impactlink.inputs.plausibility import check_plausibility, fatal_line
 
     res = check_plausibility(clean, name, file=str(path), units=published)
     if res.fatal:
-        raise InputError(" | ".join(f.message() for f in res.fatal))
+        raise InputError(fatal_line(res.fatal))
     if not len(res.rejected):
         return clean, pd.DataFrame(columns=REJECTED_COLUMNS)
     source = clean.attrs.get("source_rows")

@@ -143,7 +143,7 @@ def _units_as_read(name: str, path: Path, check: TableCheck, columns: list[str],
     :func:`impactlink.inputs.plausibility.unit_findings`): on the converted values of the rows
     whose cells all read (of known counties, first of each key), so a Fahrenheit column is
     named as one, not half-rejected as temperatures out of range."""
-    from impactlink.inputs.plausibility import unit_findings
+    from impactlink.inputs.plausibility import fatal_line, unit_findings
 
     if name not in ("climate", "yields", "prices") or not check.alive.any():
         return
@@ -153,7 +153,7 @@ def _units_as_read(name: str, path: Path, check: TableCheck, columns: list[str],
     frame = frame.drop_duplicates([k for k in TABLES[name].key if k in frame])
     found = unit_findings(frame, name, file=str(path))
     if found:
-        raise InputError(" | ".join(f.message() for f in found))
+        raise InputError(fatal_line(found))
 
 
 def _check_columns(spec: TableSpec, frame: pd.DataFrame, path: Path) -> None:

@@ -120,7 +120,18 @@ def read_topojson_counties(path: str | Path, *, county_ids: Iterable[str] | None
     out = gpd.GeoDataFrame({COUNTY: ids.to_numpy(), "county_name": names.to_numpy()},
                            geometry=gdf.geometry.to_numpy(), crs=gdf.crs)
     # a feature without geometry is kept: the counties table rejects it by row, naming it
-    out = out[out[COUNTY] != ""]
+    blank = (out[COUNTY] == "").to_numpy()
+    if len(out) and blank.all():
+        raise InputError(f"{path}: no feature of {object_name!r} has an {id_field!r} "
+                         f"({len(out)} features); give each feature its county GEOID as text "
+                         f"in the feature member {id_field!r} (e.g. \"{id_field}\": \"01001\")")
+    if blank.any():
+        warnings.warn(f"{path}: {int(blank.sum())} of {len(out)} features of {object_name!r} "
+                      f"have no {id_field!r} and are left out (features "
+                      f"{', '.join(str(i + 1) for i in np.flatnonzero(blank)[:10])}); give "
+                      "each feature its county GEOID as the feature id", InputWarning,
+                      stacklevel=2)
+    out = out[~blank]
     if county_ids is not None:
         wanted = pd.Index(sorted({str(c) for c in county_ids}))
         absent = wanted.difference(pd.Index(out[COUNTY]))
