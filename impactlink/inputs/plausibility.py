@@ -79,11 +79,18 @@ KELVIN_MEDIAN_MIN = 150.0
 #: daily temperature on Earth, in north-east Siberia (January mean about -45 C, July mean
 #: about +17 C at Verkhoyansk; from memory), spans about 65 C before day-to-day spread.
 SPREAD_TEMPERATURE_MAX_C = 80.0
-#: Median of the positive values below this is inches [mm]: a wet day holds at least 1 mm
-#: (Zhang et al. 2011); a positive week or month rarely holds less than the wet day.
 #: A county's median daily ``tmax_c - tmin_c`` above this is a Fahrenheit ``tmax_c`` [C]: the
 #: widest mean day-night ranges, in high deserts, are about 20-25 C (from memory).
 DIURNAL_RANGE_MAX_C = 30.0
+#: Share of a county's rows with ``tmin_c`` above ``tmax_c`` beyond which the two columns are
+#: not Celsius of the same days: an observing-time slip inverts a day now and then, not one
+#: day in four (common practice). A Fahrenheit ``tmin_c`` of a cool county is above the
+#: Celsius ``tmax_c`` in about half of the months.
+INVERTED_SHARE_MAX = 0.25
+#: Fewest rows holding both temperatures for a county's pair to be judged (a year of months).
+PAIR_MIN_ROWS = 12
+#: Median of the positive values below this is inches [mm]: a wet day holds at least 1 mm
+#: (Zhang et al. 2011); a positive week or month rarely holds less than the wet day.
 WET_STEP_MIN_MM = {"daily": 1.0, "weekly": 2.0, "monthly": 5.0}
 #: Unit factors between one county and the others (log10 of the ratio) and their names.
 FACTORS: tuple[tuple[float, str, str], ...] = (
@@ -251,7 +258,8 @@ def temperature_pairs(frame: pd.DataFrame, *, file: str = "") -> list[UnitFindin
     """Counties whose ``tmin_c`` and ``tmax_c`` cannot both be Celsius of the same days.
 
     Rules, per county over the rows holding both: ``tmin_c`` above ``tmax_c`` in more than
-    half of them (a Fahrenheit ``tmin_c``, or the two columns exchanged), or a median
+    :data:`INVERTED_SHARE_MAX` of them (a Fahrenheit ``tmin_c``, or the two columns
+    exchanged), or a median
     ``tmax_c - tmin_c`` above :data:`DIURNAL_RANGE_MAX_C` (a Fahrenheit ``tmax_c``: in a cool
     county its values stay below the physical limits and its median below 45, so
     :func:`temperature_units` cannot see it).
@@ -268,7 +276,9 @@ def temperature_pairs(frame: pd.DataFrame, *, file: str = "") -> list[UnitFindin
                       "lo": g["lo"].median(), "hi": g["hi"].median()})
     out = []
     medians = "median tmin_c {lo:.1f}, tmax_c {hi:.1f}"
-    for c, r in s[s["inv"] * 2 > s["n"]].iterrows():  # flagged counties only
+    s = s[s["n"] >= PAIR_MIN_ROWS]  # a few rows are judged by the row rules alone
+    inverted = s["inv"] > INVERTED_SHARE_MAX * s["n"]
+    for c, r in s[inverted].iterrows():  # flagged counties only
         out.append(UnitFinding(
             file, "tmin_c", str(c),
             f"tmin_c is above tmax_c in {int(r['inv']):,} of {int(r['n']):,} rows "
@@ -276,7 +286,7 @@ def temperature_pairs(frame: pd.DataFrame, *, file: str = "") -> list[UnitFindin
             "columns are exchanged",
             "convert tmin_c to degrees Celsius, C = (F - 32) x 5/9, or exchange the column "
             "names"))
-    for c, r in s[(s["dtr"] > DIURNAL_RANGE_MAX_C) & (s["inv"] * 2 <= s["n"])].iterrows():
+    for c, r in s[(s["dtr"] > DIURNAL_RANGE_MAX_C) & ~inverted].iterrows():
         out.append(UnitFinding(
             file, "tmax_c", str(c),
             f"the median of tmax_c - tmin_c is {r['dtr']:.1f}, wider than the day-night range "
