@@ -8,6 +8,7 @@ rows_rejected``.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -172,7 +173,7 @@ def reject_repeats(led: RowLedger, frame: pd.DataFrame, keys: list[str], reason:
     led.reject(mask, col, frame[col].to_numpy(), why)
 
 
-def reject_unknown_counties(led: RowLedger, ids: np.ndarray, counties: list[str] | None,
+def reject_unknown_counties(led: RowLedger, ids: np.ndarray, counties: Sequence[str] | None,
                             path: Path, *, what: str) -> None:
     """Reject the usable rows whose county id is not in the counties table ("unknown county").
 
