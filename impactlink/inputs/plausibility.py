@@ -68,6 +68,9 @@ LIMITS: dict[str, dict[str, tuple[float, float]]] = {
                   "monthly": (0.0, 9300.0)},
 }
 TEMPERATURE_COLUMNS = ("tmin_c", "tmax_c", "tmean_c")
+#: Fewest values of a county (a year of months) for its median and spread to tell a unit; a
+#: county with fewer is judged by the row rules alone (its median is not yet a climate).
+UNIT_MIN_VALUES = 12
 #: A county's median Celsius temperature above this is Fahrenheit [C]: hotter than the
 #: annual mean of any place on Earth (about 35 C, Dallol, Ethiopia; from memory) by 10 C.
 MEDIAN_TEMPERATURE_MAX_C = 45.0
@@ -120,10 +123,11 @@ class UnitFinding:
     county: str
     found: str
     fix: str
+    place: str = "county"  # "zone" for a per-zone file
 
     def message(self) -> str:
         """One line: ``<file>: column <c>, county <id>: <found>; <fix>``."""
-        where = f"column {self.column}" + (f", county {self.county}" if self.county else "")
+        where = f"column {self.column}" + (f", {self.place} {self.county}" if self.county else "")
         return f"{self.file}: {where}: {self.found}; {self.fix}"
 
 
@@ -213,8 +217,10 @@ def fatal_line(findings: list[UnitFinding] | tuple[UnitFinding, ...], *, most: i
             parts += [f.message() for f in fs]
             continue
         shown = ", ".join(f.county for f in fs[:most])
-        parts.append(UnitFinding(file, column, "", f"{len(fs)} counties ({shown} ...), e.g. "
-                                 f"county {fs[0].county}: {fs[0].found}", fix).message())
+        place = fs[0].place
+        parts.append(UnitFinding(file, column, "", f"{len(fs)} {place.replace('y', 'ie')}s "
+                                 f"({shown} ...), e.g. {place} {fs[0].county}: {fs[0].found}",
+                                 fix).message())
     return " | ".join(parts)
 
 
@@ -222,8 +228,10 @@ def temperature_units(frame: pd.DataFrame, *, file: str = "",
                       columns: tuple[str, ...] = TEMPERATURE_COLUMNS) -> list[UnitFinding]:
     """Counties whose Celsius columns hold Fahrenheit values.
 
-    Rule, per column and county: the median is above 45 C (:data:`MEDIAN_TEMPERATURE_MAX_C`),
-    or the 2nd-98th percentile spread is above 80 C (:data:`SPREAD_TEMPERATURE_MAX_C`).
+    Rule, per column and county of at least :data:`UNIT_MIN_VALUES` values: the median is
+    above 45 C (:data:`MEDIAN_TEMPERATURE_MAX_C`), or the 2nd-98th percentile spread is above
+    80 C (:data:`SPREAD_TEMPERATURE_MAX_C`). A median above 150 is kelvin
+    (:data:`KELVIN_MEDIAN_MIN`), whatever the count.
     Fahrenheit values of a temperate county (median 60 F) fail the first rule, those of a cold
     county (spread 1.8 times the Celsius spread) the second.
 
@@ -236,7 +244,8 @@ def temperature_units(frame: pd.DataFrame, *, file: str = "",
         g = pd.to_numeric(frame[col], errors="coerce").groupby(frame[COUNTY].astype(str))
         med, lo, hi = g.median(), g.quantile(0.02), g.quantile(0.98)
         kelvin = med > KELVIN_MEDIAN_MIN
-        bad = ((med > MEDIAN_TEMPERATURE_MAX_C) | ((hi - lo) > SPREAD_TEMPERATURE_MAX_C)) & ~kelvin
+        bad = (((med > MEDIAN_TEMPERATURE_MAX_C) | ((hi - lo) > SPREAD_TEMPERATURE_MAX_C))
+               & ~kelvin & (g.count() >= UNIT_MIN_VALUES))
         for county in med.index[kelvin.to_numpy()]:
             out.append(UnitFinding(
                 file, col, str(county),
@@ -334,7 +343,8 @@ def precipitation_units(frame: pd.DataFrame, *, file: str = "", column: str = "p
                         ) -> list[UnitFinding]:
     """Counties whose millimetre column holds inches.
 
-    Rule, per county and cadence (:func:`county_cadence`): the median of the positive values
+    Rule, per county (of at least :data:`UNIT_MIN_VALUES` positive values) and cadence
+    (:func:`county_cadence`): the median of the positive values
     is below 1 mm (daily), 2 mm (weekly) or 5 mm (monthly), :data:`WET_STEP_MIN_MM`. A wet day
     is a day with at least 1 mm (Zhang et al. 2011), so most positive days below 1 mm is
     inches (1 in = 25.4 mm, exact by definition).
@@ -343,10 +353,11 @@ def precipitation_units(frame: pd.DataFrame, *, file: str = "", column: str = "p
         return []
     v = pd.to_numeric(frame[column], errors="coerce")
     pos = v.where(v > 0)
-    med = pos.groupby(frame[COUNTY].astype(str)).median()
+    g = pos.groupby(frame[COUNTY].astype(str))
+    med = g.median()
     cad = county_cadence(frame).reindex(med.index)
     limit = cad.map(WET_STEP_MIN_MM).astype(float)
-    bad = (med < limit).to_numpy()
+    bad = ((med < limit) & (g.count() >= UNIT_MIN_VALUES)).to_numpy()
     return [UnitFinding(file, column, str(c),
                         f"the median {cad[c]} value above zero is {med[c]:.2f}, below "
                         f"{limit[c]:g} mm (looks like inches)",

@@ -39,7 +39,7 @@ from impactlink.inputs.table_rules import (
 )
 from impactlink.inputs.tables import _Context, _read_table
 from impactlink.project import Project
-from impactlink.schema import REQUIRED_TABLES, TABLES
+from impactlink.schema import COUNTY, REQUIRED_TABLES, TABLES
 
 __all__ = ["InputBundle", "read_inputs", "resolve_files", "summary_frame", "YEAR_RANGE",
            "TEMPERATURE_RANGE_C", "DEFAULT_LADDER", "DEFAULT_REGION", "DEFAULT_SEVERITY_RANGE"]
@@ -118,7 +118,9 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
             counts.append(_count_row(name, path, check, clean))
             checksums.update(checksums_for(path))
             raw = check.frame
-        clean, implausible = _plausible(name, path, clean, counts[-1], published=raw is None)
+        prov = published[name].details.get("provenance") if name in published else None
+        clean, implausible = _plausible(name, path, clean, counts[-1], published=raw is None,
+                                        zones=prov)
         rejected.append(implausible)
         extent = (degree_extent(tables.get("counties"))
                   if raw is not None and "lon" in raw and "lat" in raw else None)
@@ -160,7 +162,8 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
 
 
 def _plausible(name: str, path: Path, clean: pd.DataFrame, count: dict[str, Any], *,
-               published: bool) -> tuple[pd.DataFrame, pd.DataFrame]:
+               published: bool, zones: pd.DataFrame | None = None
+               ) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Plausibility checks after the row rules and before any index is computed.
 
     A unit mistake (Fahrenheit under a Celsius name, inches under a millimetre name, a county
@@ -168,13 +171,20 @@ def _plausible(name: str, path: Path, clean: pd.DataFrame, count: dict[str, Any]
     tables were checked for these as read, before their row rules; a table from a publisher
     format is checked here, after its units were converted); a value
     beyond a physical limit rejects its row with the reason (``count`` is updated so the
-    manifest still reconciles). See :mod:`impactlink.inputs.plausibility`.
+    manifest still reconciles). A county of a per-zone file is named with its zone(s)
+    (``zones``: the reader's county -> zone provenance), the rows the user must fix.
+    See :mod:`impactlink.inputs.plausibility`.
     """
+    from dataclasses import replace
+
     from impactlink.inputs.plausibility import check_plausibility, fatal_line
 
     res = check_plausibility(clean, name, file=str(path), units=published)
     if res.fatal:
-        raise InputError(fatal_line(res.fatal))
+        zone = ({} if zones is None or "zones" not in zones else
+                dict(zip(zones[COUNTY].astype(str), zones["zones"].astype(str), strict=True)))
+        raise InputError(fatal_line([replace(f, county=f"{f.county} (zone {zone[f.county]})")
+                                     if f.county in zone else f for f in res.fatal]))
     if not len(res.rejected):
         return clean, pd.DataFrame(columns=REJECTED_COLUMNS)
     source = clean.attrs.get("source_rows")

@@ -149,6 +149,11 @@ def read_quickstats(path: str | Path, *, counties: Sequence[str] | None = None) 
     path = Path(path)
     raw = read_text_csv(path, what="Quick Stats export")
     missing = [c for c in QUICKSTATS_COLUMNS if c not in raw.columns]
+    contract = [COUNTY, YEAR, "crop", "yield"]
+    if missing and set(contract) <= set(raw.columns):
+        raise InputError(f"{path}: not a NASS Quick Stats export but a yields table of the "
+                         f"input contract (columns {contract}); remove yields = \"quickstats\" "
+                         "under [formats] to read it as one")
     if missing:
         raise InputError(f"{path}: not a NASS Quick Stats export: no column(s) {missing}; "
                          "download the table again as CSV from Quick Stats (Spreadsheet)")

@@ -38,6 +38,7 @@ from impactlink.inputs.formats._ledger import (
     reject_repeats,
     reject_unknown_counties,
 )
+from impactlink.inputs.formats._units import stop_on_unit_mistakes
 from impactlink.schema import COUNTY, DATE, SENTINELS, VALUE
 
 __all__ = [
@@ -266,7 +267,8 @@ def read_zone_climate(path: str | Path, zones: pd.DataFrame, *, zone_column: str
     ------
     InputError
         No zone column, no precipitation column, a unit neither declared nor in the header,
-        or a declared unit contradicting the header.
+        a declared unit contradicting the header, or values in another unit than the one
+        read (a zone's Fahrenheit under ``tmax_c``; before the range rules).
     """
     path = Path(path)
     raw = read_text_csv(path, what="per-zone climate file")
@@ -281,13 +283,19 @@ def read_zone_climate(path: str | Path, zones: pd.DataFrame, *, zone_column: str
         v = _numbers(led, raw[rawcol], rawcol)
         if contract.endswith("_mm"):
             v = v * MM_PER_INCH if units[rawcol] == "in" else v
+        else:
+            v = (v - 32.0) * 5.0 / 9.0 if units[rawcol] == "F" else v
+        out[contract] = v
+    stop_on_unit_mistakes(path, led, zone, dates, out,
+                          {c: r for r, (c, _) in cols.items()})
+    for rawcol, (contract, _) in cols.items():  # the range rules, after the unit check
+        v = out[contract]
+        if contract.endswith("_mm"):
             led.reject(v < 0, rawcol, raw[rawcol], REASONS["negative"].format(
                 quantity="precipitation" if contract == "precip_mm" else "evapotranspiration"))
         else:
-            v = (v - 32.0) * 5.0 / 9.0 if units[rawcol] == "F" else v
             lo, hi = TEMPERATURE_RANGE_C
             led.reject((v < lo) | (v > hi), rawcol, raw[rawcol], REASONS["temperature"])
-        out[contract] = v
     frame = pd.DataFrame({"zone": zone, DATE: dates, **out}).loc[led.alive]
     assigned = assign_zones(frame, zones, value_columns=list(out), counties=counties)
     notes = [f"{path}: {c} from {r} [{units[r]}]" for r, (c, _) in cols.items()]
