@@ -67,12 +67,16 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
         missing; a file cannot be parsed or has an unsupported extension; a required column
         is missing; the counties geometry is missing or unreadable, or a county id repeats;
         no county id of a table matches the counties table; the climate record covers fewer
-        years than ``[calibration] min_years``.
+        years than ``[calibration] min_years``; a unit mistake in a column (Fahrenheit or
+        kelvin under a Celsius name, inches under a millimetre name, a county's yields scaled
+        by 1,000 for a crop and practice, two units in one unit column), found on the values
+        as read, before the row rules.
 
     Notes
     -----
     Row-level problems reject the row and are listed in ``rejected`` with a reason from
     :data:`impactlink.inputs.REASONS`: missing required value, unparseable date or number,
+    date out of range (outside 1677-09-22 .. 2262-04-11, what a nanosecond timestamp holds),
     not a whole number, sentinel value (``-999`` style, :data:`impactlink.schema.SENTINELS`),
     value not finite, negative quantity, duplicate key (the later row is rejected and the
     reason names the earlier row), unknown county, end before start, level outside the
