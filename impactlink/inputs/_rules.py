@@ -243,6 +243,11 @@ def date_column(raw: pd.Series) -> tuple[pd.Series, np.ndarray, np.ndarray, np.n
         d = raw
         missing = d.isna().to_numpy()
         bad = np.zeros(len(d), dtype=bool)
+    elif pd.api.types.is_numeric_dtype(raw.dtype) or pd.api.types.is_bool_dtype(raw.dtype):
+        # numbers are not dates (an integer would read as nanoseconds after 1970)
+        missing = raw.isna().to_numpy()
+        d = pd.Series(pd.NaT, index=raw.index, dtype="datetime64[ns]")
+        bad = ~missing
     else:
         if pd.api.types.is_string_dtype(raw.dtype) and not pd.api.types.is_object_dtype(raw.dtype):
             text = raw.fillna("").str.strip()

@@ -476,10 +476,10 @@ def _geometry_cases() -> list[Case]:
 
 def all_cases() -> list[Case]:
     """Every case, in table order."""
-    from table_cases_formats import formats_cases
+    from table_cases_formats import formats_cases, parquet_cases
 
     cases = (_climate_cases() + _yields_cases() + _quickstats_cases() + _prices_cases()
-             + _impact_cases() + _geometry_cases() + formats_cases())
+             + _impact_cases() + _geometry_cases() + formats_cases() + parquet_cases())
     names = [c.name for c in cases]
     assert len(set(names)) == len(names), "case names must be unique"
     return cases

@@ -6,10 +6,13 @@ a per-zone climate file's mistakes. Same :class:`table_cases.Case` lines as the 
 
 from __future__ import annotations
 
+import datetime as dt
+import io
 import statistics
 
+import pandas as pd
 from table_cases import QUICKSTATS, TOPO, ZONES, Case, csv_text
-from table_fixtures import yields_rows, zone_climate_rows, zone_rows
+from table_fixtures import climate_rows, yields_rows, zone_climate_rows, zone_rows
 
 
 def _zone_files(climate: list[dict[str, str]], zones: list[dict[str, str]] | None = None
@@ -19,6 +22,39 @@ def _zone_files(climate: list[dict[str, str]], zones: list[dict[str, str]] | Non
 
 def _renamed(rows: list[dict[str, str]], old: str, new: str) -> list[dict[str, str]]:
     return [{(new if k == old else k): v for k, v in r.items()} for r in rows]
+
+
+def _parquet(frame: pd.DataFrame) -> bytes:
+    buf = io.BytesIO()
+    frame.to_parquet(buf, index=False)
+    return buf.getvalue()
+
+
+def _climate_frame() -> pd.DataFrame:
+    c = pd.DataFrame(climate_rows())
+    return c.astype({k: float for k in ("precip_mm", "tmin_c", "tmax_c")})
+
+
+def parquet_cases() -> list[Case]:
+    """Typed columns of a Parquet climate table."""
+    c = _climate_frame()
+    c["date"] = range(len(c))  # integers, which pandas would read as nanoseconds after 1970
+    out = [Case(
+        "Parquet climate with integer dates", "climate",
+        {"files": {"climate.parquet": _parquet(c)}}, before_indices=True,
+        fatal=f"{{d}}/climate.parquet: the climate table loses all {len(c)} rows in the inputs "
+              "stage, more than max_rejected_share = 0.2 allows (top reasons: "
+              f"{len(c)} unparseable date (date)); hint: column date: {len(c)} dates are "
+              "numbers (e.g. '0'); store dates, or text YYYY-MM-DD such as '2001-03-15'; fix the table, or allow the loss with [project] max_rejected_share in "
+              "{d}/impactlink.toml (0..1; 1 = never stop)")]
+    c = _climate_frame()
+    c["date"] = [dt.date.fromisoformat(x) for x in c["date"]]  # Parquet date32
+    c.loc[4, "date"] = dt.date(2500, 1, 1)
+    out.append(Case(
+        "Parquet climate with a stored date in year 2500", "climate",
+        {"files": {"climate.parquet": _parquet(c)}},
+        rejected=(("climate", "climate.parquet", 5, "date", "2500-01-01", "date out of range"),)))
+    return out
 
 
 def formats_cases() -> list[Case]:

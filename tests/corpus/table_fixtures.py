@@ -178,7 +178,7 @@ BUILDERS = {"climate": climate_rows, "yields": yields_rows, "prices": prices_row
 
 def make_folder(folder: Path, tables: dict[str, Rows] | None = None, *,
                 counties: str = "geojson", formats: str = "", extra: str = "",
-                files: dict[str, str] | None = None) -> Path:
+                files: dict[str, str | bytes] | None = None) -> Path:
     """Write a project over ``folder``: counties, climate and ``tables`` (name -> rows;
     climate from :func:`climate_rows` unless given), plus ``files`` (name -> text as is).
     Returns the project file's path."""
@@ -190,12 +190,15 @@ def make_folder(folder: Path, tables: dict[str, Rows] | None = None, *,
     elif counties == "topojson":
         (folder / "boundaries.json").write_text(json.dumps(counties_topojson()), "utf-8")
         named = 'counties = "boundaries.json"\n'
-    if "climate" not in tables and "zoned_climate" not in (files or {}):
+    if "climate" not in tables and not any(f.startswith("climate.") for f in files or {}):
         tables["climate"] = climate_rows()
     for name, rows in tables.items():
         write_rows(folder / f"{name}.csv", rows)
-    for name, text in (files or {}).items():
-        (folder / name).write_text(text, encoding="utf-8")
+    for name, text in (files or {}).items():  # text, or bytes (a Parquet file)
+        if isinstance(text, bytes):
+            (folder / name).write_bytes(text)
+        else:
+            (folder / name).write_text(text, encoding="utf-8")
     text = ('[project]\nname = "table case"\ndata_dir = "."\noutput_dir = "out"\n'
             f'{extra}[calibration]\nstart_year = 2001\nend_year = 2003\nmin_years = 2\n'
             '[indices]\nscales_weeks = [4]\nindices = ["spi"]\n'

@@ -15,6 +15,7 @@ mistake, and its exact outcome:
 
 from __future__ import annotations
 
+import io
 import json
 import warnings
 from pathlib import Path
@@ -57,7 +58,9 @@ def _written(case: Case) -> dict[str, int]:
     """Data rows each table's file holds, as the case wrote them (header excluded)."""
     n = {name: len(rows) for name, rows in case.folder.get("tables", {}).items()}
     for name, text in case.folder.get("files", {}).items():
-        if name.endswith(".csv"):
+        if isinstance(text, bytes):  # a Parquet table
+            n[name.removesuffix(".parquet")] = len(pd.read_parquet(io.BytesIO(text)))
+        elif name.endswith(".csv"):
             n[FILE_TABLE.get(name, name.removesuffix(".csv"))] = text.count("\n") - 1
     return n
 
