@@ -132,7 +132,7 @@ def check_reconciles(path: Path, table: str, written: int) -> None:
         assert len(bundle.tables[table]) == counts.loc[table, "rows_used"]
 
 
-@settings(max_examples=160, deadline=None, derandomize=True,
+@settings(max_examples=110, deadline=None, derandomize=True,
           suppress_health_check=[HealthCheck.too_slow])
 @given(st.sampled_from(sorted(BASE)), st.lists(EDITS, min_size=1, max_size=3))
 def test_no_generated_table_raises_anything_but_impactlink_errors(name, edits):
@@ -171,3 +171,47 @@ def test_no_generated_counties_file_raises_anything_but_impactlink_errors(edits)
     shutil.rmtree(FOLDER, ignore_errors=True)
     path = make_folder(FOLDER, counties="", files={"counties.geojson": json.dumps(g)})
     check_reconciles(path, "counties", len(feats))
+
+
+def _typed(values, kind: str):
+    """``values`` (text) stored as ``kind`` in a Parquet column."""
+    import pandas as pd
+
+    s = pd.Series(values, dtype=object)
+    if kind == "float":
+        return pd.to_numeric(s, errors="coerce")
+    if kind == "int":
+        return pd.to_numeric(s, errors="coerce").fillna(0).round().astype("int64")
+    if kind == "nullable":
+        return pd.array(pd.to_numeric(s, errors="coerce"), dtype="Float64")
+    if kind == "bool":
+        return s.astype(str).str.len() % 2 == 0
+    if kind == "datetime":
+        return pd.to_datetime(s.astype(str), format="ISO8601", errors="coerce")
+    if kind == "categorical":
+        return pd.Categorical(s)
+    if kind == "timedelta":
+        return pd.to_timedelta(range(len(s)), unit="D")
+    return s.astype(str)
+
+
+@settings(max_examples=30, deadline=None, derandomize=True,
+          suppress_health_check=[HealthCheck.too_slow])
+@given(st.lists(st.tuples(st.sampled_from(["county_id", "date", "precip_mm", "tmin_c",
+                                           "tmax_c"]),
+                          st.sampled_from(["float", "int", "nullable", "bool", "datetime",
+                                           "categorical", "timedelta", "text"])),
+                min_size=1, max_size=3), st.lists(EDITS, max_size=2))
+def test_no_typed_parquet_climate_raises_anything_but_impactlink_errors(types, edits):
+    import pandas as pd
+
+    rows, cols = mutate(BASE["climate"][0], edits)
+    frame = pd.DataFrame(rows, columns=cols)
+    for col, kind in types:
+        if col in frame:
+            frame[col] = _typed(frame[col].tolist(), kind)
+    shutil.rmtree(FOLDER, ignore_errors=True)
+    path = make_folder(FOLDER, {"climate": rows})
+    (FOLDER / "climate.csv").unlink()
+    frame.to_parquet(FOLDER / "climate.parquet", index=False)
+    check_reconciles(path, "climate", len(frame))
