@@ -15,6 +15,7 @@ REASONS: dict[str, str] = {
     "blank": "blank row",
     "missing": "missing required value",
     "date": "unparseable date",
+    "date_range": "date out of range",
     "number": "unparseable number",
     "whole": "not a whole number",
     "sentinel": "sentinel value",

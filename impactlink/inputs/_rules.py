@@ -139,8 +139,9 @@ class TableCheck:
         if kind in ("id", "str"):
             values, missing = text_column(raw)
         elif kind == "date":
-            values, missing, bad = date_column(raw)
+            values, missing, bad, far = date_column(raw)
             self.reject(bad, column, raw, REASONS["date"], only_alive=False)
+            self.reject(far, column, raw, REASONS["date_range"], only_alive=False)
         elif kind in ("float", "nonneg_float", "int"):
             values, missing = self._number(column, raw, kind)
         elif kind == "level":
@@ -226,12 +227,27 @@ def text_column(raw: pd.Series) -> tuple[pd.Series, np.ndarray]:
     return s, missing
 
 
-def date_column(raw: pd.Series) -> tuple[pd.Series, np.ndarray, np.ndarray]:
-    """Dates (ISO 8601 text or stored dates) as midnight-normalised datetime64[ns]."""
+#: Dates the contract holds: within the span of a nanosecond timestamp (pandas' datetime64[ns],
+#: 1677-09-21 .. 2262-04-11), whole days. A date outside (a typed year 2400 or 1200) is
+#: rejected by row as "date out of range".
+DATE_SPAN = (pd.Timestamp("1677-09-22"), pd.Timestamp("2262-04-11"))
+
+
+def date_column(raw: pd.Series) -> tuple[pd.Series, np.ndarray, np.ndarray, np.ndarray]:
+    """Dates (ISO 8601 text or stored dates) as midnight-normalised datetime64[ns].
+
+    Returns the dates, and masks of missing cells, unparseable cells and dates outside
+    :data:`DATE_SPAN` (set to NaT).
+    """
     if pd.api.types.is_datetime64_any_dtype(raw.dtype):
         d = raw
         missing = d.isna().to_numpy()
         bad = np.zeros(len(d), dtype=bool)
+    elif pd.api.types.is_numeric_dtype(raw.dtype) or pd.api.types.is_bool_dtype(raw.dtype):
+        # numbers are not dates (an integer would read as nanoseconds after 1970)
+        missing = raw.isna().to_numpy()
+        d = pd.Series(pd.NaT, index=raw.index, dtype="datetime64[ns]")
+        bad = ~missing
     else:
         if pd.api.types.is_string_dtype(raw.dtype) and not pd.api.types.is_object_dtype(raw.dtype):
             text = raw.fillna("").str.strip()
@@ -253,8 +269,10 @@ def date_column(raw: pd.Series) -> tuple[pd.Series, np.ndarray, np.ndarray]:
         bad = d.isna().to_numpy() & ~missing
     if getattr(d.dt, "tz", None) is not None:
         d = d.dt.tz_localize(None)
-    d = d.dt.normalize().astype("datetime64[ns]")
-    return d, missing, bad
+    d = d.dt.normalize()
+    far = (d.notna() & ((d < DATE_SPAN[0]) | (d > DATE_SPAN[1]))).to_numpy()
+    d = d.where(~far).astype("datetime64[ns]")
+    return d, missing, bad, far
 
 
 def number_column(raw: pd.Series) -> tuple[pd.Series, np.ndarray, np.ndarray]:

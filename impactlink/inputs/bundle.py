@@ -166,3 +166,27 @@ def _check_record_length(climate: pd.DataFrame, path: Path, project: Project) ->
             f"calibration needs; supply a longer record, or lower min_years under "
             f"[calibration] in {where} (shorter records give less reliable index values)"
         )
+
+
+def _index_gaps(price_index: pd.DataFrame, path: Path, most: int = 12) -> list[str]:
+    """A warning naming the months a monthly price index lacks between its first and last.
+
+    The index is monthly when the median step between its distinct months is one month;
+    an index at another cadence is not judged. A price in a month without an index value
+    cannot be deflated.
+    """
+    if "date" not in price_index or len(price_index) < 3:
+        return []
+    months = pd.PeriodIndex(price_index["date"].dropna(), freq="M").unique().sort_values()
+    step = np.diff(months.asi8)
+    if len(step) == 0 or float(np.median(step)) != 1.0:
+        return []
+    full = pd.period_range(months[0], months[-1], freq="M")
+    missing = full.difference(months)
+    if not len(missing):
+        return []
+    shown = ", ".join(str(m) for m in missing[:most])
+    more = f" and {len(missing) - most} more" if len(missing) > most else ""
+    return [f"{path}: the monthly price index has no value for {len(missing)} month(s) between "
+            f"{months[0]} and {months[-1]}: {shown}{more}; prices of those months cannot be "
+            f"deflated (add the missing months)"]

@@ -227,6 +227,9 @@ def _date_hint(rejected: pd.DataFrame, lost: int) -> str:
     e = str(plain.iloc[0] if len(plain) else values.iloc[0])  # a value whose day shows which
     iso = _iso_example(e)
     write = f"write {iso!r}" if iso else "write e.g. '2001-03-15'"
+    if values.str.fullmatch(r"\s*-?\d+(\.\d*)?\s*").all():  # numbers, not dates
+        return (f"column {col}: {len(sub):,} dates are numbers (e.g. {e!r}); store dates, or "
+                "text YYYY-MM-DD such as '2001-03-15'")
     return (f"column {col}: {len(sub):,} dates do not read as ISO 8601 (e.g. {e!r}); dates must "
             f"be YYYY-MM-DD ({write} for {e!r})")
 

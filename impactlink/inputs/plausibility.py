@@ -10,9 +10,11 @@ and per county with ``groupby``. Two kinds of finding:
 - a **value beyond a physical limit** rejects its row: :func:`beyond_physical_limits` returns
   a frame of (row, column, value, reason).
 
-The inputs stage calls :func:`check_plausibility` on each clean table after its row rules and
-before any index is computed, raises one :class:`~impactlink.errors.InputError` listing the
-fatal findings and adds the rejections to ``rejected_rows.csv``.
+The inputs stage calls :func:`unit_findings` on each contract table's values as read (after
+the cells are converted, before the row rules, so a unit mistake is never half-rejected as
+out-of-range rows) and :func:`check_plausibility` on each clean table after its row rules; it
+raises one :class:`~impactlink.errors.InputError` listing the fatal findings and adds the
+rejections to ``rejected_rows.csv``. All before any index is computed.
 
 Physical limits (World Meteorological Organization, Weather and Climate Extremes Archive,
 https://wmo.asu.edu):
@@ -50,6 +52,10 @@ __all__ = [
     "temperature_units",
     "precipitation_units",
     "scaled_counties",
+    "temperature_pairs",
+    "mixed_units",
+    "unit_findings",
+    "fatal_line",
     "mixed_cadence",
     "county_cadence",
     "beyond_physical_limits",
@@ -62,13 +68,30 @@ LIMITS: dict[str, dict[str, tuple[float, float]]] = {
                   "monthly": (0.0, 9300.0)},
 }
 TEMPERATURE_COLUMNS = ("tmin_c", "tmax_c", "tmean_c")
+#: Fewest values of a county (a year of months) for its median and spread to tell a unit; a
+#: county with fewer is judged by the row rules alone (its median is not yet a climate).
+UNIT_MIN_VALUES = 12
 #: A county's median Celsius temperature above this is Fahrenheit [C]: hotter than the
 #: annual mean of any place on Earth (about 35 C, Dallol, Ethiopia; from memory) by 10 C.
 MEDIAN_TEMPERATURE_MAX_C = 45.0
+#: A county's median Celsius temperature above this is kelvin [C]: the coldest air recorded,
+#: -89.2 C, is 184 K, and the hottest, 56.7 C, is 134 F (WMO), so no Fahrenheit median
+#: comes near 150 and no kelvin median falls below it.
+KELVIN_MEDIAN_MIN = 150.0
 #: A 2nd-98th percentile spread above this is Fahrenheit [C]: the largest annual cycle of
 #: daily temperature on Earth, in north-east Siberia (January mean about -45 C, July mean
 #: about +17 C at Verkhoyansk; from memory), spans about 65 C before day-to-day spread.
 SPREAD_TEMPERATURE_MAX_C = 80.0
+#: A county's median daily ``tmax_c - tmin_c`` above this is a Fahrenheit ``tmax_c`` [C]: the
+#: widest mean day-night ranges, in high deserts, are about 20-25 C (from memory).
+DIURNAL_RANGE_MAX_C = 30.0
+#: Share of a county's rows with ``tmin_c`` above ``tmax_c`` beyond which the two columns are
+#: not Celsius of the same days: an observing-time slip inverts a day now and then, not one
+#: day in four (common practice). A Fahrenheit ``tmin_c`` of a cool county is above the
+#: Celsius ``tmax_c`` in about half of the months.
+INVERTED_SHARE_MAX = 0.25
+#: Fewest rows holding both temperatures for a county's pair to be judged (a year of months).
+PAIR_MIN_ROWS = 12
 #: Median of the positive values below this is inches [mm]: a wet day holds at least 1 mm
 #: (Zhang et al. 2011); a positive week or month rarely holds less than the wet day.
 WET_STEP_MIN_MM = {"daily": 1.0, "weekly": 2.0, "monthly": 5.0}
@@ -82,9 +105,12 @@ FACTORS: tuple[tuple[float, str, str], ...] = (
     (float(np.log10(15.93)), "a factor of about 16", "bu/acre among t/ha (1 t/ha = 15.93 "
      "bu/acre of maize)"),
 )
-#: Half-width of the log10 window around each factor (a factor of 10 ** 0.12 = 1.32 either
-#: way; county medians of one crop in one state rarely differ by 7x, common practice).
-FACTOR_TOLERANCE = 0.12
+#: Half-width of the log10 window around each factor: three median absolute deviations of the
+#: group's log county medians (about two standard deviations), within 0.12 .. 0.3 (a factor of
+#: 1.32 .. 2 either way; county medians of one crop and practice in one state rarely differ by
+#: 3x, common practice). A county at the low edge of its group, scaled by 1,000, still lands
+#: in the window.
+FACTOR_TOLERANCE = (0.12, 0.3)
 CADENCE_DAYS = {"daily": (1, 1), "weekly": (7, 7), "monthly": (28, 31)}
 
 
@@ -97,10 +123,11 @@ class UnitFinding:
     county: str
     found: str
     fix: str
+    place: str = "county"  # "zone" for a per-zone file
 
     def message(self) -> str:
         """One line: ``<file>: column <c>, county <id>: <found>; <fix>``."""
-        where = f"column {self.column}" + (f", county {self.county}" if self.county else "")
+        where = f"column {self.column}" + (f", {self.place} {self.county}" if self.county else "")
         return f"{self.file}: {where}: {self.found}; {self.fix}"
 
 
@@ -116,7 +143,8 @@ class PlausibilityResult:
         return self.rejected.copy()
 
 
-def check_plausibility(frame: pd.DataFrame, table: str, *, file: str = "") -> PlausibilityResult:
+def check_plausibility(frame: pd.DataFrame, table: str, *, file: str = "", units: bool = True
+                       ) -> PlausibilityResult:
     """Every plausibility check that applies to one clean table.
 
     Parameters
@@ -133,26 +161,77 @@ def check_plausibility(frame: pd.DataFrame, table: str, *, file: str = "") -> Pl
     -------
     PlausibilityResult
     """
-    fatal: list[UnitFinding] = []
+    fatal = unit_findings(frame, table, file=file) if units else []
     rejected = _empty_rejected()
     if table == "climate" and len(frame):
+        rejected = beyond_physical_limits(frame)
+    return PlausibilityResult(fatal=tuple(fatal), rejected=rejected)
+
+
+def unit_findings(frame: pd.DataFrame, table: str, *, file: str = "") -> list[UnitFinding]:
+    """The fatal unit findings of one table, on its values as read (before the row rules).
+
+    The inputs stage runs these on the coerced values before any range rule, so a unit
+    mistake is named as one even where its values would also break a physical limit (a
+    Fahrenheit summer above 60, a Fahrenheit ``tmin_c`` above ``tmax_c``).
+
+    ``climate``: :func:`mixed_cadence`, then :func:`temperature_units`,
+    :func:`temperature_pairs`, :func:`precipitation_units` and :func:`scaled_counties` of
+    ``precip_mm``. ``yields``: :func:`mixed_units` of ``unit`` per crop, then
+    :func:`scaled_counties` of ``yield`` per crop and practice. ``prices``: :func:`mixed_units`
+    per commodity. Other tables: none.
+    """
+    fatal: list[UnitFinding] = []
+    if not len(frame):
+        return fatal
+    if table == "climate":
         fatal += mixed_cadence(frame, file=file)
         if not fatal:
             fatal += temperature_units(frame, file=file)
+            seen = {(f.column, f.county) for f in fatal}  # one finding per column and county
+            fatal += [f for f in temperature_pairs(frame, file=file)
+                      if (f.column, f.county) not in seen]
             fatal += precipitation_units(frame, file=file)
             fatal += scaled_counties(frame, "precip_mm", file=file)
-            rejected = beyond_physical_limits(frame)
-    if table == "yields" and len(frame):
-        fatal += scaled_counties(frame, "yield", by=("crop",), file=file)
-    return PlausibilityResult(fatal=tuple(fatal), rejected=rejected)
+    if table == "yields":
+        fatal += mixed_units(frame, "unit", by="crop", file=file)
+        if not fatal:
+            by = tuple(b for b in ("crop", "practice") if b in frame.columns)
+            fatal += scaled_counties(frame, "yield", by=by, file=file)
+    if table == "prices":
+        fatal += mixed_units(frame, "unit", by="commodity", file=file)
+    return fatal
+
+
+def fatal_line(findings: list[UnitFinding] | tuple[UnitFinding, ...], *, most: int = 3
+               ) -> str:
+    """One line for the error: the findings joined by `` | ``; the findings of one column
+    and fix in more than ``most`` counties are told once, counting and naming the first ones
+    (a whole column in another unit is one mistake, not one per county)."""
+    groups: dict[tuple[str, str, str], list[UnitFinding]] = {}
+    for f in findings:
+        groups.setdefault((f.file, f.column, f.fix), []).append(f)
+    parts = []
+    for (file, column, fix), fs in groups.items():
+        if len(fs) <= most:
+            parts += [f.message() for f in fs]
+            continue
+        shown = ", ".join(f.county for f in fs[:most])
+        place = fs[0].place
+        parts.append(UnitFinding(file, column, "", f"{len(fs)} {place.replace('y', 'ie')}s "
+                                 f"({shown} ...), e.g. {place} {fs[0].county}: {fs[0].found}",
+                                 fix).message())
+    return " | ".join(parts)
 
 
 def temperature_units(frame: pd.DataFrame, *, file: str = "",
                       columns: tuple[str, ...] = TEMPERATURE_COLUMNS) -> list[UnitFinding]:
     """Counties whose Celsius columns hold Fahrenheit values.
 
-    Rule, per column and county: the median is above 45 C (:data:`MEDIAN_TEMPERATURE_MAX_C`),
-    or the 2nd-98th percentile spread is above 80 C (:data:`SPREAD_TEMPERATURE_MAX_C`).
+    Rule, per column and county of at least :data:`UNIT_MIN_VALUES` values: the median is
+    above 45 C (:data:`MEDIAN_TEMPERATURE_MAX_C`), or the 2nd-98th percentile spread is above
+    80 C (:data:`SPREAD_TEMPERATURE_MAX_C`). A median above 150 is kelvin
+    (:data:`KELVIN_MEDIAN_MIN`), whatever the count.
     Fahrenheit values of a temperate county (median 60 F) fail the first rule, those of a cold
     county (spread 1.8 times the Celsius spread) the second.
 
@@ -164,7 +243,15 @@ def temperature_units(frame: pd.DataFrame, *, file: str = "",
     for col in (c for c in columns if c in frame.columns):  # at most three columns
         g = pd.to_numeric(frame[col], errors="coerce").groupby(frame[COUNTY].astype(str))
         med, lo, hi = g.median(), g.quantile(0.02), g.quantile(0.98)
-        bad = (med > MEDIAN_TEMPERATURE_MAX_C) | ((hi - lo) > SPREAD_TEMPERATURE_MAX_C)
+        kelvin = med > KELVIN_MEDIAN_MIN
+        bad = (((med > MEDIAN_TEMPERATURE_MAX_C) | ((hi - lo) > SPREAD_TEMPERATURE_MAX_C))
+               & ~kelvin & (g.count() >= UNIT_MIN_VALUES))
+        for county in med.index[kelvin.to_numpy()]:
+            out.append(UnitFinding(
+                file, col, str(county),
+                f"median {med[county]:.1f} looks like kelvin (a median above "
+                f"{KELVIN_MEDIAN_MIN:g} is neither Celsius nor Fahrenheit; record low -89.2 C "
+                "= 184 K)", "convert the column to degrees Celsius, C = K - 273.15"))
         for county in med.index[bad.to_numpy()]:
             out.append(UnitFinding(
                 file, col, str(county),
@@ -176,11 +263,88 @@ def temperature_units(frame: pd.DataFrame, *, file: str = "",
     return out
 
 
+def temperature_pairs(frame: pd.DataFrame, *, file: str = "") -> list[UnitFinding]:
+    """Counties whose ``tmin_c`` and ``tmax_c`` cannot both be Celsius of the same days.
+
+    Rules, per county over the rows holding both: ``tmin_c`` above ``tmax_c`` in more than
+    :data:`INVERTED_SHARE_MAX` of them (a Fahrenheit ``tmin_c``, or the two columns
+    exchanged), or a median
+    ``tmax_c - tmin_c`` above :data:`DIURNAL_RANGE_MAX_C` (a Fahrenheit ``tmax_c``: in a cool
+    county its values stay below the physical limits and its median below 45, so
+    :func:`temperature_units` cannot see it).
+    """
+    if "tmin_c" not in frame.columns or "tmax_c" not in frame.columns:
+        return []
+    lo = pd.to_numeric(frame["tmin_c"], errors="coerce")
+    hi = pd.to_numeric(frame["tmax_c"], errors="coerce")
+    both = lo.notna() & hi.notna()
+    d = pd.DataFrame({"c": frame[COUNTY].astype(str), "inv": lo > hi, "dtr": hi - lo,
+                      "lo": lo, "hi": hi})[both.to_numpy()]
+    g = d.groupby("c", sort=True)
+    s = pd.DataFrame({"n": g.size(), "inv": g["inv"].sum(), "dtr": g["dtr"].median(),
+                      "lo": g["lo"].median(), "hi": g["hi"].median()})
+    out = []
+    medians = "median tmin_c {lo:.1f}, tmax_c {hi:.1f}"
+    s = s[s["n"] >= PAIR_MIN_ROWS]  # a few rows are judged by the row rules alone
+    inverted = s["inv"] > INVERTED_SHARE_MAX * s["n"]
+    for c, r in s[inverted].iterrows():  # flagged counties only
+        out.append(UnitFinding(
+            file, "tmin_c", str(c),
+            f"tmin_c is above tmax_c in {int(r['inv']):,} of {int(r['n']):,} rows "
+            f"({medians.format(**r)}): tmin_c looks like degrees Fahrenheit, or the two "
+            "columns are exchanged",
+            "convert tmin_c to degrees Celsius, C = (F - 32) x 5/9, or exchange the column "
+            "names"))
+    for c, r in s[(s["dtr"] > DIURNAL_RANGE_MAX_C) & ~inverted].iterrows():
+        out.append(UnitFinding(
+            file, "tmax_c", str(c),
+            f"the median of tmax_c - tmin_c is {r['dtr']:.1f}, wider than the day-night range "
+            f"of any climate (above {DIURNAL_RANGE_MAX_C:g} C; {medians.format(**r)}): tmax_c "
+            "looks like degrees Fahrenheit",
+            "convert tmax_c to degrees Celsius, C = (F - 32) x 5/9"))
+    return out
+
+
+def mixed_units(frame: pd.DataFrame, column: str, *, by: str, file: str = "",
+                most: int = 5) -> list[UnitFinding]:
+    """Groups (a crop, a commodity) whose rows name more than one unit in ``column``.
+
+    Units are read from the table, never guessed: one group in two units would be compared
+    and modelled as one series, so each such group is fatal, naming the units with their row
+    counts and the counties (or regions) of the less common ones.
+    """
+    if column not in frame.columns or by not in frame.columns:
+        return []
+    unit = frame[column].astype("str").fillna("").str.strip()
+    place = next((c for c in (COUNTY, "region") if c in frame.columns), None)
+    d = pd.DataFrame({"g": frame[by].astype(str), "u": unit,
+                      "p": frame[place].astype(str) if place else ""})[(unit != "").to_numpy()]
+    n = d.groupby(["g", "u"], sort=True).size()
+    out = []
+    for g in sorted({k for k, _ in n.index}):  # one pass per crop or commodity
+        units = n[g].sort_values(ascending=False, kind="stable")
+        if len(units) < 2:
+            continue
+        parts = []
+        for u, k in units.items():
+            where = sorted(set(d.loc[(d["g"] == g) & (d["u"] == u), "p"]))
+            shown = "" if u == units.index[0] or not place else (
+                f"; {place} {', '.join(where[:most])}" + (" ..." if len(where) > most else ""))
+            parts.append(f"{u} ({k:,} row{'s' * (k != 1)}{shown})")
+        out.append(UnitFinding(
+            file, column, "",
+            f"{by} {g} is given in {len(units)} units: {', '.join(parts)}",
+            f"give all {g} rows in one unit (convert the other rows to {units.index[0]} and "
+            "write that unit)"))
+    return out
+
+
 def precipitation_units(frame: pd.DataFrame, *, file: str = "", column: str = "precip_mm"
                         ) -> list[UnitFinding]:
     """Counties whose millimetre column holds inches.
 
-    Rule, per county and cadence (:func:`county_cadence`): the median of the positive values
+    Rule, per county (of at least :data:`UNIT_MIN_VALUES` positive values) and cadence
+    (:func:`county_cadence`): the median of the positive values
     is below 1 mm (daily), 2 mm (weekly) or 5 mm (monthly), :data:`WET_STEP_MIN_MM`. A wet day
     is a day with at least 1 mm (Zhang et al. 2011), so most positive days below 1 mm is
     inches (1 in = 25.4 mm, exact by definition).
@@ -189,10 +353,11 @@ def precipitation_units(frame: pd.DataFrame, *, file: str = "", column: str = "p
         return []
     v = pd.to_numeric(frame[column], errors="coerce")
     pos = v.where(v > 0)
-    med = pos.groupby(frame[COUNTY].astype(str)).median()
+    g = pos.groupby(frame[COUNTY].astype(str))
+    med = g.median()
     cad = county_cadence(frame).reindex(med.index)
     limit = cad.map(WET_STEP_MIN_MM).astype(float)
-    bad = (med < limit).to_numpy()
+    bad = ((med < limit) & (g.count() >= UNIT_MIN_VALUES)).to_numpy()
     return [UnitFinding(file, column, str(c),
                         f"the median {cad[c]} value above zero is {med[c]:.2f}, below "
                         f"{limit[c]:g} mm (looks like inches)",
@@ -205,10 +370,11 @@ def scaled_counties(frame: pd.DataFrame, column: str, *, by: tuple[str, ...] = (
     """Counties whose values are a unit factor off the other counties' median.
 
     Rule: per group (``by``, e.g. crop) and county, r = log10(county median / median of the
-    county medians of the group). A county is flagged when |r - f| < 0.12 for a factor f of
+    county medians of the group). A county is flagged when ||r| - f| < tol for a factor f of
     :data:`FACTORS`: 10, 100, 1,000 (values scaled, kg/ha among t/ha), 62.77 (kg/ha among
-    bu/acre) or 15.93 (bu/acre among t/ha), either way. Groups with fewer than ``min_counties``
-    counties are not judged (no majority to compare with).
+    bu/acre) or 15.93 (bu/acre among t/ha), either way, and named by the nearest factor; tol is
+    three median absolute deviations of the group's r, within :data:`FACTOR_TOLERANCE`. Groups
+    with fewer than ``min_counties`` counties are not judged (no majority to compare with).
     """
     if column not in frame.columns or not len(frame):
         return []
@@ -225,18 +391,23 @@ def scaled_counties(frame: pd.DataFrame, column: str, *, by: tuple[str, ...] = (
         ref = pd.Series(med.median(), index=med.index)
         n = pd.Series(len(med), index=med.index)
     r = np.log10(med / ref)
+    dev = (r.abs().groupby(level=level).transform("median") if by
+           else pd.Series(float(r.abs().median()), index=r.index))
+    tol = (3 * dev).clip(*FACTOR_TOLERANCE).to_numpy()
+    gap = np.abs(np.abs(r.to_numpy())[:, None] - np.array([f for f, _, _ in FACTORS])[None, :])
+    nearest = gap.argmin(axis=1)  # one finding per county: the nearest factor
+    hit = (gap.min(axis=1) < tol) & (n.to_numpy() >= min_counties)
     out = []
-    for f, size, meaning in FACTORS:  # a handful of factors, vectorised over counties
-        hit = ((r.abs() - f).abs() < FACTOR_TOLERANCE) & (n >= min_counties)
-        for i in np.flatnonzero(hit.to_numpy()):
-            key = med.index[i] if isinstance(med.index[i], tuple) else (med.index[i],)
-            group = ", ".join(f"{b} {k}" for b, k in zip(by, key[:-1], strict=True))
-            way = "above" if r.iloc[i] > 0 else "below"
-            out.append(UnitFinding(
-                file, column, str(key[-1]),
-                f"{group + ': ' if group else ''}median {med.iloc[i]:.4g} is {size} {way} the "
-                f"median county's {ref.iloc[i]:.4g} ({meaning}?)",
-                "give this county's values in the unit of the others (or fix the unit column)"))
+    for i in np.flatnonzero(hit):  # flagged counties only
+        _, size, meaning = FACTORS[int(nearest[i])]
+        key = med.index[i] if isinstance(med.index[i], tuple) else (med.index[i],)
+        group = ", ".join(f"{b} {k}" for b, k in zip(by, key[:-1], strict=True))
+        way = "above" if r.iloc[i] > 0 else "below"
+        out.append(UnitFinding(
+            file, column, str(key[-1]),
+            f"{group + ': ' if group else ''}median {med.iloc[i]:.4g} is {size} {way} the "
+            f"median county's {ref.iloc[i]:.4g} ({meaning}?)",
+            "give this county's values in the unit of the others (or fix the unit column)"))
     return out
 
 
@@ -260,14 +431,17 @@ def mixed_cadence(frame: pd.DataFrame, *, file: str = "") -> list[UnitFinding]:
 def county_cadence(frame: pd.DataFrame) -> pd.Series:
     """Cadence of each county's rows: "daily", "weekly", "monthly" or "irregular".
 
-    The median step in days between consecutive distinct dates: 1 daily, 7 weekly, 28-31
+    The most common step in days between consecutive distinct dates (the shortest of equally
+    common ones), so gaps (a missing week or month) do not change it: 1 daily, 7 weekly, 28-31
     monthly; a county with one date is "daily" (nothing to judge).
     """
     d = pd.DataFrame({"c": frame[COUNTY].astype(str).to_numpy(),
                       "t": pd.to_datetime(frame[DATE]).to_numpy()}).drop_duplicates()
     d = d.sort_values(["c", "t"], kind="stable")
-    step = d.groupby("c")["t"].diff().dt.days
-    med = step.groupby(d["c"]).median().fillna(1.0)
+    d["s"] = d.groupby("c")["t"].diff().dt.days
+    n = d.dropna(subset=["s"]).groupby(["c", "s"]).size().rename("n").reset_index()
+    n = n.sort_values(["c", "n", "s"], ascending=[True, False, True], kind="stable")
+    med = n.drop_duplicates("c").set_index("c")["s"].reindex(d["c"].unique()).fillna(1.0)
     out = pd.Series("irregular", index=med.index, dtype=object)
     for name, (lo, hi) in CADENCE_DAYS.items():
         out[(med >= lo) & (med <= hi)] = name

@@ -65,8 +65,9 @@ def zone_table_path(project: Project) -> Path:
     return (Path(project.data_dir) / project.formats.zones).resolve()
 
 
-def read_published(project: Project, files: dict[str, Path]) -> tuple[dict[str, Published],
-                                                                         dict[str, str]]:
+def read_published(project: Project, files: dict[str, Path], *,
+                   county_ids: list[str] | None = None
+                   ) -> tuple[dict[str, Published], dict[str, str]]:
     """Read every table the project declares in a publisher format.
 
     Parameters
@@ -76,6 +77,10 @@ def read_published(project: Project, files: dict[str, Path]) -> tuple[dict[str, 
         the zone-to-county table is; ``project.units`` gives the climate units.
     files : dict
         Contract table name -> file (from :func:`impactlink.inputs.resolve_files`).
+    county_ids : list of str, optional
+        Ids of the counties table when it is a contract table (read first). Rows of the zone
+        table and of Quick Stats yields for other counties are rejected as "unknown county";
+        with TopoJSON counties the same is done against the features kept.
 
     Returns
     -------
@@ -93,20 +98,30 @@ def read_published(project: Project, files: dict[str, Path]) -> tuple[dict[str, 
     fm, un = project.formats, project.units
     out: dict[str, Published] = {}
     sums: dict[str, str] = {}
-    zones = None
     zoned = [t for t in ("climate", "indicators") if t in files and getattr(fm, t) == "zones"]
+    zpath = zone_table_path(project)
+    if zoned and not zpath.is_file():
+        raise InputError(f"{zpath}: the zone-to-county table named by [formats] zones is "
+                         f"not found; {zoned[0]} = \"zones\" needs it")
+    quickstats = "yields" in files and fm.yields == "quickstats"
+
+    def by_county(ids: list[str] | None) -> pd.DataFrame | None:
+        """Read the zone table and the Quick Stats yields, rows of counties not in ``ids``
+        rejected; the zone table's frame."""
+        frame = None
+        if zoned:
+            res = read_zone_table(zpath, counties=ids)
+            out["zones"] = _from_result(res, "zones")
+            frame = res.frame
+        if quickstats:
+            out["yields"] = _from_result(read_quickstats(files["yields"], counties=ids),
+                                         "yields")
+        return frame
+
+    zones = by_county(county_ids)
     if zoned:
-        zpath = zone_table_path(project)
-        if not zpath.is_file():
-            raise InputError(f"{zpath}: the zone-to-county table named by [formats] zones is "
-                             f"not found; {zoned[0]} = \"zones\" needs it")
-        res = read_zone_table(zpath)
-        out["zones"] = _from_result(res, "zones")
-        zones = res.frame
         sums.update(checksums_for(zpath))
-    if "yields" in files and fm.yields == "quickstats":
-        res = read_quickstats(files["yields"])
-        out["yields"] = _from_result(res, "yields")
+    if quickstats:
         sums.update(checksums_for(files["yields"]))
     if fm.counties == "topojson":
         wanted = _data_counties(zones, out.get("yields"))
@@ -123,7 +138,10 @@ def read_published(project: Project, files: dict[str, Path]) -> tuple[dict[str, 
             "counties", str(path), check.n, check.n - int(check.alive.sum()), clean),
             tuple(notes), warnings=tuple(surprises))
         sums.update(checksums_for(path))
-    county_ids = _county_ids(out)
+        polygons = clean[COUNTY].astype(str).tolist()
+        if wanted is not None and set(wanted) - set(polygons):  # rows without a polygon
+            zones = by_county(polygons)
+    county_ids = _county_ids(out) or county_ids
     for table in zoned:
         assert zones is not None
         column = fm.zone_column or None

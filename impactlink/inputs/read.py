@@ -23,6 +23,7 @@ from impactlink.inputs.bundle import (
     _check_record_length,
     _climate_gaps,
     _count_row,
+    _index_gaps,
     summary_frame,
 )
 from impactlink.inputs.counties import counties_without_polygon
@@ -38,7 +39,7 @@ from impactlink.inputs.table_rules import (
 )
 from impactlink.inputs.tables import _Context, _read_table
 from impactlink.project import Project
-from impactlink.schema import REQUIRED_TABLES, TABLES
+from impactlink.schema import COUNTY, REQUIRED_TABLES, TABLES
 
 __all__ = ["InputBundle", "read_inputs", "resolve_files", "summary_frame", "YEAR_RANGE",
            "TEMPERATURE_RANGE_C", "DEFAULT_LADDER", "DEFAULT_REGION", "DEFAULT_SEVERITY_RANGE"]
@@ -66,12 +67,16 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
         missing; a file cannot be parsed or has an unsupported extension; a required column
         is missing; the counties geometry is missing or unreadable, or a county id repeats;
         no county id of a table matches the counties table; the climate record covers fewer
-        years than ``[calibration] min_years``.
+        years than ``[calibration] min_years``; a unit mistake in a column (Fahrenheit or
+        kelvin under a Celsius name, inches under a millimetre name, a county's yields scaled
+        by 1,000 for a crop and practice, two units in one unit column), found on the values
+        as read, before the row rules.
 
     Notes
     -----
     Row-level problems reject the row and are listed in ``rejected`` with a reason from
     :data:`impactlink.inputs.REASONS`: missing required value, unparseable date or number,
+    date out of range (outside 1677-09-22 .. 2262-04-11, what a nanosecond timestamp holds),
     not a whole number, sentinel value (``-999`` style, :data:`impactlink.schema.SENTINELS`),
     value not finite, negative quantity, duplicate key (the later row is rejected and the
     reason names the earlier row), unknown county, end before start, level outside the
@@ -95,12 +100,11 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
     rejected: list[pd.DataFrame] = []
     counts: list[dict[str, Any]] = []
     checksums: dict[str, str] = {}
+    published: dict[str, Any] = {}
     if _declares_formats(project):
         say("reading tables in publisher formats")
-    published, checksums = read_published(project, files)
-    if "zones" in published:  # counted for the manifest; not a contract table
-        rejected.append(published["zones"].rejected)
-        counts.append(published["zones"].counts)
+    if project.formats.counties == "topojson":  # the counties come from the publisher file
+        published, checksums = read_published(project, files)
     losses: list[str] = []  # one line per table that lost too many rows (stops the run)
     where = str(project.path or "the project file")
     for name, path in files.items():
@@ -118,7 +122,9 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
             counts.append(_count_row(name, path, check, clean))
             checksums.update(checksums_for(path))
             raw = check.frame
-        clean, implausible = _plausible(name, path, clean, counts[-1])
+        prov = published[name].details.get("provenance") if name in published else None
+        clean, implausible = _plausible(name, path, clean, counts[-1], published=raw is None,
+                                        zones=prov)
         rejected.append(implausible)
         extent = (degree_extent(tables.get("counties"))
                   if raw is not None and "lon" in raw and "lat" in raw else None)
@@ -128,10 +134,20 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
         losses += [line] if line else []
         if name == "counties":
             ctx.set_counties(clean)
+            if not published:  # publisher tables are read against the counties' ids
+                published, sums = read_published(project, files,
+                                                 county_ids=_ids(ctx))
+                checksums.update(sums)
+            if "zones" in published:  # counted for the manifest; not a contract table
+                rejected.append(published["zones"].rejected)
+                counts.append(published["zones"].counts)
+                notes += published["zones"].warnings
         tables[name] = clean
     raise_losses(losses)  # before the record-length check and before any index is computed
     _check_record_length(tables["climate"], files["climate"], project)
     notes += _climate_gaps(tables["climate"], tables["counties"], files["climate"], project)
+    if "price_index" in tables:
+        notes += _index_gaps(tables["price_index"], files["price_index"])
     rej = pd.concat(rejected, ignore_index=True)[REJECTED_COLUMNS]
     notes += counties_without_polygon(rej, files["counties"])
     for message in notes:
@@ -149,20 +165,30 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
     )
 
 
-def _plausible(name: str, path: Path, clean: pd.DataFrame, count: dict[str, Any]
+def _plausible(name: str, path: Path, clean: pd.DataFrame, count: dict[str, Any], *,
+               published: bool, zones: pd.DataFrame | None = None
                ) -> tuple[pd.DataFrame, pd.DataFrame]:
     """Plausibility checks after the row rules and before any index is computed.
 
     A unit mistake (Fahrenheit under a Celsius name, inches under a millimetre name, a county
-    scaled by a power of ten, mixed cadences) stops the run with the fix spelled out; a value
+    scaled by a power of ten, mixed cadences) stops the run with the fix spelled out (contract
+    tables were checked for these as read, before their row rules; a table from a publisher
+    format is checked here, after its units were converted); a value
     beyond a physical limit rejects its row with the reason (``count`` is updated so the
-    manifest still reconciles). See :mod:`impactlink.inputs.plausibility`.
+    manifest still reconciles). A county of a per-zone file is named with its zone(s)
+    (``zones``: the reader's county -> zone provenance), the rows the user must fix.
+    See :mod:`impactlink.inputs.plausibility`.
     """
-    from impactlink.inputs.plausibility import check_plausibility
+    from dataclasses import replace
 
-    res = check_plausibility(clean, name, file=path.name)
+    from impactlink.inputs.plausibility import check_plausibility, fatal_line
+
+    res = check_plausibility(clean, name, file=str(path), units=published)
     if res.fatal:
-        raise InputError(" | ".join(f.message() for f in res.fatal))
+        zone = ({} if zones is None or "zones" not in zones else
+                dict(zip(zones[COUNTY].astype(str), zones["zones"].astype(str), strict=True)))
+        raise InputError(fatal_line([replace(f, county=f"{f.county} (zone {zone[f.county]})")
+                                     if f.county in zone else f for f in res.fatal]))
     if not len(res.rejected):
         return clean, pd.DataFrame(columns=REJECTED_COLUMNS)
     source = clean.attrs.get("source_rows")
@@ -181,6 +207,10 @@ def _plausible(name: str, path: Path, clean: pd.DataFrame, count: dict[str, Any]
     count["rows_used"] = int(count["rows_used"]) - n_bad
     count["rows_rejected"] = int(count["rows_rejected"]) + n_bad
     return out, bad
+
+
+def _ids(ctx: _Context) -> list[str] | None:
+    return None if ctx.county_ids is None else [str(c) for c in ctx.county_ids]
 
 
 def _declares_formats(project: Project) -> bool:

@@ -215,6 +215,8 @@ def _reject_duplicates(check: TableCheck, spec: TableSpec) -> None:
         v = check.clean[k].iloc[live[dup]]
         if pd.api.types.is_datetime64_any_dtype(v.dtype):
             v = v.dt.strftime("%Y-%m-%d")
+        elif pd.api.types.is_float_dtype(v.dtype):  # a year read as a number: 1981, not 1981.0
+            v = v.map(lambda x: f"{x:g}" if x != round(x) else str(int(x)))
         parts.append(v.astype(object).astype(str).to_numpy())
     values = np.empty(check.n, dtype=object)
     values[live[dup]] = [" | ".join(t) for t in zip(*parts)]

@@ -25,7 +25,6 @@ from impactlink.schema import COUNTY, REGION, TABLES, TableSpec
 
 
 @dataclass
-@dataclass
 class _Context:
     """What one table's rules need to know about the project and the other tables."""
 
@@ -126,6 +125,7 @@ def _read_table(
             f"{path}: column(s) {extra} are not part of the {name} table and are kept as text "
             f"(known columns: {list(spec.required) + list(spec.optional)})"
         )
+    _units_as_read(name, path, check, columns, ctx)
     rule = _RULES.get(name)
     if rule is not None:
         rule(check, ctx)
@@ -135,6 +135,25 @@ def _read_table(
     clean = check.used(columns + extra if name != "traits" else columns)
     clean = _final_types(name, clean, check)
     return clean, check
+
+
+def _units_as_read(name: str, path: Path, check: TableCheck, columns: list[str],
+                   ctx: _Context) -> None:
+    """Unit mistakes stop the run before any row rule (see
+    :func:`impactlink.inputs.plausibility.unit_findings`): on the converted values of the rows
+    whose cells all read (of known counties, first of each key), so a Fahrenheit column is
+    named as one, not half-rejected as temperatures out of range."""
+    from impactlink.inputs.plausibility import fatal_line, unit_findings
+
+    if name not in ("climate", "yields", "prices") or not check.alive.any():
+        return
+    frame = pd.DataFrame({c: check.clean[c][check.alive] for c in columns if c in check.clean})
+    if ctx.county_ids is not None and COUNTY in frame:
+        frame = frame[frame[COUNTY].isin(ctx.county_ids)]
+    frame = frame.drop_duplicates([k for k in TABLES[name].key if k in frame])
+    found = unit_findings(frame, name, file=str(path))
+    if found:
+        raise InputError(fatal_line(found))
 
 
 def _check_columns(spec: TableSpec, frame: pd.DataFrame, path: Path) -> None:

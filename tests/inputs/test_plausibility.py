@@ -18,9 +18,11 @@ from impactlink.inputs.plausibility import (
     beyond_physical_limits,
     check_plausibility,
     county_cadence,
+    fatal_line,
     mixed_cadence,
     precipitation_units,
     scaled_counties,
+    temperature_pairs,
     temperature_units,
 )
 
@@ -185,3 +187,51 @@ def test_check_plausibility_gathers_findings_and_rejections():
     clean = check_plausibility(climate(), "climate")
     assert clean.fatal == () and len(clean.rejected) == 0
     assert check_plausibility(c, "traits").fatal == ()
+
+
+def test_kelvin_is_named_as_kelvin_not_fahrenheit():
+    """Kelvin = Celsius + 273.15 (NIST SP 811, 4.2.1.1): a median near 288 is neither a
+    Celsius nor a Fahrenheit climate (the hottest air recorded is 134 F)."""
+    c = climate()
+    c["tmax_c"] = c["tmax_c"] + 273.15
+    found = temperature_units(c, columns=("tmax_c",), file="climate.csv")
+    assert [x.county for x in found] == ["01001", "01003", "01005"]
+    assert all("looks like kelvin" in x.found and x.fix.endswith("C = K - 273.15")
+               for x in found)
+
+
+def test_a_whole_column_in_another_unit_is_one_finding():
+    c = climate(counties=("01001", "01003", "01005", "01007"))
+    c["tmax_c"] = c["tmax_c"] * 9 / 5 + 32
+    line = fatal_line(temperature_units(c, columns=("tmax_c",), file="climate.csv"))
+    assert line.startswith("climate.csv: column tmax_c: 4 counties (01001, 01003, 01005 ...), "
+                           "e.g. county 01001: median ")
+    assert line.count(" | ") == 0 and line.endswith("C = (F - 32) x 5/9")
+    # three or fewer are told one by one
+    few = temperature_units(c[c["county_id"] != "01007"], columns=("tmax_c",), file="c.csv")
+    assert fatal_line(few).count(" | ") == 2
+
+
+def test_fahrenheit_tmin_of_a_cold_county_is_inverted_in_under_half_its_rows():
+    """A cold county (tmax -30..-10 C, tmin 10 C lower) with tmin in Fahrenheit: tmin_F =
+    1.8 tmin + 32 is above tmax_C when tmax > -17.5 C, in under half of the days, so a
+    majority rule misses it; more than a quarter of a county's days is a unit mistake."""
+    c = climate(counties=("03001",))
+    c["tmax_c"] = c["tmax_c"] - 35
+    c["tmin_c"] = (c["tmax_c"] - 10) * 9 / 5 + 32
+    share = float((c["tmin_c"] > c["tmax_c"]).mean())
+    assert 0.25 < share < 0.5 and c["tmin_c"].max() < 56.7
+    assert [(x.column, x.county) for x in temperature_pairs(c)] == [("tmin_c", "03001")]
+    c["tmin_c"] = np.where(c.index < 5, c["tmax_c"] + 1, c["tmax_c"] - 10)  # a few slips
+    assert temperature_pairs(c) == []
+
+
+def test_a_few_values_are_left_to_the_row_rules():
+    """Eleven monthly values (under a year) are not a climate to judge a unit by."""
+    c = climate(counties=("05001",), dates=pd.date_range("2001-01-01", periods=11, freq="MS"))
+    c["tmax_c"] = 50.0
+    c["precip_mm"] = 0.5
+    assert temperature_units(c) == [] and precipitation_units(c) == []
+    c = climate(counties=("05001",), dates=pd.date_range("2001-01-01", periods=12, freq="MS"))
+    c["tmax_c"], c["precip_mm"] = 50.0, 0.5
+    assert len(temperature_units(c, columns=("tmax_c",))) == 1 and len(precipitation_units(c)) == 1

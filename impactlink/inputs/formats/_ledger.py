@@ -8,15 +8,18 @@ rows_rejected``.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
 import pandas as pd
 
-from impactlink.inputs._errors import InputError
+from impactlink.inputs._errors import REASONS, InputError
+from impactlink.schema import COUNTY
 
-__all__ = ["FormatResult", "RowLedger", "REJECTED_COLUMNS", "HEADER_ROWS", "read_text_csv"]
+__all__ = ["FormatResult", "RowLedger", "REJECTED_COLUMNS", "HEADER_ROWS", "read_text_csv",
+           "reject_repeats", "reject_unknown_counties"]
 
 #: Columns of a rejected-rows frame (the same as the inputs stage's ``rejected_rows.csv``).
 REJECTED_COLUMNS = ["table", "file", "row", "column", "value", "reason"]
@@ -146,3 +149,46 @@ def read_text_csv(path: Path, *, what: str) -> pd.DataFrame:
                          "comma-separated UTF-8 text with one header row") from None
     frame.columns = [str(c).strip() for c in frame.columns]
     return frame
+
+
+def reject_repeats(led: RowLedger, frame: pd.DataFrame, keys: list[str], reason: str, *,
+                   column: str | None = None) -> None:
+    """Reject each usable row whose ``keys`` repeat an earlier usable row's.
+
+    ``reason`` may hold ``{row}``, filled with the earlier row's number; the rejected line
+    shows ``column`` (default the last key) of the later row.
+    """
+    live = np.flatnonzero(led.alive)
+    codes = frame.iloc[live].groupby(keys, sort=False).ngroup().to_numpy()
+    first = pd.Series(live).groupby(codes).transform("min").to_numpy()
+    later = first != live
+    if not later.any():
+        return
+    mask = np.zeros(led.n, dtype=bool)
+    mask[live[later]] = True
+    why = np.full(led.n, reason, dtype=object)
+    if "{row}" in reason:
+        why[live[later]] = [reason.format(row=r + 1 + HEADER_ROWS) for r in first[later]]
+    col = column or keys[-1]
+    led.reject(mask, col, frame[col].to_numpy(), why)
+
+
+def reject_unknown_counties(led: RowLedger, ids: np.ndarray, counties: Sequence[str] | None,
+                            path: Path, *, what: str) -> None:
+    """Reject the usable rows whose county id is not in the counties table ("unknown county").
+
+    The rejected line's column is ``county_id`` and its value the id, as for contract tables,
+    so the inputs stage's warning names these counties. When no usable row's county is
+    known the ids do not match at all: one error, as for contract tables.
+    """
+    if counties is None:
+        return
+    ids = np.asarray(ids, dtype=object).astype(str)
+    unknown = ~np.isin(ids, np.asarray(list(counties), dtype=str))
+    live = led.alive & (ids != "")
+    if live.any() and not (live & ~unknown).any():
+        raise InputError(f"{path}: none of the county ids of the {what} (e.g. "
+                         f"{sorted(set(ids[live]))[:5]}) is in the counties table (e.g. "
+                         f"{sorted(counties)[:5]}); use the same county ids (5-digit GEOIDs as "
+                         "text) in every table")
+    led.reject(unknown, COUNTY, ids, REASONS["unknown_county"])

@@ -23,6 +23,7 @@ breaks; ``row`` is the data row, header excluded, as in the inputs stage):
    each with its own reason (:data:`MARKER_REASONS`); anything else that is not a number is
    "unparseable number".
 4. A second row with the same county, year, crop and practice is rejected as a duplicate.
+5. A county not in the counties table is rejected as "unknown county" (as in every table).
 
 The ``crop`` label of the contract is the commodity with its utilisation, in lower case
 (``corn grain``, ``corn silage``, ``wheat winter``), so two utilisations of one commodity in
@@ -33,6 +34,7 @@ from __future__ import annotations
 
 import csv
 import re
+from collections.abc import Sequence
 from pathlib import Path
 
 import numpy as np
@@ -40,7 +42,14 @@ import pandas as pd
 
 from impactlink.inputs._errors import REASONS, InputError
 from impactlink.inputs._rules import SourceRows
-from impactlink.inputs.formats._ledger import HEADER_ROWS, FormatResult, RowLedger, read_text_csv
+from impactlink.inputs.formats._ledger import (
+    HEADER_ROWS,
+    FormatResult,
+    RowLedger,
+    read_text_csv,
+    reject_repeats,
+    reject_unknown_counties,
+)
 from impactlink.schema import COUNTY, YEAR
 
 __all__ = [
@@ -107,13 +116,16 @@ def sniff_quickstats(path: str | Path) -> bool:
     return set(QUICKSTATS_COLUMNS) <= {h.strip() for h in header}
 
 
-def read_quickstats(path: str | Path) -> FormatResult:
+def read_quickstats(path: str | Path, *, counties: Sequence[str] | None = None) -> FormatResult:
     """Read a Quick Stats CSV export into the yields contract.
 
     Parameters
     ----------
     path : str or Path
         The export as downloaded (any name).
+    counties : sequence of str, optional
+        The counties table's ids: a row of another county is rejected as "unknown county",
+        as in the contract tables.
 
     Returns
     -------
@@ -137,6 +149,11 @@ def read_quickstats(path: str | Path) -> FormatResult:
     path = Path(path)
     raw = read_text_csv(path, what="Quick Stats export")
     missing = [c for c in QUICKSTATS_COLUMNS if c not in raw.columns]
+    contract = [COUNTY, YEAR, "crop", "yield"]
+    if missing and set(contract) <= set(raw.columns):
+        raise InputError(f"{path}: not a NASS Quick Stats export but a yields table of the "
+                         f"input contract (columns {contract}); remove yields = \"quickstats\" "
+                         "under [formats] to read it as one")
     if missing:
         raise InputError(f"{path}: not a NASS Quick Stats export: no column(s) {missing}; "
                          "download the table again as CSV from Quick Stats (Spreadsheet)")
@@ -153,7 +170,9 @@ def read_quickstats(path: str | Path) -> FormatResult:
         COUNTY: county_id, YEAR: np.where(led.alive, year, 0).astype(np.int64),
         "crop": items["crop"].to_numpy(), "yield": value,
         "unit": items["unit"].to_numpy(), "practice": items["practice"].to_numpy()})
-    _duplicates(led, frame)
+    reject_repeats(led, frame, [COUNTY, YEAR, "crop", "practice"], REASONS["duplicate"],
+                   column=COUNTY)
+    reject_unknown_counties(led, county_id, counties, path, what="Quick Stats export")
     if not led.alive.any():
         why = led.rejected()["reason"].value_counts().head(3).to_dict()
         raise InputError(f"{path}: no usable yield row in {led.n} rows (most common reasons: "
@@ -268,19 +287,3 @@ def _value_rules(led: RowLedger, value: pd.Series) -> np.ndarray:
                            ).to_numpy(float)
     led.reject(number < 0, "Value", text, REASONS["negative"].format(quantity="yield"))
     return number
-
-
-def _duplicates(led: RowLedger, frame: pd.DataFrame) -> None:
-    """Reject a later row with the key (county, year, crop, practice) of an earlier one."""
-    live = np.flatnonzero(led.alive)
-    codes = frame.iloc[live].groupby([COUNTY, YEAR, "crop", "practice"], sort=False).ngroup()
-    first = pd.Series(live).groupby(codes.to_numpy()).transform("min").to_numpy()
-    later = first != live
-    if not later.any():
-        return
-    mask = np.zeros(led.n, dtype=bool)
-    mask[live[later]] = True
-    reason = np.full(led.n, "", dtype=object)
-    reason[live[later]] = [REASONS["duplicate"].format(row=r + 1 + HEADER_ROWS)
-                           for r in first[later]]
-    led.reject(mask, COUNTY, frame[COUNTY].to_numpy(), reason)

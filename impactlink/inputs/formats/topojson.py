@@ -101,6 +101,11 @@ def read_topojson_counties(path: str | Path, *, county_ids: Iterable[str] | None
     path = Path(path)
     if not path.exists():
         raise InputError(f"{path}: file not found; check the path of the county boundaries")
+    if not sniff_topojson(path) and not _is_topology(path):
+        raise InputError(f"{path}: not a TopoJSON topology (its JSON \"type\" is not "
+                         "\"Topology\"); [formats] counties = \"topojson\" needs one: give the "
+                         "TopoJSON file, or remove that line to read this file as a counties "
+                         "table (GeoJSON, GeoPackage, shapefile)")
     layers = topojson_objects(path)
     if object_name not in layers:
         raise InputError(f"{path}: no TopoJSON object {object_name!r} (objects: {layers}); "
@@ -120,7 +125,18 @@ def read_topojson_counties(path: str | Path, *, county_ids: Iterable[str] | None
     out = gpd.GeoDataFrame({COUNTY: ids.to_numpy(), "county_name": names.to_numpy()},
                            geometry=gdf.geometry.to_numpy(), crs=gdf.crs)
     # a feature without geometry is kept: the counties table rejects it by row, naming it
-    out = out[out[COUNTY] != ""]
+    blank = (out[COUNTY] == "").to_numpy()
+    if len(out) and blank.all():
+        raise InputError(f"{path}: no feature of {object_name!r} has an {id_field!r} "
+                         f"({len(out)} features); give each feature its county GEOID as text "
+                         f"in the feature member {id_field!r} (e.g. \"{id_field}\": \"01001\")")
+    if blank.any():
+        warnings.warn(f"{path}: {int(blank.sum())} of {len(out)} features of {object_name!r} "
+                      f"have no {id_field!r} and are left out (features "
+                      f"{', '.join(str(i + 1) for i in np.flatnonzero(blank)[:10])}); give "
+                      "each feature its county GEOID as the feature id", InputWarning,
+                      stacklevel=2)
+    out = out[~blank]
     if county_ids is not None:
         wanted = pd.Index(sorted({str(c) for c in county_ids}))
         absent = wanted.difference(pd.Index(out[COUNTY]))
@@ -163,6 +179,19 @@ def _to_geographic(gdf, path: Path):
                          f"{ymin:.0f}, {xmax:.0f}, {ymax:.0f}): a projected topology; use the "
                          "unprojected file (e.g. counties-10m.json, not counties-albers-10m)")
     return gdf.set_crs(GEOGRAPHIC_CRS)
+
+
+def _is_topology(path: Path) -> bool:
+    """Whether the whole file parses as JSON with ``"type": "Topology"`` (the slow check, for
+    files whose first 4 kB do not show it)."""
+    import json
+
+    try:
+        with open(path, encoding="utf-8-sig") as fh:
+            doc = json.load(fh)
+    except (OSError, UnicodeDecodeError, ValueError):
+        return False
+    return isinstance(doc, dict) and doc.get("type") == "Topology"
 
 
 def _without_bom(path: str | Path):  # noqa: ANN202 (a path or an in-memory file)

@@ -31,7 +31,14 @@ import numpy as np
 import pandas as pd
 
 from impactlink.inputs._errors import REASONS, InputError
-from impactlink.inputs.formats._ledger import HEADER_ROWS, FormatResult, RowLedger, read_text_csv
+from impactlink.inputs.formats._ledger import (
+    FormatResult,
+    RowLedger,
+    read_text_csv,
+    reject_repeats,
+    reject_unknown_counties,
+)
+from impactlink.inputs.formats._units import stop_on_unit_mistakes
 from impactlink.schema import COUNTY, DATE, SENTINELS, VALUE
 
 __all__ = [
@@ -167,7 +174,7 @@ def zone_column_of(columns: Sequence[str]) -> str | None:
     return next((lower[z] for z in ZONE_COLUMNS if z in lower), None)
 
 
-def read_zone_table(path: str | Path) -> FormatResult:
+def read_zone_table(path: str | Path, *, counties: Sequence[str] | None = None) -> FormatResult:
     """Read a zone-to-county table (nClimDiv county-to-division, two-column, or area weights).
 
     Parameters
@@ -181,8 +188,9 @@ def read_zone_table(path: str | Path) -> FormatResult:
     -------
     FormatResult
         ``frame``: ``county_id``, ``zone``, ``weight`` (1.0 without weights), text ids as
-        written. Rejected: blank ids, weights not positive, a repeated county-zone pair, and
-        without weights a county's second zone.
+        written. Rejected: blank ids, weights not positive, a repeated county-zone pair,
+        without weights a county's second zone, and a county not in ``counties`` (the
+        counties table's ids, when given): it would get a series no county polygon takes.
 
     Raises
     ------
@@ -212,7 +220,9 @@ def read_zone_table(path: str | Path) -> FormatResult:
     frame = pd.DataFrame({COUNTY: cid.to_numpy(), "zone": zid.to_numpy(), "weight": w})
     keys = [COUNTY, "zone"] if weight is not None else [COUNTY]
     why = REASONS["duplicate"] if weight is not None else ZONE_REASONS["second_zone"]
-    _reject_repeats(led, frame, keys, why)
+    reject_repeats(led, frame, keys, why)
+    reject_unknown_counties(led, frame[COUNTY].to_numpy(), None if counties is None else
+                            list(counties), path, what="zone table")
     if not led.alive.any():
         raise InputError(f"{path}: no usable county-zone pair in {led.n} rows; each row needs "
                          "a county id and a zone id")
@@ -257,7 +267,8 @@ def read_zone_climate(path: str | Path, zones: pd.DataFrame, *, zone_column: str
     ------
     InputError
         No zone column, no precipitation column, a unit neither declared nor in the header,
-        or a declared unit contradicting the header.
+        a declared unit contradicting the header, or values in another unit than the one
+        read (a zone's Fahrenheit under ``tmax_c``; before the range rules).
     """
     path = Path(path)
     raw = read_text_csv(path, what="per-zone climate file")
@@ -272,13 +283,19 @@ def read_zone_climate(path: str | Path, zones: pd.DataFrame, *, zone_column: str
         v = _numbers(led, raw[rawcol], rawcol)
         if contract.endswith("_mm"):
             v = v * MM_PER_INCH if units[rawcol] == "in" else v
+        else:
+            v = (v - 32.0) * 5.0 / 9.0 if units[rawcol] == "F" else v
+        out[contract] = v
+    stop_on_unit_mistakes(path, led, zone, dates, out,
+                          {c: r for r, (c, _) in cols.items()})
+    for rawcol, (contract, _) in cols.items():  # the range rules, after the unit check
+        v = out[contract]
+        if contract.endswith("_mm"):
             led.reject(v < 0, rawcol, raw[rawcol], REASONS["negative"].format(
                 quantity="precipitation" if contract == "precip_mm" else "evapotranspiration"))
         else:
-            v = (v - 32.0) * 5.0 / 9.0 if units[rawcol] == "F" else v
             lo, hi = TEMPERATURE_RANGE_C
             led.reject((v < lo) | (v > hi), rawcol, raw[rawcol], REASONS["temperature"])
-        out[contract] = v
     frame = pd.DataFrame({"zone": zone, DATE: dates, **out}).loc[led.alive]
     assigned = assign_zones(frame, zones, value_columns=list(out), counties=counties)
     notes = [f"{path}: {c} from {r} [{units[r]}]" for r, (c, _) in cols.items()]
@@ -447,19 +464,6 @@ def _numbers(led: RowLedger, text: pd.Series, column: str) -> np.ndarray:
     led.reject(~np.isfinite(v), column, s, REASONS["number"])
     led.reject(np.isin(np.round(v, 2), CLIMDIV_SENTINELS), column, s, REASONS["sentinel"])
     return v
-
-
-def _reject_repeats(led: RowLedger, frame: pd.DataFrame, keys: list[str], reason: str) -> None:
-    live = np.flatnonzero(led.alive)
-    codes = frame.iloc[live].groupby(keys, sort=False).ngroup().to_numpy()
-    first = pd.Series(live).groupby(codes).transform("min").to_numpy()
-    later = first != live
-    mask = np.zeros(led.n, dtype=bool)
-    mask[live[later]] = True
-    why = np.full(led.n, reason, dtype=object)
-    if "{row}" in reason:
-        why[live[later]] = [reason.format(row=r + 1 + HEADER_ROWS) for r in first[later]]
-    led.reject(mask, keys[-1], frame[keys[-1]].to_numpy(), why)
 
 
 def _provenance(z: pd.DataFrame, frame: pd.DataFrame) -> pd.DataFrame:
