@@ -335,6 +335,9 @@ def _blank(s: pd.Series) -> np.ndarray:
 
 
 def _display(s: pd.Series) -> np.ndarray:
+    if pd.api.types.is_datetime64_any_dtype(s.dtype) and (s.dropna().dt.normalize()
+                                                          == s.dropna()).all():
+        s = s.dt.strftime("%Y-%m-%d")  # a stored calendar date, shown as the day it is
     out = s.astype(object).where(s.notna(), "")
     return out.astype(str).to_numpy(dtype=object)
 

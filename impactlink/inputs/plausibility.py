@@ -42,6 +42,11 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from impactlink.inputs._cadence import (
+    county_cadence,
+    with_county_codes,
+)
+from impactlink.inputs._cadence import county_key as _county
 from impactlink.schema import COUNTY, DATE
 
 __all__ = [
@@ -111,7 +116,6 @@ FACTORS: tuple[tuple[float, str, str], ...] = (
 #: 3x, common practice). A county at the low edge of its group, scaled by 1,000, still lands
 #: in the window.
 FACTOR_TOLERANCE = (0.12, 0.3)
-CADENCE_DAYS = {"daily": (1, 1), "weekly": (7, 7), "monthly": (28, 31)}
 
 
 @dataclass(frozen=True)
@@ -161,6 +165,7 @@ def check_plausibility(frame: pd.DataFrame, table: str, *, file: str = "", units
     -------
     PlausibilityResult
     """
+    frame = with_county_codes(frame)
     fatal = unit_findings(frame, table, file=file) if units else []
     rejected = _empty_rejected()
     if table == "climate" and len(frame):
@@ -184,6 +189,7 @@ def unit_findings(frame: pd.DataFrame, table: str, *, file: str = "") -> list[Un
     fatal: list[UnitFinding] = []
     if not len(frame):
         return fatal
+    frame = with_county_codes(frame)
     if table == "climate":
         fatal += mixed_cadence(frame, file=file)
         if not fatal:
@@ -241,7 +247,7 @@ def temperature_units(frame: pd.DataFrame, *, file: str = "",
     """
     out: list[UnitFinding] = []
     for col in (c for c in columns if c in frame.columns):  # at most three columns
-        g = pd.to_numeric(frame[col], errors="coerce").groupby(frame[COUNTY].astype(str))
+        g = pd.to_numeric(frame[col], errors="coerce").groupby(_county(frame))
         med, lo, hi = g.median(), g.quantile(0.02), g.quantile(0.98)
         kelvin = med > KELVIN_MEDIAN_MIN
         bad = (((med > MEDIAN_TEMPERATURE_MAX_C) | ((hi - lo) > SPREAD_TEMPERATURE_MAX_C))
@@ -278,7 +284,7 @@ def temperature_pairs(frame: pd.DataFrame, *, file: str = "") -> list[UnitFindin
     lo = pd.to_numeric(frame["tmin_c"], errors="coerce")
     hi = pd.to_numeric(frame["tmax_c"], errors="coerce")
     both = lo.notna() & hi.notna()
-    d = pd.DataFrame({"c": frame[COUNTY].astype(str), "inv": lo > hi, "dtr": hi - lo,
+    d = pd.DataFrame({"c": _county(frame), "inv": lo > hi, "dtr": hi - lo,
                       "lo": lo, "hi": hi})[both.to_numpy()]
     g = d.groupby("c", sort=True)
     s = pd.DataFrame({"n": g.size(), "inv": g["inv"].sum(), "dtr": g["dtr"].median(),
@@ -353,7 +359,7 @@ def precipitation_units(frame: pd.DataFrame, *, file: str = "", column: str = "p
         return []
     v = pd.to_numeric(frame[column], errors="coerce")
     pos = v.where(v > 0)
-    g = pos.groupby(frame[COUNTY].astype(str))
+    g = pos.groupby(_county(frame))
     med = g.median()
     cad = county_cadence(frame).reindex(med.index)
     limit = cad.map(WET_STEP_MIN_MM).astype(float)
@@ -378,7 +384,7 @@ def scaled_counties(frame: pd.DataFrame, column: str, *, by: tuple[str, ...] = (
     """
     if column not in frame.columns or not len(frame):
         return []
-    keys = [frame[b].astype(str) for b in by] + [frame[COUNTY].astype(str)]
+    keys = [frame[b].astype(str) for b in by] + [_county(frame)]
     val = pd.to_numeric(frame[column], errors="coerce")
     med = val.where(val > 0).groupby(keys).median().dropna()
     if not len(med):
@@ -418,7 +424,7 @@ def mixed_cadence(frame: pd.DataFrame, *, file: str = "") -> list[UnitFinding]:
     (:func:`county_cadence`); counties off the most common cadence are flagged.
     """
     cad = county_cadence(frame)
-    n_dates = frame.groupby(frame[COUNTY].astype(str))[DATE].nunique()
+    n_dates = frame.groupby(_county(frame))[DATE].nunique()
     cad = cad[n_dates.reindex(cad.index).to_numpy() >= 3]  # too few dates to judge a cadence
     if cad.nunique() < 2:
         return []
@@ -426,26 +432,6 @@ def mixed_cadence(frame: pd.DataFrame, *, file: str = "") -> list[UnitFinding]:
     return [UnitFinding(file, DATE, str(c), f"{cad[c]} rows among {main} rows of the other "
                         "counties", f"give every county {main} rows (or split the table)")
             for c in cad.index[(cad != main).to_numpy()]]
-
-
-def county_cadence(frame: pd.DataFrame) -> pd.Series:
-    """Cadence of each county's rows: "daily", "weekly", "monthly" or "irregular".
-
-    The most common step in days between consecutive distinct dates (the shortest of equally
-    common ones), so gaps (a missing week or month) do not change it: 1 daily, 7 weekly, 28-31
-    monthly; a county with one date is "daily" (nothing to judge).
-    """
-    d = pd.DataFrame({"c": frame[COUNTY].astype(str).to_numpy(),
-                      "t": pd.to_datetime(frame[DATE]).to_numpy()}).drop_duplicates()
-    d = d.sort_values(["c", "t"], kind="stable")
-    d["s"] = d.groupby("c")["t"].diff().dt.days
-    n = d.dropna(subset=["s"]).groupby(["c", "s"]).size().rename("n").reset_index()
-    n = n.sort_values(["c", "n", "s"], ascending=[True, False, True], kind="stable")
-    med = n.drop_duplicates("c").set_index("c")["s"].reindex(d["c"].unique()).fillna(1.0)
-    out = pd.Series("irregular", index=med.index, dtype=object)
-    for name, (lo, hi) in CADENCE_DAYS.items():
-        out[(med >= lo) & (med <= hi)] = name
-    return out
 
 
 def beyond_physical_limits(frame: pd.DataFrame) -> pd.DataFrame:
@@ -466,12 +452,15 @@ def beyond_physical_limits(frame: pd.DataFrame) -> pd.DataFrame:
             f"below the lowest air temperature recorded ({lo} C, WMO)")))
     if "precip_mm" in frame.columns:
         v = pd.to_numeric(frame["precip_mm"], errors="coerce")
-        cad = frame[COUNTY].astype(str).map(county_cadence(frame))
-        hi = cad.map({k: b for k, (_, b) in LIMITS["precip_mm"].items()}).astype(float)
+        cat = pd.Categorical(_county(frame))  # per county, then spread by code
+        per = county_cadence(frame).reindex(cat.categories.astype(str)).to_numpy(object)
+        lim = pd.Series(per).map({k: b for k, (_, b) in LIMITS["precip_mm"].items()})
+        cad = per[cat.codes]
+        hi = pd.Series(lim.to_numpy(float)[cat.codes], index=frame.index)
         bad = v > hi
         span = {"daily": "24-hour", "weekly": "7-day (7 x 24-hour)", "monthly": "one-month"}
         reason = [f"{span[c]} rainfall record ({h:g} mm, WMO) exceeded"  # rejected rows only
-                  for c, h in zip(cad[bad], hi[bad], strict=True)]
+                  for c, h in zip(cad[bad.to_numpy()], hi[bad], strict=True)]
         parts.append(_rows(frame, "precip_mm", v, bad, np.asarray(reason, dtype=object)))
     parts = [p for p in parts if len(p)]
     return pd.concat(parts, ignore_index=True) if parts else _empty_rejected()
