@@ -22,10 +22,10 @@ from pathlib import Path
 
 import pandas as pd
 import pytest
+from corpus_common import fatal_line
 from table_cases import CASE_IDS, Case, all_cases
 from table_fixtures import make_folder
 
-from impactlink.cli import main
 from impactlink.errors import InputWarning
 from impactlink.pipeline import check_project
 
@@ -34,24 +34,6 @@ CASES = all_cases()
 FILE_TABLE = {"zone_table.csv": "zones", "boundaries.json": "counties"}
 
 
-def _line(path: Path, monkeypatch, capsys) -> str:
-    """The error line of ``impactlink check`` and of ``impactlink run`` (equal); the run's
-    indices stage fails the test if it is reached."""
-    import impactlink.pipeline.stages as stages
-
-    def no_indices(*args, **kwargs):
-        raise AssertionError("the indices stage was reached")
-
-    monkeypatch.setattr(stages, "indices", no_indices)
-    lines = []
-    for command in ("check", "run"):
-        assert main([command, str(path)]) == 2
-        err = capsys.readouterr().err.strip().splitlines()
-        assert "Traceback" not in "\n".join(err)
-        assert len(err) >= 1 and err[-1].startswith("impactlink: error: ")
-        lines.append(err[-1].removeprefix("impactlink: error: "))
-    assert lines[0] == lines[1]
-    return lines[0]
 
 
 def _written(case: Case) -> dict[str, int]:
@@ -68,7 +50,7 @@ def _written(case: Case) -> dict[str, int]:
 @pytest.mark.parametrize("case", [c for c in CASES if c.fatal], ids=CASE_IDS)
 def test_fatal_case_stops_with_one_line_before_any_index(case, tmp_path, monkeypatch, capsys):
     path = make_folder(tmp_path / "case", **case.folder)
-    line = _line(path, monkeypatch, capsys)
+    line = fatal_line(path, monkeypatch, capsys)
     assert line == case.fatal.format(d=path.parent)
     assert line.startswith(str(path.parent / ""))  # names its file first
     assert not (path.parent / "out").exists()  # nothing published by the stopped run

@@ -23,6 +23,7 @@ from pathlib import Path
 
 import pandas as pd
 import pytest
+from corpus_common import scenario_climate, write_rows
 
 from impactlink.cli import main
 from impactlink.pipeline import run_project
@@ -64,17 +65,9 @@ def scenario_rows(table: str) -> list[dict[str, str]]:
     return rows
 
 
-def write_rows(path: Path, rows: list[dict[str, str]], *, bom: bool = False) -> None:
-    with open(path, "w", newline="", encoding="utf-8-sig" if bom else "utf-8") as fh:
-        w = csv.DictWriter(fh, fieldnames=list(rows[0]))
-        w.writeheader()
-        w.writerows(rows)
-
-
 @pytest.fixture(scope="module")
 def climate() -> pd.DataFrame:
-    c = pd.read_parquet(SCENARIO / "climate.parquet")
-    return c[(c["date"].astype(str) >= YEARS[0]) & (c["date"].astype(str) <= YEARS[1])]
+    return scenario_climate(YEARS)
 
 
 def make_case(folder: Path, climate: pd.DataFrame, tables: dict[str, list[dict[str, str]]], *,

@@ -21,6 +21,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 import pytest
+from corpus_common import fatal_line, scenario_climate, write_rows
 
 from impactlink.cli import main
 from impactlink.errors import InputError, InputWarning
@@ -40,17 +41,9 @@ def _rows(name: str) -> list[dict[str, str]]:
         return list(csv.DictReader(fh))
 
 
-def _write_rows(path: Path, rows: list[dict[str, str]]) -> None:
-    with open(path, "w", newline="", encoding="utf-8") as fh:
-        w = csv.DictWriter(fh, fieldnames=list(rows[0]))
-        w.writeheader()
-        w.writerows(rows)
-
-
 @pytest.fixture(scope="module")
 def climate() -> pd.DataFrame:
-    c = pd.read_parquet(SCENARIO / "climate.parquet")
-    return c[(c["date"].astype(str) >= YEARS[0]) & (c["date"].astype(str) <= YEARS[1])]
+    return scenario_climate(YEARS)
 
 
 def make_case(folder: Path, climate: pd.DataFrame, *, share: float | None = None,
@@ -75,24 +68,6 @@ def make_case(folder: Path, climate: pd.DataFrame, *, share: float | None = None
     return folder / "impactlink.toml"
 
 
-def fatal(path: Path, monkeypatch, capsys) -> str:
-    """The error line of ``impactlink check`` and of ``impactlink run``; the run's indices
-    stage fails the test if it is reached."""
-    import impactlink.pipeline.stages as stages
-
-    def no_indices(*args, **kwargs):
-        raise AssertionError("the indices stage was reached")
-
-    monkeypatch.setattr(stages, "indices", no_indices)
-    lines = []
-    for command in ("check", "run"):
-        assert main([command, str(path)]) == 2
-        err = capsys.readouterr().err.strip().splitlines()
-        assert len(err) >= 1 and err[-1].startswith("impactlink: error: ")
-        assert "Traceback" not in "\n".join(err)
-        lines.append(err[-1].removeprefix("impactlink: error: "))
-    assert lines[0] == lines[1]
-    return lines[0]
 
 
 # ------------------------------------------------------------------- swapped columns
@@ -102,9 +77,9 @@ def test_notices_with_lon_and_lat_swapped_stop_with_the_hint(tmp_path, climate, 
     for r in rows:
         r["lon"], r["lat"] = r["lat"], r["lon"]
     path = make_case(tmp_path, climate, notices=True)
-    _write_rows(tmp_path / "notices.csv", rows)
+    write_rows(tmp_path / "notices.csv", rows)
     n = len(rows)  # every scenario longitude is below -90, so every swapped latitude is out
-    line = fatal(path, monkeypatch, capsys)
+    line = fatal_line(path, monkeypatch, capsys)
     assert line.startswith(f"{tmp_path / 'notices.csv'}: the notices table loses all {n} rows "
                            "in the inputs stage, more than max_rejected_share = 0.2 allows "
                            f"(top reasons: {n} coordinates out of range (lat)); hint: columns "
@@ -138,12 +113,12 @@ def test_notices_with_start_and_end_swapped_stop_with_the_hint(tmp_path, climate
     for r in rows:
         r["start_date"], r["end_date"] = r["end_date"], r["start_date"]
     path = make_case(tmp_path, climate, notices=True)
-    _write_rows(tmp_path / "notices.csv", rows)
+    write_rows(tmp_path / "notices.csv", rows)
     n = len(rows)
     blank_start = sum(r["start_date"] == "" for r in rows)  # open notices: no end -> no start
     before = sum(r["start_date"] != "" and r["end_date"] < r["start_date"] for r in rows)
     assert blank_start + before == n
-    line = fatal(path, monkeypatch, capsys)
+    line = fatal_line(path, monkeypatch, capsys)
     assert line.startswith(f"{tmp_path / 'notices.csv'}: the notices table loses all {n} rows")
     assert f"{before} end before start (end_date)" in line
     assert f"{blank_start} missing required value (start_date)" in line
@@ -159,11 +134,11 @@ def test_field_reports_in_day_first_dates_stop_with_the_iso_format(tmp_path, cli
         y, m, d = r["date"].split("-")
         r["date"] = f"{d}/{m}/{y}"
     path = make_case(tmp_path, climate)
-    _write_rows(tmp_path / "field_reports.csv", rows)
+    write_rows(tmp_path / "field_reports.csv", rows)
     n = len(rows)
     first = next(r["date"] for r in rows if int(r["date"][:2]) > 12)  # the day shows it
     d, m, y = first.split("/")
-    line = fatal(path, monkeypatch, capsys)
+    line = fatal_line(path, monkeypatch, capsys)
     assert line.startswith(f"{tmp_path / 'field_reports.csv'}: the field_reports table loses "
                            f"all {n:,} rows in the inputs stage")
     assert f"(top reasons: {n:,} unparseable date (date))" in line
@@ -180,7 +155,7 @@ def test_climate_in_kelvin_under_a_celsius_name_stops_with_the_unit(tmp_path, cl
     path = make_case(tmp_path, climate)
     ids = sorted(c["county_id"].astype(str).unique())
     first = c.loc[c["county_id"].astype(str) == ids[0], "tmax_c"].median()
-    line = fatal(path, monkeypatch, capsys)
+    line = fatal_line(path, monkeypatch, capsys)
     # a unit mistake is named as read, before the row rules could reject its rows one by one
     assert line == (f"{tmp_path / 'climate.parquet'}: column tmax_c: {len(ids)} counties "
                     f"({', '.join(ids[:3])} ...), e.g. county {ids[0]}: median {first:.1f} "
@@ -197,7 +172,7 @@ def _yields_with_blanks(folder: Path, share: float) -> tuple[int, int]:
     k = round(1 / share)
     for r in usable[::k]:
         r["yield"] = ""
-    _write_rows(folder / "yields.csv", rows)
+    write_rows(folder / "yields.csv", rows)
     return len(rows), sum(r["yield"] == "" for r in rows)
 
 
@@ -205,7 +180,7 @@ def test_thirty_percent_of_yields_lost_stops(tmp_path, climate, monkeypatch, cap
     path = make_case(tmp_path, climate)
     n, lost = _yields_with_blanks(tmp_path, 0.3)
     assert 0.2 < lost / n < 0.4
-    line = fatal(path, monkeypatch, capsys)
+    line = fatal_line(path, monkeypatch, capsys)
     assert line.startswith(
         f"{tmp_path / 'yields.csv'}: the yields table loses {lost:,} of {n:,} rows "
         f"({100 * lost / n:.0f} %) in the inputs stage, more than max_rejected_share = 0.2 "
@@ -235,7 +210,7 @@ def test_share_one_never_stops_even_when_all_rows_go(tmp_path, climate):
     for r in rows:
         r["lon"], r["lat"] = r["lat"], r["lon"]
     path = make_case(tmp_path, climate, share=1, notices=True)
-    _write_rows(tmp_path / "notices.csv", rows)
+    write_rows(tmp_path / "notices.csv", rows)
     b = read_inputs(load_project(path))
     assert int(b.counts.set_index("table").loc["notices", "rows_used"]) == 0
     assert len(b.rejected[b.rejected["table"] == "notices"]) == len(rows)
@@ -320,7 +295,7 @@ def test_projected_coordinates_labelled_as_degrees_are_fatal(tmp_path, climate, 
     path = make_case(tmp_path, climate, counties="counties.gpkg")
     g.to_file(tmp_path / "counties.gpkg")
     top = float(np.abs(g.total_bounds).max())
-    line = fatal(path, monkeypatch, capsys)
+    line = fatal_line(path, monkeypatch, capsys)
     assert line == (f"{tmp_path / 'counties.gpkg'}: coordinates up to {top:.0f} lie outside "
                     "EPSG:4326's range (lon -180..180, lat -90..90): the layer looks projected; "
                     "set the layer's CRS correctly (e.g. re-save it with its real EPSG code)")
@@ -330,7 +305,7 @@ def test_degrees_labelled_as_a_projection_are_fatal(tmp_path, climate, monkeypat
     g = _counties().set_crs("EPSG:5070", allow_override=True)
     path = make_case(tmp_path, climate, counties="counties.gpkg")
     g.to_file(tmp_path / "counties.gpkg")
-    line = fatal(path, monkeypatch, capsys)
+    line = fatal_line(path, monkeypatch, capsys)
     assert line.startswith(f"{tmp_path / 'counties.gpkg'}: every coordinate lies within "
                            "-180..180 and -90..90")
     assert line.endswith("the layer looks like longitude/latitude labelled EPSG:5070; set the "
@@ -383,6 +358,6 @@ def test_read_inputs_raises_input_error_for_the_stop(tmp_path, climate):
     for r in rows:
         r["lon"], r["lat"] = r["lat"], r["lon"]
     path = make_case(tmp_path, climate, notices=True)
-    _write_rows(tmp_path / "notices.csv", rows)
+    write_rows(tmp_path / "notices.csv", rows)
     with pytest.raises(InputError, match="the notices table loses all"):
         read_inputs(load_project(path))
