@@ -43,7 +43,9 @@ import numpy as np
 import pandas as pd
 
 from impactlink.inputs._cadence import (
+    cadence_table,
     county_cadence,
+    county_sample,
     with_county_codes,
 )
 from impactlink.inputs._cadence import county_key as _county
@@ -191,14 +193,16 @@ def unit_findings(frame: pd.DataFrame, table: str, *, file: str = "") -> list[Un
         return fatal
     frame = with_county_codes(frame)
     if table == "climate":
-        fatal += mixed_cadence(frame, file=file)
+        cadence = cadence_table(frame)  # on every row: the steps between dates
+        fatal += mixed_cadence(frame, file=file, cadence=cadence)
         if not fatal:
-            fatal += temperature_units(frame, file=file)
+            part = county_sample(frame)  # the distribution checks need no more values
+            fatal += temperature_units(part, file=file)
             seen = {(f.column, f.county) for f in fatal}  # one finding per column and county
-            fatal += [f for f in temperature_pairs(frame, file=file)
+            fatal += [f for f in temperature_pairs(part, file=file)
                       if (f.column, f.county) not in seen]
-            fatal += precipitation_units(frame, file=file)
-            fatal += scaled_counties(frame, "precip_mm", file=file)
+            fatal += precipitation_units(part, file=file, cadence=cadence["cadence"])
+            fatal += scaled_counties(part, "precip_mm", file=file)
     if table == "yields":
         fatal += mixed_units(frame, "unit", by="crop", file=file)
         if not fatal:
@@ -345,15 +349,16 @@ def mixed_units(frame: pd.DataFrame, column: str, *, by: str, file: str = "",
     return out
 
 
-def precipitation_units(frame: pd.DataFrame, *, file: str = "", column: str = "precip_mm"
-                        ) -> list[UnitFinding]:
+def precipitation_units(frame: pd.DataFrame, *, file: str = "", column: str = "precip_mm",
+                        cadence: pd.Series | None = None) -> list[UnitFinding]:
     """Counties whose millimetre column holds inches.
 
     Rule, per county (of at least :data:`UNIT_MIN_VALUES` positive values) and cadence
     (:func:`county_cadence`): the median of the positive values
     is below 1 mm (daily), 2 mm (weekly) or 5 mm (monthly), :data:`WET_STEP_MIN_MM`. A wet day
     is a day with at least 1 mm (Zhang et al. 2011), so most positive days below 1 mm is
-    inches (1 in = 25.4 mm, exact by definition).
+    inches (1 in = 25.4 mm, exact by definition). ``cadence``: :func:`county_cadence` of the
+    whole table, when ``frame`` is a sample of its rows.
     """
     if column not in frame.columns:
         return []
@@ -361,7 +366,7 @@ def precipitation_units(frame: pd.DataFrame, *, file: str = "", column: str = "p
     pos = v.where(v > 0)
     g = pos.groupby(_county(frame))
     med = g.median()
-    cad = county_cadence(frame).reindex(med.index)
+    cad = (county_cadence(frame) if cadence is None else cadence).reindex(med.index)
     limit = cad.map(WET_STEP_MIN_MM).astype(float)
     bad = ((med < limit) & (g.count() >= UNIT_MIN_VALUES)).to_numpy()
     return [UnitFinding(file, column, str(c),
@@ -417,15 +422,16 @@ def scaled_counties(frame: pd.DataFrame, column: str, *, by: tuple[str, ...] = (
     return out
 
 
-def mixed_cadence(frame: pd.DataFrame, *, file: str = "") -> list[UnitFinding]:
+def mixed_cadence(frame: pd.DataFrame, *, file: str = "", cadence: pd.DataFrame | None = None
+                  ) -> list[UnitFinding]:
     """Counties whose rows come at another cadence than most counties of the table.
 
     Rule: the cadence of a county is the median step between its consecutive dates
-    (:func:`county_cadence`); counties off the most common cadence are flagged.
+    (:func:`county_cadence`); counties off the most common cadence are flagged. ``cadence``:
+    the table's :func:`~impactlink.inputs._cadence.cadence_table`, when already computed.
     """
-    cad = county_cadence(frame)
-    n_dates = frame.groupby(_county(frame))[DATE].nunique()
-    cad = cad[n_dates.reindex(cad.index).to_numpy() >= 3]  # too few dates to judge a cadence
+    tab = cadence_table(frame) if cadence is None else cadence
+    cad = tab["cadence"][tab["dates"].to_numpy() >= 3]  # too few dates to judge a cadence
     if cad.nunique() < 2:
         return []
     main = cad.value_counts().index[0]

@@ -143,11 +143,13 @@ def _units_as_read(name: str, path: Path, check: TableCheck, columns: list[str],
     :func:`impactlink.inputs.plausibility.unit_findings`): on the converted values of the rows
     whose cells all read (of known counties, first of each key), so a Fahrenheit column is
     named as one, not half-rejected as temperatures out of range."""
+    from impactlink.inputs._cadence import with_county_codes
     from impactlink.inputs.plausibility import fatal_line, unit_findings
 
     if name not in ("climate", "yields", "prices") or not check.alive.any():
         return
     frame = pd.DataFrame({c: check.clean[c][check.alive] for c in columns if c in check.clean})
+    frame = with_county_codes(frame)  # one categorical: membership, repeats and checks on codes
     if ctx.county_ids is not None and COUNTY in frame:
         frame = frame[frame[COUNTY].isin(ctx.county_ids)]
     frame = frame.drop_duplicates([k for k in TABLES[name].key if k in frame])

@@ -235,3 +235,26 @@ def test_a_few_values_are_left_to_the_row_rules():
     c = climate(counties=("05001",), dates=pd.date_range("2001-01-01", periods=12, freq="MS"))
     c["tmax_c"], c["precip_mm"] = 50.0, 0.5
     assert len(temperature_units(c, columns=("tmax_c",))) == 1 and len(precipitation_units(c)) == 1
+
+
+def test_long_records_are_judged_on_a_systematic_sample_with_the_same_findings():
+    """60 years of daily rows per county: the distribution checks read every k-th row of
+    each county (deterministic), and still name the Fahrenheit tmax of one county and the
+    inches of another (NIST SP 811 conversions, as above)."""
+    from impactlink.inputs._cadence import SAMPLE_PER_COUNTY, county_sample
+    from impactlink.inputs.plausibility import unit_findings
+
+    days = pd.date_range("1961-01-01", "2020-12-31", freq="D")
+    c = climate(counties=("01001", "01003", "01005", "01007"), dates=days)
+    hot = c["county_id"] == "01003"
+    c.loc[hot, "tmax_c"] = c.loc[hot, "tmax_c"] * 9 / 5 + 32
+    wet = c["county_id"] == "01007"
+    c.loc[wet, "precip_mm"] = c.loc[wet, "precip_mm"] / 25.4
+    part = county_sample(c)
+    per = part.groupby("county_id").size()
+    assert (per >= SAMPLE_PER_COUNTY).all() and (per < 2 * SAMPLE_PER_COUNTY).all()
+    assert part.equals(county_sample(c))  # the same rows every time
+    found = {(f.column, f.county) for f in unit_findings(c, "climate", file="climate.csv")}
+    assert found == {("tmax_c", "01003"), ("precip_mm", "01007")}
+    small = climate()
+    assert county_sample(small) is small  # two years: every row is read
