@@ -23,10 +23,15 @@ __all__ = [
     "CircularityWarning",
     "REJECTED_COLUMNS",
     "RECONCILIATION_COLUMNS",
+    "OUTSIDE",
 ]
 
 REJECTED_COLUMNS = ["table", "file", "row", "column", "value", "reason"]
 RECONCILIATION_COLUMNS = ["impact", "table", "records", "used", "rejected", "outside_coverage"]
+
+#: Reason of every record outside its source's coverage (listed in rejected_rows.csv and
+#: counted under ``outside_coverage``: unknown, not impact-free).
+OUTSIDE = "outside the source's coverage"
 
 
 class OpenNoticeWarning(LinkWarning):
@@ -91,15 +96,16 @@ class Ledger:
         else:
             values = np.full(len(sub), "", dtype=object)
         reasons = reason if isinstance(reason, str) else np.asarray(list(reason), dtype=object)[mask]
-        # the file's row number when the inputs stage kept it (column ``source_row`` or
-        # ``frame.attrs["source_rows"]``); otherwise the row's index in the validated frame
+        # the file's row number as the inputs stage numbers it (1-based data row: column
+        # ``source_row``, added by build_targets, or ``frame.attrs["source_rows"]``); a frame
+        # built in code without them: its index + 1
         src = frame.attrs.get("source_rows") if hasattr(frame, "attrs") else None
         if "source_row" in frame.columns:
             rows = frame["source_row"].to_numpy()[mask]
         elif src is not None and len(src) == len(frame):
             rows = np.asarray(src)[mask]
         else:
-            rows = sub.index.to_numpy()
+            rows = sub.index.to_numpy() + 1
         file = file or str(getattr(frame, "attrs", {}).get("file", ""))
         self._rejected.append(pd.DataFrame({
             "table": table, "file": file, "row": rows,
@@ -209,8 +215,10 @@ def coverage_rows(tables: dict[str, pd.DataFrame], names: Iterable[str]) -> pd.D
     cov = tables.get("coverage")
     if cov is None or len(cov) == 0:
         return None
-    names = {str(n) for n in names}
-    sel = cov[cov["source"].astype(str).isin(names)]
+    from impactlink.link._keys import forms, normalise_key
+
+    names = {normalise_key(str(n)) for n in names}  # one normal form for every text key
+    sel = cov[forms(cov["source"]).isin(names).to_numpy()]
     return sel if len(sel) else None
 
 
@@ -226,10 +234,12 @@ def expand_to_counties(cov: pd.DataFrame, counties: pd.DataFrame) -> pd.DataFram
         by_r = cov.drop(index=by_c.index)
         by_r = by_r[by_r["region"].notna()]
         if len(by_r):
-            m = by_r[["region", "start_date", "end_date"]].merge(
-                pd.DataFrame({"region": counties["region"].astype(str),
-                              COUNTY: counties[COUNTY].astype(str)}),
-                on="region")
+            from impactlink.link._keys import forms
+
+            left = by_r[["start_date", "end_date"]].assign(_key=forms(by_r["region"]).to_numpy())
+            m = left.merge(pd.DataFrame({"_key": forms(counties["region"]).to_numpy(),
+                                         COUNTY: counties[COUNTY].astype(str).to_numpy()}),
+                           on="_key")
             parts.append(m[[COUNTY, "start_date", "end_date"]])
     if not parts:
         return pd.DataFrame({COUNTY: pd.Series(dtype=str),

@@ -11,6 +11,7 @@ from impactlink.link._common import (
     LinkError,
     OpenNoticeWarning,
 )
+from impactlink.link._keys import forms, norm_lookup, normalise_key
 from impactlink.link.spatial import points_to_counties
 from impactlink.schema import COUNTY
 
@@ -59,13 +60,15 @@ def _place(frame: pd.DataFrame, *, counties, tables, crs, issuer_county=None) ->
         if rest.any():
             wsc[rest] = points_to_counties(ws.loc[rest, "lon"].to_numpy(float),
                                            ws.loc[rest, "lat"].to_numpy(float), counties, crs=crs)
-        lookup = dict(zip(ws["system_id"].astype(str), wsc))
+        # issuer matched to system ids and names by normal form (see link._keys)
+        lookup = norm_lookup(ws["system_id"].astype(str), wsc)
         if "system_name" in ws.columns:
-            lookup.update(dict(zip(ws["system_name"].astype(str), wsc)))
-        out[todo] = frame.loc[todo, "issuer"].astype(str).map(lookup).to_numpy()
+            lookup.update({k: v for k, v in norm_lookup(ws["system_name"], wsc).items()
+                           if k not in lookup})
+        out[todo] = forms(frame.loc[todo, "issuer"].astype(str)).map(lookup).to_numpy()
     todo = pd.isna(out)
     if todo.any() and issuer_county is not None:
-        out[todo] = frame.loc[todo, "issuer"].astype(str).map(issuer_county).to_numpy()
+        out[todo] = forms(frame.loc[todo, "issuer"].astype(str)).map(issuer_county).to_numpy()
     unknown = ~pd.isna(out) & ~np.isin(out.astype(str), list(known))
     out[unknown] = "?" + out[unknown].astype(str)
     return out
@@ -91,9 +94,10 @@ def _prepare_notices(nt: pd.DataFrame, ledger: Ledger, *, opts, K, counties, tab
                      ) -> pd.DataFrame:
     ok = np.ones(len(nt), dtype=bool)
     if "cause" in nt.columns:
-        causes = {str(c).strip().lower() for c in opts.get("drought_causes", DEFAULT_CAUSES)}
-        cause = nt["cause"].astype("string").str.strip().str.lower()
-        non = (cause.notna() & (cause != "") & ~cause.isin(causes)).fillna(False).to_numpy()
+        # causes matched by normal form (case, surrounding space, Unicode; see link._keys)
+        causes = {normalise_key(str(c)) for c in opts.get("drought_causes", DEFAULT_CAUSES)}
+        cause = forms(nt["cause"])
+        non = (cause.notna() & (cause != "") & ~cause.isin(causes)).to_numpy(dtype=bool)
         ledger.reject("notices", nt, non & ok,
                       "cause is not drought (see option drought_causes)", column="cause")
         ok &= ~non
@@ -118,7 +122,7 @@ def _prepare_notices(nt: pd.DataFrame, ledger: Ledger, *, opts, K, counties, tab
     return pd.DataFrame({
         "table": "notices",
         "row": nt.index[ok],
-        "issuer": nt["issuer"].astype(str).to_numpy()[ok],
+        "issuer": forms(nt["issuer"].astype(str)).to_numpy()[ok],
         COUNTY: county[ok].astype(str),
         "start_date": start.to_numpy()[ok],
         "end_date": end.to_numpy()[ok],
@@ -142,7 +146,7 @@ def _snapshots_to_intervals(sn: pd.DataFrame, ledger: Ledger, *, opts, K, counti
     nt = tables.get("notices")
     if nt is not None and COUNTY in nt.columns and len(nt):
         g = nt.dropna(subset=[COUNTY])
-        issuer_county = g.groupby(g["issuer"].astype(str))[COUNTY].agg(
+        issuer_county = g.groupby(forms(g["issuer"].astype(str)).to_numpy())[COUNTY].agg(
             lambda s: str(s.astype(str).mode().iloc[0]))
     county = _place_or_reject(
         sn, "notice_snapshots", ledger, ok, column="issuer",
@@ -150,7 +154,7 @@ def _snapshots_to_intervals(sn: pd.DataFrame, ledger: Ledger, *, opts, K, counti
                "water_systems or notices",
         counties=counties, tables=tables, crs=crs, issuer_county=issuer_county)
     d = pd.DataFrame({
-        "row": sn.index[ok], "issuer": sn["issuer"].astype(str).to_numpy()[ok],
+        "row": sn.index[ok], "issuer": forms(sn["issuer"].astype(str)).to_numpy()[ok],
         COUNTY: county[ok].astype(str),
         "date": pd.to_datetime(sn["date"]).to_numpy()[ok],
         "level": stage.to_numpy()[ok].astype(np.int64),

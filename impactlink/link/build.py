@@ -3,11 +3,13 @@
 from __future__ import annotations
 
 import re
-from collections.abc import Iterable
+from collections.abc import Iterable, Mapping
+from dataclasses import replace
 
 import pandas as pd
 
 from impactlink.link._common import CircularityWarning, LinkError, LinkResult
+from impactlink.link._keys import attach_sources
 from impactlink.link.notices import link_notices
 from impactlink.link.prices import link_prices
 from impactlink.link.reports import link_field_reports
@@ -15,7 +17,7 @@ from impactlink.link.target import Target
 from impactlink.link.yields import link_yields
 from impactlink.schema import COUNTY, EQUAL_AREA_CRS
 
-__all__ = ["build_targets", "panel_frame", "circularity_flags", "PANEL_COLUMNS"]
+__all__ = ["build_targets", "with_files", "panel_frame", "circularity_flags", "PANEL_COLUMNS"]
 
 #: Leading columns of ``panel.parquet``; role-specific columns follow.
 PANEL_COLUMNS = ["target", "impact", "role", "grain", "horizon_weeks", "unit_id", COUNTY,
@@ -34,8 +36,8 @@ _INDEX_WORDS = ("spi", "spei", "eddi", "drought category", "drought class", "dro
 
 
 def build_targets(spec, tables: dict[str, pd.DataFrame], *, counties, weeks: pd.DatetimeIndex,
-                  lags_weeks: tuple[int, ...] = (0,), equal_area_crs: str = EQUAL_AREA_CRS
-                  ) -> LinkResult:
+                  lags_weeks: tuple[int, ...] = (0,), equal_area_crs: str = EQUAL_AREA_CRS,
+                  files: Mapping[str, object] | None = None) -> LinkResult:
     """Turn one impact's records into targets on their own grid.
 
     Parameters
@@ -58,6 +60,10 @@ def build_targets(spec, tables: dict[str, pd.DataFrame], *, counties, weeks: pd.
         Modelled lags [weeks]; persistence columns are built for them.
     equal_area_crs : str, default ``impactlink.schema.EQUAL_AREA_CRS`` (EPSG:5070)
         Projection for areas and spatial joins.
+    files : mapping of str -> path, optional
+        The file of each table (``InputBundle.files``): rejected records name it. Every
+        rejected record names its file row as the inputs stage numbers it (1-based data
+        row, header excluded; ``frame.attrs["source_rows"]``).
 
     Returns
     -------
@@ -76,8 +82,11 @@ def build_targets(spec, tables: dict[str, pd.DataFrame], *, counties, weeks: pd.
     if COUNTY not in getattr(counties, "columns", []):
         raise LinkError("build_targets: counties has no county_id column; pass the validated "
                         "counties layer")
+    tables = attach_sources(tables, files)
     res = _LINKERS[spec.source](spec, tables, counties=counties, weeks=pd.DatetimeIndex(weeks),
                                 lags_weeks=tuple(lags_weeks), equal_area_crs=equal_area_crs)
+    if files and len(res.rejected):
+        res = replace(res, rejected=with_files(res.rejected, files))
     hints = _text_hints(spec, tables)
     if hints:
         import warnings
@@ -94,6 +103,15 @@ def build_targets(spec, tables: dict[str, pd.DataFrame], *, counties, weeks: pd.
                          summary=_refresh_flags(res.summary, res.targets),
                          warnings=res.warnings)
     return res
+
+
+def with_files(rejected: pd.DataFrame, files: Mapping[str, object]) -> pd.DataFrame:
+    """``rejected`` with an empty ``file`` filled with its table's file."""
+    out = rejected.copy()
+    blank = out["file"].isna() | (out["file"].astype(str) == "")
+    named = out["table"].map({k: str(v) for k, v in files.items()})
+    out.loc[blank, "file"] = named[blank].fillna("")
+    return out
 
 
 def panel_frame(targets: Iterable[Target]) -> pd.DataFrame:

@@ -34,6 +34,7 @@ import numpy as np
 import pandas as pd
 
 from impactlink.link._common import (
+    OUTSIDE,
     Ledger,
     LinkError,
     LinkResult,
@@ -189,11 +190,18 @@ def link_notices(spec, tables: dict[str, pd.DataFrame], *, counties, weeks: pd.D
     touched = np.zeros(len(iv), dtype=bool)
     touched[on_grid] = (cc[e_c[on_grid] + 1, cpos[on_grid]] - cc[s_c[on_grid], cpos[on_grid]]) > 0
     iv["used"] = touched
+    rejected_only = _rejected_only_counts(ledger, iv, notices, snaps)
     for table, g in iv.groupby("table"):
         ledger.count(table, records=int(g["n_records"].sum()),
                      used=int(g.loc[g["used"], "n_records"].sum()),
                      outside=int(g.loc[~g["used"], "n_records"].sum()))
-    for table, n_rej in _rejected_only_counts(ledger, iv, notices, snaps).items():
+        # records touching no covered week of the record: listed with their file row
+        frame = notices if table == "notices" else snaps
+        assert frame is not None  # the intervals came from it
+        off = frame.index.isin(g.loc[~g["used"], "row"])
+        ledger.reject(str(table), frame, off, OUTSIDE,
+                      column="start_date" if table == "notices" else "date")
+    for table, n_rej in rejected_only.items():
         ledger.count(table, records=n_rej, used=0, outside=0)
 
     paintable = iv[iv["used"] & (iv["level"] >= 1)]

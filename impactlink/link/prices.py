@@ -6,6 +6,7 @@ import numpy as np
 import pandas as pd
 
 from impactlink.link._common import (
+    OUTSIDE,
     Ledger,
     LinkError,
     LinkResult,
@@ -14,6 +15,7 @@ from impactlink.link._common import (
     coverage_rows,
     interval_covered,
 )
+from impactlink.link._keys import forms, norm_lookup, selector_values, spelling
 from impactlink.link.notices import summarize
 from impactlink.link.spatial import area_weights
 from impactlink.link.target import FeatureRule, Target
@@ -89,12 +91,13 @@ def link_prices(spec, tables, *, counties, weeks=None, lags_weeks=(),
                        window_stat=opts.get("window_stat", "mean"), weights=weights)
 
     p = pr.copy()
-    p["commodity"] = p["commodity"].astype(str)
-    sel = np.ones(len(p), dtype=bool)
-    if opts.get("commodity") is not None:
-        want = opts["commodity"]
-        want = [want] if isinstance(want, str) else list(want)
-        sel = p["commodity"].isin([str(w) for w in want]).to_numpy()
+    # text keys matched by normal form (case, surrounding space, Unicode; see link._keys):
+    # the commodity takes the project's spelling, the region the counties layer's
+    respelt, sel = spelling(p["commodity"].astype(str), selector_values(opts.get("commodity")),
+                            key="commodity")
+    p["commodity"] = respelt.astype(str).to_numpy()
+    regions = norm_lookup(weights["region"], weights["region"])
+    p["region"] = forms(p["region"].astype(str)).map(regions).fillna(p["region"]).to_numpy()
     not_selected = int((~sel).sum())
     p = p.loc[sel]
     ok = np.ones(len(p), dtype=bool)
@@ -116,9 +119,10 @@ def link_prices(spec, tables, *, counties, weeks=None, lags_weeks=(),
     cov = coverage_rows(tables, {spec.name, "prices"})
     if cov is not None and "region" in cov.columns:
         c = cov[cov["region"].notna()]
-        outside = ~interval_covered(p["region"].astype(str), month,
-                                    month + pd.offsets.MonthEnd(0), c["region"],
+        outside = ~interval_covered(forms(p["region"].astype(str)), month,
+                                    month + pd.offsets.MonthEnd(0), forms(c["region"]),
                                     c["start_date"], c["end_date"]) & ok
+        ledger.reject("prices", p, outside, OUTSIDE, column="date")
     ok &= ~outside
     d = pd.DataFrame({"region": p["region"].astype(str).to_numpy()[ok],
                       "commodity": p["commodity"].to_numpy()[ok],

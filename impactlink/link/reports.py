@@ -8,6 +8,7 @@ import numpy as np
 import pandas as pd
 
 from impactlink.link._common import (
+    OUTSIDE,
     Ledger,
     LinkError,
     LinkResult,
@@ -19,6 +20,7 @@ from impactlink.link._common import (
     week_coverage,
     week_pos,
 )
+from impactlink.link._keys import selector_values, spelling
 from impactlink.link.notices import (
     _grid_columns,
     _regions,
@@ -74,11 +76,8 @@ def link_field_reports(spec, tables, *, counties, weeks, lags_weeks=(0,),
     county_ids = tuple(sorted(counties[COUNTY].astype(str)))
     region_of = _regions(counties)
     nw, nc = len(weeks), len(county_ids)
-    sel = np.ones(len(fr), dtype=bool)
-    if opts.get("sector") is not None:
-        want = opts["sector"]
-        want = [want] if isinstance(want, str) else list(want)
-        sel = fr["sector"].astype(str).isin([str(w) for w in want]).to_numpy()
+    # sectors matched by normal form (case, surrounding space, Unicode; see link._keys)
+    _, sel = spelling(fr["sector"].astype(str), selector_values(opts.get("sector")), key="sector")
     r = fr.loc[sel]
     ok = np.ones(len(r), dtype=bool)
     sev = (pd.to_numeric(r["severity"], errors="coerce") if "severity" in r.columns
@@ -102,6 +101,7 @@ def link_field_reports(spec, tables, *, counties, weeks, lags_weeks=(0,),
     inside = np.zeros(len(r), dtype=bool)
     inside[on] = mask[wp[on], cpos[on]]
     outside = ok & ~inside
+    ledger.reject("field_reports", r, outside, OUTSIDE, column="date")
     ok &= inside
     ledger.count("field_reports", records=len(r), used=int(ok.sum()), outside=int(outside.sum()),
                  not_selected=int((~sel).sum()))

@@ -2,13 +2,11 @@
 
 from __future__ import annotations
 
-import warnings
-
 import numpy as np
 import pandas as pd
 
-from impactlink.errors import LinkWarning
 from impactlink.link._common import (
+    OUTSIDE,
     Ledger,
     LinkError,
     LinkResult,
@@ -18,6 +16,7 @@ from impactlink.link._common import (
     expand_to_counties,
     interval_covered,
 )
+from impactlink.link._keys import selector_values, spelling
 from impactlink.link.features import season_end_weeks
 from impactlink.link.notices import _regions, summarize
 from impactlink.link.target import FeatureRule, Target
@@ -118,27 +117,19 @@ def link_yields(spec, tables, *, counties, weeks=None, lags_weeks=(), equal_area
     y["crop"] = y["crop"].astype(str)
     sel = np.ones(len(y), dtype=bool)
     for col in ("crop", "practice"):
-        want = opts.get(col)
-        if want is not None:
-            want = [want] if isinstance(want, str) else list(want)
-            # matched by normal form (case, surrounding space, Unicode), so "Maize " and
-            # "MAIZE" are the project's "maize"; the project's spelling is kept
-            from impactlink.inputs.keys import match_keys  # one home of key normal forms
-
-            km = match_keys(y[col], [str(w) for w in want], key=col)
-            hit = km.matched.notna().to_numpy()
-            respelt = int((hit & (y[col].to_numpy() != km.matched.fillna("").to_numpy())).sum())
-            if respelt:
-                warnings.warn(LinkWarning(
-                    f"[impacts.{spec.name}] {respelt} {col} value(s) written differently from "
-                    f"{want} (case, spaces or Unicode form) were matched to them"), stacklevel=2)
-            y.loc[hit, col] = km.matched[hit].astype(str).to_numpy()
-            sel &= hit
+        # matched by normal form (case, surrounding space, Unicode), so "Maize " and "MAIZE"
+        # are the project's "maize"; the project's spelling is kept (see link._keys)
+        respelt, hit = spelling(y[col], selector_values(opts.get(col)), key=col)
+        y[col] = respelt.fillna("").astype(str).to_numpy()
+        sel &= hit
     not_selected = int((~sel).sum())
     y = y.loc[sel]
     if len(y) == 0:
-        raise LinkError(f"[impacts.{spec.name}] no yields rows match crop={opts.get('crop')!r} "
-                        f"practice={opts.get('practice')!r}; check the crop names in the table")
+        where = ys.attrs.get("file") or "the yields table"
+        raise LinkError(f"{where}: no row has [impacts.{spec.name}] crop = "
+                        f"{opts.get('crop')!r} and practice = {opts.get('practice')!r} (crops "
+                        f"in the table: {sorted(set(ys['crop'].astype(str)))[:8]}); write the "
+                        "crop and practice as the table names them")
 
     ok = np.ones(len(y), dtype=bool)
     val = pd.to_numeric(y["yield"], errors="coerce")
@@ -157,6 +148,7 @@ def link_yields(spec, tables, *, counties, weeks=None, lags_weeks=(), equal_area
         outside = ~interval_covered(y["county_id"].astype(str), pd.to_datetime(
             yr.astype(str) + "-01-01"), pd.to_datetime(yr.astype(str) + "-12-31"),
             per["county_id"], per["start_date"], per["end_date"]) & ok
+        ledger.reject("yields", y, outside, OUTSIDE, column="year")
     ok_cov = ok & ~outside
 
     d = y.loc[ok_cov, ["county_id", "year", "crop", "practice"]].copy()
@@ -191,10 +183,12 @@ def link_yields(spec, tables, *, counties, weeks=None, lags_weeks=(), equal_area
 
     d["departure_pct"] = 100.0 * (d["yield"] - d["expected_yield"]) / d["expected_yield"]
     d["shortfall_pct"] = -d["departure_pct"]
-    gaps = _gap_years(d)
+    gaps, listed = _gap_years(d, y)
     if gaps:
         ledger.warn(f"[impacts.{spec.name}] {gaps} county-crop years inside the record have no "
-                    "yield (withheld or missing); they are left out, not imputed")
+                    f"usable yield ({listed} rejected with their reason in rejected_rows.csv, "
+                    f"{gaps - listed} with no row for the crop and practice); they are left "
+                    "out, not imputed")
     flags = [f"circular:{opts['defined_by']}"] if opts.get("defined_by") else []
     targets = []
     for (crop, practice), g in d.groupby(["crop", "practice"], sort=True):
@@ -328,9 +322,23 @@ def _auto_trend(d: pd.DataFrame, *, min_years: int, robust: bool
     return out
 
 
-def _gap_years(d: pd.DataFrame) -> int:
-    g = d.groupby(["county_id", "crop", "practice"])["year"].agg(["min", "max", "count"])
-    return int((g["max"] - g["min"] + 1 - g["count"]).sum())
+def _gap_years(d: pd.DataFrame, rows: pd.DataFrame) -> tuple[int, int]:
+    """Years inside each county-crop-practice series with no used yield, and how many of
+    them have a row of the table (rejected with its reason) rather than none."""
+    keys = ["county_id", "crop", "practice"]
+    g = d.groupby(keys)["year"].agg(["min", "max", "count"])
+    gaps = int((g["max"] - g["min"] + 1 - g["count"]).sum())
+    if not gaps:
+        return 0, 0
+    r = pd.DataFrame({"county_id": rows["county_id"].astype(str).to_numpy(),
+                      "crop": rows["crop"].to_numpy(), "practice": rows["practice"].to_numpy(),
+                      "year": pd.to_numeric(rows["year"], errors="coerce").to_numpy()}
+                     ).drop_duplicates()
+    r = r.merge(g[["min", "max"]].reset_index(), on=keys)
+    r = r[(r["year"] >= r["min"]) & (r["year"] <= r["max"])]
+    used = d[keys + ["year"]].drop_duplicates().assign(_used=True)
+    r = r.merge(used, on=keys + ["year"], how="left")
+    return gaps, int(r["_used"].isna().sum())
 
 
 def _season(opts: dict) -> dict:

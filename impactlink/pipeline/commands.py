@@ -198,7 +198,8 @@ def _timed(name: str, run: Run, tmp: Path, reporter: Reporter, result: RunResult
             result.warnings.append(msg)
             reporter(f"warning: {msg}")
     result.timings_s[name] = round(time.perf_counter() - t0, 3)
-    result.written.extend(written)
+    # a file rewritten by a later stage (rejected_rows.csv: inputs, then link) is listed once
+    result.written.extend(p for p in written if p not in result.written)
     return run
 
 

@@ -291,6 +291,9 @@ def write_manifest(folder: Path, run: Run, timings: dict[str, float], warnings: 
                 if getattr(t.rule, "season_end_weeks", ()) else {})}
             for t in targets
         ],
+        # text keys respelt to match (case, whitespace, Unicode form), per table and column
+        "key_normalisation": _jsonable(run.link.key_normalisation) if run.link is not None
+        else {},
         "indices": {str(k): _jsonable(v) for k, v in getattr(cube, "provenance", {}).items()},
         "versions": _versions(),
         "timings_s": timings,

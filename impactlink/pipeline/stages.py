@@ -15,7 +15,7 @@ from typing import Any, Literal, cast
 import numpy as np
 import pandas as pd
 
-from impactlink.errors import ContrastError, ContrastWarning
+from impactlink.errors import ContrastError, ContrastWarning, IndicesError
 from impactlink.link import features as link_features
 from impactlink.project import Project
 from impactlink.schema import COUNTY
@@ -50,10 +50,11 @@ def indices(project: Project, inputs: InputsResult, progress: Progress) -> Indic
 
     tables = inputs.bundle.tables
     cfg, cal = project.indices, project.calibration
+    indicators = _indicator_keys(tables.get("indicators"))
     cube = compute_indices(
         tables["climate"],
         latitude_deg=_latitudes(tables["counties"]),
-        indicators=tables.get("indicators"),
+        indicators=indicators,
         scales_weeks=tuple(cfg.scales_weeks),
         scales_months=tuple(cfg.scales_months),
         indices=tuple(cfg.indices),
@@ -64,7 +65,20 @@ def indices(project: Project, inputs: InputsResult, progress: Progress) -> Indic
         progress=progress,
     )
     if cfg.indicators:
-        wanted = set(cfg.indices) | set(cfg.indicators)
+        from impactlink.inputs.keys import normalise_key
+
+        # indicator names matched by normal form (case, spaces, Unicode form), as the cube
+        # names them (spaces as underscores)
+        named = {w: normalise_key(w).replace(" ", "_") for w in cfg.indicators}
+        have = {k[0] for k in cube.arrays}
+        absent = [w for w, key in named.items() if key not in have]
+        if absent:
+            found = sorted(set(indicators["indicator"])) if indicators is not None else []
+            where = inputs.bundle.files.get("indicators", "the indicators table")
+            raise IndicesError(f"{where}: no indicator {absent[0]!r} (named by [indices] "
+                               f"indicators); the table's indicators are {found}; write a "
+                               "name the indicator column gives")
+        wanted = set(cfg.indices) | set(named.values())
         keep = {k: v for k, v in cube.arrays.items() if k[0] in wanted}
         cube = type(cube)(cube.weeks, cube.county_ids, keep, cube.provenance)
     if cube.provenance.get("cadence") != "monthly":
@@ -110,8 +124,16 @@ def link(project: Project, inputs: InputsResult, ind: IndicesResult,
          progress: Progress) -> LinkStageResult:
     """Impact records -> targets on their own grids, with reconciliation counts."""
     from impactlink.link import build_targets, panel_frame
+    from impactlink.link._keys import attach_sources
+    from impactlink.link.build import with_files
+    from impactlink.link.selection import key_normalisation, normalisation_lines, unselected_rows
 
-    tables = inputs.bundle.tables
+    files = {k: str(v) for k, v in inputs.bundle.files.items()}
+    # every impact record carries its file row; text keys are matched by one normal form
+    tables = attach_sources(inputs.bundle.tables, files)
+    keys = key_normalisation(tables, project.impacts)
+    for line in normalisation_lines(keys):
+        progress(line)
     targets: list[Any] = []
     rejected: list[pd.DataFrame] = []
     recon: list[pd.DataFrame] = []
@@ -126,13 +148,20 @@ def link(project: Project, inputs: InputsResult, ind: IndicesResult,
             weeks=ind.cube.weeks,
             lags_weeks=tuple(project.link.lags_weeks),
             equal_area_crs=project.link.equal_area_crs,
+            files=files,
         )
         targets.extend(link_features.season_in_months(t, ind.cube) for t in res.targets)
         rejected.append(res.rejected)
         recon.append(res.reconciliation)
         summaries.append(res.summary)
         warns.extend(res.warnings)
+    # rows of an impact table that no impact selects: listed once, reconciled in one line
+    unused, unused_recon = unselected_rows(project.impacts, tables)
+    rejected.append(unused)
+    recon.append(unused_recon)
     link_rejected = _concat(rejected)
+    if len(link_rejected):
+        link_rejected = with_files(link_rejected, files)
     return LinkStageResult(
         targets=tuple(targets),
         panel=panel_frame(targets) if targets else pd.DataFrame(),
@@ -141,6 +170,7 @@ def link(project: Project, inputs: InputsResult, ind: IndicesResult,
         rejected=link_rejected,
         rejected_all=pd.concat([inputs.bundle.rejected, link_rejected], ignore_index=True),
         warnings=tuple(warns),
+        key_normalisation=keys,
     )
 
 
@@ -174,9 +204,10 @@ def rank(project: Project, inputs: InputsResult, ind: IndicesResult, lk: LinkSta
             seed=project.seed, jobs=jobs, dask_address=dask_address, progress=progress,
         )
         monthly = bool(cube.provenance.get("scale_months_of_key"))
-        res = dataclasses.replace(
+        res = dataclasses.replace(  # every table that names a candidate says its window end
             res, table=link_features.with_end_week(res.table, target, "lag_weeks", monthly),
-            summary=link_features.with_end_week(res.summary, target, "best_lag_weeks", monthly))
+            summary=link_features.with_end_week(res.summary, target, "best_lag_weeks", monthly),
+            local=link_features.with_end_week(res.local, target, "lag_weeks", monthly))
         for key, frame in (("skill", res.table), ("summary", res.summary),
                            ("reliability", res.reliability), ("local", res.local),
                            ("persistence", res.persistence)):
@@ -190,12 +221,15 @@ def rank(project: Project, inputs: InputsResult, ind: IndicesResult, lk: LinkSta
         best[target.name] = (model, cand)
         skill_tables[target.name] = res.table
         if model.ok:
-            parts["curves"].append(impact_curves(model, ci=project.models.curve_ci, meta=meta))
+            parts["curves"].append(link_features.with_end_week(
+                impact_curves(model, ci=project.models.curve_ci, meta=meta), target,
+                "lag_weeks", monthly))
             cr = crossings(model, ci=project.models.curve_ci)
             for k, v in meta.items():
                 if k not in cr.columns:
                     cr.insert(0, k, v)
-            parts["crossings"].append(cr)
+            parts["crossings"].append(link_features.with_end_week(cr, target, "lag_weeks",
+                                                                  monthly))
     c = {k: _concat(v) for k, v in parts.items()}
     return RankResult(skill=c["skill"], summary=c["summary"], reliability=c["reliability"],
                       local=c["local"], persistence=c["persistence"], curves=c["curves"],
@@ -455,6 +489,19 @@ def _model_options(project: Project, inputs: InputsResult, target: Any) -> dict[
             )
         opts["traits"] = traits[[COUNTY, *project.models.traits]]
     return opts
+
+
+def _indicator_keys(indicators: pd.DataFrame | None) -> pd.DataFrame | None:
+    """The indicators table with each name in its normal form (NFKC, spaces, case folded:
+    :func:`impactlink.inputs.keys.normalise_key`), so "Soil Moisture " and "soil moisture"
+    are one indicator."""
+    if indicators is None or "indicator" not in indicators.columns:
+        return indicators
+    from impactlink.link._keys import forms
+
+    out = indicators.copy()
+    out["indicator"] = forms(indicators["indicator"].astype(str)).to_numpy()
+    return out
 
 
 def _latitudes(counties: Any) -> pd.Series:

@@ -77,6 +77,9 @@ class LinkStageResult:
     rejected: pd.DataFrame
     rejected_all: pd.DataFrame  # input rejections plus impact records rejected while linking
     warnings: tuple[str, ...] = ()
+    #: per table and key column: values respelt to their key (``manifest.json``
+    #: ``key_normalisation``; see :func:`impactlink.link.selection.key_normalisation`)
+    key_normalisation: dict[str, Any] = field(default_factory=dict)
 
     def tables(self) -> dict[str, pd.DataFrame]:
         out = {"reconciliation.csv": self.reconciliation, "link_summary.csv": self.summary,

@@ -24,7 +24,7 @@ from impactlink.report.fig_style import (
     styled,
 )
 from impactlink.report.palette import CATEGORICAL, NEUTRAL, category_colours, sequential_cmap
-from impactlink.report.text import candidate_label, index_name, score_label, target_label
+from impactlink.report.text import index_name, row_label, score_label, target_label
 
 
 @styled
@@ -70,9 +70,13 @@ def skill_heatmap(skill: pd.DataFrame, *, impact: str, target: str, score: str =
     else:
         best_cell["_tie"] = False
     lags = np.sort(best_cell["lag_weeks"].unique())
+    xlabel, lag_ticks = _lag_axis(sub, lags)
+    if xlabel != "lag (weeks)":
+        lags = lags[::-1]  # a seasonal window's end runs forward in time as the lag shrinks
+        lag_ticks = lag_ticks[::-1]
     top = best_cell.loc[best_cell[score].idxmax()]
     vmax = max(float(best_cell[score].max()), 0.05)
-    panels = _heatmap_panels(best_cell, score)
+    panels = _heatmap_panels(best_cell, score, _months_of(sub))
     n = len(panels)
     ncol = min(n, 3)
     nrow = int(np.ceil(n / ncol))
@@ -92,30 +96,58 @@ def skill_heatmap(skill: pd.DataFrame, *, impact: str, target: str, score: str =
         ties = cell.pivot(index="_row", columns="lag_weeks", values="_tie").reindex(
             index=row_keys, columns=lags).fillna(False).to_numpy(dtype=bool)
         image = _heat_cells(ax, values, ties, vmax)
-        ax.set_xticks(range(len(lags)), [str(int(v)) for v in lags])
+        ax.set_xticks(range(len(lags)), lag_ticks)
         ax.set_yticks(range(len(row_keys)), row_labels)
         ax.set_title(title)
-        ax.set_xlabel("lag (weeks)")
+        ax.set_xlabel(xlabel)
         ax.set_ylabel(ylabel)
         is_top = cell[(cell["index"] == top["index"]) & (cell["scale_weeks"] == top["scale_weeks"])
                       & (cell["lag_weeks"] == top["lag_weeks"])]
         if not is_top.empty:
             i = row_keys.index(is_top["_row"].iloc[0])
-            jj = int(np.searchsorted(lags, top["lag_weeks"]))
+            jj = int(np.flatnonzero(lags == top["lag_weeks"])[0])
             ax.add_patch(mpatches.Rectangle(
                 (jj - 0.5, i - 0.5), 1, 1, fill=False, edgecolor=CATEGORICAL["marigold"],
                 linewidth=2.5))
     if image is not None:
         bar = fig.colorbar(image, ax=axes.ravel().tolist(), shrink=0.9)
         bar.set_label(f"{score_label(score)} (0 = climatology)")
-    fig.suptitle(f"{impact} \u2014 {target_label(impact, target)}: skill by time scale and lag",
+    what = "lag" if xlabel == "lag (weeks)" else "window end"
+    fig.suptitle(f"{impact} \u2014 {target_label(impact, target)}: skill by time scale and {what}",
                  fontsize=10)
     return fig
 
 
-def _heatmap_panels(best_cell: pd.DataFrame, score: str) -> list:
-    """One panel per computed index (rows = time scales); supplied indicators, which have no
-    time scale (``scale_weeks == 0``), share one panel with a row each."""
+_MON = ("Jan", "Feb", "Mar", "Apr", "May", "Jun", "Jul", "Aug", "Sep", "Oct", "Nov", "Dec")
+
+
+def _months_of(sub: pd.DataFrame) -> dict[float, int]:
+    """Time scale in weeks -> months, when every computed scale of monthly input has one."""
+    if "scale_months" not in sub.columns:
+        return {}
+    rows = sub[sub["scale_weeks"] != 0].dropna(subset=["scale_weeks"])
+    if rows.empty or rows["scale_months"].isna().any():
+        return {}
+    return {float(w): int(m) for w, m in zip(rows["scale_weeks"], rows["scale_months"],
+                                             strict=True)}
+
+
+def _lag_axis(sub: pd.DataFrame, lags: np.ndarray) -> tuple[str, list[str]]:
+    """Column axis: lag in weeks, or for a seasonal target where the window ends (its month
+    for monthly input, else its ISO week)."""
+    if "end_week" not in sub.columns or sub["end_week"].isna().all():
+        return "lag (weeks)", [str(int(v)) for v in lags]
+    ends = sub.drop_duplicates("lag_weeks").set_index("lag_weeks")
+    if "end_month" in ends.columns and ends["end_month"].notna().all():
+        return "window ends in", [_MON[int(ends.at[v, "end_month"]) - 1] for v in lags]
+    return "window ends in ISO week", [str(int(ends.at[v, "end_week"])) for v in lags]
+
+
+def _heatmap_panels(best_cell: pd.DataFrame, score: str,
+                    months: dict[float, int] | None = None) -> list:
+    """One panel per computed index (rows = time scales, in months for monthly input);
+    supplied indicators, which have no time scale (``scale_weeks == 0``), share one panel
+    with a row each."""
     supplied_mask = (best_cell["scale_weeks"] == 0).to_numpy()
     computed = best_cell[~supplied_mask].assign(_row=lambda f: f["scale_weeks"].astype(float))
     supplied = best_cell[supplied_mask].assign(_row=lambda f: f["index"].astype(str))
@@ -123,8 +155,9 @@ def _heatmap_panels(best_cell: pd.DataFrame, score: str) -> list:
     scales = sorted(computed["_row"].unique())
     for ix in sorted(computed["index"].unique(), key=str):
         cell = computed[(computed["index"] == ix).to_numpy()]
-        panels.append((index_name(ix), scales, [str(int(v)) for v in scales],
-                       "time scale (weeks)", cell))
+        ticks = [str(months[v]) if months else str(int(v)) for v in scales]
+        panels.append((index_name(ix), scales, ticks,
+                       "time scale (months)" if months else "time scale (weeks)", cell))
     if not supplied.empty:
         names = sorted(supplied["_row"].unique())
         panels.append(("supplied indicators", names, [index_name(v) for v in names], "",
@@ -211,7 +244,7 @@ def candidate_intervals(
             ax.errorbar(est[m], y[m], xerr=err[:, m], fmt=marker, color=colour, ecolor=colour,
                         capsize=2, label=label, markeredgecolor=CATEGORICAL["ink"])
     labels = [
-        candidate_label(r["index"], r["scale_weeks"], r["lag_weeks"], short=True)
+        row_label(r)
         + (f" ({r['model']})" if pd.notna(r["model"]) and r["model"] != "index" else "")
         for _, r in cand.iterrows()
     ]

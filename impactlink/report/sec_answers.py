@@ -14,11 +14,11 @@ from impactlink.report.runfolder import RunFolder
 from impactlink.report.text import (
     CAUTIONS_SHORT,
     answer_card,
-    candidate_label,
     fmt_interval,
     impact_name,
     is_primary,
     level_name,
+    row_label,
     target_name,
 )
 from impactlink.report.words_answers import (
@@ -163,8 +163,7 @@ def _card(main) -> Markup:
 
 def _glance(row: pd.Series, answer) -> str:
     """One line per impact: best candidate, score with its interval, verdict, events."""
-    label = candidate_label(row.get("best_index"), row.get("best_scale_weeks"),
-                            row.get("best_lag_weeks"), short=True)
+    label = row_label(row, prefix="best_")
     label = f"{target_name(row.get('impact'), row.get('target'))}: {label}"
     nested = summary_skill(row)
     skill = fmt_interval(nested.nested, nested.nested_lo, nested.nested_hi)

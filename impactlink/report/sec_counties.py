@@ -21,12 +21,12 @@ from impactlink.report.sec_answers import primary_rows
 from impactlink.report.sec_outlook import _impact_options, season_note
 from impactlink.report.svgmap import map_shapes, svg_map
 from impactlink.report.text import (
-    candidate_label,
     fmt_interval,
     fmt_num,
     impact_name,
     index_name,
     level_name,
+    row_label,
     target_name,
 )
 from impactlink.schema import COUNTY
@@ -112,8 +112,7 @@ class _Cards:
         for _, r in rows.iterrows():
             if self.primary is not None and str(r.get("target")) not in self.primary:
                 continue
-            what = candidate_label(r.get("index"), r.get("scale_weeks"), r.get("lag_weeks"),
-                                   short=True)
+            what = row_label(r)
             skill = f", local skill score {fmt_num(r['skill'])}" if "skill" in r.index else ""
             ev = f", {int(r['events'])} cases" if pd.notna(r.get("events")) else ""
             if pd.notna(r.get("events")) and int(r["events"]) == 0:

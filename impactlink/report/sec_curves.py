@@ -16,7 +16,7 @@ from impactlink.report.common import (
 from impactlink.report.figures_curves import impact_curves
 from impactlink.report.html import Markup, details, el, paragraph, table
 from impactlink.report.runfolder import RunFolder
-from impactlink.report.text import candidate_label, fmt_num, level_name
+from impactlink.report.text import fmt_num, level_name, row_label
 from impactlink.report.words_sections import CURVES_INTRO
 
 
@@ -34,7 +34,7 @@ def curves_section(run: RunFolder, figs: FigureSink) -> Markup:
         if crossings is not None:
             cr = sel(crossings, impact=impact, target=target)
         alt = (f"Impact curve for {impact}, {target}: chance of impact from 0 to 1 against "
-               f"{candidate_label(first['index'], first['scale_weeks'], first.get('lag_weeks'))}"
+               f"{row_label(first, short=False)}"
                " values; the chance rises as the index gets drier.")
         if cr is not None and not cr.empty:
             mid = cr.sort_values("prob_level").iloc[len(cr) // 2]

@@ -22,7 +22,7 @@ from impactlink.report.common import (
 from impactlink.report.html import Markup, details, el, paragraph, table
 from impactlink.report.runfolder import RunFolder
 from impactlink.report.svgmap import map_shapes, svg_map
-from impactlink.report.text import candidate_label, fmt_num, level_name
+from impactlink.report.text import fmt_num, level_name, row_label
 from impactlink.schema import COUNTY
 
 __all__ = ["outlook_section", "scalar_columns", "season_note"]
@@ -171,7 +171,7 @@ def _candidate(rows: pd.DataFrame) -> str:
     if rows.empty or "index" not in rows.columns:
         return "the best candidate"
     r = rows.iloc[0]
-    return candidate_label(r.get("index"), r.get("scale_weeks"), r.get("lag_weeks"), short=True)
+    return row_label(r)
 
 
 def _impact_options(manifest: dict) -> dict[str, dict]:

@@ -31,12 +31,12 @@ from impactlink.report.html import Markup, details, el, join, link, paragraph, t
 from impactlink.report.runfolder import RunFolder
 from impactlink.report.svgmap import map_shapes, svg_map
 from impactlink.report.text import (
-    candidate_label,
     fmt_interval,
     fmt_num,
     impact_name,
     index_name,
     persistence_sentence,
+    row_label,
     score_label,
     target_name,
 )
@@ -79,18 +79,19 @@ def skill_section(run: RunFolder, figs: FigureSink, *, detail: bool = False) -> 
             continue
         best = cand.loc[cand[score].idxmax()]
         parts.append(el("h3", pair_title(impact, target)))
-        label = candidate_label(best["index"], best["scale_weeks"], best["lag_weeks"])
+        label = row_label(best, short=False)
         if detail:
             parts.append(figs.add(
                 f"skill_{impact}_{target}",
                 lambda s=sub, i=impact, t=target, sc=score: skill_heatmap(
                     s, impact=i, target=t, score=sc),
                 alt=(f"Heat maps of {score_label(score)} for {impact}, {target}, by time scale "
-                     f"(weeks, rows) and lag (weeks, columns), one panel per index "
+                     f"({_axes(cand)}), one panel per index "
                      f"({', '.join(index_name(i) for i in sorted(cand['index'].unique()))}). "
                      f"Best: {label}, score {fmt_num(best[score])}."),
                 caption=(f"{score_label(score).capitalize()} of every candidate for "
-                         f"{pair_title(impact, target)}, by time scale and lag.")))
+                         f"{pair_title(impact, target)}, by time scale and "
+                         f"{'window end' if 'window' in _axes(cand) else 'lag'}.")))
             continue
         if {f"{score}_lo", f"{score}_hi"} <= set(sub.columns):
             parts.append(figs.add(
@@ -127,8 +128,7 @@ def _persistence_part(run: RunFolder, figs: FigureSink) -> Markup:
             for label, r in zip(labels, picks, strict=True):
                 if r is None:
                     continue
-                what = (candidate_label(r["index"], r["scale_weeks"], r["lag_weeks"], short=True)
-                        if pd.notna(r["index"]) else "")
+                what = row_label(r) if pd.notna(r["index"]) else ""
                 rows.append({"target": target_name(impact, tgt),
                              "lag_weeks": lag if lag is not None else r.get("lag_weeks"),
                              "model": label, "candidate": what,
@@ -190,8 +190,7 @@ def maps_section(run: RunFolder, figs: FigureSink) -> Markup:
             continue  # derived targets: numbers in skill_local.csv and the county cards
         title = pair_title(*key) if len(key) == 2 else impact_name(key[0])
         sub = sub.assign(candidate=[
-            candidate_label(r.get("index"), r.get("scale_weeks"), r.get("lag_weeks"), short=True)
-            for _, r in sub.iterrows()], index_shown=sub["index"].map(index_name))
+            row_label(r) for _, r in sub.iterrows()], index_shown=sub["index"].map(index_name))
         events = sub["events"] if "events" in sub.columns else pd.Series(pd.NA, index=sub.index)
         extra = {str(c): f"{cand}" + (f", {int(e)} cases" if pd.notna(e) else "")
                  for c, cand, e in zip(sub[COUNTY], sub["candidate"], events, strict=True)}
@@ -241,3 +240,14 @@ def _with_skill(frame: pd.DataFrame) -> pd.DataFrame:
             if score in frame.columns:
                 return frame.assign(skill=frame[score])
     return frame
+
+
+def _axes(cand: pd.DataFrame) -> str:
+    """The heat map's axes in words: months for monthly input, window ends for seasonal
+    targets (as :func:`impactlink.report.figures_skill.skill_heatmap` draws them)."""
+    monthly = "scale_months" in cand.columns and cand["scale_months"].notna().any()
+    seasonal = "end_week" in cand.columns and cand["end_week"].notna().any()
+    rows = "months" if monthly else "weeks"
+    cols = "where the window ends, columns" if seasonal else "lag in weeks, columns"
+    return f"{rows}, rows; {cols}"
+

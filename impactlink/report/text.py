@@ -7,18 +7,19 @@ are written "from ... to ...", and each answer says what it rests on.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import pandas as pd
 
 from impactlink.report._select import single_candidates, summary_skill
+from impactlink.report.words_candidate import candidate_label, in_cadence, index_name, row_label
 from impactlink.report.words_sections import CAUTIONS, CAUTIONS_SHORT
 
 __all__ = [
     "index_name",
     "score_label",
     "candidate_label",
+    "row_label",
     "fmt_num",
     "fmt_interval",
     "Answer",
@@ -37,13 +38,6 @@ __all__ = [
     "is_primary",
 ]
 
-_INDEX_NAMES = {
-    "spi": "SPI",
-    "spei": "SPEI",
-    "eddi": "EDDI",
-    "soil_moisture_pct": "soil-moisture percentile",
-    "streamflow_pct": "streamflow percentile",
-}
 
 _SCORE_LABELS = {
     "bss": "Brier skill score",
@@ -67,74 +61,9 @@ _MODEL_NAMES = {
     "ordinal_logit": "proportional-odds",
 }
 
-def index_name(index) -> str:
-    """Display name of an index ("spi" -> "SPI"); unknown names are kept as given."""
-    if index is None or (isinstance(index, float) and math.isnan(index)) or index is pd.NA:
-        return "no index"
-    return _INDEX_NAMES.get(str(index).lower(), str(index).replace("_", " "))
-
-
 def score_label(score: str) -> str:
     """Display name of a score column ("bss" -> "Brier skill score")."""
     return _SCORE_LABELS.get(str(score), str(score))
-
-
-def candidate_label(index, scale_weeks, lag_weeks, *, short: bool = False,
-                    cadence: str = "weekly") -> str:
-    """Describe one candidate in words a reader can decode.
-
-    Parameters
-    ----------
-    index : str
-    scale_weeks, lag_weeks : int or float
-        Time scale and lag in weeks (missing values are left out).
-    short : bool, default False
-        "SPI over 13 weeks, 4 weeks ahead" instead of
-        "SPI, 13-week time scale, 4-week lag".
-    cadence : {"weekly", "monthly", "annual"}, default "weekly"
-        The impact input's cadence: monthly input is described in months.
-
-    Examples
-    --------
-    >>> candidate_label("spi", 13, 4)
-    'SPI, 13-week time scale, 4-week lag'
-    >>> candidate_label("spei", 26, 8, short=True)
-    'SPEI over 26 weeks, 8 weeks ahead'
-    >>> candidate_label("spei", 26, 8, short=True, cadence="monthly")
-    'SPEI over 6 months, 2 months ahead'
-    """
-    head, parts = index_name(index), []
-    if _present(scale_weeks) and float(scale_weeks) == 0:
-        parts.append("as supplied")  # a supplied indicator, not summed
-    elif _present(scale_weeks):
-        span = in_cadence(scale_weeks, cadence)
-        parts.append(f"over {span}" if short else f"{span.replace(' ', '-').rstrip('s')} time scale")
-    if _present(lag_weeks):
-        lead = in_cadence(lag_weeks, cadence)
-        same = "same month" if cadence == "monthly" else "same week"
-        parts.append((same if float(lag_weeks) == 0 else f"{lead} ahead") if short
-                     else f"{lead.replace(' ', '-').rstrip('s')} lag")
-    if short and parts and parts[0].startswith("over"):
-        return ", ".join([f"{head} {parts[0]}", *parts[1:]])
-    return ", ".join([head, *parts])
-
-
-def in_cadence(weeks, cadence: str = "weekly") -> str:
-    """A span in weeks written in the input's cadence ("13 weeks"; "3 months" for monthly
-    input, using 52 / 12 weeks a month).
-
-    Examples
-    --------
-    >>> in_cadence(13, "monthly"), in_cadence(1), in_cadence(4, "monthly")
-    ('3 months', '1 week', '1 month')
-    """
-    if not _present(weeks):
-        return "n/a"
-    w = float(weeks)
-    if cadence == "monthly":
-        months = int(round(w * 12 / 52))
-        return f"{months} month" + ("" if months == 1 else "s")
-    return f"{int(w)} week" + ("" if int(w) == 1 else "s")
 
 
 def cadence_of(grain) -> str:
@@ -351,7 +280,7 @@ def answer_card(summary: pd.Series, skill: pd.DataFrame | None = None) -> Answer
     g = summary.get
     sk = summary_skill(summary)
     score = sk.score
-    which = candidate_label(g("best_index"), g("best_scale_weeks"), g("best_lag_weeks"))
+    which = row_label(summary, prefix="best_", short=False)
     if _present(g("best_model")):
         which += f" ({g('best_model')} model)"
     # For a yes/no target the ranked probability skill score equals the Brier skill score
@@ -364,8 +293,7 @@ def answer_card(summary: pd.Series, skill: pd.DataFrame | None = None) -> Answer
         "rate, 1 = perfect."
     )
     baselines, flags, ties = "", {}, []
-    best_label = candidate_label(g("best_index"), g("best_scale_weeks"), g("best_lag_weeks"),
-                                 short=True)
+    best_label = row_label(summary, prefix="best_")
     if skill is not None and not skill.empty and score in skill.columns:
         rows = skill[((skill["impact"] == g("impact")) & (skill["target"] == g("target")))
                      .fillna(False).to_numpy(dtype=bool)]
@@ -386,8 +314,7 @@ def answer_card(summary: pd.Series, skill: pd.DataFrame | None = None) -> Answer
         if "indistinguishable_from_best" in singles.columns:
             tie_rows = singles[singles["indistinguishable_from_best"].astype("boolean")
                                .fillna(False).to_numpy(bool)].sort_values(score, ascending=False)
-            labels = [candidate_label(r["index"], r["scale_weeks"], r["lag_weeks"], short=True)
-                      for _, r in tie_rows.iterrows()]
+            labels = [row_label(r) for _, r in tie_rows.iterrows()]
             ties = [lab for lab in dict.fromkeys(labels) if lab != best_label]
     n_ind = g("n_indistinguishable")
     n_other = max(int(n_ind) - 1, 0) if _present(n_ind) else len(ties)

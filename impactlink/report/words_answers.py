@@ -15,9 +15,9 @@ from impactlink.report._select import single_candidates, summary_skill
 from impactlink.report.text import (
     _present,
     cadence_of,
-    candidate_label,
     fmt_num,
     impact_name,
+    row_label,
     score_label,
     target_name,
 )
@@ -133,10 +133,9 @@ def plain_answer(row: pd.Series, skill: pd.DataFrame | None, link_row: pd.Series
     impact, target = str(g("impact")), str(g("target"))
     grain = link_row.get("grain") if link_row is not None else None
     cadence = cadence_of(grain)
-    answer = candidate_label(g("best_index"), g("best_scale_weeks"), g("best_lag_weeks"),
-                             short=True, cadence=cadence)
+    answer = row_label(row, prefix="best_", cadence=cadence)
     week = (options or {}).get("season_week")
-    if cadence == "annual" and _present(week):
+    if cadence == "annual" and _present(week) and not _present(g("best_end_week")):
         answer += f", read at the end of ISO week {int(float(str(week)))} (end of the season window)"
     sk = summary_skill(row)
     shown = "bss" if sk.score == "rpss" and str(g("kind", "")) == "binary" else sk.score

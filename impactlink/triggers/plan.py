@@ -172,7 +172,7 @@ def load_trigger_plan(path: str | Path) -> TriggerPlan:
     """
     p = Path(path)
     try:
-        raw = tomllib.loads(p.read_text(encoding="utf-8"))
+        raw = tomllib.loads(p.read_text(encoding="utf-8-sig"))  # "-sig": a BOM is dropped
     except FileNotFoundError:
         raise TriggerError(f"{p}: trigger-plan file not found; check the path.") from None
     except tomllib.TOMLDecodeError as exc:

@@ -175,4 +175,6 @@ def test_rejected_rows_carry_the_file_row_when_known(counties):
     rep["source_row"] = np.arange(2, 8)
     res = build_targets(ImpactSpec("fr", "field_reports", {}), {"field_reports": rep},
                         counties=counties, weeks=mondays("2030-01-07", 4))
-    assert res.rejected["row"].tolist() == [7]  # county zz, sixth data row
+    # county zz (sixth data row); the report of 2030-02-20 falls after the 4-week record
+    assert sorted(zip(res.rejected["row"], res.rejected["reason"])) == [
+        (6, "outside the source's coverage"), (7, "county_id not in the counties layer")]

@@ -90,3 +90,21 @@ def test_manifest_reconciles_every_raw_row_and_ranks_the_palmer_index(iowa_run):
         assert t["rows_read"] == t["rows_used"] + t["rows_rejected"], t
     skill = pd.read_csv(iowa_run / "skill.csv")
     assert skill["index"].astype(str).str.contains("pdsi").any()
+
+
+def test_first_card_names_the_window_in_months(iowa_run):
+    """The report's first answer names an index over 1-3 months ending in July or August, in
+    months, with its selection-aware interval (issue "Real data in, real answers out")."""
+    import html
+    import re
+
+    page = (iowa_run / "report.html").read_text(encoding="utf-8")
+    text = re.sub(r"<(script|style)[^>]*>.*?</\1>", "", page, flags=re.S)
+    text = html.unescape(re.sub(r"\s+", " ", re.sub(r"<[^>]+>", " ", text)))
+    first = text[text.index("The answers"):][:600]
+    found = re.search(r"Best predictor (SPI|SPEI|EDDI) over ([123]) months? ending in "
+                      r"(July|August)", first)
+    assert found, first
+    assert re.search(r"90 % interval 0\.\d+ to 0\.\d+", first), first  # lower end above zero
+    local = pd.read_csv(iowa_run / "skill_local.csv")
+    assert {"scale_months", "end_week", "end_month"} <= set(local.columns)

@@ -39,6 +39,7 @@ import numpy as np
 import pandas as pd
 
 from impactlink.inputs._errors import REASONS, InputError
+from impactlink.inputs._rules import SourceRows
 from impactlink.inputs.formats._ledger import HEADER_ROWS, FormatResult, RowLedger, read_text_csv
 from impactlink.schema import COUNTY, YEAR
 
@@ -158,8 +159,10 @@ def read_quickstats(path: str | Path) -> FormatResult:
         raise InputError(f"{path}: no usable yield row in {led.n} rows (most common reasons: "
                          f"{why}); download yields (Data Item '... - YIELD ...') at COUNTY or "
                          "STATE level")
-    used = frame.loc[led.alive].sort_values([COUNTY, "crop", "practice", YEAR],
-                                            ignore_index=True)
+    used = frame.assign(_row=np.arange(1, led.n + 1) + HEADER_ROWS).loc[led.alive].sort_values(
+        [COUNTY, "crop", "practice", YEAR], ignore_index=True)
+    # file rows of the kept rows, so a later stage that rejects a yield names its row
+    used.attrs["source_rows"] = SourceRows(used.pop("_row").to_numpy())
     summary = items.assign(data_item=col["Data Item"], used=led.alive).groupby(
         ["data_item", "crop", "commodity", "utilisation", "practice", "statistic", "unit"],
         sort=True, dropna=False).agg(rows=("used", "size"), rows_used=("used", "sum")

@@ -58,7 +58,7 @@ def topojson_objects(path: str | Path) -> list[str]:
     import pyogrio
 
     try:
-        return [str(name) for name, _ in pyogrio.list_layers(path)]
+        return [str(name) for name, _ in pyogrio.list_layers(_without_bom(path))]
     except Exception as exc:  # pyogrio raises DataSourceError and friends
         raise InputError(f"{path}: cannot be read as TopoJSON ({_first_line(exc)}); check "
                          "that it is a TopoJSON topology") from None
@@ -106,7 +106,7 @@ def read_topojson_counties(path: str | Path, *, county_ids: Iterable[str] | None
         raise InputError(f"{path}: no TopoJSON object {object_name!r} (objects: {layers}); "
                          "name the object holding the counties")
     try:
-        gdf = gpd.read_file(path, layer=object_name, engine="pyogrio")
+        gdf = gpd.read_file(_without_bom(path), layer=object_name, engine="pyogrio")
     except Exception as exc:  # pyogrio raises DataSourceError, DataLayerError, ...
         raise InputError(f"{path}: object {object_name!r} cannot be read ({_first_line(exc)})"
                          ) from None
@@ -163,6 +163,18 @@ def _to_geographic(gdf, path: Path):
                          f"{ymin:.0f}, {xmax:.0f}, {ymax:.0f}): a projected topology; use the "
                          "unprojected file (e.g. counties-10m.json, not counties-albers-10m)")
     return gdf.set_crs(GEOGRAPHIC_CRS)
+
+
+def _without_bom(path: str | Path):  # noqa: ANN202 (a path or an in-memory file)
+    """``path``, or its bytes without a leading UTF-8 byte-order mark, which GDAL's TopoJSON
+    driver does not accept (it is valid UTF-8 text; RFC 8259 section 8.1 lets a parser
+    ignore it)."""
+    import io
+
+    with open(path, "rb") as fh:
+        if fh.read(3) != b"\xef\xbb\xbf":
+            return path
+        return io.BytesIO(fh.read())
 
 
 def _first_line(exc: BaseException) -> str:
