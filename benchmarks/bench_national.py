@@ -14,6 +14,7 @@ is a least-squares line through ``(log N, log time)`` over the sizes run (two si
 
 Run:  .venv/bin/python benchmarks/bench_national.py                  # quick: 500 counties
       .venv/bin/python benchmarks/bench_national.py --sizes 500 1500 3143 --jobs 2
+      .venv/bin/python benchmarks/bench_national.py --grid-speedup 200  # 1 vs 2 Dask workers
       [--out-json result.json] [--workdir /tmp/bench_national]
 Results go to stdout and to the JSON file; copy them into benchmarks/README_national.md.
 The data are invented (the fictional state of Vellmora); nothing here is a test.
@@ -142,6 +143,56 @@ def run_one(n: int, workdir: Path, jobs: int) -> dict:
     }
 
 
+def grid_speedup(n: int, workdir: Path, workers: tuple[int, ...] = (1, 2),
+                 targets: int = 0) -> dict:
+    """The rank stage (the candidate grid of every target) on local Dask clusters.
+
+    One world of ``n`` counties, the stages up to ``link`` in this process, then
+    :func:`impactlink.pipeline.stages.rank` once per cluster size: a real
+    ``distributed.LocalCluster`` of that many single-threaded worker processes on loopback.
+    ``targets`` > 0 keeps only the first ``targets`` targets. Returns the wall time of each
+    size, the speed-up of the largest over one worker, and whether the skill tables agree.
+    """
+    import dataclasses
+
+    import distributed
+    import pandas as pd
+
+    from impactlink.pipeline import run_project, stages
+    from impactlink.scenario import generate
+
+    world = workdir / f"world_{n}"
+    if not (world / "climate.parquet").exists():
+        generate(world, seed=SEED, counties=n)
+    project = _project_file(world)
+    state = run_project(project, until="link", out=world / "run_link", quiet=True).state
+    lk = state.link
+    if targets > 0:
+        lk = dataclasses.replace(lk, targets=lk.targets[:targets])
+    out: dict = {"counties": n, "targets": [t.name for t in lk.targets], "wall_s": {}}
+    tables = {}
+    for k in workers:
+        with distributed.LocalCluster(n_workers=k, threads_per_worker=1, processes=True,
+                                      host="127.0.0.1", dashboard_address="127.0.0.1:0"
+                                      ) as cluster:
+            with distributed.Client(cluster) as client:
+                client.wait_for_workers(k)
+                t0 = time.perf_counter()
+                res = stages.rank(state.project, state.inputs, state.indices, lk,
+                                  lambda _line: None, dask_address=cluster.scheduler_address)
+                out["wall_s"][k] = round(time.perf_counter() - t0, 2)
+        tables[k] = res.skill
+    first, last = workers[0], workers[-1]
+    out["speedup"] = round(out["wall_s"][first] / out["wall_s"][last], 3)
+    try:
+        pd.testing.assert_frame_equal(tables[first], tables[last])
+        out["tables_equal"] = True
+    except AssertionError:
+        out["tables_equal"] = False
+    out["load_average_at_end"] = [round(x, 2) for x in os.getloadavg()]
+    return out
+
+
 def growth_exponent(sizes: list[int], seconds: list[float]) -> float | None:
     """Least-squares slope of log(seconds) on log(sizes); None with fewer than two sizes."""
     if len(sizes) < 2:
@@ -159,10 +210,21 @@ def main(argv: list[str] | None = None) -> dict:
                     help="where the worlds and runs are written (default: a temporary folder)")
     ap.add_argument("--out-json", type=Path, default=None,
                     help="JSON result file (default: bench_national.json in the workdir)")
+    ap.add_argument("--grid-speedup", type=int, default=None, metavar="N",
+                    help="instead: time the rank stage of an N-county world on local Dask "
+                         "clusters of 1 and 2 workers")
+    ap.add_argument("--grid-targets", type=int, default=0,
+                    help="with --grid-speedup: only the first this many targets (0: all)")
     ap.add_argument("--one", type=int, default=None, help=argparse.SUPPRESS)
     args = ap.parse_args(argv)
     workdir = args.workdir or Path(tempfile.mkdtemp(prefix="bench_national_"))
     workdir.mkdir(parents=True, exist_ok=True)
+    if args.grid_speedup is not None:
+        res = grid_speedup(args.grid_speedup, workdir, targets=args.grid_targets)
+        print(json.dumps(res))
+        out_json = args.out_json or workdir / "bench_grid_speedup.json"
+        out_json.write_text(json.dumps(res, indent=2) + "\n", encoding="utf-8")
+        return res
     if args.one is not None:  # child process: one size, result as JSON on the last line
         print(json.dumps(run_one(args.one, workdir, args.jobs)))
         return {}

@@ -10,6 +10,7 @@ import numpy as np
 import pandas as pd
 from scipy.stats import chi2
 
+from impactlink.contrast.foldlogit import year_out_probabilities
 from impactlink.contrast.pairwise import pairwise_mean_distance
 from impactlink.errors import ContrastError, ContrastWarning
 from impactlink.link.target import Target
@@ -394,18 +395,11 @@ def _brier_cv(y, xv, z, years, n_boot, alpha, seed) -> dict:
                 "brier_change_lo": np.nan, "brier_change_hi": np.nan, "n_years": len(uniq)}
     d0 = np.column_stack([np.ones_like(xv), xv])
     d1 = np.column_stack([d0, z])
-    p0 = np.full(len(y), np.nan)
-    p1 = np.full(len(y), np.nan)
     # every fold starts from the fit on all years (a fold lacks one year of data, so Newton
-    # needs two or three steps); one fit pair per held-out year (tens of fits)
-    s0, s1 = _logit_fit(y, d0), _logit_fit(y, d1)
-    for yr in uniq:
-        test = years == yr
-        train = ~test
-        if y[train].min() == y[train].max():
-            continue
-        p0[test] = _logit_predict(_logit_fit(y[train], d0[train], s0), d0[test])
-        p1[test] = _logit_predict(_logit_fit(y[train], d1[train], s1), d1[test])
+    # needs two or three steps); the folds share one year-sorted design
+    # (impactlink.contrast.foldlogit: no per-fold copy, first step from per-year sums)
+    p0 = year_out_probabilities(y, d0, years, _logit_fit(y, d0))
+    p1 = year_out_probabilities(y, d1, years, _logit_fit(y, d1))
     ok = np.isfinite(p0) & np.isfinite(p1)
     e0 = (p0 - y) ** 2
     e1 = (p1 - y) ** 2
@@ -425,26 +419,16 @@ def _brier_cv(y, xv, z, years, n_boot, alpha, seed) -> dict:
             "brier_change_hi": float(hi), "n_years": int(n_y)}
 
 
-def _logit_fit(y, design, start=None) -> np.ndarray:
-    """Maximum-likelihood logistic coefficients of one fold (no penalty).
-
-    The package's batched Newton-Raphson solver (:func:`impactlink.models.batch.
-    fit_logistic_batch`, tested against statsmodels' ``GLM``) instead of a statsmodels fit
-    per fold: on a national weekly target (millions of rows) the folds then cost a few
-    Newton steps each from ``start``. A fold that does not converge (near separation) keeps
-    its last iterate; its score shows it.
+def _logit_fit(y, design) -> np.ndarray:
+    """Maximum-likelihood logistic coefficients on all rows (no penalty): the start of
+    every leave-one-year-out fold (:func:`impactlink.contrast.foldlogit.
+    year_out_probabilities`, same Newton-Raphson iteration). The package's batched solver
+    :func:`impactlink.models.batch.fit_logistic_batch`, tested against statsmodels' ``GLM``.
     """
     from impactlink.models.batch import fit_logistic_batch
 
-    res = fit_logistic_batch(design[None], y[None], None, ridge=0.0, max_iter=100, tol=1e-8,
-                             start=None if start is None else start[None])
+    res = fit_logistic_batch(design[None], y[None], None, ridge=0.0, max_iter=100, tol=1e-8)
     return res.coef[0]
-
-
-def _logit_predict(coef, design) -> np.ndarray:
-    from scipy.special import expit
-
-    return expit(design @ coef)
 
 
 def _pairs(data: pd.DataFrame, trait_names: list[str], n_pairs: int) -> pd.DataFrame:

@@ -105,27 +105,32 @@ class IndexCube:
 
     # ------------------------------------------------------------------ tidy
     def to_frame(self, *, keys: list[tuple[str, int]] | None = None) -> pd.DataFrame:
-        """Long tidy frame: county_id, week, index, scale_weeks, value."""
-        parts = []
+        """Long tidy frame: county_id, week, index, scale_weeks, value.
+
+        Built column by column for all keys at once: the county column is an Arrow string
+        array taken from the county ids (no Python string per row), the index column a
+        categorical from codes. On a national cube (150 M rows) this avoids the per-key
+        frames, their concatenation and an object column of every row.
+        """
+        import pyarrow as pa
+
+        keys = list(keys or self.keys)
         nw, nc = len(self.weeks), len(self.county_ids)
-        week_col = np.repeat(self.weeks.values, nc)
-        county_col = np.tile(np.asarray(self.county_ids, dtype=object), nw)
-        for key in keys or self.keys:
-            parts.append(
-                pd.DataFrame(
-                    {
-                        COUNTY: county_col,
-                        "week": week_col,
-                        "index": key[0],
-                        "scale_weeks": np.int16(key[1]),
-                        "value": self.arrays[key].ravel(),
-                    }
-                )
-            )
-        out = pd.concat(parts, ignore_index=True)
-        out["index"] = out["index"].astype("category")
-        out[COUNTY] = out[COUNTY].astype("string")
-        return out
+        n, k = nw * nc, len(keys)
+        names = sorted({str(key[0]) for key in keys})
+        codes = np.repeat(np.array([names.index(str(key[0])) for key in keys], np.int8), n)
+        ids = pa.array([str(c) for c in self.county_ids], type=pa.large_string())
+        county = ids.take(pa.array(np.tile(np.arange(nc, dtype=np.int32), nw * k)))
+        value = np.empty(n * k)
+        for i, key in enumerate(keys):
+            value[i * n:(i + 1) * n] = self.arrays[key].ravel()
+        return pd.DataFrame({
+            COUNTY: pd.array(county, dtype="string"),
+            "week": np.tile(np.repeat(self.weeks.values, nc), k),
+            "index": pd.Categorical.from_codes(codes, categories=pd.Index(names)),
+            "scale_weeks": np.repeat(np.array([key[1] for key in keys], np.int16), n),
+            "value": value,
+        })
 
     @classmethod
     def from_frame(cls, frame: pd.DataFrame, *, provenance: dict | None = None) -> IndexCube:

@@ -284,14 +284,23 @@ def _region_values(target, cube, arr, winc, ok, stat) -> np.ndarray:
     fr = target.frame
     rcol = "region" if "region" in fr.columns else "unit_id"
     rows_r = regions.get_indexer(fr[rcol].astype(str))
-    vals = arr[winc]                                   # (n, w, counties)
-    vals = np.where(ok[:, :, None], vals, np.nan)
-    v = _reduce(vals, stat, axis=1)                    # (n, counties)
-    Wr = np.where(rows_r[:, None] >= 0, W[np.maximum(rows_r, 0)], 0.0)
+    # the county values of each distinct window (rows of all regions share a month), then
+    # region sums as matrix products: no (rows x window x counties) array
+    uwin, inv = np.unique(np.where(ok, winc, -1), axis=0, return_inverse=True)
+    inv = inv.reshape(-1)
+    uok = uwin >= 0
+    vals = arr[np.maximum(uwin, 0)]                    # (windows, w, counties)
+    vals = np.where(uok[:, :, None], vals, np.nan)
+    v = _reduce(vals, stat, axis=1)                    # (windows, counties)
     have = np.isfinite(v)
-    den = (Wr * have).sum(axis=1)
-    num = (np.where(have, v, 0.0) * Wr).sum(axis=1)
+    num_u = np.where(have, v, 0.0) @ W.T               # (windows, regions)
+    den_u = have.astype(float) @ W.T
+    tot = W.sum(axis=1)
     out = np.full(len(fr), np.nan)
-    good = (den >= MIN_REGION_WEIGHT * Wr.sum(axis=1)) & (den > 0)
+    r = np.maximum(rows_r, 0)
+    num = np.where(rows_r >= 0, num_u[inv, r], 0.0)
+    den = np.where(rows_r >= 0, den_u[inv, r], 0.0)
+    need = np.where(rows_r >= 0, tot[r], 0.0)
+    good = (den >= MIN_REGION_WEIGHT * need) & (den > 0)
     out[good] = num[good] / den[good]
     return out

@@ -130,7 +130,8 @@ def fit_logistic_batch(
     X, y, w = drop_empty_rows(X, y, w)
     B, n, p = X.shape
     pen = np.full((B, p), float(ridge))
-    pen[_constant_columns(X, w)] = 0.0
+    if ridge != 0.0:  # without a ridge every penalty is 0 already: skip two passes over X
+        pen[_constant_columns(X, w)] = 0.0
     # start from the weighted base rate in the intercept-like column, zero elsewhere
     beta = np.zeros((B, p))
     wsum = np.maximum(w.sum(1), _EPS)

@@ -277,12 +277,19 @@ def impact_grid(
     w = pd.DatetimeIndex(weeks)
     monday = week_monday(f["time"])
     wp = np.asarray((monday - w[0]).days // 7, dtype=np.int64)
-    lookup = {str(c): i for i, c in enumerate(county_ids)}
-    cp = np.array([lookup.get(str(c), -1) for c in f[COUNTY]], dtype=np.int64)
+    ids = pd.Index([str(c) for c in county_ids])
+    keys = f[COUNTY].astype(str)
+    n_cols = len(ids)
+    if ids.is_unique:  # one vectorised lookup instead of a Python loop over the rows
+        cp = ids.get_indexer(keys).astype(np.int64)
+    else:  # a repeated id: its last position, as before
+        lookup = {c: i for i, c in enumerate(ids)}
+        cp = np.array([lookup.get(c, -1) for c in keys], dtype=np.int64)
+        n_cols = len(lookup)
     ok = (wp >= 0) & (wp < len(w)) & (cp >= 0)
     lev = f["level"].to_numpy(dtype=np.float64)
     ok &= np.isfinite(lev)
-    grid = np.full((len(w), len(lookup)), -np.inf)
+    grid = np.full((len(w), n_cols), -np.inf)
     np.maximum.at(grid, (wp[ok], cp[ok]), lev[ok])
     grid[np.isneginf(grid)] = np.nan
     return grid

@@ -184,8 +184,16 @@ def unit_impacts(
         covered &= np.broadcast_to(ex, lev.shape)
     hit = covered & (np.where(covered, lev, 0) >= min_level)
     mem = replay.members > 0
-    counted = (covered.astype(np.int64) @ mem.astype(np.int64)) > 0
-    impact = (hit.astype(np.int64) @ mem.astype(np.int64)) > 0
+    n_u = mem.shape[1]
+    if n_c == n_u and np.array_equal(mem, np.eye(n_c, dtype=bool)):
+        return hit & covered, covered  # county units: each unit is its own county
+    # any member county: a sparse product, linear in counties (a dense (weeks x counties) @
+    # (counties x units) product of integers is quadratic for county-sized unit grids)
+    from scipy import sparse
+
+    M = sparse.csc_array(mem.astype(np.int64))
+    counted = (M.T @ covered.T.astype(np.int64)).T > 0
+    impact = (M.T @ hit.T.astype(np.int64)).T > 0
     return impact & counted, counted
 
 

@@ -30,6 +30,8 @@ from impactlink.triggers.plan_scores import unit_impacts
 
 __all__ = ["StageTuning", "tune_stage", "uniform_vs_local", "relative_economic_value"]
 
+#: Cells (weeks x candidates x units) of one block of units in :func:`tune_stage`.
+_MAX_CELLS = 8_000_000
 _COUNTS = ("hits", "false_alarms", "misses", "correct_negatives", "entries", "weeks_on")
 
 
@@ -183,17 +185,27 @@ def tune_stage(
     thr = np.array([g[0] for g in grid])
     gap = rule.exit - rule.enter
     cand_rules = [replace(rule, enter=c, exit=c + gap, overrides=()) for c in tuning.candidates]
-    on = _candidate_on(replay, s, j, cand_rules, [g[1] for g in grid], len(persist))
     impact, counted = unit_impacts(replay, impact_level, exposed=exposed, min_level=min_level)
     years = replay.weeks.isocalendar().year.to_numpy(dtype=np.int64)
-    per_year, uniq_years = _year_counts(on, impact, counted, years)
-    n_units = on.shape[2]
+    n_weeks, n_units = len(replay.weeks), len(replay.unit_ids)
+    # units in blocks: the (weeks, candidates, units) arrays of a national record would hold
+    # billions of cells; every unit's ladder is walked on its own, so the counts of the
+    # blocks add up to those of all units at once
+    step = max(1, _MAX_CELLS // max(1, n_weeks * len(grid)))
+    per_year: dict[str, np.ndarray] = {}
+    for lo in range(0, n_units, step):
+        sl = slice(lo, min(n_units, lo + step))
+        on = _candidate_on(_unit_block(replay, sl), s, j, cand_rules, [g[1] for g in grid],
+                           len(persist))
+        part, uniq_years = _year_counts(on, impact[:, sl], counted[:, sl], years)
+        per_year = part if not per_year else {k: per_year[k] + part[k] for k in per_year}
+        del on
     choose = _Objective(tuning, n_units)
     total = {k: v.sum(axis=0) for k, v in per_year.items()}
     score_all = choose(total, len(uniq_years))
     k_best = int(np.nanargmax(np.where(np.isnan(score_all), -np.inf, score_all)))
     curve = _curve(total, thr, [g[1] for g in grid], choose, len(uniq_years), n_units,
-                   on.shape[0])
+                   n_weeks)
     curve["objective_value"] = score_all
     curve["chosen"] = np.arange(len(grid)) == k_best
     summary, folds = _intervals(per_year, uniq_years, grid, choose, k_best, tuning, seed)
@@ -278,6 +290,17 @@ def uniform_vs_local(
 
 
 # --------------------------------------------------------------------------- private steps
+def _unit_block(replay: PlanReplay, sl: slice) -> PlanReplay:
+    """The replay restricted to the units ``sl`` (every per-unit array cut on its last axis)."""
+    if sl.start == 0 and sl.stop >= len(replay.unit_ids):
+        return replay
+    cut = {k: v[..., sl] for k, v in replay.values.items()}
+    return replace(replay, unit_ids=replay.unit_ids[sl], unit_regions=replay.unit_regions[sl],
+                   members=replay.members[:, sl], stage=replay.stage[:, sl], values=cut,
+                   enter_thresholds={k: v[..., sl] for k, v in replay.enter_thresholds.items()},
+                   exit_thresholds={k: v[..., sl] for k, v in replay.exit_thresholds.items()})
+
+
 def _candidate_on(replay, s, j, cand_rules, persist_of_k, n_persist) -> np.ndarray:
     """(weeks, candidates, units): unit at stage s+1 or higher, for every candidate."""
     x = replay.values[cand_rules[0].indicator]

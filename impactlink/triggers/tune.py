@@ -31,7 +31,7 @@ IndexScale = Literal["normal", "percentile", "none"]
 DEFAULT_CANDIDATES = np.round(np.arange(-2.5, 0.01, 0.1), 10)
 
 #: Upper bound on the number of (week x candidate x county) cells held at once while counting.
-_MAX_CELLS = 20_000_000
+_MAX_CELLS = 8_000_000
 
 
 @dataclass(frozen=True)

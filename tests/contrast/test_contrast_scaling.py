@@ -99,3 +99,29 @@ def test_leave_one_year_out_brier_matches_statsmodels_fold_fits():
             p[te] = res.predict(d[te])
     assert got["brier_index"] == pytest.approx(np.mean((p0 - y) ** 2), rel=1e-9)
     assert got["brier_traits"] == pytest.approx(np.mean((p1 - y) ** 2), rel=1e-9)
+
+
+def test_year_out_probabilities_match_statsmodels_per_fold():
+    """The shared year-sorted design and the first step from per-year sums give each fold's
+    maximum-likelihood fit (statsmodels ``GLM`` Binomial on the fold's training rows); a
+    year whose training rows hold one outcome gets no fit (NaN). Years are unsorted and of
+    unequal size."""
+    import statsmodels.api as sm
+
+    from impactlink.contrast.compare import _logit_fit
+    from impactlink.contrast.foldlogit import year_out_probabilities
+
+    rng = np.random.default_rng(11)
+    years = rng.choice(np.arange(1990, 2000), size=2500, p=np.r_[[0.05] * 2, [0.1125] * 8])
+    X = np.column_stack([np.ones(years.size), rng.normal(size=(years.size, 3))])
+    y = (rng.uniform(size=years.size) < 1 / (1 + np.exp(-(-1.0 + X[:, 1:] @ [1.0, -0.5, 0.3])))
+         ).astype(float)
+    got = year_out_probabilities(y, X, years, _logit_fit(y, X))
+    for yr in np.unique(years):
+        te = years == yr
+        ref = sm.GLM(y[~te], X[~te], family=sm.families.Binomial()).fit(tol=1e-12)
+        np.testing.assert_allclose(got[te], ref.predict(X[te]), rtol=1e-9)
+    # events only in 1995: without 1995 the training rows are all 0 -> no fit there
+    y1 = np.where(years == 1995, y, 0.0)
+    got1 = year_out_probabilities(y1, X, years, _logit_fit(y1, X), max_iter=20)
+    assert np.isnan(got1[years == 1995]).all() and np.isfinite(got1[years != 1995]).all()

@@ -178,3 +178,65 @@ def test_same_target_against_cubes_on_different_grids():
     assert feature_values(t, c1, "spi", 4, 0).tolist() == [4000, 5000]
     assert feature_values(t, c2, "spi", 4, 0).tolist() == [2001, 3001]
     assert feature_values(t, c1, "spi", 4, 1).tolist() == [3000, 4000]
+
+
+def _region_values_broadcast(target, cube, index, scale, lag):
+    """The earlier form of the region read, kept as the reference: a (rows x window x
+    counties) array, the weights of each row's region broadcast over it."""
+    rule = target.rule
+    arr = cube.get(index, scale)
+    ref = (pd.to_datetime(target.frame["time"]) + pd.offsets.MonthEnd(0)).dt.normalize()
+    ref_pos = np.array([int(np.flatnonzero(cube.weeks <= r)[-1]) for r in ref]) - lag
+    w = max(rule.window_weeks, 1)
+    win = ref_pos[:, None] - (w - 1) + np.arange(w)[None, :]
+    ok = (win >= 0) & (win < arr.shape[0])
+    vals = np.where(ok[:, :, None], arr[np.clip(win, 0, arr.shape[0] - 1)], np.nan)
+    v = vals[:, -1] if w == 1 else getattr(np, rule.window_stat)(vals, axis=1)
+    wts = rule.weights
+    regions = sorted(wts["region"].unique())
+    W = np.zeros((len(regions), len(cube.county_ids)))
+    for reg, cid, wt in wts[["region", "county_id", "weight"]].itertuples(index=False):
+        W[regions.index(reg), list(cube.county_ids).index(cid)] = wt
+    out = np.full(len(v), np.nan)
+    for i, reg in enumerate(target.frame["region"]):
+        if reg not in regions:
+            continue
+        wr = W[regions.index(reg)]
+        have = np.isfinite(v[i])
+        den = (wr * have).sum()
+        if den > 0 and den >= 0.5 * wr.sum():
+            out[i] = (np.where(have, v[i], 0.0) * wr).sum() / den
+    return out
+
+
+@pytest.mark.parametrize("window,stat", [(1, "value"), (3, "min"), (4, "mean")])
+def test_region_values_match_the_broadcast_form(window, stat):
+    """Region sums as (windows x counties) @ (counties x regions) products give the values
+    of the per-row broadcast over all counties, with missing weeks, gaps in the grid's
+    start, a region of no county and lags; random weights and values, seed 7."""
+    rng = np.random.default_rng(7)
+    weeks = mondays("2029-11-05", 40)
+    ids = tuple(f"c{i}" for i in range(9))
+    vals = rng.normal(size=(40, 9))
+    vals[rng.random((40, 9)) < 0.15] = np.nan
+    vals[:, 8] = np.nan                                  # one county never has a value
+    cube = cube_from(weeks, ids, vals)
+    regions = ["r1", "r1", "r1", "r2", "r2", "r3", "r3", "r3", "r3"]
+    raw = rng.uniform(0.1, 1.0, size=9)
+    wts = pd.DataFrame({"region": regions, "county_id": ids, "weight": raw})
+    wts["weight"] /= wts.groupby("region")["weight"].transform("sum")
+    months = pd.date_range("2029-11-01", "2030-07-01", freq="MS")
+    fr = pd.DataFrame({"time": np.repeat(months, 4),
+                       "region": np.tile(["r1", "r2", "r3", "zz"], len(months))})
+    fr["unit_id"] = fr["region"]
+    fr["year"], fr["season"], fr["level"] = fr["time"].dt.year, fr["time"].dt.month, 0
+    rule = FeatureRule(reference="month_end", weights=wts, window_weeks=window,
+                       window_stat=stat)
+    t = Target(name="p", impact="p", kind="ordinal", grain="region_month", role="monthly",
+               frame=fr, levels=("n", "s"), rule=rule)
+    for lag in (0, 2, 5):
+        got = feature_values(t, cube, "spi", 4, lag)
+        want = _region_values_broadcast(t, cube, "spi", 4, lag)
+        assert np.isfinite(want).sum() > len(fr) // 3         # the case is not all missing
+        np.testing.assert_array_equal(np.isnan(got), np.isnan(want))
+        np.testing.assert_allclose(got, want, rtol=1e-13, atol=0)

@@ -22,3 +22,39 @@ def test_same_table_on_a_local_dask_cluster():
         b = rank_candidates(tgt, feats, synth.candidates(), dask_address="local", **kw)
     pd.testing.assert_frame_equal(a.table, b.table)
     pd.testing.assert_frame_equal(a.summary, b.summary)
+
+
+def test_same_table_when_a_worker_is_killed_mid_grid():
+    """A real two-process cluster on loopback; after the first chunk of fits comes back one
+    worker process is killed (SIGKILL; its nanny starts another). The scheduler recomputes
+    the chunks the dead worker held (dask.distributed's documented resilience), so the
+    candidate grid comes back complete, once per chunk, and the table equals the
+    in-process one."""
+    distributed = pytest.importorskip("distributed")
+    import os
+    import signal
+
+    tgt, feats = synth.planted_target(4)
+    kw = dict(n_boot=20, pairs=True, challenger=False, seed=3)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", SkillWarning)
+        a = rank_candidates(tgt, feats, synth.candidates(), **kw)
+        with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                      host="127.0.0.1", dashboard_address="127.0.0.1:0"
+                                      ) as cluster, distributed.Client(cluster) as client:
+            client.wait_for_workers(2)
+            victim = sorted(client.scheduler_info()["workers"])[0]
+            pid = client.run(os.getpid, workers=[victim])[victim]
+            killed: list[str] = []
+
+            def kill_once(line: str) -> None:
+                if not killed:
+                    killed.append(line)
+                    os.kill(pid, signal.SIGKILL)
+
+            b = rank_candidates(tgt, feats, synth.candidates(), progress=kill_once,
+                                dask_address=cluster.scheduler_address, **kw)
+            after = set(client.scheduler_info()["workers"])
+    assert killed and victim not in after
+    pd.testing.assert_frame_equal(a.table, b.table)
+    pd.testing.assert_frame_equal(a.summary, b.summary)

@@ -133,3 +133,32 @@ def test_impact_shape_error():
         score_plan(rep, np.zeros((3, 1)))
     with pytest.raises(TriggerError, match="exposed has shape"):
         score_plan(rep, np.zeros((2, 1)), exposed=np.ones(3, bool))
+
+
+def test_unit_impacts_equal_the_dense_membership_product():
+    """County units (identity membership) and units of several counties (a sparse product)
+    give the dense 'any member county' counts: impact where some exposed member county had
+    an impact, counted where some member county was covered."""
+    from dataclasses import replace
+
+    from impactlink.triggers.plan_scores import unit_impacts
+
+    rng = np.random.default_rng(8)
+    x = rng.normal(size=(60, 7))
+    cube = cube_of(*x.T)
+    rep = replay_plan(one_indicator_plan(dict(name="act", enter=-0.5, exit=-0.5)), cube=cube,
+                      counties=counties_of(cube))
+    lev = rng.integers(0, 3, size=x.shape).astype(float)
+    lev[rng.random(x.shape) < 0.2] = np.nan
+    exposed = rng.random(7) < 0.7
+    mem = (rng.random((7, 3)) < 0.5).astype(float)
+    for members in (rep.members, mem):
+        r = replace(rep, members=members)
+        imp, cnt = unit_impacts(r, lev, exposed=exposed, min_level=2)
+        covered = np.isfinite(lev) & (lev >= 0) & exposed
+        hit = covered & (np.where(covered, lev, 0) >= 2)
+        m = members.astype(np.int64)
+        want_cnt = (covered.astype(np.int64) @ m) > 0
+        want_imp = ((hit.astype(np.int64) @ m) > 0) & want_cnt
+        np.testing.assert_array_equal(cnt, want_cnt)
+        np.testing.assert_array_equal(imp, want_imp)

@@ -89,6 +89,22 @@ def test_curve_counts_equal_a_replay_of_each_candidate():
         assert row.false_alarms == (on & (lev < 1)).sum()
 
 
+def test_units_in_blocks_give_the_counts_of_all_units_at_once(monkeypatch):
+    """A block of one or four units at a time (of six) gives the same curve, summary and
+    folds, bit for bit, as all units in one array: each unit's ladder is its own."""
+    import impactlink.triggers.plan_tune as pt
+
+    rep, lev, tuning = _planted(seed=4)
+    lev = np.where(np.random.default_rng(1).random(lev.shape) < 0.1, 1.0 - lev, lev)
+    whole = tune_stage(rep, lev, tuning, seed=5)
+    n_cand = len(tuning.candidates) * len(tuning.enter_weeks)
+    for units in (1, 4):
+        monkeypatch.setattr(pt, "_MAX_CELLS", len(rep.weeks) * n_cand * units)
+        part = tune_stage(rep, lev, tuning, seed=5)
+        assert part.curve.equals(whole.curve) and part.summary.equals(whole.summary)
+        assert part.folds.equals(whole.folds)
+
+
 def _cube_of_rep(rep):
     return cube_of(*rep.values["x"].T)
 
