@@ -164,3 +164,12 @@ def test_report_command_takes_the_project_file_and_is_quiet(scenario_run, tmp_pa
     assert got.err == ""
     assert got.out.strip() == f"report: {run_copy / 'report.html'}"
     assert "statistical association" in (run_copy / "report.html").read_text(encoding="utf-8")
+
+
+def test_the_run_drops_the_climate_rows_once_the_indices_exist(scenario_run):
+    """Only the indices stage reads the daily climate rows; the run state keeps their counts
+    and checksums but not the rows (memory of a national run)."""
+    _, result = scenario_run
+    bundle = result.state.inputs.bundle
+    assert "climate" not in bundle.tables and "counties" in bundle.tables
+    assert "climate" in set(bundle.counts["table"]) and "climate" in bundle.files

@@ -66,6 +66,15 @@ class InputBundle:
         """The per-table row counts (same as :attr:`counts`)."""
         return self.counts.copy()
 
+    def without(self, *names: str) -> InputBundle:
+        """The same bundle without the clean frames ``names`` (their counts, rejections,
+        files and checksums stay): the run drops the daily climate rows once the index cube
+        exists, as no later stage reads them (about 2 GB for a national daily table)."""
+        import dataclasses
+
+        return dataclasses.replace(self, tables={k: v for k, v in self.tables.items()
+                                                 if k not in names})
+
 
 
 def summary_frame(bundle: InputBundle) -> pd.DataFrame:

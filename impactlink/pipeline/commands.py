@@ -237,7 +237,12 @@ def _inputs(run: Run, tmp: Path, say: Reporter) -> tuple[Run, list[Path]]:
 
 
 def _indices(run: Run, tmp: Path, say: Reporter) -> tuple[Run, list[Path]]:
-    return _set(run, tmp, indices=stages.indices(run.project, _need(run.inputs, "inputs"), say))
+    inputs = _need(run.inputs, "inputs")
+    result = stages.indices(run.project, inputs, say)
+    # only the indices stage reads the climate rows: later stages work on the cube
+    run = dataclasses.replace(run, inputs=dataclasses.replace(
+        inputs, bundle=inputs.bundle.without("climate")))
+    return _set(run, tmp, indices=result)
 
 
 def _audit(run: Run, tmp: Path, say: Reporter) -> tuple[Run, list[Path]]:
