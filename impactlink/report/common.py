@@ -103,11 +103,6 @@ def setting(run: RunFolder, part: str, key: str, default):
     return default if value is None else value
 
 
-def percent_level(level: float) -> str:
-    """An interval's coverage as the report writes it: 0.9 -> '90 %'."""
-    return f"{100 * float(level):g} %"
-
-
 def score_for(run: RunFolder, impact: str, target: str) -> str:
     summary = run.table("skill_summary")
     if summary is not None:
@@ -145,7 +140,7 @@ class CardChoice:
 
 def card_counties(run: RunFolder) -> CardChoice:
     """The counties with a card: those listed in ``[report] county_cards`` (ids or names,
-    matched case-blind), else every county when there are at most ``max_cards``, else none."""
+    matched by their normal form: case, spaces, Unicode form), else every county when there are at most ``max_cards``, else none."""
     names = county_names(run)
     limit = int(setting(run, "report", "max_cards", 300))
     wanted = [str(c) for c in setting(run, "report", "county_cards", [])]
@@ -156,11 +151,14 @@ def card_counties(run: RunFolder) -> CardChoice:
         chosen = tuple(ids) if len(ids) <= limit else ()
         return CardChoice(chosen, (), len(ids), limit, False)
     label = names["county_name"].astype(str) if "county_name" in names.columns else ids
-    key = {k.casefold(): i for k, i in zip(label, ids, strict=True)}
-    key.update({i.casefold(): i for i in ids})
-    hit = {key[w.casefold()] for w in wanted if w.casefold() in key}
+    from impactlink.inputs.keys import normalise_key  # the one normal form of text keys
+
+    key = {normalise_key(k): i for k, i in zip(label, ids, strict=True)}
+    key.update({normalise_key(i): i for i in ids})
+    hit = {key[normalise_key(w)] for w in wanted if normalise_key(w) in key}
     return CardChoice(tuple(i for i in ids if i in hit),
-                      tuple(w for w in wanted if w.casefold() not in key), len(ids), limit, True)
+                      tuple(w for w in wanted if normalise_key(w) not in key), len(ids), limit,
+                      True)
 
 
 def page_shapes(run: RunFolder) -> MapShapes:

@@ -8,7 +8,14 @@ from __future__ import annotations
 import pandas as pd
 
 from impactlink.report._select import summary_skill
-from impactlink.report.common import FigureSink, absent, data_files, primary_pairs, section
+from impactlink.report.common import (
+    FigureSink,
+    absent,
+    data_files,
+    primary_pairs,
+    section,
+    setting,
+)
 from impactlink.report.html import Markup, el, link, paragraph
 from impactlink.report.runfolder import RunFolder
 from impactlink.report.text import (
@@ -47,8 +54,7 @@ def first_screen(run: RunFolder) -> Markup:
     skill, links = run.table("skill"), run.table("link_summary")
     opts = {str(i.get("name")): i.get("options") or {} for i in man.get("project", {})
             .get("impacts", []) if isinstance(i, dict)} if isinstance(man.get("project"), dict) else {}
-    ci = (man.get("project") or {}).get("skill", {}).get("ci") if isinstance(
-        man.get("project"), dict) else None
+    ci = setting(run, "skill", "ci", None)
     blocks = []
     for _, row in primary_rows(summary).iterrows():
         link_row = None

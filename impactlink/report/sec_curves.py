@@ -9,7 +9,6 @@ from impactlink.report.common import (
     data_files,
     impact_target_pairs,
     pair_title,
-    percent_level,
     primary_pairs,
     section,
     sel,
@@ -18,7 +17,7 @@ from impactlink.report.common import (
 from impactlink.report.figures_curves import impact_curves
 from impactlink.report.html import Markup, details, el, paragraph, table
 from impactlink.report.runfolder import RunFolder
-from impactlink.report.text import fmt_num, level_name, row_label
+from impactlink.report.text import fmt_num, level_name, percent_level, row_label
 from impactlink.report.words_sections import CURVES_INTRO
 
 

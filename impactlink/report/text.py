@@ -22,6 +22,7 @@ __all__ = [
     "row_label",
     "fmt_num",
     "fmt_interval",
+    "percent_level",
     "Answer",
     "answer_card",
     "verdict",
@@ -186,6 +187,11 @@ def fmt_num(value, digits: int = 2) -> str:
         return "n/a"
     text = f"{float(value):.{digits}f}"
     return text[1:] if text.startswith("-") and float(text) == 0 else text  # no "-0.00"
+
+
+def percent_level(level: float) -> str:
+    """An interval's coverage as the report writes it: 0.9 -> '90 %', 0.975 -> '97.5 %'."""
+    return f"{100 * float(level):g} %"
 
 
 def fmt_interval(estimate, lo, hi, *, digits: int = 2) -> str:

@@ -17,6 +17,7 @@ from impactlink.report.text import (
     cadence_of,
     fmt_num,
     impact_name,
+    percent_level,
     row_label,
     score_label,
     target_name,
@@ -140,7 +141,7 @@ def plain_answer(row: pd.Series, skill: pd.DataFrame | None, link_row: pd.Series
         answer += f", read at the end of ISO week {int(float(str(week)))} (end of the season window)"
     sk = summary_skill(row)
     shown = "bss" if sk.score == "rpss" and str(g("kind", "")) == "binary" else sk.score
-    level = f"{round(100 * (ci or 0.9))} % interval"
+    level = f"{percent_level(ci or 0.9)} interval"
     score = f"{score_label(shown)} {fmt_num(sk.nested)}"
     if _present(sk.nested_lo) and _present(sk.nested_hi):
         score += f" ({level} {fmt_num(sk.nested_lo)} to {fmt_num(sk.nested_hi)})"
