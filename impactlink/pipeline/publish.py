@@ -35,7 +35,7 @@ from impactlink.errors import ProjectError
 from impactlink.project import Project
 from impactlink.schema import COUNTY
 
-from .state import CubeFile, Run
+from .state import CubeFile, PanelFile, Run
 
 __all__ = ["MARKER", "RunInterrupted", "guard_output", "staged_folder", "write_tables",
            "write_layers", "write_manifest"]
@@ -177,7 +177,7 @@ def _sigterm_aborts() -> Iterator[None]:
 
 
 # ----------------------------------------------------------------------------- writers
-def write_tables(folder: Path, tables: dict[str, pd.DataFrame | CubeFile], *,
+def write_tables(folder: Path, tables: dict[str, pd.DataFrame | CubeFile | PanelFile], *,
                  months_of: dict[str, int] | None = None) -> list[Path]:
     """Write each frame by its file name: ``.csv`` or ``.parquet``, deterministic bytes.
 
@@ -186,13 +186,14 @@ def write_tables(folder: Path, tables: dict[str, pd.DataFrame | CubeFile], *,
     ``"index:scale_weeks"`` -> months, from the cube's provenance) every table with
     ``index`` and ``scale_weeks`` columns also gets ``scale_months`` beside them, so monthly
     time scales are read in months. A :class:`~.state.CubeFile` is written by
-    :func:`write_cube_parquet`.
+    :func:`write_cube_parquet`, a :class:`~.state.PanelFile` by :func:`write_panel_parquet`.
     """
     written = []
     for name, frame in tables.items():
-        if isinstance(frame, CubeFile):
+        if isinstance(frame, (CubeFile, PanelFile)):
             path = folder / name
-            write_cube_parquet(frame, path)
+            (write_cube_parquet if isinstance(frame, CubeFile) else write_panel_parquet)(
+                frame, path)  # type: ignore[operator]
             written.append(path)
             continue
         if months_of:
@@ -261,6 +262,34 @@ def write_cube_parquet(file: CubeFile, path: Path) -> None:
             value = pa.array(np.asarray(cube.arrays[key], np.float32).ravel(), from_pandas=True)
             writer.write_table(pa.Table.from_arrays([county, week, index, scale, value],
                                                     schema=schema))
+    _test_delay()
+
+
+def write_panel_parquet(file: PanelFile, path: Path) -> None:
+    """``panel.parquet`` one target at a time (a row group each), never the whole panel as
+    one frame (about 6 GB at 3,143 counties).
+
+    Rows and columns are those of :func:`impactlink.link.panel_frame`: the panel columns,
+    then every other column in order of first appearance, null where a target lacks it;
+    integer columns of different widths are widened to the widest (as ``pandas.concat``
+    does). The column types come from a first pass over the targets.
+    """
+    import pyarrow as pa
+    import pyarrow.parquet as pq
+
+    from impactlink.link import panel_frame
+
+    def part(target: Any) -> pa.Table:
+        return pa.Table.from_pandas(panel_frame([target]), preserve_index=False)
+
+    schema = pa.unify_schemas([part(t).schema for t in file.targets],
+                              promote_options="permissive").remove_metadata()
+    with pq.ParquetWriter(path, schema, compression="snappy") as writer:
+        for target in file.targets:
+            table = part(target)
+            cols = [table.column(f.name).cast(f.type) if f.name in table.column_names
+                    else pa.nulls(table.num_rows, f.type) for f in schema]
+            writer.write_table(pa.Table.from_arrays(cols, schema=schema))
     _test_delay()
 
 

@@ -39,6 +39,7 @@ from .state import (
     InputsResult,
     LinkStageResult,
     OutlookResult,
+    PanelFile,
     RankResult,
     TriggersResult,
 )
@@ -134,7 +135,7 @@ def audit(project: Project, ind: IndicesResult, progress: Progress) -> AuditResu
 def link(project: Project, inputs: InputsResult, ind: IndicesResult,
          progress: Progress) -> LinkStageResult:
     """Impact records -> targets on their own grids, with reconciliation counts."""
-    from impactlink.link import build_targets, panel_frame
+    from impactlink.link import build_targets
     from impactlink.link._keys import attach_sources
     from impactlink.link.build import with_files
     from impactlink.link.selection import key_normalisation, normalisation_lines, unselected_rows
@@ -175,7 +176,7 @@ def link(project: Project, inputs: InputsResult, ind: IndicesResult,
         link_rejected = with_files(link_rejected, files)
     return LinkStageResult(
         targets=tuple(targets),
-        panel=panel_frame(targets) if targets else pd.DataFrame(),
+        panel=PanelFile(tuple(targets)),
         reconciliation=_concat(recon),
         summary=_concat(summaries),
         rejected=link_rejected,

@@ -20,7 +20,7 @@ if TYPE_CHECKING:
     from impactlink.project import Project
 
 __all__ = [
-    "Candidate", "InputsResult", "CubeFile", "IndicesResult", "AuditResult", "LinkStageResult",
+    "Candidate", "InputsResult", "CubeFile", "PanelFile", "IndicesResult", "AuditResult", "LinkStageResult",
     "RankResult", "OutlookResult", "TriggersResult", "ContrastResult", "Run", "RunResult",
     "CheckSummary",
 ]
@@ -59,6 +59,24 @@ class CubeFile:
 
 
 @dataclass(frozen=True)
+class PanelFile:
+    """The link stage's targets, to be written as the long table ``panel.parquet`` one target
+    at a time (columns of :func:`impactlink.link.panel_frame`), never as one frame: a national
+    run's panel is about 20 M rows and 6 GB as one pandas frame."""
+
+    targets: tuple[Target, ...] = ()
+
+    def __len__(self) -> int:
+        return sum(len(t.frame) for t in self.targets)
+
+    def frame(self) -> pd.DataFrame:
+        """The whole panel in memory (for small runs and tests)."""
+        from impactlink.link import panel_frame
+
+        return panel_frame(self.targets)
+
+
+@dataclass(frozen=True)
 class IndicesResult:
     """The index cube on ISO weeks, and the cube written to ``indices.parquet``.
 
@@ -91,7 +109,7 @@ class LinkStageResult:
     """Targets built from the impact records, with their bookkeeping tables."""
 
     targets: tuple[Target, ...]
-    panel: pd.DataFrame
+    panel: PanelFile
     reconciliation: pd.DataFrame
     summary: pd.DataFrame
     rejected: pd.DataFrame
@@ -101,9 +119,10 @@ class LinkStageResult:
     #: ``key_normalisation``; see :func:`impactlink.link.selection.key_normalisation`)
     key_normalisation: dict[str, Any] = field(default_factory=dict)
 
-    def tables(self) -> dict[str, pd.DataFrame]:
-        out = {"reconciliation.csv": self.reconciliation, "link_summary.csv": self.summary,
-               "rejected_rows.csv": self.rejected_all}
+    def tables(self) -> dict[str, pd.DataFrame | PanelFile]:
+        out: dict[str, pd.DataFrame | PanelFile] = {
+            "reconciliation.csv": self.reconciliation, "link_summary.csv": self.summary,
+            "rejected_rows.csv": self.rejected_all}
         if len(self.panel):
             out["panel.parquet"] = self.panel
         return out
