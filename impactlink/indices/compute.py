@@ -358,14 +358,16 @@ def _check_climate(climate: pd.DataFrame) -> pd.DataFrame:
     if len(climate) == 0:
         raise IndicesError("climate: the table has no rows")
     cols = [c for c in (COUNTY, "date", *_NUMERIC) if c in climate.columns]
-    out = climate[cols].copy()
-    out[COUNTY] = out[COUNTY].astype(str)
+    out = climate[cols]  # copy-on-write: a column is copied only where it is converted
+    if not pd.api.types.is_string_dtype(out[COUNTY].dtype):
+        out[COUNTY] = out[COUNTY].astype(str)
     try:
-        out["date"] = pd.to_datetime(out["date"])
+        if not pd.api.types.is_datetime64_any_dtype(out["date"].dtype):
+            out["date"] = pd.to_datetime(out["date"])
     except (ValueError, TypeError) as exc:
         raise IndicesError(f"climate: column 'date' could not be read as dates ({exc})") from None
     for c in _NUMERIC:
-        if c in out.columns:
+        if c in out.columns and out[c].dtype != np.float64:
             out[c] = pd.to_numeric(out[c], errors="coerce").astype(float)
     p = out["precip_mm"].to_numpy()
     if np.any(p < 0):

@@ -14,7 +14,7 @@ import pandas as pd
 from impactlink.schema import COUNTY, DATE
 
 __all__ = ["CADENCE_DAYS", "county_cadence", "cadence_table", "with_county_codes", "county_key", "county_sample",
-           "SAMPLE_PER_COUNTY"]
+           "first_rows", "SAMPLE_PER_COUNTY"]
 
 CADENCE_DAYS = {"daily": (1, 1), "weekly": (7, 7), "monthly": (28, 31)}
 #: Values per county the distribution checks (medians, percentiles, shares) look at: a
@@ -29,7 +29,8 @@ def with_county_codes(frame: pd.DataFrame) -> pd.DataFrame:
     daily climate table of 52 M rows, each text grouping costs seconds)."""
     if COUNTY not in frame.columns or isinstance(frame[COUNTY].dtype, pd.CategoricalDtype):
         return frame
-    return frame.assign(**{COUNTY: pd.Categorical(frame[COUNTY].astype(str))})
+    codes, names = pd.factorize(frame[COUNTY].astype(str), sort=True)  # hashed once
+    return frame.assign(**{COUNTY: pd.Categorical.from_codes(codes, categories=names)})
 
 
 def county_key(frame: pd.DataFrame) -> pd.Series:
@@ -52,20 +53,22 @@ def cadence_table(frame: pd.DataFrame) -> pd.DataFrame:
     """Per county (index, as text): ``cadence`` (:func:`county_cadence`) and ``dates``, the
     number of distinct dates, from one pass over integer codes and day numbers."""
     cat = pd.Categorical(county_key(frame))
-    code = cat.codes.astype(np.int64)
-    day = pd.to_datetime(frame[DATE]).to_numpy().astype("datetime64[D]").astype(np.int64)
-    dc, dt = np.diff(code), np.diff(day)
-    if ((dc > 0) | ((dc == 0) & (dt >= 0))).all():  # already by county, then date
+    code = cat.codes.astype(np.int32)  # 32-bit codes and day numbers: a national table's
+    day = _day_numbers(frame[DATE])    # temporaries stay a few hundred MB
+    later = (code[1:] > code[:-1]) | ((code[1:] == code[:-1]) & (day[1:] >= day[:-1]))
+    if later.all():  # already by county, then date
         c, t = code, day
     else:
         order = np.lexsort((day, code))  # county, then date
         c, t = code[order], day[order]
+    del later
     first = np.r_[True, (c[1:] != c[:-1]) | (t[1:] != t[:-1])]
     c, t = c[first], t[first]
     same = c[1:] == c[:-1]
-    sc, st = c[1:][same], (t[1:] - t[:-1])[same]  # steps in days within each county
+    sc, st = c[1:][same], np.diff(t)[same]  # steps in days within each county
     span = int(st.max(initial=0)) + 1
-    flat = sc * span + st  # one key per (county, step)
+    flat = sc.astype(np.int64) * span + st  # one key per (county, step)
+    del sc, st, same
     if (int(c.max(initial=0)) + 1) * span <= 50_000_000:  # count without sorting
         n = np.bincount(flat)
         key = np.flatnonzero(n)
@@ -86,16 +89,50 @@ def cadence_table(frame: pd.DataFrame) -> pd.DataFrame:
     return pd.DataFrame({"cadence": out, "dates": dates}, index=med.index)
 
 
+def _day_numbers(dates: pd.Series) -> np.ndarray:
+    """Days since 1970-01-01 as int32 (NaT as the smallest int32)."""
+    d = pd.to_datetime(dates).to_numpy().astype("datetime64[D]")
+    out = d.astype(np.int64)
+    out[np.isnat(d)] = np.iinfo(np.int32).min
+    return out.astype(np.int32)
+
+
 def county_sample(frame: pd.DataFrame, per_county: int = SAMPLE_PER_COUNTY) -> pd.DataFrame:
     """Every k-th row of each county (in the table's order), k = rows // ``per_county``; the
     frame itself when no county has more than ``2 * per_county`` rows. Deterministic."""
-    code = pd.Categorical(county_key(frame)).codes.astype(np.int64) + 1  # 0: no county
+    code = pd.Categorical(county_key(frame)).codes.astype(np.int32) + 1  # 0: no county
     counts = np.bincount(code)
     step = np.maximum(1, counts // per_county)
     if step.max() < 2:
         return frame
-    order = np.argsort(code, kind="stable")
     start = np.cumsum(counts) - counts
-    pos = np.empty(code.size, dtype=np.int64)
-    pos[order] = np.arange(code.size) - start[code[order]]
+    if (code[1:] >= code[:-1]).all():  # by county already: positions without a sort
+        pos = np.arange(code.size, dtype=np.int64) - start[code]
+    else:
+        order = np.argsort(code, kind="stable")
+        pos = np.empty(code.size, dtype=np.int64)
+        pos[order] = np.arange(code.size) - start[code[order]]
     return frame[(pos % step[code] == 0)]
+
+
+def first_rows(frame: pd.DataFrame, key: list[str]) -> np.ndarray:
+    """True on the first row of each distinct ``key`` (``~frame.duplicated(key)``).
+
+    A (categorical county, date) key is one integer per row (county code x day number): on a
+    table in key order the repeats are neighbours (one comparison per row), else the integers
+    are hashed, never the county text and the timestamps.
+    """
+    if not key:
+        return np.ones(len(frame), dtype=bool)
+    county = frame[COUNTY] if COUNTY in key else None
+    if (sorted(key) == sorted([COUNTY, DATE]) and county is not None
+            and isinstance(county.dtype, pd.CategoricalDtype)
+            and pd.api.types.is_datetime64_any_dtype(frame[DATE].dtype)):
+        day = frame[DATE].to_numpy().astype("datetime64[D]").astype(np.int64)
+        nat = np.isnat(frame[DATE].to_numpy())
+        day = np.where(nat, 0, day - (day[~nat].min() if (~nat).any() else 0) + 1)
+        k = county.cat.codes.to_numpy().astype(np.int64) * (int(day.max(initial=0)) + 1) + day
+        if k.size < 2 or (k[1:] > k[:-1]).all():  # in key order, every key once
+            return np.ones(len(frame), dtype=bool)
+        return ~pd.Series(k).duplicated().to_numpy()
+    return ~frame.duplicated(key).to_numpy()

@@ -172,10 +172,11 @@ class TableCheck:
     def used(self, columns: list[str]) -> pd.DataFrame:
         """The usable rows, with the clean version of ``columns`` (raw for the rest)."""
         keep = self.alive
+        every = bool(keep.all())  # no row rejected: the columns as they are (no copy)
         out = {}
         for c in columns:
             s = self.clean[c] if c in self.clean else self.frame[c]
-            out[c] = s[keep].reset_index(drop=True)
+            out[c] = (s if every else s[keep]).reset_index(drop=True)
         frame = pd.DataFrame(out)
         # file row numbers of the kept rows, so later stages can name the row they reject
         frame.attrs["source_rows"] = SourceRows(self.rows[np.asarray(keep, dtype=bool)])
@@ -219,10 +220,13 @@ def text_column(raw: pd.Series) -> tuple[pd.Series, np.ndarray]:
         text[whole] = pd.Series(v[whole]).astype(np.int64).astype(str).to_numpy()
         s = pd.Series(text, index=raw.index, dtype="str").where(~np.isnan(v), "")
     elif pd.api.types.is_string_dtype(raw.dtype) and not pd.api.types.is_object_dtype(raw.dtype):
-        s = raw.fillna("")
+        s = raw.fillna("") if raw.hasnans else raw
     else:
         s = raw.astype(object).where(raw.notna(), "").astype("str")
-    s = s.str.strip()
+    stripped = s.str.strip()
+    if not (stripped.str.len() == s.str.len()).all():  # else no copy (a national table's ids)
+        s = stripped
+    del stripped
     missing = (s == "").to_numpy()
     return s, missing
 
@@ -243,6 +247,11 @@ def date_column(raw: pd.Series) -> tuple[pd.Series, np.ndarray, np.ndarray, np.n
         d = raw
         missing = d.isna().to_numpy()
         bad = np.zeros(len(d), dtype=bool)
+        ns = _as_nanoseconds(d)  # stored dates: one conversion, no more copies
+        if ns is not None:
+            whole = ns.to_numpy().view(np.int64) % 86_400_000_000_000 == 0
+            if bool(whole[~missing].all()):
+                return ns, missing, bad, np.zeros(len(d), dtype=bool)
     elif pd.api.types.is_numeric_dtype(raw.dtype) or pd.api.types.is_bool_dtype(raw.dtype):
         # numbers are not dates (an integer would read as nanoseconds after 1970)
         missing = raw.isna().to_numpy()
@@ -275,8 +284,21 @@ def date_column(raw: pd.Series) -> tuple[pd.Series, np.ndarray, np.ndarray, np.n
     return d, missing, bad, far
 
 
+def _as_nanoseconds(d: pd.Series) -> pd.Series | None:
+    """Naive stored dates as datetime64[ns]; None when they carry a time zone or fall
+    outside what nanoseconds hold (those take the general path, which rejects them by row)."""
+    if getattr(d.dt, "tz", None) is not None:
+        return None
+    try:
+        return d.astype("datetime64[ns]")
+    except (OverflowError, pd.errors.OutOfBoundsDatetime):
+        return None
+
+
 def number_column(raw: pd.Series) -> tuple[pd.Series, np.ndarray, np.ndarray]:
     """Float64 values; blank (or a common NA spelling) is missing, other text is unparseable."""
+    if raw.dtype == np.float64:  # typed (Parquet) floats: the column itself, no copy
+        return raw, raw.isna().to_numpy(), np.zeros(len(raw), dtype=bool)
     if pd.api.types.is_numeric_dtype(raw.dtype) and not pd.api.types.is_bool_dtype(raw.dtype):
         v = pd.Series(raw.to_numpy(dtype=float, na_value=np.nan), index=raw.index)
         missing = v.isna().to_numpy()

@@ -461,12 +461,12 @@ def beyond_physical_limits(frame: pd.DataFrame) -> pd.DataFrame:
         cat = pd.Categorical(_county(frame))  # per county, then spread by code
         per = county_cadence(frame).reindex(cat.categories.astype(str)).to_numpy(object)
         lim = pd.Series(per).map({k: b for k, (_, b) in LIMITS["precip_mm"].items()})
-        cad = per[cat.codes]
-        hi = pd.Series(lim.to_numpy(float)[cat.codes], index=frame.index)
-        bad = v > hi
+        hi = lim.to_numpy(float)[cat.codes]
+        bad = pd.Series(v.to_numpy() > hi, index=frame.index)
         span = {"daily": "24-hour", "weekly": "7-day (7 x 24-hour)", "monthly": "one-month"}
-        reason = [f"{span[c]} rainfall record ({h:g} mm, WMO) exceeded"  # rejected rows only
-                  for c, h in zip(cad[bad.to_numpy()], hi[bad], strict=True)]
+        rows = bad.to_numpy()  # reasons for the rejected rows only
+        reason = [f"{span[c]} rainfall record ({h:g} mm, WMO) exceeded"
+                  for c, h in zip(per[cat.codes[rows]], hi[rows], strict=True)]
         parts.append(_rows(frame, "precip_mm", v, bad, np.asarray(reason, dtype=object)))
     parts = [p for p in parts if len(p)]
     return pd.concat(parts, ignore_index=True) if parts else _empty_rejected()

@@ -121,7 +121,11 @@ def read_inputs(project: Project, *, progress: Callable[[str], Any] | None = Non
             rejected.append(check.rejected())
             counts.append(_count_row(name, path, check, clean))
             checksums.update(checksums_for(path))
-            raw = check.frame
+            # of the raw table only the coordinates are read again (the swapped lon/lat
+            # hint); the rest is let go before the plausibility checks (a national climate
+            # table is several GB)
+            raw = check.frame[[c for c in ("lon", "lat") if c in check.frame.columns]]
+            del check
         prov = published[name].details.get("provenance") if name in published else None
         clean, implausible = _plausible(name, path, clean, counts[-1], published=raw is None,
                                         zones=prov)

@@ -13,6 +13,7 @@ from typing import TYPE_CHECKING
 import numpy as np
 import pandas as pd
 
+from impactlink.inputs._cadence import first_rows, with_county_codes
 from impactlink.inputs._errors import REASONS, InputError
 from impactlink.inputs._rules import TableCheck, map_levels
 from impactlink.schema import COUNTY, REGION, TableSpec
@@ -193,12 +194,20 @@ def _reject_duplicates(check: TableCheck, spec: TableSpec) -> None:
     if not key or not check.alive.any():
         return
     live = np.flatnonzero(check.alive)
+    every = live.size == check.n
+    sub = with_county_codes(pd.DataFrame(
+        {k: check.clean[k] if every else check.clean[k].iloc[live] for k in key}))
+    if first_rows(sub, key).all():  # every key once (on integer codes): nothing to reject
+        return
+    del sub
     # One integer code per distinct key (factorize each column, fold them together and
     # re-factorize after each step so the codes stay below the row count).
     code = np.zeros(live.size, dtype=np.int64)
     for k in key:
         col, _ = pd.factorize(check.clean[k].iloc[live], use_na_sentinel=False)
-        code, _ = pd.factorize(code * (int(col.max(initial=0)) + 1) + col)
+        code, uniq = pd.factorize(code * (int(col.max(initial=0)) + 1) + col)
+    if len(uniq) == live.size:  # every key once: nothing to reject (no sort needed)
+        return
     _, first, inverse = np.unique(code, return_index=True, return_inverse=True)
     first_of_row = first[inverse]
     dup = first_of_row != np.arange(live.size)

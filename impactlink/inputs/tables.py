@@ -143,16 +143,23 @@ def _units_as_read(name: str, path: Path, check: TableCheck, columns: list[str],
     :func:`impactlink.inputs.plausibility.unit_findings`): on the converted values of the rows
     whose cells all read (of known counties, first of each key), so a Fahrenheit column is
     named as one, not half-rejected as temperatures out of range."""
-    from impactlink.inputs._cadence import with_county_codes
+    from impactlink.inputs._cadence import first_rows, with_county_codes
     from impactlink.inputs.plausibility import fatal_line, unit_findings
 
     if name not in ("climate", "yields", "prices") or not check.alive.any():
         return
-    frame = pd.DataFrame({c: check.clean[c][check.alive] for c in columns if c in check.clean})
+    alive = check.alive
+    every = bool(alive.all())  # no row rejected yet: the columns as they are (no copy)
+    frame = pd.DataFrame({c: check.clean[c] if every else check.clean[c][alive]
+                          for c in columns if c in check.clean})
     frame = with_county_codes(frame)  # one categorical: membership, repeats and checks on codes
+    keep = np.ones(len(frame), dtype=bool)
     if ctx.county_ids is not None and COUNTY in frame:
-        frame = frame[frame[COUNTY].isin(ctx.county_ids)]
-    frame = frame.drop_duplicates([k for k in TABLES[name].key if k in frame])
+        known = frame[COUNTY].cat.categories.isin(ctx.county_ids)
+        keep &= known[frame[COUNTY].cat.codes.to_numpy()] & (frame[COUNTY].cat.codes >= 0).to_numpy()
+    keep &= first_rows(frame, [k for k in TABLES[name].key if k in frame])
+    if not keep.all():
+        frame = frame[keep]
     found = unit_findings(frame, name, file=str(path))
     if found:
         raise InputError(fatal_line(found))

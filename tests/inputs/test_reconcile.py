@@ -16,7 +16,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 from inputs_fixtures import COUNTY_IDS, counties_frame, make_project, write_csv
 
-from impactlink.inputs import read_inputs
+from impactlink.inputs import InputError, read_inputs
 
 GOOD_DATES = [f"2001-{m:02d}-01" for m in range(1, 13)] + [f"2002-{m:02d}-01" for m in range(1, 13)]
 COUNTY_CHOICES = [*COUNTY_IDS, "99999", ""]
@@ -52,6 +52,29 @@ def _expected(rows: list[tuple[str, str, str]], n_good: int) -> set[int]:
     return bad_rows
 
 
+def _mixed_cadence(rows: list[tuple[str, str, str]]) -> bool:
+    """Whether a known county's usable rows come at another cadence than the others' (the
+    rule of ``mixed_cadence``: the most common step between distinct dates, the shortest of
+    ties; 28-31 days is monthly; counties with fewer than 3 dates are not judged)."""
+    import collections
+    import datetime as dt
+
+    dates: dict[str, set[dt.date]] = collections.defaultdict(set)
+    for county, date, precip in rows:
+        if county in COUNTY_IDS and date in GOOD_DATES and precip in ("0", "41.5", "40"):
+            dates[county].add(dt.date.fromisoformat(date))
+    kinds = []
+    for days in dates.values():
+        if len(days) < 3:
+            continue
+        d = sorted(days)
+        steps = collections.Counter((b - a).days for a, b in zip(d, d[1:], strict=False))
+        top = max(steps.values())
+        step = min(k for k, v in steps.items() if v == top)
+        kinds.append("monthly" if 28 <= step <= 31 else "other")
+    return len(set(kinds)) > 1
+
+
 @pytest.mark.filterwarnings("ignore::impactlink.inputs.InputWarning")
 @settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(st.lists(row, min_size=0, max_size=40))
@@ -64,6 +87,10 @@ def test_rows_read_equal_used_plus_rejected(rows):
                 for d in GOOD_DATES[6 : 6 + n_good]]
         frame = pd.DataFrame(good + rows, columns=["county_id", "date", "precip_mm"])
         path = write_csv(folder, "climate", frame)
+        if _mixed_cadence(good + rows):  # the documented whole-table stop, not a row rule
+            with pytest.raises(InputError, match="rows among monthly rows"):
+                read_inputs(make_project(folder, min_years=1))
+            return
         b = read_inputs(make_project(folder, min_years=1))
     for rec in b.counts.itertuples():
         assert rec.rows_read == rec.rows_used + rec.rows_rejected
