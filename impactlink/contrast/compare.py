@@ -169,10 +169,15 @@ def county_contrast(
     xv = data["x"].to_numpy()
     z = data[trait_names].to_numpy()
 
-    base = _fit(y, np.column_stack([np.ones_like(xv), xv]))
+    # the package's Newton fits on all rows start statsmodels' IRLS (one or two iterations
+    # left instead of six or more on a national weekly target) and every Brier fold
+    d0 = np.column_stack([np.ones_like(xv), xv])
+    b0 = _logit_fit(y, d0)
+    base = _fit(y, d0, start=b0)
     excess = _county_excess(data, base.predict(), alpha)
 
-    design = np.column_stack([np.ones_like(xv), xv, z])
+    design = np.column_stack([d0, z])
+    b1 = _logit_fit(y, design)
     groups = data[COUNTY if cluster == "county" else "year"].to_numpy()
     n_groups = len(np.unique(groups))
     if n_groups < 10:
@@ -184,11 +189,11 @@ def county_contrast(
             stacklevel=2,
         )
         prov["warnings"].append(f"few clusters: {n_groups}")
-    full = _fit(y, design, groups=groups)
+    full = _fit(y, design, groups=groups, start=b1)
     terms = _terms(full, ["index"] + trait_names, alpha, np.append(np.std(xv, ddof=1), trait_sd),
                    n_groups)
 
-    skill = _brier_cv(y, xv, z, data["year"].to_numpy(), n_boot, alpha, seed)
+    skill = _brier_cv(y, xv, z, data["year"].to_numpy(), n_boot, alpha, seed, starts=(b0, b1))
     pairs = _pairs(data, trait_names, n_pairs)
     prov.update({"clusters": int(n_groups), "cluster": cluster, "link": link, "ci": ci,
                  "seed": int(seed), "n_boot": int(n_boot)})
@@ -329,7 +334,7 @@ def _warn(prov: dict, message: str) -> None:
     warnings.warn(message, ContrastWarning, stacklevel=3)
 
 
-def _fit(y, design, groups=None):
+def _fit(y, design, groups=None, start=None):
     import statsmodels.api as sm
     from statsmodels.tools.sm_exceptions import PerfectSeparationWarning
 
@@ -337,11 +342,13 @@ def _fit(y, design, groups=None):
     with warnings.catch_warnings():
         warnings.simplefilter("error", PerfectSeparationWarning)
         try:
+            if start is not None and not np.isfinite(start).all():
+                start = None
             if groups is None:
-                return model.fit()
+                return model.fit(start_params=start)
             codes = pd.factorize(groups)[0]
             return model.fit(cov_type="cluster", cov_kwds={"groups": codes, "use_correction": True},
-                             use_t=True)
+                             use_t=True, start_params=start)
         except (PerfectSeparationWarning, np.linalg.LinAlgError) as err:
             raise ContrastError(
                 "the impact is perfectly separated by the index or traits (some trait or index "
@@ -387,8 +394,9 @@ def _county_excess(data: pd.DataFrame, p_hat: np.ndarray, alpha: float) -> pd.Da
     return agg
 
 
-def _brier_cv(y, xv, z, years, n_boot, alpha, seed) -> dict:
-    """Leave-one-year-out Brier scores of index-only and index+traits models."""
+def _brier_cv(y, xv, z, years, n_boot, alpha, seed, starts=None) -> dict:
+    """Leave-one-year-out Brier scores of index-only and index+traits models (``starts``:
+    the two models' fits on all years, when already made)."""
     uniq = np.unique(years)
     if len(uniq) < 3:
         return {"brier_index": np.nan, "brier_traits": np.nan, "brier_change": np.nan,
@@ -398,8 +406,9 @@ def _brier_cv(y, xv, z, years, n_boot, alpha, seed) -> dict:
     # every fold starts from the fit on all years (a fold lacks one year of data, so Newton
     # needs two or three steps); the folds share one year-sorted design
     # (impactlink.contrast.foldlogit: no per-fold copy, first step from per-year sums)
-    p0 = year_out_probabilities(y, d0, years, _logit_fit(y, d0))
-    p1 = year_out_probabilities(y, d1, years, _logit_fit(y, d1))
+    b0, b1 = starts if starts is not None else (_logit_fit(y, d0), _logit_fit(y, d1))
+    p0 = year_out_probabilities(y, d0, years, b0)
+    p1 = year_out_probabilities(y, d1, years, b1)
     ok = np.isfinite(p0) & np.isfinite(p1)
     e0 = (p0 - y) ** 2
     e1 = (p1 - y) ** 2

@@ -78,6 +78,12 @@ def feature_values(target: Target, cube, index: str, scale_weeks: int, lag_weeks
     stat = rule.window_stat if w > 1 else "value"
     if stat not in ("value", "min", "mean"):
         raise LinkError(f"feature_values: window_stat must be value, min or mean, got {stat!r}")
+    if w == 1 and target.grain != "region_month":  # one week per row: one gather, no window
+        nt, nc = arr.shape
+        good = (pos >= 0) & (pos < nt) & (cp >= 0)
+        vals = np.take(arr, np.where(good, pos * nc + cp, 0))
+        vals[~good] = np.nan
+        return vals
     win = pos[:, None] - (w - 1) + np.arange(w)[None, :]
     ok = (win >= 0) & (win < arr.shape[0])
     winc = np.clip(win, 0, arr.shape[0] - 1)
@@ -286,8 +292,12 @@ def _region_values(target, cube, arr, winc, ok, stat) -> np.ndarray:
     rows_r = regions.get_indexer(fr[rcol].astype(str))
     # the county values of each distinct window (rows of all regions share a month), then
     # region sums as matrix products: no (rows x window x counties) array
-    uwin, inv = np.unique(np.where(ok, winc, -1), axis=0, return_inverse=True)
+    # a window is fixed by its last week (``winc`` and ``ok`` are functions of it), so the
+    # distinct windows are the distinct last weeks: a 1-d unique, not a unique of rows
+    _, first, inv = np.unique(winc[:, -1] + np.where(ok[:, -1], 0, -(1 << 40)),
+                              return_index=True, return_inverse=True)
     inv = inv.reshape(-1)
+    uwin = np.where(ok[first], winc[first], -1)
     uok = uwin >= 0
     vals = arr[np.maximum(uwin, 0)]                    # (windows, w, counties)
     vals = np.where(uok[:, :, None], vals, np.nan)
