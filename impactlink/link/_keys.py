@@ -11,6 +11,7 @@ the project file's when the project selects it, else the spelling most rows use.
 from __future__ import annotations
 
 from collections.abc import Iterable, Mapping
+from dataclasses import dataclass
 
 import numpy as np
 import pandas as pd
@@ -91,25 +92,55 @@ def spelling(values: pd.Series, known: Iterable[str] | None = None, *, key: str 
     >>> s.tolist(), hit.tolist()
     (['MAIZE', 'MAIZE', 'MAIZE', 'Oats'], [True, True, True, False])
     """
-    norm = forms(values)
+    table = spelling_table(values, known, key=key)
+    ok = table.codes >= 0
+    out = np.full(len(values), pd.NA, dtype=object)
+    out[ok] = table.key.to_numpy(dtype=object)[table.codes[ok]]
+    hit = np.ones(len(values), dtype=bool)
+    if known is not None:
+        hit[:] = False
+        hit[ok] = table.hit[table.codes[ok]]
+    return pd.Series(out, index=values.index, dtype=object), hit
+
+
+@dataclass(frozen=True)
+class SpellingTable:
+    """:func:`spelling` of the distinct values of a column: ``written`` (each distinct value),
+    ``key`` (its respelling, NA where it has no normal form), ``hit`` (matches a known key),
+    ``rows`` (how many rows hold it) and ``codes`` (each row's distinct value, -1 missing)."""
+
+    written: pd.Series
+    key: pd.Series
+    hit: np.ndarray
+    rows: np.ndarray
+    codes: np.ndarray
+
+
+def spelling_table(values: pd.Series, known: Iterable[str] | None = None, *, key: str = "key"
+                   ) -> SpellingTable:
+    """The rule of :func:`spelling`, worked on the distinct values (a key column of millions
+    of rows holds a handful), each weighted by its rows."""
+    codes, uniq = pd.factorize(values.astype("string"))
+    u = pd.Series(np.asarray(uniq, dtype=object))
+    n = np.bincount(codes[codes >= 0], minlength=len(u))
+    norm = forms(u)
     present = norm.notna().to_numpy()
-    written = values.astype("string")
-    pairs = pd.DataFrame({"w": written[present].astype(str).to_numpy(),
-                          "f": norm[present].astype(str).to_numpy()})
-    # the spelling most rows use, per normal form (a column has few distinct keys)
-    common = (pairs.groupby(["f", "w"]).size().rename("n").reset_index()
+    pairs = pd.DataFrame({"w": u[present].astype(str).to_numpy(),
+                          "f": norm[present].astype(str).to_numpy(), "n": n[present]})
+    # the spelling most rows use, per normal form
+    common = (pairs.groupby(["f", "w"])["n"].sum().rename("n").reset_index()
               .sort_values(["f", "n", "w"], ascending=[True, False, True])
               .drop_duplicates("f").set_index("f")["w"])
-    out = pd.Series(pd.NA, index=values.index, dtype=object)
-    out[present] = pairs["f"].map(common).to_numpy()
-    if known is None:
-        return out, np.ones(len(values), dtype=bool)
-    from impactlink.inputs.keys import match_keys
+    res = pd.Series(pd.NA, index=u.index, dtype=object)
+    res[present] = pairs["f"].map(common).to_numpy()
+    hit = np.ones(len(u), dtype=bool)
+    if known is not None:
+        from impactlink.inputs.keys import match_keys
 
-    m = match_keys(values, list(known), key=key)
-    hit = m.matched.notna().to_numpy()
-    out[hit] = m.matched[hit].astype(str).to_numpy()
-    return out, hit
+        m = match_keys(u, list(known), key=key)
+        hit = m.matched.notna().to_numpy()
+        res[hit] = m.matched[hit].astype(str).to_numpy()
+    return SpellingTable(u, res, hit, n, codes)
 
 
 def attach_sources(tables: Mapping[str, pd.DataFrame], files: Mapping[str, object] | None = None

@@ -22,7 +22,14 @@ import numpy as np
 import pandas as pd
 
 from impactlink.link._common import Ledger
-from impactlink.link._keys import KEY_COLUMNS, SELECTORS, forms, selector_values, spelling
+from impactlink.link._keys import (
+    KEY_COLUMNS,
+    SELECTORS,
+    forms,
+    selector_values,
+    spelling,
+    spelling_table,
+)
 
 __all__ = ["key_normalisation", "normalisation_lines", "unselected_rows", "NO_IMPACT",
            "MAX_FORMS"]
@@ -87,22 +94,23 @@ def key_normalisation(tables: Mapping[str, pd.DataFrame], impacts: Iterable[Any]
         for col in columns:
             if col not in frame.columns:
                 continue
-            written = frame[col].astype("string")
-            key, _ = spelling(written, _known(impacts, table, col), key=col)
-            present = written.notna().to_numpy() & pd.notna(key.to_numpy())
-            pairs = pd.DataFrame({"w": written[present].astype(str).to_numpy(),
-                                  "k": key[present].astype(str).to_numpy()})
+            tab = spelling_table(frame[col], _known(impacts, table, col), key=col)
+            present = pd.notna(tab.key.to_numpy())  # distinct values, weighted by their rows
+            pairs = pd.DataFrame({"w": tab.written[present].astype(str).to_numpy(),
+                                  "k": tab.key[present].astype(str).to_numpy(),
+                                  "n": tab.rows[present]})
+            n_values = int(pairs["n"].sum())
             pairs = pairs[pairs["w"] != pairs["k"]]
             if pairs.empty:
                 continue
-            counts = pairs.value_counts().sort_index()
+            counts = pairs.set_index(["w", "k"])["n"].sort_index()
             by_kind = {"unicode": 0, "whitespace": 0, "case": 0}
             for (w, k), n in counts.items():  # distinct written forms: a handful
                 for kind in _kinds(str(w), str(k)):
                     by_kind[kind] += int(n)
             listed = list(counts.index)[:MAX_FORMS]
             out.setdefault(table, {})[col] = {
-                "values": int(present.sum()), "respelt": int(counts.sum()), "by_kind": by_kind,
+                "values": n_values, "respelt": int(counts.sum()), "by_kind": by_kind,
                 "forms": {str(w): str(k) for w, k in listed},
                 "more_forms": max(0, len(counts) - MAX_FORMS)}
     return out
