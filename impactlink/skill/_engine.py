@@ -112,8 +112,11 @@ def bin_codes(x: np.ndarray, n_bins: int) -> np.ndarray:
     lo, hi = float(x.min()), float(x.max())
     if hi <= lo:
         return np.zeros(x.size, dtype=np.int64)
-    b = np.floor((x - lo) / (hi - lo) * n_bins).astype(np.int64)
-    return np.clip(b, 0, n_bins - 1)
+    t = x - lo  # in place after the first step; x - lo >= 0, so truncation is the floor
+    t /= hi - lo
+    t *= n_bins
+    b = t.astype(np.int64)
+    return np.clip(b, 0, n_bins - 1, out=b)
 
 
 def build_hist(block, level, xs, bins, cell, *, n_blocks, n_bins_total, n_cells, n_levels,
@@ -124,8 +127,14 @@ def build_hist(block, level, xs, bins, cell, *, n_blocks, n_bins_total, n_cells,
     without the persistence split), computed from the histogram instead of the rows.
     """
     G, NB, C, K = n_blocks, n_bins_total, n_cells, n_levels
-    row = (block * NB + bins) * C + cell
-    N = np.bincount(row * K + level, minlength=G * NB * C * K).reshape(G, NB * C, K)
+    row = block * NB  # (block * NB + bins) * C + cell, one array
+    row += bins
+    row *= C
+    row += cell
+    rk = row * K
+    rk += level
+    N = np.bincount(rk, minlength=G * NB * C * K).reshape(G, NB * C, K)
+    del rk
     S = np.stack([np.bincount(row, weights=x, minlength=G * NB * C) for x in xs], axis=-1)
     S = S.reshape(G, NB * C, len(xs))
     h = _compress(N, S, NB, C)

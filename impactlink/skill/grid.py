@@ -145,6 +145,8 @@ def _histograms(ctx, features, cands, *, n_bins, pairs, pair_bins) -> list[_Unit
     zero = np.zeros(ctx.rows.size, dtype=np.int64)
     sea = ctx.seasons
     n_sea = sea.n_classes if sea is not None else 1
+    harm = ((sea.harmonics[sea.code, 0], sea.harmonics[sea.code, 1]) if sea is not None
+            else ())  # the rows' seasonal terms, the same for every candidate
     for (ix, lg), scales in by_group.items():  # one pass per (index, lag) group
         cell = ctx.pers_cells.get(lg)
         xs = {}
@@ -154,7 +156,8 @@ def _histograms(ctx, features, cands, *, n_bins, pairs, pair_bins) -> list[_Unit
                 return None  # a gap: the caller finds the common rows first
             mu, sd = float(x.mean()), float(x.std())
             sd = sd if sd > 0 else 1.0
-            z = (x - mu) / sd
+            z = x - mu
+            z /= sd
             xs[sc] = (z, mu, sd, E.bin_codes(z, pair_bins) if pairs else None)
             b = E.bin_codes(z, n_bins)
             tr: tuple[tuple[float, float, float, float], ...] = (
@@ -163,7 +166,7 @@ def _histograms(ctx, features, cands, *, n_bins, pairs, pair_bins) -> list[_Unit
             if sea is None:
                 cols, bs = [z], b
             else:  # seasonal terms: rows by bin x season class, harmonics at class midpoints
-                cols = [z, sea.harmonics[sea.code, 0], sea.harmonics[sea.code, 1]]
+                cols = [z, *harm]
                 bs = b * n_sea + sea.code
                 plain = _hist(ctx, [z], b, zero, n_bins, 1)
             if cell is None:
