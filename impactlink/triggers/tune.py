@@ -312,8 +312,10 @@ class _Chooser:
         self.scope = scope
         self.group_of = group_of
         n_groups = int(group_of.max()) + 1
-        self.member = np.zeros((len(group_of), n_groups), dtype=np.int64)
-        self.member[np.arange(len(group_of)), group_of] = 1
+        # float membership: group sums by BLAS (integer matrix products have none); counts
+        # are whole numbers far below 2**53, so the float sums are exact
+        self.member = np.zeros((len(group_of), n_groups), dtype=np.float64)
+        self.member[np.arange(len(group_of)), group_of] = 1.0
         self.shrink_events = shrink_events
 
     def __call__(self, train: dict[str, np.ndarray]) -> np.ndarray:
@@ -322,7 +324,8 @@ class _Chooser:
         k_all = _best(self._score(pooled))  # (1,); all-NaN (no events) -> lowest candidate
         if self.scope == "uniform":
             return np.full(n_counties, k_all[0])
-        group = {k: v @ self.member for k, v in train.items()}  # (K, G)
+        group = {k: np.rint(v @ self.member).astype(np.int64)  # (K, G)
+                 for k, v in train.items()}
         k_group = _best(self._score(group), fallback=k_all[0])
         if self.scope == "region":
             return k_group[self.group_of]
