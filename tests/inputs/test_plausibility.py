@@ -258,3 +258,27 @@ def test_long_records_are_judged_on_a_systematic_sample_with_the_same_findings()
     assert found == {("tmax_c", "01003"), ("precip_mm", "01007")}
     small = climate()
     assert county_sample(small) is small  # two years: every row is read
+
+
+@pytest.mark.parametrize("shuffle", [False, True])
+def test_first_rows_and_cadence_on_codes_agree_with_pandas(shuffle):
+    """The integer-code shortcuts give what pandas' own ``duplicated`` and a plain per-county
+    diff of sorted dates give (pandas is the reference)."""
+    from impactlink.inputs._cadence import cadence_table, first_rows, with_county_codes
+
+    rng = np.random.default_rng(3)
+    days = pd.date_range("2001-01-01", periods=60, freq="D")
+    frame = pd.DataFrame({"county_id": np.repeat(["19001", "19003", "08005"], 60),
+                          "date": np.tile(days, 3)})
+    frame = pd.concat([frame, frame.iloc[[5, 70, 70, 150]]], ignore_index=True)  # repeats
+    frame.loc[len(frame) - 1, "date"] = pd.Timestamp("2001-01-03")
+    if shuffle:
+        frame = frame.iloc[rng.permutation(len(frame))].reset_index(drop=True)
+    coded = with_county_codes(frame)
+    want = ~frame.duplicated(["county_id", "date"]).to_numpy()
+    assert np.array_equal(first_rows(coded, ["county_id", "date"]), want)
+    assert np.array_equal(first_rows(coded, ["date", "county_id"]), want)
+    tab = cadence_table(coded)
+    for county, g in frame.groupby("county_id"):
+        assert tab.loc[county, "dates"] == g["date"].nunique()
+        assert tab.loc[county, "cadence"] == "daily"
