@@ -84,7 +84,9 @@ def _pet_grid(clim, grid, tpos, cpos, latitude_deg, pet_method, use_supplied_pet
             )
         if grid.cadence == "daily":
             d = pd.DatetimeIndex(clim["date"])
-            ra = extraterrestrial_radiation(d.day_of_year.to_numpy(), lat[cpos])
+            # Ra depends on the day of year and the latitude only: one (367, counties) table,
+            # read per row (the same values, without trigonometry on every daily row)
+            ra = _day_table(lat, extraterrestrial_radiation)[d.day_of_year.to_numpy(), cpos]
             daily = hargreaves_samani(clim["tmin_c"].to_numpy(float), clim["tmax_c"].to_numpy(float), ra)
             arr, _ = grid_values(daily, tpos, cpos, grid.shape, how="sum",
                                  min_count=min_valid_days, scale_to=7.0)
