@@ -115,22 +115,22 @@ def normalise_keys(values: pd.Series) -> tuple[pd.Series, KeyReport]:
         Same index; the normal form of each value (see :func:`normalise_key`).
     report : KeyReport
     """
-    s = values.astype("string")
-    present = s.notna().to_numpy()
-    # each step on the distinct values only, then mapped back (a column has few distinct keys)
-    distinct = pd.Series(s[present].unique()).astype(str)
+    # each step on the distinct values only, then mapped back by integer codes (a column of
+    # millions of rows has a handful of distinct keys)
+    codes, uniq = pd.factorize(values.astype("string"))
+    present = codes >= 0
+    distinct = pd.Series(np.asarray(uniq, dtype=object)).astype(str)
     nfkc = distinct.str.normalize("NFKC")
     spaced = nfkc.str.split().str.join(" ")
     folded = pd.Series([t.casefold() for t in spaced], index=distinct.index, dtype=object)
     table = pd.Series(folded.to_numpy(), index=distinct.to_numpy())
-    written = s[present].astype(str)
-    norm = pd.Series(pd.NA, index=values.index, dtype=object)
-    norm[present] = written.map(table).to_numpy()
-    count = written.value_counts()
+    out = np.full(len(values), pd.NA, dtype=object)
+    out[present] = folded.to_numpy(dtype=object)[codes[present]]
+    norm = pd.Series(out, index=values.index, dtype=object)
     step = pd.DataFrame({"unicode": (nfkc != distinct).to_numpy(),
                          "whitespace": (spaced != nfkc).to_numpy(),
                          "case": (folded != spaced).to_numpy()}, index=distinct.to_numpy())
-    weights = count.reindex(step.index).fillna(0).to_numpy()
+    weights = np.bincount(codes[present], minlength=len(distinct))  # rows per distinct value
     changed_distinct = (table.to_numpy() != table.index.to_numpy())
     examples = {a: b for a, b in zip(table.index[changed_distinct][:5],
                                      table.to_numpy()[changed_distinct][:5], strict=True)}

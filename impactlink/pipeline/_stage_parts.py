@@ -84,9 +84,7 @@ def _indicator_keys(indicators: pd.DataFrame | None) -> pd.DataFrame | None:
         return indicators
     from impactlink.link._keys import forms
 
-    out = indicators.copy()
-    out["indicator"] = forms(indicators["indicator"].astype(str)).to_numpy()
-    return out
+    return indicators.assign(indicator=forms(indicators["indicator"]).to_numpy())
 
 
 def _latitudes(counties: Any) -> pd.Series:
