@@ -135,59 +135,92 @@ class _Unit:
     plain: E.Hist | None = None  # the index-only histogram without seasons (challenger)
 
 
-def _histograms(ctx, features, cands, *, n_bins, pairs, pair_bins) -> list[_Unit] | None:
+def _histograms(ctx, features, cands, *, n_bins, pairs, pair_bins, threads: int = 1
+                ) -> list[_Unit] | None:
+    """One histogram per candidate (and pair); None at the first candidate with a gap.
+
+    ``threads`` > 1 builds the (index, lag) groups on that many threads: the work is numpy
+    passes over the rows (gathers, arithmetic, ``bincount``), most of which release the GIL;
+    the units come back in group order, so the result does not depend on it.
+    """
     by_group: dict[tuple[str, int], list[int]] = {}
     for ix, sc, lg in cands:
         by_group.setdefault((ix, lg), []).append(sc)
+    sea = ctx.seasons
+    harm = ((sea.harmonics[sea.code, 0], sea.harmonics[sea.code, 1]) if sea is not None
+            else ())  # the rows' seasonal terms, the same for every candidate
+
+    def group(item):
+        (ix, lg), scales = item
+        return _group_units(ctx, features, ix, lg, scales, harm, n_bins=n_bins, pairs=pairs,
+                            pair_bins=pair_bins)
+
+    items = list(by_group.items())
+    if threads > 1 and len(items) > 1:
+        from concurrent.futures import ThreadPoolExecutor
+
+        with ThreadPoolExecutor(max_workers=threads) as pool:
+            parts = list(pool.map(group, items))
+    else:
+        parts = []
+        for item in items:
+            parts.append(group(item))
+            if parts[-1] is None:
+                break
+    if any(p is None for p in parts):
+        return None
+    return [u for p in parts for u in p]
+
+
+def _group_units(ctx, features, ix, lg, scales, harm, *, n_bins, pairs, pair_bins
+                 ) -> list[_Unit] | None:
+    """The units of one (index, lag) group: every scale, its persistence variant, pairs."""
     units = []
     n_full = len(ctx.target.frame)
     K = ctx.layout.n_levels
     zero = np.zeros(ctx.rows.size, dtype=np.int64)
     sea = ctx.seasons
     n_sea = sea.n_classes if sea is not None else 1
-    harm = ((sea.harmonics[sea.code, 0], sea.harmonics[sea.code, 1]) if sea is not None
-            else ())  # the rows' seasonal terms, the same for every candidate
-    for (ix, lg), scales in by_group.items():  # one pass per (index, lag) group
-        cell = ctx.pers_cells.get(lg)
-        xs = {}
-        for sc in sorted(set(scales)):
-            x = _feature(features, (ix, sc, lg), n_full)[ctx.rows]
-            if not np.isfinite(x).all():
-                return None  # a gap: the caller finds the common rows first
-            mu, sd = float(x.mean()), float(x.std())
-            sd = sd if sd > 0 else 1.0
-            z = x - mu
-            z /= sd
-            xs[sc] = (z, mu, sd, E.bin_codes(z, pair_bins) if pairs else None)
-            b = E.bin_codes(z, n_bins)
-            tr: tuple[tuple[float, float, float, float], ...] = (
-                (mu, sd, float(z.min()), float(z.max())),)
-            plain = None
-            if sea is None:
-                cols, bs = [z], b
-            else:  # seasonal terms: rows by bin x season class, harmonics at class midpoints
-                cols = [z, *harm]
-                bs = b * n_sea + sea.code
-                plain = _hist(ctx, [z], b, zero, n_bins, 1)
-            if cell is None:
-                h = _hist(ctx, cols, bs, zero, n_bins * n_sea, 1)
-            else:  # the index-plus-persistence variant: rows by bin x level known
-                hc, h = _hist(ctx, cols, bs, cell, n_bins * n_sea, K + 1, marginal=True)
-                units.append(_Unit("single_pers", (ix, sc, lg), hc, lg, True, tr,
-                                   _row_map(hc), n_bins, n_sea))
-            units.append(_Unit("single", (ix, sc, lg), h, lg, False, tr, _row_map(h), n_bins,
-                               n_sea, plain))
-        if pairs:
-            shorts = [s for s in sorted(xs) if s <= SHORT_MAX_WEEKS]
-            longs = [s for s in sorted(xs) if s >= LONG_MIN_WEEKS]
-            for s1 in shorts:
-                for s2 in longs:
-                    b = xs[s1][3] * pair_bins + xs[s2][3]
-                    h = _hist(ctx, [xs[s1][0], xs[s2][0]], b, zero, pair_bins**2, 1)
-                    tr = tuple((xs[s][1], xs[s][2], float(xs[s][0].min()),
-                                float(xs[s][0].max())) for s in (s1, s2))
-                    units.append(_Unit("pair", (ix, s1, s2, lg), h, lg, False, tr, _row_map(h),
-                                       pair_bins))
+    cell = ctx.pers_cells.get(lg)
+    xs = {}
+    for sc in sorted(set(scales)):
+        x = _feature(features, (ix, sc, lg), n_full)[ctx.rows]
+        if not np.isfinite(x).all():
+            return None  # a gap: the caller finds the common rows first
+        mu, sd = float(x.mean()), float(x.std())
+        sd = sd if sd > 0 else 1.0
+        z = x - mu
+        z /= sd
+        xs[sc] = (z, mu, sd, E.bin_codes(z, pair_bins) if pairs else None)
+        b = E.bin_codes(z, n_bins)
+        tr: tuple[tuple[float, float, float, float], ...] = (
+            (mu, sd, float(z.min()), float(z.max())),)
+        plain = None
+        if sea is None:
+            cols, bs = [z], b
+        else:  # seasonal terms: rows by bin x season class, harmonics at class midpoints
+            cols = [z, *harm]
+            bs = b * n_sea + sea.code
+            plain = _hist(ctx, [z], b, zero, n_bins, 1)
+        if cell is None:
+            h = _hist(ctx, cols, bs, zero, n_bins * n_sea, 1)
+        else:  # the index-plus-persistence variant: rows by bin x level known
+            hc, h = _hist(ctx, cols, bs, cell, n_bins * n_sea, K + 1, marginal=True)
+            units.append(_Unit("single_pers", (ix, sc, lg), hc, lg, True, tr,
+                               _row_map(hc), n_bins, n_sea))
+        units.append(_Unit("single", (ix, sc, lg), h, lg, False, tr, _row_map(h), n_bins,
+                           n_sea, plain))
+    if pairs:
+        shorts = [s for s in sorted(xs) if s <= SHORT_MAX_WEEKS]
+        longs = [s for s in sorted(xs) if s >= LONG_MIN_WEEKS]
+        for s1 in shorts:
+            for s2 in longs:
+                b = xs[s1][3] * pair_bins + xs[s2][3]
+                h = _hist(ctx, [xs[s1][0], xs[s2][0]], b, zero, pair_bins**2, 1)
+                tr = tuple((xs[s][1], xs[s][2], float(xs[s][0].min()),
+                            float(xs[s][0].max())) for s in (s1, s2))
+                units.append(_Unit("pair", (ix, s1, s2, lg), h, lg, False, tr, _row_map(h),
+                                   pair_bins))
     return units
 
 

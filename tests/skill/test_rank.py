@@ -140,8 +140,9 @@ def test_scores_in_table_match_scores_module_on_predictions():
 
 def test_deterministic_and_same_result_in_a_process_pool():
     tgt, feats = synth.planted_target(2)
-    a = _rank(tgt, feats, n_boot=30, pairs=False, challenger=False, seed=5)
-    b = _rank(tgt, feats, n_boot=30, pairs=False, challenger=False, seed=5, jobs=2)
+    # jobs=2 also builds the histograms on two threads (pairs included)
+    a = _rank(tgt, feats, n_boot=30, pairs=True, challenger=False, seed=5)
+    b = _rank(tgt, feats, n_boot=30, pairs=True, challenger=False, seed=5, jobs=2)
     pd.testing.assert_frame_equal(a.table, b.table)
 
 
