@@ -173,3 +173,16 @@ def test_the_run_drops_the_climate_rows_once_the_indices_exist(scenario_run):
     bundle = result.state.inputs.bundle
     assert "climate" not in bundle.tables and "counties" in bundle.tables
     assert "climate" in set(bundle.counts["table"]) and "climate" in bundle.files
+
+
+def test_outlook_on_threads_equals_in_process(scenario_run):
+    """``jobs`` > 1 refits the outlook's lags on threads; the table is the same."""
+    from impactlink.pipeline import stages
+
+    _, result = scenario_run
+    st = result.state
+    args = (st.project, st.inputs, st.indices, st.link, st.rank, lambda _m: None)
+    one = stages.outlook(*args).table
+    two = stages.outlook(*args, jobs=2).table
+    assert len(one) > 0
+    pd.testing.assert_frame_equal(one, two)

@@ -260,10 +260,12 @@ def _rank(run: Run, tmp: Path, say: Reporter) -> tuple[Run, list[Path]]:
     return _set(run, tmp, rank=res)
 
 
-def _after_rank(name: str, fn: Callable[..., Any]) -> Callable[[Run, Path, Reporter], Any]:
+def _after_rank(name: str, fn: Callable[..., Any], *, jobs: bool = False
+                ) -> Callable[[Run, Path, Reporter], Any]:
     def step(run: Run, tmp: Path, say: Reporter) -> tuple[Run, list[Path]]:
+        extra = {"jobs": run.jobs} if jobs else {}
         res = fn(run.project, _need(run.inputs, "inputs"), _need(run.indices, "indices"),
-                 _need(run.link, "link"), _need(run.rank, "rank"), say)
+                 _need(run.link, "link"), _need(run.rank, "rank"), say, **extra)
         return _set(run, tmp, **{name: res})
 
     return step
@@ -282,7 +284,7 @@ _STEPS: dict[str, Callable[[Run, Path, Reporter], tuple[Run, list[Path]]]] = {
     "audit": _audit,
     "link": _link,
     "rank": _rank,
-    "outlook": _after_rank("outlook", stages.outlook),
+    "outlook": _after_rank("outlook", stages.outlook, jobs=True),
     "triggers": _after_rank("triggers", stages.triggers),
     "contrast": _after_rank("contrast", stages.contrast),
     "report": _report,

@@ -190,11 +190,13 @@ def write_tables(folder: Path, tables: dict[str, pd.DataFrame | CubeFile | Panel
     """
     written = []
     for name, frame in tables.items():
-        if isinstance(frame, (CubeFile, PanelFile)):
-            path = folder / name
-            (write_cube_parquet if isinstance(frame, CubeFile) else write_panel_parquet)(
-                frame, path)  # type: ignore[operator]
-            written.append(path)
+        if isinstance(frame, CubeFile):
+            write_cube_parquet(frame, folder / name)
+            written.append(folder / name)
+            continue
+        if isinstance(frame, PanelFile):
+            write_panel_parquet(frame, folder / name)
+            written.append(folder / name)
             continue
         if months_of:
             frame = with_scale_months(frame, months_of)

@@ -249,8 +249,11 @@ def rank(project: Project, inputs: InputsResult, ind: IndicesResult, lk: LinkSta
 
 
 def outlook(project: Project, inputs: InputsResult, ind: IndicesResult, lk: LinkStageResult,
-            rk: RankResult, progress: Progress) -> OutlookResult:
+            rk: RankResult, progress: Progress, *, jobs: int = 1) -> OutlookResult:
     """Chance of each impact now and at each modelled lag ahead, per county.
+
+    ``jobs`` > 1 refits the lags of a target on that many threads (the fits are numpy
+    passes over the rows; the models are kept in lag order, so the result is the same).
 
     For every target and lag, the best single-index candidate at that lag is refitted on the
     whole record; the latest week's index values then give the chance ``lag`` weeks ahead.
@@ -268,7 +271,8 @@ def outlook(project: Project, inputs: InputsResult, ind: IndicesResult, lk: Link
         table = rk.skill_tables.get(target.name)
         if table is None or table.empty:
             continue
-        models = {}
+        models: dict[tuple, Any] = {}
+        todo: list[Candidate] = []
         lags = pd.to_numeric(table.loc[table["model"] == "index", "lag_weeks"], errors="coerce")
         for lag in sorted(set(lags.dropna().astype(int))):
             cand = _best_candidate(table[table["lag_weeks"] == lag], target)
@@ -278,11 +282,16 @@ def outlook(project: Project, inputs: InputsResult, ind: IndicesResult, lk: Link
             if fitted is not None and fitted[1] == cand:
                 models[(target.name, *cand)] = fitted[0]  # already fitted for curves
                 continue
-            x = feature_values(target, ind.cube, *cand)
-            models[(target.name, *cand)] = fit_impact_model(
-                target, x, link=project.models.link,
-                **_model_options(project, inputs, target), meta=_meta(target, cand),
-            )
+            models[(target.name, *cand)] = None  # fitted below, kept in lag order
+            todo.append(cand)
+
+        def refit(cand, _t=target):  # noqa: ANN001, ANN202
+            return fit_impact_model(_t, feature_values(_t, ind.cube, *cand),
+                                    link=project.models.link,
+                                    **_model_options(project, inputs, _t), meta=_meta(_t, cand))
+
+        for cand, model in zip(todo, _thread_map(refit, todo, jobs), strict=True):
+            models[(target.name, *cand)] = model
         if not models:
             continue
         progress(f"outlook {target.name}: {len(models)} lags")
@@ -294,6 +303,16 @@ def outlook(project: Project, inputs: InputsResult, ind: IndicesResult, lk: Link
         frames.append(impact_outlook(models, ind.cube, counties=counties, state=state,
                                      ci=project.models.curve_ci))
     return OutlookResult(_concat(frames))
+
+
+def _thread_map(fn: Callable[[Any], Any], items: list[Any], jobs: int) -> list[Any]:
+    """``[fn(i) for i in items]``, on ``jobs`` threads when ``jobs`` > 1 (results in order)."""
+    if jobs <= 1 or len(items) < 2:
+        return [fn(i) for i in items]
+    from concurrent.futures import ThreadPoolExecutor
+
+    with ThreadPoolExecutor(max_workers=jobs) as pool:
+        return list(pool.map(fn, items))
 
 
 def triggers(project: Project, inputs: InputsResult, ind: IndicesResult, lk: LinkStageResult,
