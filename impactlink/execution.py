@@ -86,15 +86,8 @@ def _run_dask(fn, items, address, tick):
             "a Dask address was given but dask.distributed is not installed; "
             "install the extra: pip install 'impactlink[dask]'"
         ) from None
-    cluster = None
-    if address == "local":
-        # dashboard on a random loopback port so parallel runs do not collide (DESIGN.md)
-        cluster = LocalCluster(
-            n_workers=2, threads_per_worker=1, dashboard_address="127.0.0.1:0", processes=True
-        )
-        client = Client(cluster)
-    else:
-        client = Client(address)
+    local = address == "local"
+    client = _local_client(LocalCluster, Client) if local else Client(address)
     try:
         futures = client.map(fn, items, pure=False)
         results = []
@@ -106,6 +99,32 @@ def _run_dask(fn, items, address, tick):
             tick(i)
         return results
     finally:
+        if not local:  # the local cluster serves every call of this process
+            client.close()
+
+
+_LOCAL: dict[str, Any] = {}
+
+
+def _local_client(local_cluster: Any, client_cls: Any) -> Any:
+    """One local cluster per process for ``dask_address="local"``: started at the first call
+    (a run maps several grids; starting two worker processes costs seconds each time) and
+    closed when the process exits."""
+    if "client" not in _LOCAL:
+        import atexit
+
+        # dashboard on a random loopback port so parallel runs do not collide (DESIGN.md)
+        cluster = local_cluster(n_workers=2, threads_per_worker=1, processes=True,
+                                dashboard_address="127.0.0.1:0")
+        _LOCAL.update(cluster=cluster, client=client_cls(cluster))
+        atexit.register(close_local_cluster)
+    return _LOCAL["client"]
+
+
+def close_local_cluster() -> None:
+    """Close the process's local cluster, if one was started."""
+    client, cluster = _LOCAL.pop("client", None), _LOCAL.pop("cluster", None)
+    if client is not None:
         client.close()
-        if cluster is not None:
-            cluster.close()
+    if cluster is not None:
+        cluster.close()

@@ -29,8 +29,14 @@ def test_empty_task_list():
 def test_local_dask_cluster_equals_in_process():
     pytest.importorskip("distributed")
     serial = map_tasks(_seeded_mean, TASKS)
+    from impactlink import execution
+
     on_dask = map_tasks(_seeded_mean, TASKS, dask_address="local")
-    assert serial == on_dask
+    cluster = execution._LOCAL["cluster"]
+    again = map_tasks(_seeded_mean, TASKS, dask_address="local")  # the same local cluster
+    assert execution._LOCAL["cluster"] is cluster
+    execution.close_local_cluster()
+    assert serial == on_dask == again and not execution._LOCAL
 
 
 def _slow_square(task):

@@ -19,7 +19,12 @@ def test_same_table_on_a_local_dask_cluster():
     with warnings.catch_warnings():
         warnings.simplefilter("ignore", SkillWarning)
         a = rank_candidates(tgt, feats, synth.candidates(), **kw)
-        b = rank_candidates(tgt, feats, synth.candidates(), dask_address="local", **kw)
+        try:
+            b = rank_candidates(tgt, feats, synth.candidates(), dask_address="local", **kw)
+        finally:
+            from impactlink.execution import close_local_cluster
+
+            close_local_cluster()
     pd.testing.assert_frame_equal(a.table, b.table)
     pd.testing.assert_frame_equal(a.summary, b.summary)
 
