@@ -6,9 +6,11 @@ settings of ``scenario_data/impactlink.toml``: SPI, SPEI and EDDI at seven scale
 impact kinds, leave-one-year-out, 200 bootstrap replicates, triggers, contrast, report) and
 runs ``impactlink.pipeline.run_project(..., until="run")``. Wall time per stage comes from the
 run's own timings (``RunResult.timings_s``, also in ``manifest.json``); peak memory per stage
-is the largest resident set size sampled every 50 ms inside that stage's time window (psutil
-when installed, else ``/proc/self/status``), and CPU seconds (user + system, all threads of
-the process, from :func:`os.times`) over the same window: on a busy machine CPU time is the
+is the largest memory sampled every 100 ms inside that stage's time window (the resident set
+size; with ``--jobs`` worker processes, the proportional set size of the process and its
+workers, so pages the forked workers share are counted once; psutil when installed, else
+``/proc/self/status``), and CPU seconds (user + system, all threads of the process and of
+its workers) over the same window: on a busy machine CPU time is the
 steadier measure of the work, wall time the honest measure of the wait. The growth exponent ``b`` of ``time ~ a * N**b``
 is a least-squares line through ``(log N, log time)`` over the sizes run (two sizes or more).
 
@@ -42,10 +44,23 @@ SEED = 20261202
 
 
 def _rss_bytes() -> int:
+    """Memory of this process and its worker processes (``--jobs``): the proportional set
+    size (PSS: pages shared by forked workers counted once, split between them) where psutil
+    can read it, else this process's resident set size."""
     try:
         import psutil
 
-        return int(psutil.Process().memory_info().rss)
+        me = psutil.Process()
+        kids = me.children(recursive=True)
+        if not kids:
+            return int(me.memory_info().rss)
+        total = 0
+        for p in (me, *kids):
+            try:
+                total += int(p.memory_full_info().pss)
+            except (psutil.Error, AttributeError):
+                total += int(p.memory_info().rss) if p is me else 0
+        return total
     except ImportError:
         with open("/proc/self/status", encoding="ascii") as fh:
             for line in fh:
@@ -54,10 +69,28 @@ def _rss_bytes() -> int:
     return 0
 
 
+def _cpu_seconds() -> float:
+    """User + system CPU seconds of this process, its finished workers and its live ones."""
+    t = os.times()
+    total = t.user + t.system + t.children_user + t.children_system
+    try:
+        import psutil
+
+        for p in psutil.Process().children(recursive=True):
+            try:
+                c = p.cpu_times()
+                total += c.user + c.system
+            except psutil.Error:
+                pass
+    except ImportError:
+        pass
+    return total
+
+
 class _Sampler(threading.Thread):
     """Samples this process's resident set size and CPU time every ``every`` seconds."""
 
-    def __init__(self, every: float = 0.05) -> None:
+    def __init__(self, every: float = 0.1) -> None:
         super().__init__(daemon=True)
         self.every = every
         self.samples: list[tuple[float, int, float]] = []
@@ -65,8 +98,7 @@ class _Sampler(threading.Thread):
 
     def run(self) -> None:
         while not self._stop_event.is_set():
-            cpu = os.times()
-            self.samples.append((time.perf_counter(), _rss_bytes(), cpu.user + cpu.system))
+            self.samples.append((time.perf_counter(), _rss_bytes(), _cpu_seconds()))
             self._stop_event.wait(self.every)
 
     def stop(self) -> None:
