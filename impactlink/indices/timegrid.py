@@ -90,8 +90,14 @@ def iso_week_start(years, week: int) -> pd.DatetimeIndex:
 
 
 def _monday_days(d: pd.DatetimeIndex) -> np.ndarray:
-    """Days since 1970-01-01 of each date's :func:`week_monday` (int64)."""
-    return week_monday(d).values.astype("datetime64[D]").astype(np.int64)
+    """Days since 1970-01-01 of each date's :func:`week_monday` (int64).
+
+    The rule of :func:`week_monday` in integer day numbers (1970-01-01 was a Thursday, so a
+    day's weekday is ``(day + 3) % 7``, Monday 0): no timestamp arrays on a national daily
+    table (test against :func:`week_monday`)."""
+    days = np.asarray(d.values.astype("datetime64[D]"), dtype="datetime64[D]").astype(np.int64)
+    days -= (days + 3) % 7
+    return days
 
 
 def build_grid(county: pd.Series, dates: pd.Series, cadence: Cadence) -> tuple[Grid, np.ndarray, np.ndarray]:
@@ -117,7 +123,9 @@ def build_grid(county: pd.Series, dates: pd.Series, cadence: Cadence) -> tuple[G
     else:
         mon = _monday_days(d)
         start, end = int(mon.min()), int(mon.max())
-        tpos = (mon - start) // 7
+        tpos = mon
+        tpos -= start  # in place: (mon - start) // 7
+        tpos //= 7
         times = pd.date_range(pd.Timestamp(start, unit="D"), pd.Timestamp(end, unit="D"),
                               freq="7D")
         step = "weekly"

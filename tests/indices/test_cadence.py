@@ -38,3 +38,17 @@ def test_error_messages():
                     {("spi", 1): np.zeros((3, 1))})
     with pytest.raises(ValueError, match="first day of each month"):
         monthly_to_weekly(bad)
+
+
+def test_monday_day_numbers_follow_the_iso_week_rule():
+    """The integer shortcut gives the Monday of each date's ISO 8601 week, as pandas'
+    ``day_of_week`` (Monday = 0) defines it, before and after 1970 (the reference)."""
+    import numpy as np
+    import pandas as pd
+
+    from impactlink.indices.timegrid import _monday_days
+
+    d = pd.DatetimeIndex(pd.date_range("1895-01-01", "2030-12-31", freq="D")[::17])
+    want = (d - pd.to_timedelta(d.day_of_week, unit="D")).values.astype("datetime64[D]")
+    assert np.array_equal(_monday_days(d), want.astype(np.int64))
+    assert (pd.to_datetime(_monday_days(d), unit="D").day_of_week == 0).all()
