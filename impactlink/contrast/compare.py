@@ -287,7 +287,7 @@ def _prepare(target, x, traits, link, cluster, ci, n_pairs, n_boot
 
     data = pd.DataFrame(
         {
-            COUNTY: frame[COUNTY].astype(str).to_numpy(),
+            COUNTY: frame[COUNTY].astype(str).array,  # text, not one Python str per row
             "year": frame["year"].to_numpy(),
             "season": frame["season"].to_numpy() if "season" in frame.columns else 0,
             "y": (frame["level"].to_numpy(dtype=np.float64) >= 1).astype(np.float64),

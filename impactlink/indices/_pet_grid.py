@@ -61,6 +61,25 @@ def _period_day_mean(table, grid):
     return total / ndays[:, None], ndays
 
 
+#: Daily rows per block of the daily PET (bounds the temporaries on a national table).
+_DAILY_BLOCK = 4_000_000
+
+
+def _daily_hargreaves(clim, cpos, lat):
+    """Hargreaves-Samani PET of every daily row, computed in blocks of rows. Ra depends on the
+    day of year and the latitude only: one (367, counties) table, read per row (the same
+    values, without trigonometry on every daily row)."""
+    table = _day_table(lat, extraterrestrial_radiation)
+    d = pd.DatetimeIndex(clim["date"])
+    tmin, tmax = clim["tmin_c"].to_numpy(float), clim["tmax_c"].to_numpy(float)
+    daily = np.empty(len(clim))
+    for a in range(0, len(clim), _DAILY_BLOCK):
+        b = min(len(clim), a + _DAILY_BLOCK)
+        ra = table[d[a:b].day_of_year.to_numpy(), cpos[a:b]]
+        daily[a:b] = hargreaves_samani(tmin[a:b], tmax[a:b], ra)
+    return daily
+
+
 def _pet_grid(clim, grid, tpos, cpos, latitude_deg, pet_method, use_supplied_pet, min_valid_days):
     has = {c: (c in clim.columns and clim[c].notna().any()) for c in _NUMERIC}
     if use_supplied_pet and has["pet_mm"]:
@@ -83,11 +102,7 @@ def _pet_grid(clim, grid, tpos, cpos, latitude_deg, pet_method, use_supplied_pet
                 "tmean_c was found. Use pet_method='thornthwaite' or supply pet_mm."
             )
         if grid.cadence == "daily":
-            d = pd.DatetimeIndex(clim["date"])
-            # Ra depends on the day of year and the latitude only: one (367, counties) table,
-            # read per row (the same values, without trigonometry on every daily row)
-            ra = _day_table(lat, extraterrestrial_radiation)[d.day_of_year.to_numpy(), cpos]
-            daily = hargreaves_samani(clim["tmin_c"].to_numpy(float), clim["tmax_c"].to_numpy(float), ra)
+            daily = _daily_hargreaves(clim, cpos, lat)
             arr, _ = grid_values(daily, tpos, cpos, grid.shape, how="sum",
                                  min_count=min_valid_days, scale_to=7.0)
         else:

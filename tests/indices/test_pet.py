@@ -106,3 +106,22 @@ def test_compute_pet_names_missing_latitude():
                          "precip_mm": 1.0, "tmin_c": 5.0, "tmax_c": 15.0})
     with pytest.raises(IndicesError, match="no latitude"):
         compute_pet(clim, latitude_deg=pd.Series({"B": 40.0}))
+
+
+def test_daily_pet_in_blocks_equals_the_per_row_formula(monkeypatch):
+    """Blocks of rows (and the day-of-year table of Ra) give FAO-56 eq. 52 with eq. 21 on
+    every row exactly."""
+    from impactlink.indices import _pet_grid
+
+    rng = np.random.default_rng(4)
+    days = pd.date_range("2001-01-01", periods=40, freq="D")
+    clim = pd.DataFrame({"county_id": np.repeat(["A", "B"], 40), "date": np.tile(days, 2),
+                         "tmin_c": rng.normal(5, 3, 80)})
+    clim["tmax_c"] = clim["tmin_c"] + rng.uniform(2, 12, 80)
+    lat = np.array([41.5, -33.0])
+    cpos = np.repeat([0, 1], 40)
+    monkeypatch.setattr(_pet_grid, "_DAILY_BLOCK", 7)
+    got = _pet_grid._daily_hargreaves(clim, cpos, lat)
+    ra = extraterrestrial_radiation(clim["date"].dt.day_of_year.to_numpy(), lat[cpos])
+    want = hargreaves_samani(clim["tmin_c"].to_numpy(), clim["tmax_c"].to_numpy(), ra)
+    np.testing.assert_array_equal(got, want)
