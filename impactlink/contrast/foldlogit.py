@@ -53,12 +53,15 @@ def _sums(X, y, eta):
 
 def _grad(X, y, eta):
     """Gradient of the log-likelihood of the rows of ``X`` at predictor ``eta``."""
-    return X.T @ (y - 0.5 * (1.0 + np.tanh(0.5 * eta)))
+    r = expit(eta)  # one pass; in place below
+    np.subtract(y, r, out=r)
+    return X.T @ r
 
 
 def _ll(y, eta) -> float:
-    softplus = np.maximum(eta, 0.0) + np.log1p(np.exp(-np.abs(eta)))
-    return float((y * eta - softplus).sum())
+    """Bernoulli log-likelihood ``sum(y * eta - log(1 + exp(eta)))``: ``logaddexp`` (stable for
+    any ``eta``) and one dot product, two passes over the rows."""
+    return float(y @ eta - np.logaddexp(0.0, eta).sum())
 
 
 def year_out_probabilities(y: np.ndarray, X: np.ndarray, years: np.ndarray,
