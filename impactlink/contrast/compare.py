@@ -16,6 +16,7 @@ from impactlink.errors import ContrastError, ContrastWarning
 from impactlink.link.target import Target
 from impactlink.schema import COUNTY
 from impactlink.skill.folds import year_bootstrap_weights
+from impactlink.words import counted
 
 __all__ = ["ContrastResult", "ContrastWarning", "county_contrast", "poisson_ratio_interval"]
 
@@ -302,7 +303,8 @@ def _prepare(target, x, traits, link, cluster, ci, n_pairs, n_boot
     no_trait = data[numeric].isna().any(axis=1)
     if no_trait.any():
         missing = sorted(data.loc[no_trait, COUNTY].unique())
-        _warn(prov, f"{int(no_trait.sum())} rows of {len(missing)} counties without complete "
+        _warn(prov, f"{counted(int(no_trait.sum()), 'row', 'rows')} of "
+                    f"{counted(len(missing), 'county', 'counties')} without complete "
                     f"traits left out (e.g. {missing[:3]})")
     data = data[~no_trait].reset_index(drop=True)
 

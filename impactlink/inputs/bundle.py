@@ -13,6 +13,7 @@ from impactlink.inputs._errors import InputError
 from impactlink.inputs._rules import TableCheck
 from impactlink.project import Project
 from impactlink.schema import COUNTY
+from impactlink.words import counted, verb
 
 __all__ = ["InputBundle", "summary_frame"]
 
@@ -149,14 +150,16 @@ def _climate_gaps(
                  and names[c] else str(c) for c in absent[:20]]
         more = f" and {len(absent) - 20} more" if len(absent) > 20 else ""
         out.append(
-            f"{path}: {len(absent)} of {len(counties)} counties have a polygon but no climate "
+            f"{path}: {len(absent)} of {counted(len(counties), 'county', 'counties')} "
+            f"{verb(len(absent), 'has', 'have')} a polygon but no climate "
             f"rows: {', '.join(named)}{more}; they get no index values (add their climate rows, "
             f"or leave them out of the counties table)"
         )
     short = have[have < project.calibration.min_years]
     if len(short):
         out.append(
-            f"{path}: {len(short)} counties have fewer than {project.calibration.min_years} "
+            f"{path}: {counted(len(short), 'county', 'counties')} "
+            f"{verb(len(short), 'has', 'have')} fewer than {project.calibration.min_years} "
             f"years of climate rows (e.g. {dict(list(short.items())[:3])} years); their "
             f"index values rest on a short record"
         )

@@ -18,6 +18,7 @@ from impactlink.inputs._errors import REASONS, InputError
 from impactlink.inputs._rules import TableCheck
 from impactlink.inputs.table_rules import DEFAULT_REGION
 from impactlink.schema import COUNTY, REGION
+from impactlink.words import counted, verb
 
 
 def _read_counties(gdf, path: Path, notes: list[str]) -> tuple[pd.DataFrame, TableCheck]:
@@ -177,7 +178,8 @@ def counties_without_polygon(rejected: pd.DataFrame, counties_file: Path | str,
                                        if c in empty else "not in the counties table)")
                  for c, k in n.head(most).items()]
         more = f"; and {len(n) - most} more" if len(n) > most else ""
-        out.append(f"{file}: {len(n)} counties of the {table} table have no polygon in "
+        out.append(f"{file}: {counted(len(n), 'county', 'counties')} of the {table} table "
+                   f"{verb(len(n), 'has', 'have')} no polygon in "
                    f"{counties_file}: {', '.join(named)}{more}; their rows are rejected as "
                    f"unknown county: give each county a polygon in the counties table, or "
                    f"correct the id")

@@ -172,7 +172,7 @@ def test_warnings_for_left_out_rows_and_few_clusters():
         res = county_contrast(target, x, traits.iloc[1:], n_boot=0)
     messages = [str(w.message) for w in caught if issubclass(w.category, ContrastWarning)]
     assert any("3 rows without a feature value" in m for m in messages)
-    assert any("22 rows of 1 counties without complete traits" in m for m in messages)
+    assert any("22 rows of 1 county without complete traits" in m for m in messages)
     assert res.provenance["warnings"] == messages
     assert res.provenance["rows_used"] == len(x) - 25  # county c00 has no traits
     small, xs, tr = _make(4, n_counties=6)

@@ -183,7 +183,7 @@ def _climate_cases() -> list[Case]:
     out.append(Case(
         "climate county not in the counties table", "climate", {"tables": {"climate": c}},
         rejected=(("climate", "climate.csv", len(c), "county_id", "70999", "unknown county"),),
-        warnings=("{d}/climate.csv: 1 counties of the climate table have no polygon in "
+        warnings=("{d}/climate.csv: 1 county of the climate table has no polygon in "
                   "{d}/counties.geojson: 70999 (1 row; not in the counties table); their rows "
                   "are rejected as unknown county: give each county a polygon in the counties "
                   "table, or correct the id",)))
@@ -276,7 +276,7 @@ def _quickstats_cases() -> list[Case]:
         "Quick Stats row of a county not in the counties table", "yields",
         {"formats": QUICKSTATS, "files": {"yields.csv": csv_text(q, QS_COLUMNS)}},
         rejected=(("yields", "yields.csv", 5, "county_id", "70999", "unknown county"),),
-        warnings=("{d}/yields.csv: 1 counties of the yields table have no polygon in "
+        warnings=("{d}/yields.csv: 1 county of the yields table has no polygon in "
                   "{d}/counties.geojson: 70999 (1 row; not in the counties table); their rows "
                   "are rejected as unknown county: give each county a polygon in the counties "
                   "table, or correct the id",)))
@@ -424,7 +424,7 @@ def _geometry_cases() -> list[Case]:
     out.append(Case(
         "zone table county not in the counties table", "zones", _zoned(z),
         rejected=(("zones", "zone_table.csv", len(z), "county_id", "70199", "unknown county"),),
-        warnings=("{d}/zone_table.csv: 1 counties of the zones table have no polygon in "
+        warnings=("{d}/zone_table.csv: 1 county of the zones table has no polygon in "
                   "{d}/counties.geojson: 70199 (1 row; not in the counties table); their rows "
                   "are rejected as unknown county: give each county a polygon in the counties "
                   "table, or correct the id",)))
@@ -448,7 +448,7 @@ def _geometry_cases() -> list[Case]:
         rejected=_unknown(IDS[3]),
         warnings=("{d}/boundaries.json: 1 of 5 features of 'counties' have no 'id' and are "
                   "left out (features 4); give each feature its county GEOID as the feature "
-                  "id", "{d}/climate.csv: 1 counties of the climate table have no polygon in "
+                  "id", "{d}/climate.csv: 1 county of the climate table has no polygon in "
                   f"{{d}}/boundaries.json: {IDS[3]} (36 rows; not in the counties table); their "
                   "rows are rejected as unknown county: give each county a polygon in the "
                   "counties table, or correct the id")))
@@ -466,7 +466,7 @@ def _geometry_cases() -> list[Case]:
         {"counties": "", "files": {"counties.geojson": json.dumps(g)}},
         rejected=_unknown(IDS[2]) + (("counties", "counties.geojson", 3, "geometry",
                                        f"county {IDS[2]} (Dervin Flats)", "missing geometry"),),
-        warnings=(f"{{d}}/climate.csv: 1 counties of the climate table have no polygon in "
+        warnings=(f"{{d}}/climate.csv: 1 county of the climate table has no polygon in "
                   f"{{d}}/counties.geojson: {IDS[2]} (36 rows; its geometry is empty, counties "
                   "row 3); their rows are rejected as unknown county: give each county a "
                   "polygon in the counties table, or correct the id",)))

@@ -115,7 +115,7 @@ def formats_cases() -> list[Case]:
         "zone table with a negative area weight", "zones",
         {"formats": ZONES, "files": _zone_files(zone_climate_rows(), z)},
         rejected=(("zones", "zone_table.csv", 3, "weight", "-0.5", "weight not positive"),),
-        warnings=(f"{{d}}/climate.csv: 1 of 5 counties have a polygon but no climate rows: "
+        warnings=(f"{{d}}/climate.csv: 1 of 5 counties has a polygon but no climate rows: "
                   f"{z[2]['county_id']} (Dervin Flats); they get no index values (add their "
                   "climate rows, or leave them out of the counties table)",)))
     return out

@@ -326,9 +326,9 @@ def test_county_without_geometry_is_rejected_by_row_and_its_climate_named(tmp_pa
         [3, "geometry", f"county {cid} ({name})", "missing geometry"]]
     n_climate = int((climate["county_id"] == cid).sum())
     assert ((r["table"] == "climate") & (r["reason"] == "unknown county")).sum() == n_climate
-    line = next(w for w in b.warnings if "have no polygon" in w)
-    assert line.startswith(f"{tmp_path / 'climate.parquet'}: 1 counties of the climate table "
-                           f"have no polygon in {tmp_path / 'counties.gpkg'}: {cid} "
+    line = next(w for w in b.warnings if "no polygon in" in w)
+    assert line.startswith(f"{tmp_path / 'climate.parquet'}: 1 county of the climate table "
+                           f"has no polygon in {tmp_path / 'counties.gpkg'}: {cid} "
                            f"({n_climate:,} rows; its geometry is empty, counties row 3)")
 
 
@@ -338,7 +338,7 @@ def test_county_without_climate_is_named(tmp_path, climate):
     c = climate[climate["county_id"] != cid]
     c.to_parquet(tmp_path / "climate.parquet", index=False)
     path = make_case(tmp_path, climate)
-    with pytest.warns(InputWarning, match=f"have a polygon but no climate rows: {cid} "
+    with pytest.warns(InputWarning, match=f"has a polygon but no climate rows: {cid} "
                                           f"\\({name}\\); they get no index values"):
         read_inputs(load_project(path))
 

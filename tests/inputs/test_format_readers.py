@@ -284,7 +284,7 @@ def test_topojson_reader_decodes_and_filters(tmp_path):
     # east square: quantized (0,0)-(1,1) -> lon -94.0..-93.5, lat 41.0..41.5
     assert tuple(np.round(g.total_bounds, 9)) == (-94.0, 41.0, -93.5, 41.5)
     assert shapely.area(g.geometry.item()) == pytest.approx(0.25, abs=1e-12)  # degrees squared
-    with pytest.warns(InputWarning, match=r"1 counties of the data have no polygon.*'01999'"):
+    with pytest.warns(InputWarning, match=r"1 county of the data has no polygon.*'01999'"):
         read_topojson_counties(p, county_ids=["01001", "01999"])
 
 
@@ -299,7 +299,7 @@ def test_topojson_errors(tmp_path):
     p.write_text(json.dumps(_topology(["01001", "01003"])))
     with pytest.raises(InputError, match=r"no TopoJSON object 'states'"):
         read_topojson_counties(p, object_name="states")
-    with pytest.raises(InputError, match="none of the 1 counties of the data"):
+    with pytest.raises(InputError, match=r"no county of the data \(1, e.g."):
         read_topojson_counties(p, county_ids=["99999"])
     q = tmp_path / "albers.json"
     q.write_text(json.dumps(_topology(["01001", "01003"], translate=(500000.0, 900000.0))))

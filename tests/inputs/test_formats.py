@@ -193,7 +193,7 @@ def test_warnings_for_repairs_and_gaps(tmp_path):
     text = "\n".join(b.warnings)
     assert ("counties.gpkg: 1 invalid polygon(s) repaired with make_valid (holes and parts kept; "
             "check the boundaries): county 01003 (Birch): Self-intersection[1.5 0.5]") in text
-    assert "climate.csv: 1 of 3 counties have a polygon but no climate rows: 02005 (Cedar);" in text
-    assert "1 counties have fewer than 2 years of climate rows (e.g. {'01003': 1} years)" in text
+    assert "climate.csv: 1 of 3 counties has a polygon but no climate rows: 02005 (Cedar);" in text
+    assert "1 county has fewer than 2 years of climate rows (e.g. {'01003': 1} years)" in text
     assert "prices.csv: region(s) ['east'] are not regions of the counties table" in text
     assert b.tables["counties"].geometry.is_valid.all()

@@ -31,6 +31,7 @@ import pandas as pd
 
 from impactlink.inputs._errors import InputError, InputWarning
 from impactlink.schema import COUNTY
+from impactlink.words import counted, verb
 
 __all__ = ["GEOGRAPHIC_CRS", "sniff_topojson", "topojson_objects", "read_topojson_counties"]
 
@@ -142,11 +143,12 @@ def read_topojson_counties(path: str | Path, *, county_ids: Iterable[str] | None
         absent = wanted.difference(pd.Index(out[COUNTY]))
         out = out[out[COUNTY].isin(wanted)]
         if len(out) == 0:
-            raise InputError(f"{path}: none of the {len(wanted)} counties of the data (e.g. "
+            raise InputError(f"{path}: no county of the data ({len(wanted)}, e.g. "
                              f"{list(wanted[:3])}) is a feature id of {object_name!r}; the ids "
                              "must be 5-digit county GEOIDs as text")
         if len(absent):
-            warnings.warn(f"{path}: {len(absent)} counties of the data have no polygon in "
+            warnings.warn(f"{path}: {counted(len(absent), 'county', 'counties')} of the data "
+                          f"{verb(len(absent), 'has', 'have')} no polygon in "
                           f"{object_name!r}: {list(absent[:10])}", InputWarning, stacklevel=2)
     dup = out[COUNTY].duplicated(keep=False)
     if dup.any():
