@@ -12,9 +12,10 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Literal
 
+import numpy as np
 import pandas as pd
 
-__all__ = ["Target", "FeatureRule"]
+__all__ = ["Target", "FeatureRule", "compact_frame"]
 
 Grain = Literal["county_week", "county_year", "region_month"]
 TargetKind = Literal["binary", "ordinal"]
@@ -99,3 +100,30 @@ class Target:
     def events(self) -> int:
         """Rows with an impact (level >= 1)."""
         return int((self.frame["level"] >= 1).sum())
+
+
+#: Float columns of a target that hold whole numbers or NaN only (levels known L weeks
+#: before, weeks since an episode ended).
+_WHOLE_FLOAT_PREFIXES = ("persistence_", "weeks_since_end")
+
+
+def compact_frame(frame: pd.DataFrame) -> pd.DataFrame:
+    """A target frame in 32-bit columns where that is exact: int64 columns whose values fit
+    int32 as int32, and the whole-number float columns (``persistence_<L>``,
+    ``weeks_since_end``) as float32 (whole numbers below 2**24 and NaN are exact in IEEE 754
+    binary32). The values are unchanged; a national weekly target (4.6 M rows) needs about
+    200 MB less."""
+    out = {}
+    lo, hi = np.iinfo(np.int32).min, np.iinfo(np.int32).max
+    for col in frame.columns:
+        s = frame[col]
+        if s.dtype == np.int64:
+            v = s.to_numpy()
+            if not v.size or (v.min() >= lo and v.max() <= hi):
+                out[col] = s.astype(np.int32)
+        elif s.dtype == np.float64 and str(col).startswith(_WHOLE_FLOAT_PREFIXES):
+            v = s.to_numpy()
+            fin = v[np.isfinite(v)]
+            if (fin == np.round(fin)).all() and (np.abs(fin) < 2**24).all():
+                out[col] = s.astype(np.float32)
+    return frame.assign(**out) if out else frame

@@ -139,6 +139,7 @@ def link(project: Project, inputs: InputsResult, ind: IndicesResult,
     from impactlink.link._keys import attach_sources
     from impactlink.link.build import with_files
     from impactlink.link.selection import key_normalisation, normalisation_lines, unselected_rows
+    from impactlink.link.target import compact_frame
 
     files = {k: str(v) for k, v in inputs.bundle.files.items()}
     # every impact record carries its file row; text keys are matched by one normal form
@@ -162,7 +163,10 @@ def link(project: Project, inputs: InputsResult, ind: IndicesResult,
             equal_area_crs=project.link.equal_area_crs,
             files=files,
         )
-        targets.extend(link_features.season_in_months(t, ind.cube) for t in res.targets)
+        # 32-bit columns where exact (integer levels, persistence): a national run holds
+        # several weekly targets of millions of rows through every later stage
+        targets.extend(dataclasses.replace(t, frame=compact_frame(t.frame)) for t in
+                       (link_features.season_in_months(t, ind.cube) for t in res.targets))
         rejected.append(res.rejected)
         recon.append(res.reconciliation)
         summaries.append(res.summary)

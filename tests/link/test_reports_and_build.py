@@ -178,3 +178,23 @@ def test_rejected_rows_carry_the_file_row_when_known(counties):
     # county zz (sixth data row); the report of 2030-02-20 falls after the 4-week record
     assert sorted(zip(res.rejected["row"], res.rejected["reason"])) == [
         (6, "outside the source's coverage"), (7, "county_id not in the counties layer")]
+
+
+def test_compact_frame_keeps_every_value():
+    """32-bit columns only where exact (IEEE 754 binary32 holds whole numbers below 2**24)."""
+    import numpy as np
+
+    from impactlink.link.target import compact_frame
+
+    f = pd.DataFrame({"level": np.array([0, 3, 1], np.int64), "year": [1981, 2020, 2024],
+                      "big": np.array([0, 2**40, 1], np.int64),
+                      "persistence_4": [np.nan, 2.0, 0.0], "weeks_since_end": [1.0, np.nan, 7.0],
+                      "departure_pct": [-12.5, 3.25, 0.0], "county_id": ["a", "b", "c"]})
+    c = compact_frame(f)
+    assert c["level"].dtype == np.int32 and c["year"].dtype == np.int32
+    assert c["big"].dtype == np.int64  # does not fit 32 bits
+    assert c["persistence_4"].dtype == np.float32 and c["weeks_since_end"].dtype == np.float32
+    assert c["departure_pct"].dtype == np.float64 and c["county_id"].equals(f["county_id"])
+    for col in f.columns:
+        assert c[col].astype(object).where(c[col].notna(), None).tolist() == \
+            f[col].astype(object).where(f[col].notna(), None).tolist(), col
