@@ -128,9 +128,9 @@ def first_rows(frame: pd.DataFrame, key: list[str]) -> np.ndarray:
     if (sorted(key) == sorted([COUNTY, DATE]) and county is not None
             and isinstance(county.dtype, pd.CategoricalDtype)
             and pd.api.types.is_datetime64_any_dtype(frame[DATE].dtype)):
-        day = frame[DATE].to_numpy().astype("datetime64[D]").astype(np.int64)
-        nat = np.isnat(frame[DATE].to_numpy())
-        day = np.where(nat, 0, day - (day[~nat].min() if (~nat).any() else 0) + 1)
+        day = _day_numbers(frame[DATE]).astype(np.int64)  # NaT: the smallest number
+        if day.size:
+            day -= day.min()
         k = county.cat.codes.to_numpy().astype(np.int64) * (int(day.max(initial=0)) + 1) + day
         if k.size < 2 or (k[1:] > k[:-1]).all():  # in key order, every key once
             return np.ones(len(frame), dtype=bool)
