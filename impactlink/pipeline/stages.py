@@ -264,6 +264,7 @@ def outlook(project: Project, inputs: InputsResult, ind: IndicesResult, lk: Link
     Onset targets use the current state of their impact (counties already in an episode are
     not at risk of a new one).
     """
+    from impactlink.execution import thread_map
     from impactlink.link import feature_values
     from impactlink.models import fit_impact_model
     from impactlink.outlook import impact_outlook
@@ -294,7 +295,7 @@ def outlook(project: Project, inputs: InputsResult, ind: IndicesResult, lk: Link
                                     link=project.models.link,
                                     **_model_options(project, inputs, _t), meta=_meta(_t, cand))
 
-        for cand, model in zip(todo, _thread_map(refit, todo, jobs), strict=True):
+        for cand, model in zip(todo, thread_map(refit, todo, jobs), strict=True):
             models[(target.name, *cand)] = model
         if not models:
             continue
@@ -307,16 +308,6 @@ def outlook(project: Project, inputs: InputsResult, ind: IndicesResult, lk: Link
         frames.append(impact_outlook(models, ind.cube, counties=counties, state=state,
                                      ci=project.models.curve_ci))
     return OutlookResult(_concat(frames))
-
-
-def _thread_map(fn: Callable[[Any], Any], items: list[Any], jobs: int) -> list[Any]:
-    """``[fn(i) for i in items]``, on ``jobs`` threads when ``jobs`` > 1 (results in order)."""
-    if jobs <= 1 or len(items) < 2:
-        return [fn(i) for i in items]
-    from concurrent.futures import ThreadPoolExecutor
-
-    with ThreadPoolExecutor(max_workers=jobs) as pool:
-        return list(pool.map(fn, items))
 
 
 def triggers(project: Project, inputs: InputsResult, ind: IndicesResult, lk: LinkStageResult,

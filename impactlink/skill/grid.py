@@ -139,9 +139,10 @@ def _histograms(ctx, features, cands, *, n_bins, pairs, pair_bins, threads: int 
                 ) -> list[_Unit] | None:
     """One histogram per candidate (and pair); None at the first candidate with a gap.
 
-    ``threads`` > 1 builds the (index, lag) groups on that many threads: the work is numpy
-    passes over the rows (gathers, arithmetic, ``bincount``), most of which release the GIL;
-    the units come back in group order, so the result does not depend on it.
+    ``threads`` > 1 builds the (index, lag) groups on that many threads
+    (:func:`impactlink.execution.thread_map`; numpy's arithmetic on the rows releases the GIL,
+    its gathers and ``bincount`` do not, so the gain is partial); the units come back in group
+    order, so the result does not depend on it.
     """
     by_group: dict[tuple[str, int], list[int]] = {}
     for ix, sc, lg in cands:
@@ -156,12 +157,11 @@ def _histograms(ctx, features, cands, *, n_bins, pairs, pair_bins, threads: int 
                             pair_bins=pair_bins)
 
     items = list(by_group.items())
-    if threads > 1 and len(items) > 1:
-        from concurrent.futures import ThreadPoolExecutor
+    if threads > 1:
+        from impactlink.execution import thread_map
 
-        with ThreadPoolExecutor(max_workers=threads) as pool:
-            parts = list(pool.map(group, items))
-    else:
+        parts = thread_map(group, items, threads)
+    else:  # in order, stopping at the first gap
         parts = []
         for item in items:
             parts.append(group(item))
