@@ -186,3 +186,14 @@ def test_outlook_on_threads_equals_in_process(scenario_run):
     two = stages.outlook(*args, jobs=2).table
     assert len(one) > 0
     pd.testing.assert_frame_equal(one, two)
+
+
+def test_the_daily_and_indicator_rows_leave_the_run_state_after_the_indices(scenario_run):
+    """Only the indices stage reads the climate and indicators tables; their counts stay."""
+    out, result = scenario_run
+    bundle = result.state.inputs.bundle
+    assert "climate" not in bundle.tables and "indicators" not in bundle.tables
+    assert {"climate", "indicators"} <= set(bundle.counts["table"])
+    assert any(k[0] == "soil_moisture" for k in result.state.indices.cube.keys)
+    manifest = json.loads((out / "manifest.json").read_text())
+    assert "key_normalisation" in manifest

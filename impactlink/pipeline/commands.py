@@ -241,9 +241,10 @@ def _inputs(run: Run, tmp: Path, say: Reporter) -> tuple[Run, list[Path]]:
 def _indices(run: Run, tmp: Path, say: Reporter) -> tuple[Run, list[Path]]:
     inputs = _need(run.inputs, "inputs")
     result = stages.indices(run.project, inputs, say)
-    # only the indices stage reads the climate rows: later stages work on the cube
+    # only the indices stage reads the climate rows and the indicators table: later stages
+    # work on the cube (a national run: about 2 GB and 0.7 GB)
     run = dataclasses.replace(run, inputs=dataclasses.replace(
-        inputs, bundle=inputs.bundle.without("climate")))
+        inputs, bundle=inputs.bundle.without("climate", "indicators")))
     return _set(run, tmp, indices=result)
 
 

@@ -93,8 +93,9 @@ def indices(project: Project, inputs: InputsResult, progress: Progress) -> Indic
         wanted = set(cfg.indices) | set(named.values())
         keep = {k: v for k, v in cube.arrays.items() if k[0] in wanted}
         cube = type(cube)(cube.weeks, cube.county_ids, keep, cube.provenance)
+    keys = _indicator_respellings(tables.get("indicators"), project, progress)
     if cube.provenance.get("cadence") != "monthly":
-        return IndicesResult(cube=cube, file=CubeFile(cube))
+        return IndicesResult(cube=cube, file=CubeFile(cube), key_normalisation=keys)
     # indices.parquet keeps the monthly cadence (scales in months); later stages work on
     # ISO weeks, so they get the cube expanded to weeks (see indices.cadence)
     from impactlink.indices.cadence import monthly_to_weekly
@@ -102,7 +103,22 @@ def indices(project: Project, inputs: InputsResult, progress: Progress) -> Indic
     progress("monthly climate input: indices at monthly cadence, expanded to ISO weeks "
              "for linking (scale labels converted from months to weeks)")
     return IndicesResult(cube=monthly_to_weekly(cube),
-                         file=CubeFile(cube, time_col="month", scale_col="scale_months"))
+                         file=CubeFile(cube, time_col="month", scale_col="scale_months"),
+                         key_normalisation=keys)
+
+
+def _indicator_respellings(indicators: pd.DataFrame | None, project: Project,
+                           progress: Progress) -> dict[str, Any]:
+    """The indicator names' respellings (manifest ``key_normalisation``), found here because
+    the indicators table leaves the run state after this stage."""
+    if indicators is None:
+        return {}
+    from impactlink.link.selection import key_normalisation, normalisation_lines
+
+    keys = key_normalisation({"indicators": indicators}, project.impacts)
+    for line in normalisation_lines(keys):
+        progress(line)
+    return keys
 
 
 def audit(project: Project, ind: IndicesResult, progress: Progress) -> AuditResult:
@@ -147,6 +163,7 @@ def link(project: Project, inputs: InputsResult, ind: IndicesResult,
     keys = key_normalisation(tables, project.impacts)
     for line in normalisation_lines(keys):
         progress(line)
+    keys = {**ind.key_normalisation, **keys}  # the indicator names, found by the indices stage
     targets: list[Any] = []
     rejected: list[pd.DataFrame] = []
     recon: list[pd.DataFrame] = []

@@ -81,11 +81,14 @@ class IndicesResult:
     """The index cube on ISO weeks, and the cube written to ``indices.parquet``.
 
     ``file`` keeps the input cadence (a monthly input keeps ``month`` / ``scale_months``);
-    ``cube`` is always weekly, as later stages need.
+    ``cube`` is always weekly, as later stages need. ``key_normalisation``: the indicator
+    names respelt to their key (the indicators table leaves the run state after this stage;
+    the link stage adds this to the manifest's ``key_normalisation``).
     """
 
     cube: IndexCube
     file: CubeFile
+    key_normalisation: dict[str, Any] = field(default_factory=dict)
 
     @property
     def frame(self) -> pd.DataFrame:
