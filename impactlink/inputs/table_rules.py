@@ -199,15 +199,13 @@ def _reject_duplicates(check: TableCheck, spec: TableSpec) -> None:
         {k: check.clean[k] if every else check.clean[k].iloc[live] for k in key}))
     if first_rows(sub, key).all():  # every key once (on integer codes): nothing to reject
         return
-    del sub
+    del sub  # some key repeats: the codes below name the first row of each
     # One integer code per distinct key (factorize each column, fold them together and
     # re-factorize after each step so the codes stay below the row count).
     code = np.zeros(live.size, dtype=np.int64)
     for k in key:
         col, _ = pd.factorize(check.clean[k].iloc[live], use_na_sentinel=False)
-        code, uniq = pd.factorize(code * (int(col.max(initial=0)) + 1) + col)
-    if len(uniq) == live.size:  # every key once: nothing to reject (no sort needed)
-        return
+        code, _ = pd.factorize(code * (int(col.max(initial=0)) + 1) + col)
     _, first, inverse = np.unique(code, return_index=True, return_inverse=True)
     first_of_row = first[inverse]
     dup = first_of_row != np.arange(live.size)

@@ -292,8 +292,9 @@ def _region_values(target, cube, arr, winc, ok, stat) -> np.ndarray:
     rows_r = regions.get_indexer(fr[rcol].astype(str))
     # the county values of each distinct window (rows of all regions share a month), then
     # region sums as matrix products: no (rows x window x counties) array
-    # a window is fixed by its last week (``winc`` and ``ok`` are functions of it), so the
-    # distinct windows are the distinct last weeks: a 1-d unique, not a unique of rows
+    # a window is fixed by its last week (``winc`` and ``ok`` are functions of it; windows
+    # whose last week lies outside the record all reduce to NaN, so they share one key): the
+    # distinct windows are the distinct last weeks, a 1-d unique, not a unique of rows
     _, first, inv = np.unique(winc[:, -1] + np.where(ok[:, -1], 0, -(1 << 40)),
                               return_index=True, return_inverse=True)
     inv = inv.reshape(-1)
