@@ -288,8 +288,8 @@ _STEPS: dict[str, Callable[[Run, Path, Reporter], tuple[Run, list[Path]]]] = {
     "link": _link,
     "rank": _rank,
     "outlook": _after_rank("outlook", stages.outlook, jobs=True),
-    "triggers": _after_rank("triggers", stages.triggers),
-    "contrast": _after_rank("contrast", stages.contrast),
+    "triggers": _after_rank("triggers", stages.triggers, jobs=True),
+    "contrast": _after_rank("contrast", stages.contrast, jobs=True),
     "report": _report,
 }
 

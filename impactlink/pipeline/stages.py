@@ -328,7 +328,7 @@ def outlook(project: Project, inputs: InputsResult, ind: IndicesResult, lk: Link
 
 
 def triggers(project: Project, inputs: InputsResult, ind: IndicesResult, lk: LinkStageResult,
-             rk: RankResult, progress: Progress) -> TriggersResult:
+             rk: RankResult, progress: Progress, *, jobs: int = 1) -> TriggersResult:
     """Replay, tune and audit trigger plans for every county-week state target.
 
     The index and time scale come from the best candidate of the same impact's onset
@@ -384,7 +384,7 @@ def triggers(project: Project, inputs: InputsResult, ind: IndicesResult, lk: Lin
 
 
 def contrast(project: Project, inputs: InputsResult, ind: IndicesResult, lk: LinkStageResult,
-             rk: RankResult, progress: Progress) -> ContrastResult:
+             rk: RankResult, progress: Progress, *, jobs: int = 1) -> ContrastResult:
     """County contrasts for each target with a county grain, on its best candidate."""
     from impactlink.contrast import county_contrast
     from impactlink.link import feature_values
