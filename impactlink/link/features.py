@@ -240,11 +240,12 @@ def _season_start(years, week: int, name: str) -> pd.DatetimeIndex:
     return iso_week_start(years, week)
 
 
-#: (id of a target frame, cube grid) -> (reference week positions, county positions). Target
-#: frames are results and are not modified after construction; an entry is dropped when its
-#: frame is garbage-collected. Saves the date and id lookups when hundreds of candidates are
-#: read for one target.
-_POSITIONS: dict[tuple, tuple[np.ndarray, np.ndarray]] = {}
+#: (id of a target frame, cube grid) -> (reference week positions, county positions), and
+#: for region targets -> (region weights, row regions, region totals). Target frames are
+#: results and are not modified after construction; an entry is dropped when its frame is
+#: garbage-collected. Saves the date and id lookups when hundreds of candidates are read for
+#: one target.
+_POSITIONS: dict[tuple, tuple[np.ndarray, ...]] = {}
 
 
 def _positions(target: Target, cube) -> tuple[np.ndarray, np.ndarray]:
@@ -278,18 +279,7 @@ def _reduce(vals: np.ndarray, stat: str, axis: int) -> np.ndarray:
 
 
 def _region_values(target, cube, arr, winc, ok, stat) -> np.ndarray:
-    wts = target.rule.weights
-    if wts is None:
-        raise LinkError(f"feature_values: region target {target.name!r} has no rule.weights")
-    regions = pd.Index(sorted(wts["region"].astype(str).unique()))
-    W = np.zeros((len(regions), len(cube.county_ids)))
-    cp = pd.Index(cube.county_ids).get_indexer(wts[COUNTY].astype(str))
-    rp = regions.get_indexer(wts["region"].astype(str))
-    keep = cp >= 0
-    W[rp[keep], cp[keep]] = wts["weight"].to_numpy(float)[keep]
-    fr = target.frame
-    rcol = "region" if "region" in fr.columns else "unit_id"
-    rows_r = regions.get_indexer(fr[rcol].astype(str))
+    W, rows_r, need = _region_weights(target, cube)
     # the county values of each distinct window (rows of all regions share a month), then
     # region sums as matrix products: no (rows x window x counties) array
     # a window is fixed by its last week (``winc`` and ``ok`` are functions of it; windows
@@ -299,19 +289,55 @@ def _region_values(target, cube, arr, winc, ok, stat) -> np.ndarray:
                               return_index=True, return_inverse=True)
     inv = inv.reshape(-1)
     uwin = np.where(ok[first], winc[first], -1)
-    uok = uwin >= 0
-    vals = arr[np.maximum(uwin, 0)]                    # (windows, w, counties)
-    vals = np.where(uok[:, :, None], vals, np.nan)
-    v = _reduce(vals, stat, axis=1)                    # (windows, counties)
+    # one (windows, counties) slice per week of the window, reduced as it comes: the same
+    # sequential sums and minima as a reduction over the window axis, without that axis
+    v = None
+    for j in range(uwin.shape[1]) if stat != "value" else (uwin.shape[1] - 1,):
+        col = arr[np.maximum(uwin[:, j], 0)]
+        col[uwin[:, j] < 0] = np.nan
+        if v is None:
+            v = col
+        elif stat == "min":
+            np.minimum(v, col, out=v)
+        else:
+            v += col
+    assert v is not None
+    if stat == "mean":
+        v /= uwin.shape[1]
     have = np.isfinite(v)
     num_u = np.where(have, v, 0.0) @ W.T               # (windows, regions)
     den_u = have.astype(float) @ W.T
-    tot = W.sum(axis=1)
-    out = np.full(len(fr), np.nan)
+    out = np.full(len(target.frame), np.nan)
     r = np.maximum(rows_r, 0)
     num = np.where(rows_r >= 0, num_u[inv, r], 0.0)
     den = np.where(rows_r >= 0, den_u[inv, r], 0.0)
-    need = np.where(rows_r >= 0, tot[r], 0.0)
     good = (den >= MIN_REGION_WEIGHT * need) & (den > 0)
     out[good] = num[good] / den[good]
     return out
+
+
+def _region_weights(target, cube) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(regions, counties) weights, each row's region position (-1: none) and the total
+    weight of its region; kept per target frame and rule weights, as :func:`_positions`."""
+    wts = target.rule.weights
+    if wts is None:
+        raise LinkError(f"feature_values: region target {target.name!r} has no rule.weights")
+    fr = target.frame
+    key = ("regions", id(fr), len(fr), id(wts), len(wts), hash(tuple(cube.county_ids)))
+    hit = _POSITIONS.get(key)
+    if hit is not None:
+        return hit
+    regions = pd.Index(sorted(wts["region"].astype(str).unique()))
+    W = np.zeros((len(regions), len(cube.county_ids)))
+    cp = pd.Index(cube.county_ids).get_indexer(wts[COUNTY].astype(str))
+    rp = regions.get_indexer(wts["region"].astype(str))
+    keep = cp >= 0
+    W[rp[keep], cp[keep]] = wts["weight"].to_numpy(float)[keep]
+    rcol = "region" if "region" in fr.columns else "unit_id"
+    rows_r = regions.get_indexer(fr[rcol].astype(str))
+    need = np.where(rows_r >= 0, W.sum(axis=1)[np.maximum(rows_r, 0)], 0.0)
+    if len(_POSITIONS) > 256:
+        _POSITIONS.clear()
+    _POSITIONS[key] = (W, rows_r, need)
+    weakref.finalize(fr, _POSITIONS.pop, key, None)
+    return W, rows_r, need

@@ -107,36 +107,68 @@ def make_layout(block_fold, block_year, n_years, n_levels, *, k_inner, n_boot, s
                   len(groups) if len(excl) > F else 0)
 
 
-def bin_codes(x: np.ndarray, n_bins: int) -> np.ndarray:
-    """Equal-width bin of each value between the sample minimum and maximum."""
-    lo, hi = float(x.min()), float(x.max())
+def bin_codes(x: np.ndarray, n_bins: int, lo: float | None = None,
+              hi: float | None = None) -> np.ndarray:
+    """Equal-width bin of each value between ``lo`` and ``hi`` (default: the sample minimum
+    and maximum); values beyond them fall in the edge bins."""
+    if lo is None or hi is None:
+        lo, hi = float(x.min()), float(x.max())
     if hi <= lo:
         return np.zeros(x.size, dtype=np.int64)
-    t = x - lo  # in place after the first step; x - lo >= 0, so truncation is the floor
-    t /= hi - lo
-    t *= n_bins
+    t = x - lo  # in place after the first step; truncation is the floor where t >= 0
+    t *= n_bins / (hi - lo)
     b = t.astype(np.int64)
     return np.clip(b, 0, n_bins - 1, out=b)
 
 
+def hist_bases(block, level, cell, *, n_bins_total, n_cells, n_levels
+               ) -> tuple[np.ndarray, np.ndarray]:
+    """The part of every row's histogram position that no candidate's bin changes.
+
+    A row in bin ``b`` sits at ``row = b * C + row_base`` of the (block, bin, cell) sums and
+    at ``rk = b * C * K + rk_base`` of the (block, bin, cell, level) counts, with
+    ``row_base = block * NB * C + cell`` and ``rk_base = row_base * K + level``; every
+    candidate of a target shares them (the persistence variant per lag).
+    """
+    row_base = block * (n_bins_total * n_cells)
+    if n_cells > 1:
+        row_base += cell
+    rk_base = row_base * n_levels
+    rk_base += level
+    return row_base, rk_base
+
+
 def build_hist(block, level, xs, bins, cell, *, n_blocks, n_bins_total, n_cells, n_levels,
-               marginal: bool = False):
+               marginal: bool = False, bases=None, affine=None):
     """Counts and sums for one candidate (one pass over the rows).
 
     With ``marginal=True`` also returns the histogram summed over cells (the same candidate
     without the persistence split), computed from the histogram instead of the rows.
+    ``bases`` are the rows' :func:`hist_bases` when already made; ``affine`` (one
+    ``(mean, sd)`` or None per column of ``xs``) turns the sums of a column into sums of
+    ``(x - mean) / sd`` from the cell counts, so the rows are never standardized.
     """
     G, NB, C, K = n_blocks, n_bins_total, n_cells, n_levels
-    row = block * NB  # (block * NB + bins) * C + cell, one array
-    row += bins
-    row *= C
-    row += cell
-    rk = row * K
-    rk += level
+    row_base, rk_base = bases if bases is not None else hist_bases(
+        block, level, cell, n_bins_total=NB, n_cells=C, n_levels=K)
+    rk = bins * (C * K)
+    rk += rk_base
     N = np.bincount(rk, minlength=G * NB * C * K).reshape(G, NB * C, K)
     del rk
+    if C == 1:
+        row = bins + row_base
+    else:
+        row = bins * C
+        row += row_base
     S = np.stack([np.bincount(row, weights=x, minlength=G * NB * C) for x in xs], axis=-1)
+    del row
     S = S.reshape(G, NB * C, len(xs))
+    if affine is not None:
+        cnt = N.sum(axis=2)
+        for j, ms in enumerate(affine):
+            if ms is not None:
+                S[..., j] -= ms[0] * cnt
+                S[..., j] /= ms[1]
     h = _compress(N, S, NB, C)
     if not marginal:
         return h

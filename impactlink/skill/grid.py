@@ -9,7 +9,7 @@ candidate, index-plus-persistence variant and two-scale pair (the histogram fast
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -71,6 +71,17 @@ class _Context:
     season: np.ndarray
     boot_w: np.ndarray  # (1 + R, G): point weights then replicates
     seasons: E.SeasonClasses | None = None  # season classes of the seasonal terms, if used
+    _bases: dict = field(default_factory=dict)  # bins per row -> E.hist_bases without cells
+
+    def bases(self, n_bins_total: int) -> tuple[np.ndarray, np.ndarray]:
+        """The rows' :func:`impactlink.skill._engine.hist_bases` without cells (shared by
+        every candidate of the target with ``n_bins_total`` bins)."""
+        hit = self._bases.get(n_bins_total)
+        if hit is None:
+            hit = E.hist_bases(self.block, self.level, None, n_bins_total=n_bins_total,
+                               n_cells=1, n_levels=self.layout.n_levels)
+            self._bases[n_bins_total] = hit
+        return hit
 
     @classmethod
     def build(cls, target, rows, *, cv, k_folds, n_boot, ci, seed, k_inner, seasonal=False):
@@ -128,7 +139,7 @@ class _Unit:
     hist: E.Hist
     lag: int
     use_cells: bool
-    transform: tuple  # per predictor (mean, sd, lo, hi) for mapping rows to bins
+    transform: tuple  # per predictor (mean, sd, lo, hi), index units: rows -> bins
     row_map: np.ndarray  # (NB * C,) compressed row of each (bin, cell), -1 if empty
     n_bins: int
     n_season: int = 1  # season classes crossed with the bins (bin * n_season + class)
@@ -137,97 +148,144 @@ class _Unit:
 
 def _histograms(ctx, features, cands, *, n_bins, pairs, pair_bins, threads: int = 1
                 ) -> list[_Unit] | None:
-    """One histogram per candidate (and pair); None at the first candidate with a gap.
+    """One histogram per candidate (and pair); None as soon as a candidate has a gap.
 
     ``threads`` > 1 builds the (index, lag) groups on that many threads
     (:func:`impactlink.execution.thread_map`; numpy's arithmetic on the rows releases the GIL,
     its gathers and ``bincount`` do not, so the gain is partial); the units come back in group
-    order, so the result does not depend on it.
+    order, so the result does not depend on it. The groups are built longest lag first: the
+    spin-up gaps of long scales and lags show there, and a gap stops every group (the caller
+    then finds the rows all candidates can score and starts again).
     """
+    import threading
+
     by_group: dict[tuple[str, int], list[int]] = {}
     for ix, sc, lg in cands:
         by_group.setdefault((ix, lg), []).append(sc)
     sea = ctx.seasons
     harm = ((sea.harmonics[sea.code, 0], sea.harmonics[sea.code, 1]) if sea is not None
             else ())  # the rows' seasonal terms, the same for every candidate
+    gap = threading.Event()
 
     def group(item):
         (ix, lg), scales = item
         return _group_units(ctx, features, ix, lg, scales, harm, n_bins=n_bins, pairs=pairs,
-                            pair_bins=pair_bins)
+                            pair_bins=pair_bins, gap=gap)
 
     items = list(by_group.items())
+    order = sorted(range(len(items)), key=lambda i: -items[i][0][1])  # stable: ties in order
     if threads > 1:
         from impactlink.execution import thread_map
 
-        parts = thread_map(group, items, threads)
-    else:  # in order, stopping at the first gap
-        parts = []
-        for item in items:
-            parts.append(group(item))
-            if parts[-1] is None:
+        done = thread_map(group, [items[i] for i in order], threads)
+    else:  # one by one, stopping at the first gap
+        done = []
+        for i in order:
+            done.append(group(items[i]))
+            if done[-1] is None:
                 break
-    if any(p is None for p in parts):
+    if len(done) < len(items) or any(p is None for p in done):
         return None
+    parts: list[list[_Unit]] = [[] for _ in items]
+    for i, p in zip(order, done, strict=True):
+        parts[i] = p
     return [u for p in parts for u in p]
 
 
-def _group_units(ctx, features, ix, lg, scales, harm, *, n_bins, pairs, pair_bins
+def _mean_sd(x: np.ndarray) -> tuple[float, float]:
+    """Mean and standard deviation (ddof 0) of the rows; 1.0 for a constant column.
+
+    One pass (the sum and the dot product, BLAS) unless the variance is tiny against the
+    mean square, where the two-pass formula avoids the cancellation of the one-pass one.
+    """
+    n = x.size
+    mu = float(x.sum()) / n
+    ms = float(np.dot(x, x)) / n
+    var = ms - mu * mu
+    if var <= 1e-6 * ms:
+        d = x - mu
+        var = float(np.dot(d, d)) / n
+    sd = float(np.sqrt(var)) if var > 0 else 0.0
+    return mu, sd if sd > 0 else 1.0
+
+
+def _group_units(ctx, features, ix, lg, scales, harm, *, n_bins, pairs, pair_bins, gap=None
                  ) -> list[_Unit] | None:
-    """The units of one (index, lag) group: every scale, its persistence variant, pairs."""
-    units = []
+    """The units of one (index, lag) group: every scale, its persistence variant, pairs.
+
+    Every scale's values are read first, so a gap stops the group before any histogram
+    (and ``gap``, shared by the groups, stops the others at their next scale). The
+    histograms hold sums of the standardized values, made from sums of the raw values
+    (:func:`impactlink.skill._engine.build_hist`, ``affine``).
+    """
     n_full = len(ctx.target.frame)
+    all_rows = ctx.rows.size == n_full  # the rows are distinct positions: all of them
+    xs = {}
+    for sc in sorted(set(scales)):
+        if gap is not None and gap.is_set():
+            return None
+        x = _feature(features, (ix, sc, lg), n_full)
+        x = x if all_rows else x[ctx.rows]
+        lo, hi = float(x.min()), float(x.max())  # NaN when any value is
+        if not (np.isfinite(lo) and np.isfinite(hi)):
+            if gap is not None:
+                gap.set()
+            return None  # a gap: the caller finds the common rows first
+        xs[sc] = (x, lo, hi, *_mean_sd(x))
+    units = []
     K = ctx.layout.n_levels
-    zero = np.zeros(ctx.rows.size, dtype=np.int64)
     sea = ctx.seasons
     n_sea = sea.n_classes if sea is not None else 1
     cell = ctx.pers_cells.get(lg)
-    xs = {}
-    for sc in sorted(set(scales)):
-        x = _feature(features, (ix, sc, lg), n_full)[ctx.rows]
-        if not np.isfinite(x).all():
-            return None  # a gap: the caller finds the common rows first
-        mu, sd = float(x.mean()), float(x.std())
-        sd = sd if sd > 0 else 1.0
-        z = x - mu
-        z /= sd
-        xs[sc] = (z, mu, sd, E.bin_codes(z, pair_bins) if pairs else None)
-        b = E.bin_codes(z, n_bins)
-        tr: tuple[tuple[float, float, float, float], ...] = (
-            (mu, sd, float(z.min()), float(z.max())),)
+    base = ctx.bases(n_bins * n_sea)
+    base_cell = (None if cell is None else E.hist_bases(
+        ctx.block, ctx.level, cell, n_bins_total=n_bins * n_sea, n_cells=K + 1, n_levels=K))
+    codes = {}
+    for sc, (x, lo, hi, mu, sd) in xs.items():
+        b = E.bin_codes(x, n_bins, lo, hi)
+        if pairs:
+            codes[sc] = E.bin_codes(x, pair_bins, lo, hi).astype(np.uint8)
+        tr: tuple[tuple[float, float, float, float], ...] = ((mu, sd, lo, hi),)
         plain = None
+        aff = [(mu, sd)] + [None] * len(harm)
         if sea is None:
-            cols, bs = [z], b
+            cols, bs = [x], b
         else:  # seasonal terms: rows by bin x season class, harmonics at class midpoints
-            cols = [z, *harm]
-            bs = b * n_sea + sea.code
-            plain = _hist(ctx, [z], b, zero, n_bins, 1)
+            cols = [x, *harm]
+            plain = _hist(ctx, [x], b, None, n_bins, 1, bases=ctx.bases(n_bins),
+                          affine=aff[:1])
+            bs = b * n_sea
+            bs += sea.code
         if cell is None:
-            h = _hist(ctx, cols, bs, zero, n_bins * n_sea, 1)
+            h = _hist(ctx, cols, bs, None, n_bins * n_sea, 1, bases=base, affine=aff)
         else:  # the index-plus-persistence variant: rows by bin x level known
-            hc, h = _hist(ctx, cols, bs, cell, n_bins * n_sea, K + 1, marginal=True)
+            hc, h = _hist(ctx, cols, bs, cell, n_bins * n_sea, K + 1, marginal=True,
+                          bases=base_cell, affine=aff)
             units.append(_Unit("single_pers", (ix, sc, lg), hc, lg, True, tr,
                                _row_map(hc), n_bins, n_sea))
         units.append(_Unit("single", (ix, sc, lg), h, lg, False, tr, _row_map(h), n_bins,
                            n_sea, plain))
     if pairs:
-        shorts = [s for s in sorted(xs) if s <= SHORT_MAX_WEEKS]
-        longs = [s for s in sorted(xs) if s >= LONG_MIN_WEEKS]
+        shorts = [s for s in xs if s <= SHORT_MAX_WEEKS]
+        longs = [s for s in xs if s >= LONG_MIN_WEEKS]
+        pbase = ctx.bases(pair_bins**2)
         for s1 in shorts:
             for s2 in longs:
-                b = xs[s1][3] * pair_bins + xs[s2][3]
-                h = _hist(ctx, [xs[s1][0], xs[s2][0]], b, zero, pair_bins**2, 1)
-                tr = tuple((xs[s][1], xs[s][2], float(xs[s][0].min()),
-                            float(xs[s][0].max())) for s in (s1, s2))
+                b = codes[s1].astype(np.int64)
+                b *= pair_bins
+                b += codes[s2]
+                h = _hist(ctx, [xs[s1][0], xs[s2][0]], b, None, pair_bins**2, 1, bases=pbase,
+                          affine=[xs[s1][3:5], xs[s2][3:5]])
+                tr = tuple((xs[s][3], xs[s][4], xs[s][1], xs[s][2]) for s in (s1, s2))
                 units.append(_Unit("pair", (ix, s1, s2, lg), h, lg, False, tr, _row_map(h),
                                    pair_bins))
     return units
 
 
-def _hist(ctx, xs, bins, cell, n_bins_total, C, *, marginal=False):
+def _hist(ctx, xs, bins, cell, n_bins_total, C, *, marginal=False, bases=None, affine=None):
     return E.build_hist(ctx.block, ctx.level, xs, bins, cell, n_blocks=ctx.layout.n_blocks,
                         n_bins_total=n_bins_total, n_cells=C, n_levels=ctx.layout.n_levels,
-                        marginal=marginal)
+                        marginal=marginal, bases=bases, affine=affine)
 
 
 def _row_map(h: E.Hist) -> np.ndarray:

@@ -87,8 +87,8 @@ def _row_probs(ctx, features, units, rec) -> tuple[np.ndarray, np.ndarray]:
                                   n_levels=lay.n_levels, jobs=lay.block_fold,
                                   blocks=np.arange(lay.n_blocks), return_eta=True)
     x = _feature(features, u.key, len(ctx.target.frame))[ctx.rows]
-    mu, sd = u.transform[0][:2]
-    b = E.bin_codes((x - mu) / sd, u.n_bins)
+    lo, hi = u.transform[0][2:]
+    b = E.bin_codes(x, u.n_bins, lo, hi)
     if u.n_season > 1:
         b = b * u.n_season + ctx.seasons.code
     cell = ctx.pers_cells[u.lag] if u.hist.n_cells > 1 else np.zeros_like(b)

@@ -122,3 +122,34 @@ def test_block_rps_equals_scores_module_for_ordinal():
         rows = np.repeat(np.repeat(np.arange(3), 4), N[g].ravel().astype(int))
         ref = S.ranked_probability_score(y, P[g][rows]) * y.size
         assert got[g] == pytest.approx(ref, rel=1e-12)
+
+
+def test_affine_sums_match_sums_of_standardized_rows():
+    # reference: numpy's own bincount of (x - mean) / sd and of the counts, row by row; the
+    # histogram is built from raw sums and the cell counts instead (build_hist, affine)
+    years, x, y, layout = _data(seed=3, n=5000)
+    x = 40.0 + 12.0 * x  # a percentile-like index: far from standardized
+    mu, sd = x.mean(), x.std()
+    z = (x - mu) / sd
+    b = E.bin_codes(x, 50)
+    cell = np.random.default_rng(1).integers(0, 3, x.size)
+    kw = dict(n_blocks=layout.n_blocks, n_bins_total=50, n_cells=3, n_levels=2)
+    hz = E.build_hist(years, y, [z], b, cell, **kw)
+    hx = E.build_hist(years, y, [x], b, cell, affine=[(mu, sd)], **kw)
+    np.testing.assert_array_equal(hx.N, hz.N)
+    np.testing.assert_allclose(hx.S, hz.S, rtol=1e-9, atol=1e-9)
+    row = (years * 50 + b) * 3 + cell
+    ref = np.bincount(row, weights=z, minlength=layout.n_blocks * 150)
+    np.testing.assert_allclose(hx.S[..., 0], ref.reshape(layout.n_blocks, 150)[:, hx.keep],
+                               rtol=1e-9, atol=1e-9)
+
+
+def test_bins_of_a_fixed_range_match_the_sample_range_and_clip_outside():
+    x = np.random.default_rng(4).normal(size=1000)
+    np.testing.assert_array_equal(E.bin_codes(x, 20), E.bin_codes(x, 20, x.min(), x.max()))
+    # values beyond the range fall in the edge bins (predicting new rows)
+    out = E.bin_codes(np.array([x.min() - 1, x.max() + 1]), 20, x.min(), x.max())
+    assert out.tolist() == [0, 19]
+    # floor of the scaled position (common practice: equal-width binning)
+    np.testing.assert_array_equal(E.bin_codes(np.array([0.0, 0.49, 0.5, 1.0]), 2, 0.0, 1.0),
+                                  [0, 0, 1, 1])
