@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import dataclasses
 import weakref
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -245,7 +246,7 @@ def _season_start(years, week: int, name: str) -> pd.DatetimeIndex:
 #: results and are not modified after construction; an entry is dropped when its frame is
 #: garbage-collected. Saves the date and id lookups when hundreds of candidates are read for
 #: one target.
-_POSITIONS: dict[tuple, tuple[np.ndarray, ...]] = {}
+_POSITIONS: dict[tuple, Any] = {}
 
 
 def _positions(target: Target, cube) -> tuple[np.ndarray, np.ndarray]:

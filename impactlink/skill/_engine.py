@@ -160,7 +160,8 @@ def build_hist(block, level, xs, bins, cell, *, n_blocks, n_bins_total, n_cells,
     else:
         row = bins * C
         row += row_base
-    S = np.stack([np.bincount(row, weights=x, minlength=G * NB * C) for x in xs], axis=-1)
+    S: np.ndarray = np.stack([np.bincount(row, weights=x, minlength=G * NB * C)
+                              for x in xs], axis=-1)
     del row
     S = S.reshape(G, NB * C, len(xs))
     if affine is not None:
