@@ -29,6 +29,7 @@ from .standardize import (
     standardize_loglogistic,
 )
 from .timegrid import (
+    _monday_days,
     accumulate,
     accumulate_many,
     build_grid,
@@ -37,7 +38,6 @@ from .timegrid import (
     grid_values,
     grid_years,
     period_of_year,
-    week_monday,
 )
 
 __all__ = ["compute_indices", "compute_pet", "standardized_indices", "DEFAULT_SCALES_WEEKS",
@@ -161,6 +161,7 @@ def compute_indices(
                 IndicesWarning, stacklevel=2,
             )
             indices = tuple(i for i in indices if i == "spi")
+    del tpos, cpos  # the rows' grid positions: 0.8 GB on a national daily table
     say(f"indices: PET {pet_info['method']}")
     cal, cal_note = _resolve_calibration(precip, grid, calibration, min_calibration_years)
     arrays, provenance = standardized_indices(
@@ -435,27 +436,33 @@ def _indicator_arrays(indicators, grid, cal, scales, clip, say):
         raise IndicesError(
             f"indicators: missing column(s) {missing}; expected county_id, date, indicator, value"
         )
-    ind = indicators[[COUNTY, "date", "indicator", "value"]].copy()
-    ind[COUNTY] = ind[COUNTY].astype(str)
-    ind["date"] = pd.to_datetime(ind["date"])
-    ind["value"] = pd.to_numeric(ind["value"], errors="coerce").astype(float)
-    cmap = {c: i for i, c in enumerate(grid.county_ids)}
-    d = pd.DatetimeIndex(ind["date"]).normalize()
+    # positions from codes of the distinct ids, integer day numbers and one factorized
+    # name column: no copy of the table and no Python object per row (a national weekly
+    # table of two indicators holds about 15 M rows)
+    codes, uniq = pd.factorize(indicators[COUNTY])
+    at = pd.Index(grid.county_ids).get_indexer(pd.Index(uniq).astype(str))
+    cpos = np.where(codes >= 0, at[np.maximum(codes, 0)], -1)
+    del codes
+    d = pd.DatetimeIndex(pd.to_datetime(indicators["date"]))
     if grid.step == "weekly":
-        mon = week_monday(d)
-        tpos = ((mon - grid.times[0]).days // 7).to_numpy()
+        tpos = _monday_days(d)
+        tpos -= int(_monday_days(grid.times[:1])[0])
+        tpos //= 7
     else:
         tpos = ((d.year - grid.times[0].year) * 12 + d.month - grid.times[0].month).to_numpy()
-    cpos = ind[COUNTY].map(cmap).to_numpy(dtype=float)
-    keep = (tpos >= 0) & (tpos < grid.shape[0]) & ~np.isnan(cpos)
+    del d
+    value = pd.to_numeric(indicators["value"], errors="coerce").to_numpy(dtype=float)
+    keep = (tpos >= 0) & (tpos < grid.shape[0]) & (cpos >= 0)
+    name_code, names = pd.factorize(indicators["indicator"], sort=True)
     period, n_periods = period_of_year(grid.times, grid.step)
     calib = calibration_mask(grid_years(grid.times, grid.step), cal)
     arrays, prov = {}, {}
-    for name, rows in ind[keep].groupby("indicator").indices.items():  # loop over indicators
+    for k, name in enumerate(names):  # loop over indicators (a handful)
         key = str(name).strip().lower().replace(" ", "_")
-        sub_t = tpos[keep][rows].astype(np.int64)
-        sub_c = cpos[keep][rows].astype(np.int64)
-        vals = ind["value"].to_numpy()[keep][rows]
+        rows = np.flatnonzero(keep & (name_code == k))
+        sub_t = tpos[rows].astype(np.int64)
+        sub_c = cpos[rows].astype(np.int64)
+        vals = value[rows]
         base, _ = grid_values(vals, sub_t, sub_c, grid.shape, how="mean")
         for s in scales:
             say(f"indices: indicator {key} scale {s}")

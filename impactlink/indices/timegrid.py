@@ -161,8 +161,12 @@ def grid_values(values: np.ndarray, tpos: np.ndarray, cpos: np.ndarray, shape, *
         out = out.reshape(nt, nc)
         return out, (~np.isnan(out)).astype(np.int64)
     ok = ~np.isnan(values)
-    cnt = np.bincount(flat[ok], minlength=nt * nc).reshape(nt, nc)
-    tot = np.bincount(flat[ok], weights=values[ok], minlength=nt * nc).reshape(nt, nc)
+    if not ok.all():  # one copy of the valid rows' cells, not one per count
+        flat, values = flat[ok], values[ok]
+    del ok
+    cnt = np.bincount(flat, minlength=nt * nc).reshape(nt, nc)
+    tot = np.bincount(flat, weights=values, minlength=nt * nc).reshape(nt, nc)
+    del flat
     with np.errstate(invalid="ignore", divide="ignore"):
         if how == "mean" or scale_to is not None:
             out = tot / cnt
