@@ -95,7 +95,7 @@ def _monday_days(d: pd.DatetimeIndex) -> np.ndarray:
     The rule of :func:`week_monday` in integer day numbers (1970-01-01 was a Thursday, so a
     day's weekday is ``(day + 3) % 7``, Monday 0): no timestamp arrays on a national daily
     table (test against :func:`week_monday`)."""
-    days = np.asarray(d.values.astype("datetime64[D]"), dtype="datetime64[D]").astype(np.int64)
+    days = np.asarray(d.values.astype("datetime64[D]"), dtype="datetime64[D]").view(np.int64)
     days -= (days + 3) % 7
     return days
 
