@@ -249,7 +249,8 @@ def _indices(run: Run, tmp: Path, say: Reporter) -> tuple[Run, list[Path]]:
 
 
 def _audit(run: Run, tmp: Path, say: Reporter) -> tuple[Run, list[Path]]:
-    return _set(run, tmp, audit=stages.audit(run.project, _need(run.indices, "indices"), say))
+    return _set(run, tmp, audit=stages.audit(run.project, _need(run.indices, "indices"), say,
+                                             jobs=run.jobs))
 
 
 def _link(run: Run, tmp: Path, say: Reporter) -> tuple[Run, list[Path]]:

@@ -121,8 +121,9 @@ def _indicator_respellings(indicators: pd.DataFrame | None, project: Project,
     return keys
 
 
-def audit(project: Project, ind: IndicesResult, progress: Progress) -> AuditResult:
-    """Threshold ladders audited county by county."""
+def audit(project: Project, ind: IndicesResult, progress: Progress, *, jobs: int = 1
+          ) -> AuditResult:
+    """Threshold ladders audited county by county (``jobs`` threads for the bootstrap)."""
     from impactlink.indices import threshold_audit
 
     frames = []
@@ -139,6 +140,7 @@ def audit(project: Project, ind: IndicesResult, progress: Progress) -> AuditResu
             late=(lad.late[0], lad.late[1]) if lad.late else None,
             n_boot=lad.n_boot,
             seed=project.seed,
+            jobs=jobs,
         )
         f = res.to_frame().drop(columns=["ladder", "index", "scale_weeks"], errors="ignore")
         f.insert(1, "ladder", lad.name)

@@ -116,6 +116,25 @@ def test_bootstrap_is_deterministic_with_seed():
     pd.testing.assert_frame_equal(a, b)
 
 
+def test_bootstrap_on_two_threads_gives_the_same_table():
+    # many small replicate chunks (max_cells forces several), filled on two threads
+    from impactlink.indices import audit as A
+
+    rng = np.random.default_rng(8)
+    x = rng.normal(size=(52 * 12, 5))
+    yidx = np.repeat(np.arange(12), 52)
+    mult = rng.poisson(1.0, size=(40, 12)).astype(float)
+    cum_p = np.array([0.1, 0.02])
+    one = A._bootstrap_local_thresholds(x, yidx, 12, cum_p, mult, max_cells=5 * 256 * 3)
+    two = A._bootstrap_local_thresholds(x, yidx, 12, cum_p, mult, max_cells=5 * 256 * 3,
+                                        threads=2)
+    np.testing.assert_array_equal(one, two)
+    cube = _cube(x)
+    kw = dict(index="spi", scale_weeks=13, thresholds=[-1.0], stage_names=["dry"], n_boot=60)
+    pd.testing.assert_frame_equal(threshold_audit(cube, seed=3, **kw).to_frame(),
+                                  threshold_audit(cube, seed=3, jobs=2, **kw).to_frame())
+
+
 @pytest.mark.parametrize("kwargs,match", [
     (dict(thresholds=[-1.0, -2.0], stage_names=["a"]), "equal length"),
     (dict(thresholds=[-2.0, -1.0], stage_names=["a", "b"]), "strictly ordered"),
