@@ -80,10 +80,10 @@ def feature_values(target: Target, cube, index: str, scale_weeks: int, lag_weeks
     if stat not in ("value", "min", "mean"):
         raise LinkError(f"feature_values: window_stat must be value, min or mean, got {stat!r}")
     if w == 1 and target.grain != "region_month":  # one week per row: one gather, no window
-        nt, nc = arr.shape
-        good = (pos >= 0) & (pos < nt) & (cp >= 0)
-        vals = np.take(arr, np.where(good, pos * nc + cp, 0))
-        vals[~good] = np.nan
+        flat, bad = _cells_of_rows(ref_pos, cp, lag, arr.shape)
+        vals = np.take(arr, flat)
+        if bad is not None:
+            vals[bad] = np.nan
         return vals
     win = pos[:, None] - (w - 1) + np.arange(w)[None, :]
     ok = (win >= 0) & (win < arr.shape[0])
@@ -271,6 +271,31 @@ def _positions(target: Target, cube) -> tuple[np.ndarray, np.ndarray]:
     return ref_pos, cp
 
 
+#: (reference positions, county positions, lag, grid) -> (those two arrays, the cube cell
+#: of every row, rows outside the grid or None): the last few only, since candidates are read lag by lag (every index and scale at
+#: one lag shares the cells) and each entry is one integer per row.
+_CELLS: dict[tuple, tuple] = {}
+_CELLS_KEPT = 4
+
+
+def _cells_of_rows(ref_pos, cp, lag, shape) -> tuple[np.ndarray, np.ndarray | None]:
+    key = (id(ref_pos), id(cp), int(lag), shape)
+    hit = _CELLS.get(key)
+    if hit is not None and hit[0] is ref_pos and hit[1] is cp:  # held, so ids are not reused
+        return hit[2], hit[3]
+    nt, nc = shape
+    pos = ref_pos - lag
+    good = (pos >= 0) & (pos < nt) & (cp >= 0)
+    pos *= nc
+    pos += cp
+    flat = np.where(good, pos, 0)
+    bad = None if good.all() else ~good
+    while len(_CELLS) >= _CELLS_KEPT:
+        _CELLS.pop(next(iter(_CELLS)), None)
+    _CELLS[key] = (ref_pos, cp, flat, bad)
+    return flat, bad
+
+
 def _reduce(vals: np.ndarray, stat: str, axis: int) -> np.ndarray:
     if stat == "min":
         return vals.min(axis=axis)
@@ -326,8 +351,8 @@ def _region_weights(target, cube) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     fr = target.frame
     key = ("regions", id(fr), len(fr), id(wts), len(wts), hash(tuple(cube.county_ids)))
     hit = _POSITIONS.get(key)
-    if hit is not None:
-        return hit
+    if hit is not None and hit[0] is wts:  # the weights are held, so their id is not reused
+        return hit[1:]
     regions = pd.Index(sorted(wts["region"].astype(str).unique()))
     W = np.zeros((len(regions), len(cube.county_ids)))
     cp = pd.Index(cube.county_ids).get_indexer(wts[COUNTY].astype(str))
@@ -339,6 +364,6 @@ def _region_weights(target, cube) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     need = np.where(rows_r >= 0, W.sum(axis=1)[np.maximum(rows_r, 0)], 0.0)
     if len(_POSITIONS) > 256:
         _POSITIONS.clear()
-    _POSITIONS[key] = (W, rows_r, need)
+    _POSITIONS[key] = (wts, W, rows_r, need)
     weakref.finalize(fr, _POSITIONS.pop, key, None)
     return W, rows_r, need

@@ -59,6 +59,21 @@ def test_onset_rows_read_the_value_known_at_forecast_time():
     assert feature_values(t, cube, "spi", 4, 2).tolist() == [2000]
 
 
+def test_many_targets_and_lags_each_read_their_own_cells():
+    # the rows' cube cells are kept for the last few (target, lag) reads; targets of the same
+    # size made one after another (freed arrays' addresses are reused) and more lags than are
+    # kept must each read the cell given by the grid value 1000 * week + county
+    weeks = mondays("2030-01-07", 30)
+    cube = _grid_cube(weeks, ("a", "b", "c"))
+    for start in range(6):
+        t = _week_target([str(weeks[start + 10].date()), str(weeks[start + 12].date())],
+                         ["b", "c"])
+        for lag in (0, 3, 1, 5, 2, 4, 0, 3):
+            want = [1000 * (start + 10 - lag) + 1, 1000 * (start + 12 - lag) + 2]
+            assert feature_values(t, cube, "spi", 4, lag).tolist() == want
+        del t
+
+
 def test_iso_week_monday_matches_fromisocalendar():
     years = np.arange(2000, 2041)
     for w in (1, 26, 52):
