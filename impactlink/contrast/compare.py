@@ -16,7 +16,7 @@ from impactlink.contrast.logitfit import cluster_robust_fit as _cluster_fit
 from impactlink.contrast.logitfit import design_matrix as _design
 from impactlink.contrast.logitfit import fitted_chances as _fitted_chances
 from impactlink.contrast.logitfit import logit_fit as _logit_fit
-from impactlink.contrast.pairwise import pairwise_mean_distance
+from impactlink.contrast.pairwise import group_quantiles, pairwise_mean_distance
 from impactlink.errors import ContrastError, ContrastWarning
 from impactlink.execution import blas_threads, thread_map
 from impactlink.link.target import Target
@@ -454,10 +454,8 @@ def _pairs(data: pd.DataFrame, z_c: np.ndarray, trait_names: list[str], n_pairs:
              "rows_a", "rows_b", "largest_trait_gap"] + [f"gap_{t}_sd" for t in trait_names])
     if len(counties) < 2 or n_pairs == 0:
         return pd.DataFrame(columns=cols)
-    order = np.argsort(inv, kind="stable")
     rows = np.bincount(inv, minlength=present.size)
-    xs = np.split(data["x"].to_numpy()[sel][order], np.cumsum(rows)[:-1])
-    q = np.vstack([np.quantile(v, _EXPOSURE_Q) for v in xs])
+    q = group_quantiles(data["x"].to_numpy()[sel], inv, rows, _EXPOSURE_Q)
     events_f = np.bincount(inv, y_all[sel], present.size)  # 0/1 sums: exact
     rate = events_f / rows
     events = events_f.astype(np.int64)

@@ -7,7 +7,9 @@ log-likelihood decreases, stop when the largest step is below ``tol``), arranged
 design shared by all folds:
 
 - rows are sorted by year once, so a fold's training rows are the two contiguous slices
-  before and after the held-out year: no per-fold copy of the design;
+  before and after the held-out year: no per-fold copy of the design (and no copy at all
+  when the rows come in year order with a float64 design in Fortran order, as the contrast
+  builds it from a time-sorted target frame);
 - every fold starts from the fit on all years; its first gradient, Hessian and
   log-likelihood at that start are the all-years sums minus the held-out year's, all
   computed in one pass over the rows (the per-year sums) instead of one pass per fold;
@@ -48,7 +50,7 @@ from scipy.special import expit
 from impactlink.execution import blas_threads, thread_map
 from impactlink.models._newton import solve
 
-__all__ = ["year_out_probabilities", "CHORD_STEPS"]
+__all__ = ["year_out_probabilities", "logistic_fit", "CHORD_STEPS"]
 
 #: Steps with the fold's Hessian at the start before Newton's own Hessian is used.
 CHORD_STEPS = 12
@@ -83,14 +85,20 @@ def year_out_probabilities(y: np.ndarray, X: np.ndarray, years: np.ndarray,
         The event chance of each row from the fit without its year; NaN for the rows of a
         year whose training rows hold a single outcome (no fit).
     """
-    order = np.argsort(years, kind="stable")
-    ys = np.asarray(y, float)[order]
-    ysr = np.asarray(years)[order]
+    years = np.asarray(years)
+    X = np.asarray(X)
+    if np.all(years[1:] >= years[:-1]):  # rows already in year order (a time-sorted frame)
+        order = None
+        ys, ysr = np.asarray(y, float), years
+        Xs = X if X.dtype == np.float64 and X.flags.f_contiguous else _sorted_columns(X, None)
+    else:
+        order = np.argsort(years, kind="stable")
+        ys, ysr = np.asarray(y, float)[order], years[order]
+        Xs = _sorted_columns(X, order)
     cuts = np.flatnonzero(ysr[1:] != ysr[:-1]) + 1
     del ysr
     lo = np.r_[0, cuts].astype(np.int64)
     hi = np.r_[cuts, ys.size].astype(np.int64)
-    Xs = _sorted_columns(X, order)
     start = np.asarray(start, float)
     eta0 = Xs @ start
     with blas_threads(1):  # the same rounding whatever jobs
@@ -103,16 +111,19 @@ def year_out_probabilities(y: np.ndarray, X: np.ndarray, years: np.ndarray,
     out = np.full(ys.size, np.nan)
     for a, b, beta in zip(lo, hi, betas, strict=True):
         if beta is not None:
-            out[order[a:b]] = expit(Xs[a:b] @ beta)
+            out[slice(a, b) if order is None else order[a:b]] = expit(Xs[a:b] @ beta)
     return out
 
 
-def _sorted_columns(X: np.ndarray, order: np.ndarray) -> np.ndarray:
-    """``X[order]`` as float64 in Fortran order, built column by column (one copy)."""
-    X = np.asarray(X)
+def _sorted_columns(X: np.ndarray, order: np.ndarray | None) -> np.ndarray:
+    """``X[order]`` (``X`` when ``order`` is None) as float64 in Fortran order, built column
+    by column (one copy)."""
     out = np.empty(X.shape, dtype=np.float64, order="F")
     for c in range(X.shape[1]):
-        np.take(X[:, c], order, out=out[:, c])
+        if order is None:
+            out[:, c] = X[:, c]
+        else:
+            np.take(X[:, c], order, out=out[:, c])
     return out
 
 
@@ -122,7 +133,7 @@ def _year_sums(Xs, ys, eta0, bounds):
     X, y, eta = Xs[a:b], ys[a:b], eta0[a:b]
     buf = np.empty(b - a)
     mu = _mu(eta, np.empty(b - a))
-    H = (X * (mu * (1.0 - mu))[:, None]).T @ X
+    H = _information(X, mu)
     np.subtract(y, mu, out=mu)
     return _softplus_sum(eta, buf), X.T @ y, X.T @ mu, H
 
@@ -136,18 +147,60 @@ def _fold(Xs, ys, eta0, lo, hi, n_events, per_year, total, start, f, *, max_iter
     ev_train = n_events - float(ys[a:b].sum())  # 0/1 sums: exact
     if ev_train == 0 or ev_train == n - (b - a):
         return None  # the training rows hold one outcome: no fit (as before)
-    p = Xs.shape[1]
     sp, xty, grad, H = (t - s for t, s in zip(total, per_year[f], strict=True))
-    ridge = np.diag(np.full(p, 1e-12))
-    H = H + ridge
-    beta = start.copy()
-    obj = float(beta @ xty) - sp
     # the training rows: the slices before and after the held-out year (empty ones dropped)
     parts = [_Part(Xs[s:e], ys[s:e], eta0[s:e]) for s, e in ((0, a), (b, n)) if e > s]
+    return _newton(parts, start.copy(), float(start @ xty) - sp, grad, H, xty, CHORD_STEPS,
+                   max_iter=max_iter, tol=tol, max_halvings=max_halvings)
+
+
+def logistic_fit(y: np.ndarray, X: np.ndarray, *, max_iter: int = 100, tol: float = 1e-8,
+                 max_halvings: int = 30) -> np.ndarray:
+    """Maximum-likelihood logistic coefficients on all rows (no penalty).
+
+    The iteration of :func:`impactlink.models.batch.fit_logistic_batch` with ``ridge=0``
+    (Newton-Raphson from the base rate in the intercept, step-halving while the
+    log-likelihood decreases, stop when the largest step is below ``tol``) on the buffered
+    passes of the folds: no copy of ``X`` per step, and the information matrix summed in
+    row blocks (a few MB of temporaries instead of a (rows x p) one).
+
+    Parameters
+    ----------
+    y : ndarray (n,)
+        0/1 outcomes.
+    X : ndarray (n, p)
+        Design; a first column of ones is the intercept (used for the start).
+
+    Returns
+    -------
+    ndarray (p,)
+        The estimate; a fit that has not converged after ``max_iter`` steps (near
+        separation) returns its last iterate.
+    """
+    X = np.asarray(X, dtype=np.float64)
+    y = np.asarray(y, dtype=np.float64)
+    beta = np.zeros(X.shape[1])
+    if y.size and np.all(X[:, 0] == 1.0):
+        rate = min(max(float(y.mean()), 1e-4), 1 - 1e-4)
+        beta[0] = np.log(rate / (1 - rate))
+    part = _Part(X, y, X @ beta)
+    xty = X.T @ y
+    grad, H = part.grad_hessian()
+    obj = float(beta @ xty) - _softplus_sum(part.eta, part.buf)
+    return _newton([part], beta, obj, grad, H, xty, 1, max_iter=max_iter, tol=tol,
+                   max_halvings=max_halvings)
+
+
+def _newton(parts, beta, obj, grad, H, xty, chord_steps, *, max_iter, tol, max_halvings):
+    """Newton-Raphson on the rows of ``parts`` from ``beta`` (log-likelihood ``obj``,
+    gradient ``grad`` and information ``H`` there): the first ``chord_steps`` steps keep
+    ``H``, later ones recompute it; step-halving while the log-likelihood decreases."""
+    ridge = np.diag(np.full(beta.size, 1e-12))
+    H = H + ridge
     for it in range(max_iter):
-        if 0 < it < CHORD_STEPS:  # at the last accepted iterate; the start's Hessian
+        if 0 < it < chord_steps:  # at the last accepted iterate; the start's Hessian
             grad = _add(part.grad() for part in parts)
-        elif it >= CHORD_STEPS:  # slow convergence: Newton's own Hessian
+        elif it >= chord_steps:  # slow convergence (or plain Newton): the iterate's Hessian
             sums = [part.grad_hessian() for part in parts]
             grad = _add(s[0] for s in sums)
             H = _add(s[1] for s in sums) + ridge
@@ -195,9 +248,22 @@ class _Part:
 
     def grad_hessian(self):
         mu = _mu(self.eta, self.buf)
-        H = (self.X * (mu * (1.0 - mu))[:, None]).T @ self.X
+        H = _information(self.X, mu)
         np.subtract(self.y, mu, out=mu)
         return self.X.T @ mu, H
+
+
+#: Rows per block of the information-matrix sums (bounds the (rows x p) temporary).
+_ROW_BLOCK = 1 << 16
+
+
+def _information(X, mu):
+    """``X' diag(mu (1 - mu)) X``, summed over row blocks."""
+    H = np.zeros((X.shape[1], X.shape[1]))
+    for s in range(0, mu.size, _ROW_BLOCK):
+        Xb, m = X[s:s + _ROW_BLOCK], mu[s:s + _ROW_BLOCK]
+        H += (Xb * (m * (1.0 - m))[:, None]).T @ Xb
+    return H
 
 
 def _add(items):

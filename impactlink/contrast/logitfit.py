@@ -124,12 +124,11 @@ def statsmodels_fit(y, design, groups=None, start=None):
 
 
 def logit_fit(y, design) -> np.ndarray:
-    """Maximum-likelihood logistic coefficients on all rows (no penalty): the start of
-    every leave-one-year-out fold (:func:`impactlink.contrast.foldlogit.
-    year_out_probabilities`, same Newton-Raphson iteration). The package's batched solver
-    :func:`impactlink.models.batch.fit_logistic_batch`, tested against statsmodels' ``GLM``.
-    """
-    from impactlink.models.batch import fit_logistic_batch
+    """Maximum-likelihood logistic coefficients on all rows (no penalty): the estimate of
+    both models and the start of every leave-one-year-out fold
+    (:func:`impactlink.contrast.foldlogit.logistic_fit`, the Newton-Raphson iteration of
+    :func:`impactlink.models.batch.fit_logistic_batch` without its per-step copies of the
+    design; tested against statsmodels' ``GLM``)."""
+    from impactlink.contrast.foldlogit import logistic_fit
 
-    res = fit_logistic_batch(design[None], y[None], None, ridge=0.0, max_iter=100, tol=1e-8)
-    return res.coef[0]
+    return logistic_fit(y, design, max_iter=100, tol=1e-8)
