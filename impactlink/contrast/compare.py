@@ -302,7 +302,7 @@ def _prepare(target, x, traits, link, cluster, ci, n_pairs, n_boot
             "irrigated_share or storage_days."
         )
     tr_ids = traits[COUNTY].astype(str).to_numpy()
-    tr_vals = traits[numeric].to_numpy(dtype=np.float64)  # (counties in the table, K)
+    tr_vals = traits[numeric].to_numpy(dtype=np.float64, na_value=np.nan)  # (counties, K)
     # traits reach the rows through county codes (no merge of the row table)
     codes_all, ids_all = pd.factorize(frame[COUNTY].astype(str), sort=True)
     ids_all = np.asarray(ids_all, dtype=object)

@@ -78,6 +78,11 @@ def test_contrast_counties_same_numbers_on_one_and_two_threads():
     for a, b in ((one.parts, two.parts), (one.lookalikes, two.lookalikes),
                  (one.summary, two.summary)):
         _assert_same_frames(a, b)
+    # a region partner: the region side is rebuilt from each replicate's model on its thread
+    kw = dict(pair=("t0", "region"), period=(1990, 1999), n_boot=30, seed=5)
+    r1 = contrast_counties(target, cube, ("spei", 4, 0), traits, counties, jobs=1, **kw)
+    r2 = contrast_counties(target, cube, ("spei", 4, 0), traits, counties, jobs=2, **kw)
+    _assert_same_frames(r1.parts, r2.parts)
 
 
 def test_cluster_robust_fit_matches_statsmodels_glm_cluster():
