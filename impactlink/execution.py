@@ -9,11 +9,12 @@ state.
 from __future__ import annotations
 
 from collections.abc import Callable, Iterable, Sequence
+from contextlib import AbstractContextManager, nullcontext
 from typing import Any, TypeVar
 
 from impactlink.errors import ExecutionError
 
-__all__ = ["map_tasks", "thread_map", "ExecutionError"]
+__all__ = ["map_tasks", "thread_map", "blas_threads", "ExecutionError"]
 
 T = TypeVar("T")
 
@@ -90,6 +91,27 @@ def thread_map(fn: Callable[[Any], T], items: Sequence[Any], threads: int) -> li
 
     with ThreadPoolExecutor(max_workers=threads) as pool:
         return list(pool.map(fn, items))
+
+
+_BLAS: dict[str, Any] = {}
+
+
+def blas_threads(limit: int | None) -> AbstractContextManager[Any]:
+    """Context limiting BLAS to ``limit`` threads (``None``: no change).
+
+    Around :func:`thread_map`: each thread's matrix products run on one BLAS thread instead
+    of every thread starting BLAS's own pool on the same cores (threadpoolctl, a
+    scikit-learn dependency). OpenBLAS may round a product differently on one thread than on
+    two (it splits the work differently), so code whose numbers must not depend on ``jobs``
+    holds BLAS at one thread for every ``jobs``, 1 included.
+    """
+    if limit is None:
+        return nullcontext()
+    if "controller" not in _BLAS:
+        from threadpoolctl import ThreadpoolController
+
+        _BLAS["controller"] = ThreadpoolController()
+    return _BLAS["controller"].limit(limits=int(limit), user_api="blas")
 
 
 def _run_dask(fn, items, address, tick):

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import warnings
 from dataclasses import dataclass, field
+from functools import partial
 from typing import Literal
 
 import numpy as np
@@ -11,8 +12,13 @@ import pandas as pd
 from scipy.stats import chi2
 
 from impactlink.contrast.foldlogit import year_out_probabilities
-from impactlink.contrast.pairwise import pairwise_mean_distance
+from impactlink.contrast.logitfit import cluster_robust_fit as _cluster_fit
+from impactlink.contrast.logitfit import design_matrix as _design
+from impactlink.contrast.logitfit import fitted_chances as _fitted_chances
+from impactlink.contrast.logitfit import logit_fit as _logit_fit
+from impactlink.contrast.pairwise import group_quantiles, pairwise_mean_distance
 from impactlink.errors import ContrastError, ContrastWarning
+from impactlink.execution import blas_threads, thread_map
 from impactlink.link.target import Target
 from impactlink.schema import COUNTY
 from impactlink.skill.folds import year_bootstrap_weights
@@ -76,6 +82,7 @@ def county_contrast(
     n_pairs: int = 10,
     n_boot: int = 200,
     seed: int = 0,
+    jobs: int = 1,
 ) -> ContrastResult:
     """Explain county differences in impacts at similar index values from county traits.
 
@@ -106,6 +113,9 @@ def county_contrast(
         Year-block bootstrap replicates for the Brier-change interval (0 = none).
     seed : int, default 0
         Seed of the bootstrap.
+    jobs : int, default 1
+        Threads for the two models' all-years fits and their leave-one-year-out folds
+        (:func:`impactlink.execution.thread_map`); the numbers do not depend on ``jobs``.
 
     Returns
     -------
@@ -137,7 +147,11 @@ def county_contrast(
     with traits standardized across counties (each county once, SD with ddof = 1), so
     :math:`e^{\\gamma_k}` is the odds ratio per one SD of trait k at a given index value.
     Cluster-robust (sandwich) covariance with the small-sample correction and t intervals
-    with G - 1 degrees of freedom (Cameron & Miller 2015). The out-of-sample value of the
+    with G - 1 degrees of freedom (Cameron & Miller 2015): the CRV1 estimator
+    :math:`\frac{G}{G-1}\frac{n-1}{n-k} H^{-1} (\\sum_g s_g s_g^T) H^{-1}` with H the
+    information matrix and :math:`s_g` the score summed over cluster g, as statsmodels'
+    ``GLM(...).fit(cov_type="cluster", use_t=True)`` computes it, here from the
+    maximum-likelihood fit in a few passes over the rows. The out-of-sample value of the
     traits is the change in Brier score (lower is better; Brier 1950) between the two models
     under leave-one-year-out cross-validation, with a percentile interval from resampling
     whole years.
@@ -163,24 +177,21 @@ def county_contrast(
     Garwood, F. (1936). Fiducial limits for the Poisson distribution. Biometrika, 28(3/4),
     437-442. https://doi.org/10.1093/biomet/28.3-4.437
     """
-    data, trait_names, trait_sd, prov = _prepare(target, x, traits, link, cluster, ci, n_pairs,
-                                                 n_boot)
+    data, z_c, trait_names, trait_sd, prov = _prepare(target, x, traits, link, cluster, ci,
+                                                      n_pairs, n_boot)
     alpha = 1.0 - ci
     y = data["y"].to_numpy()
     xv = data["x"].to_numpy()
-    z = data[trait_names].to_numpy()
-
-    # the package's Newton fits on all rows start statsmodels' IRLS (one or two iterations
-    # left instead of six or more on a national weekly target) and every Brier fold
-    d0 = np.column_stack([np.ones_like(xv), xv])
-    b0 = _logit_fit(y, d0)
-    base = _fit(y, d0, start=b0)
-    excess = _county_excess(data, base.predict(), alpha)
-
-    design = np.column_stack([d0, z])
-    b1 = _logit_fit(y, design)
-    groups = data[COUNTY if cluster == "county" else "year"].to_numpy()
-    n_groups = len(np.unique(groups))
+    codes = data[COUNTY].cat.codes.to_numpy()
+    # one design in column order; the index-only model is its first two columns (a view)
+    design = _design(xv, z_c, codes)
+    d0 = design[:, :2]
+    # the package's Newton fits on all rows: the estimates, and the start of every Brier fold
+    with blas_threads(1):  # the same rounding whatever jobs
+        b0, b1 = thread_map(partial(_logit_fit, y), [d0, design], jobs)
+    groups = codes if cluster == "county" else data["year"].to_numpy()
+    gcodes, guniq = pd.factorize(groups)
+    n_groups = len(guniq)
     if n_groups < 10:
         warnings.warn(
             f"only {n_groups} {cluster} clusters; cluster-robust intervals are unreliable with "
@@ -190,12 +201,17 @@ def county_contrast(
             stacklevel=2,
         )
         prov["warnings"].append(f"few clusters: {n_groups}")
-    full = _fit(y, design, groups=groups, start=b1)
+    base_p = _fitted_chances(y, d0, b0)
+    excess = _county_excess(data, base_p, alpha)
+    del base_p
+    full = _cluster_fit(y, design, b1, gcodes, n_groups)
+    del gcodes, groups
     terms = _terms(full, ["index"] + trait_names, alpha, np.append(np.std(xv, ddof=1), trait_sd),
                    n_groups)
-
-    skill = _brier_cv(y, xv, z, data["year"].to_numpy(), n_boot, alpha, seed, starts=(b0, b1))
-    pairs = _pairs(data, trait_names, n_pairs)
+    skill = _brier_cv(y, xv, None, data["year"].to_numpy(), n_boot, alpha, seed, starts=(b0, b1),
+                      designs=(d0, design), jobs=jobs)
+    del design, d0
+    pairs = _pairs(data, z_c, trait_names, n_pairs)
     prov.update({"clusters": int(n_groups), "cluster": cluster, "link": link, "ci": ci,
                  "seed": int(seed), "n_boot": int(n_boot)})
     return ContrastResult(terms=terms, county_excess=excess, pairs=pairs, skill=skill,
@@ -238,7 +254,9 @@ def poisson_ratio_interval(
 
 # --------------------------------------------------------------------------- private steps
 def _prepare(target, x, traits, link, cluster, ci, n_pairs, n_boot
-             ) -> tuple[pd.DataFrame, list[str], np.ndarray, dict]:
+             ) -> tuple[pd.DataFrame, np.ndarray, list[str], np.ndarray, dict]:
+    """The rows used (``county_id`` categorical on the sorted ids, ``year, season, y, x``)
+    and the standardized traits of each county (C, K), in the order of the categories."""
     if link != "logit":
         raise ContrastError(
             f"link must be 'logit' (odds ratios per SD need it); got {link!r}."
@@ -283,42 +301,52 @@ def _prepare(target, x, traits, link, cluster, ci, n_pairs, n_boot
             "traits has no numeric column besides county_id; add county characteristics such as "
             "irrigated_share or storage_days."
         )
-    tr = traits[[COUNTY] + numeric].copy()
-    tr[COUNTY] = tr[COUNTY].astype(str)
-
-    data = pd.DataFrame(
-        {
-            COUNTY: frame[COUNTY].astype(str).array,  # text, not one Python str per row
-            "year": frame["year"].to_numpy(),
-            "season": frame["season"].to_numpy() if "season" in frame.columns else 0,
-            "y": (frame["level"].to_numpy(dtype=np.float64) >= 1).astype(np.float64),
-            "x": xv,
-        }
-    )
+    tr_ids = traits[COUNTY].astype(str).to_numpy()
+    tr_vals = traits[numeric].to_numpy(dtype=np.float64, na_value=np.nan)  # (counties, K)
+    # traits reach the rows through county codes (no merge of the row table)
+    codes_all, ids_all = pd.factorize(frame[COUNTY].astype(str), sort=True)
+    ids_all = np.asarray(ids_all, dtype=object)
+    pos = pd.Index(tr_ids).get_indexer(ids_all)  # trait row of each county, -1 = none
+    complete = pos >= 0
+    complete[complete] = ~np.isnan(tr_vals[pos[complete]]).any(axis=1)
     ok = np.isfinite(xv) & frame["level"].notna().to_numpy()
     if (~ok).any():
         _warn(prov, f"{int((~ok).sum())} rows without a feature value or level left out")
-    data = data[ok]
-    data = data.merge(tr, on=COUNTY, how="left")
-    no_trait = data[numeric].isna().any(axis=1)
+    no_trait = ok & ~complete[codes_all]
     if no_trait.any():
-        missing = sorted(data.loc[no_trait, COUNTY].unique())
+        missing = sorted(ids_all[np.unique(codes_all[no_trait])])
         _warn(prov, f"{counted(int(no_trait.sum()), 'row', 'rows')} of "
                     f"{counted(len(missing), 'county', 'counties')} without complete "
                     f"traits left out (e.g. {missing[:3]})")
-    data = data[~no_trait].reset_index(drop=True)
-
-    county_traits = data.drop_duplicates(COUNTY)[numeric]
-    sd = county_traits.std(ddof=1).to_numpy()
-    keep = [c for c, s in zip(numeric, sd) if np.isfinite(s) and s > 0]
+    use = ok & ~no_trait
+    del ok, no_trait
+    present, ccodes = np.unique(codes_all[use], return_inverse=True)
+    county_traits = tr_vals[pos[present]]  # (C, K): each county with rows once
+    with np.errstate(invalid="ignore", divide="ignore"):
+        sd = (county_traits.std(axis=0, ddof=1) if len(present) > 1
+              else np.full(len(numeric), np.nan))
+    keep_idx = [k for k, v in enumerate(sd) if np.isfinite(v) and v > 0]
+    keep = [numeric[k] for k in keep_idx]
     if len(keep) < len(numeric):
         _warn(prov, f"traits constant across counties left out: "
                     f"{[c for c in numeric if c not in keep]}")
     if not keep:
         raise ContrastError("no trait varies across the counties with data; nothing to contrast.")
-    mean = county_traits[keep].mean().to_numpy()
-    sd_keep = county_traits[keep].std(ddof=1).to_numpy()
-    data[keep] = (data[keep].to_numpy() - mean) / sd_keep
+    kept = county_traits[:, keep_idx]
+    mean = kept.mean(axis=0)
+    sd_keep = kept.std(axis=0, ddof=1)
+    z_c = (kept - mean) / sd_keep
+    level = frame["level"].to_numpy(dtype=np.float64)[use]
+    data = pd.DataFrame(
+        {
+            COUNTY: pd.Categorical.from_codes(ccodes.astype(np.int32),
+                                              pd.Index(ids_all[present], dtype=object)),
+            "year": frame["year"].to_numpy()[use],
+            "season": frame["season"].to_numpy()[use] if "season" in frame.columns else 0,
+            "y": (level >= 1).astype(np.float64),
+            "x": xv[use],
+        }
+    )
     n_events = int(data["y"].sum())
     if len(data) < 20 or n_events < 5 or n_events > len(data) - 5:
         raise ContrastError(
@@ -326,37 +354,13 @@ def _prepare(target, x, traits, link, cluster, ci, n_pairs, n_boot
             "to fit a county contrast (need >= 20 rows and >= 5 of each outcome)."
         )
     prov.update({"rows_used": int(len(data)), "events": n_events,
-                 "counties": int(data[COUNTY].nunique()),
-                 "traits": keep})
-    return data, keep, sd_keep, prov
+                 "counties": int(len(present)), "traits": keep})
+    return data, z_c, keep, sd_keep, prov
 
 
 def _warn(prov: dict, message: str) -> None:
     prov["warnings"].append(message)
     warnings.warn(message, ContrastWarning, stacklevel=3)
-
-
-def _fit(y, design, groups=None, start=None):
-    import statsmodels.api as sm
-    from statsmodels.tools.sm_exceptions import PerfectSeparationWarning
-
-    model = sm.GLM(y, design, family=sm.families.Binomial())
-    with warnings.catch_warnings():
-        warnings.simplefilter("error", PerfectSeparationWarning)
-        try:
-            if start is not None and not np.isfinite(start).all():
-                start = None
-            if groups is None:
-                return model.fit(start_params=start)
-            codes = pd.factorize(groups)[0]
-            return model.fit(cov_type="cluster", cov_kwds={"groups": codes, "use_correction": True},
-                             use_t=True, start_params=start)
-        except (PerfectSeparationWarning, np.linalg.LinAlgError) as err:
-            raise ContrastError(
-                "the impact is perfectly separated by the index or traits (some trait or index "
-                "range has only events or only non-events); the odds ratios are not estimable. "
-                f"Use fewer traits or more counties. ({type(err).__name__})"
-            ) from None
 
 
 def _terms(fit, names, alpha, sd, n_groups) -> pd.DataFrame:
@@ -385,10 +389,13 @@ def _terms(fit, names, alpha, sd, n_groups) -> pd.DataFrame:
 
 
 def _county_excess(data: pd.DataFrame, p_hat: np.ndarray, alpha: float) -> pd.DataFrame:
-    g = pd.DataFrame({COUNTY: data[COUNTY], "y": data["y"], "p": p_hat})
-    agg = g.groupby(COUNTY, sort=True).agg(rows=("y", "size"), events=("y", "sum"),
-                                                 expected_events=("p", "sum")).reset_index()
-    agg["events"] = agg["events"].astype(np.int64)
+    codes = data[COUNTY].cat.codes.to_numpy()
+    ids = np.asarray(data[COUNTY].cat.categories, dtype=object)  # sorted; all have rows
+    agg = pd.DataFrame({COUNTY: ids,
+                        "rows": np.bincount(codes, minlength=ids.size).astype(np.int64),
+                        "events": np.bincount(codes, data["y"].to_numpy(), ids.size)
+                        .astype(np.int64),
+                        "expected_events": np.bincount(codes, p_hat, ids.size)})
     lo, hi = poisson_ratio_interval(agg["events"], agg["expected_events"], ci=1 - alpha)
     agg["ratio"] = agg["events"] / agg["expected_events"]
     agg["ratio_lo"] = lo
@@ -396,21 +403,26 @@ def _county_excess(data: pd.DataFrame, p_hat: np.ndarray, alpha: float) -> pd.Da
     return agg
 
 
-def _brier_cv(y, xv, z, years, n_boot, alpha, seed, starts=None) -> dict:
+def _brier_cv(y, xv, z, years, n_boot, alpha, seed, starts=None, *, designs=None,
+              jobs=1) -> dict:
     """Leave-one-year-out Brier scores of index-only and index+traits models (``starts``:
-    the two models' fits on all years, when already made)."""
+    the two models' fits on all years, when already made; ``designs``: the two designs,
+    when already built; ``jobs``: threads for the folds)."""
     uniq = np.unique(years)
     if len(uniq) < 3:
         return {"brier_index": np.nan, "brier_traits": np.nan, "brier_change": np.nan,
                 "brier_change_lo": np.nan, "brier_change_hi": np.nan, "n_years": len(uniq)}
-    d0 = np.column_stack([np.ones_like(xv), xv])
-    d1 = np.column_stack([d0, z])
+    if designs is None:
+        d0 = np.column_stack([np.ones_like(xv), xv])
+        d1 = np.column_stack([d0, z])
+    else:
+        d0, d1 = designs
     # every fold starts from the fit on all years (a fold lacks one year of data, so Newton
     # needs two or three steps); the folds share one year-sorted design
     # (impactlink.contrast.foldlogit: no per-fold copy, first step from per-year sums)
     b0, b1 = starts if starts is not None else (_logit_fit(y, d0), _logit_fit(y, d1))
-    p0 = year_out_probabilities(y, d0, years, b0)
-    p1 = year_out_probabilities(y, d1, years, b1)
+    p0 = year_out_probabilities(y, d0, years, b0, jobs=jobs)
+    p1 = year_out_probabilities(y, d1, years, b1, jobs=jobs)
     ok = np.isfinite(p0) & np.isfinite(p1)
     e0 = (p0 - y) ** 2
     e1 = (p1 - y) ** 2
@@ -430,32 +442,24 @@ def _brier_cv(y, xv, z, years, n_boot, alpha, seed, starts=None) -> dict:
             "brier_change_hi": float(hi), "n_years": int(n_y)}
 
 
-def _logit_fit(y, design) -> np.ndarray:
-    """Maximum-likelihood logistic coefficients on all rows (no penalty): the start of
-    every leave-one-year-out fold (:func:`impactlink.contrast.foldlogit.
-    year_out_probabilities`, same Newton-Raphson iteration). The package's batched solver
-    :func:`impactlink.models.batch.fit_logistic_batch`, tested against statsmodels' ``GLM``.
-    """
-    from impactlink.models.batch import fit_logistic_batch
-
-    res = fit_logistic_batch(design[None], y[None], None, ridge=0.0, max_iter=100, tol=1e-8)
-    return res.coef[0]
-
-
-def _pairs(data: pd.DataFrame, trait_names: list[str], n_pairs: int) -> pd.DataFrame:
-    event_seasons = np.unique(data.loc[data["y"] == 1, "season"])
-    season_rows = data[data["season"].isin(event_seasons)]
-    counties = np.array(sorted(season_rows[COUNTY].unique()))
+def _pairs(data: pd.DataFrame, z_c: np.ndarray, trait_names: list[str], n_pairs: int
+           ) -> pd.DataFrame:
+    y_all = data["y"].to_numpy()
+    season = data["season"].to_numpy()
+    sel = np.isin(season, np.unique(season[y_all == 1]))
+    codes = data[COUNTY].cat.codes.to_numpy()[sel]
+    present, inv = np.unique(codes, return_inverse=True)
+    counties = np.asarray(data[COUNTY].cat.categories, dtype=object)[present]  # sorted ids
     cols = (["county_a", "county_b", "exposure_gap", "rate_a", "rate_b", "events_a", "events_b",
              "rows_a", "rows_b", "largest_trait_gap"] + [f"gap_{t}_sd" for t in trait_names])
     if len(counties) < 2 or n_pairs == 0:
         return pd.DataFrame(columns=cols)
-    grouped = season_rows.groupby(COUNTY, sort=True)
-    q = np.vstack([np.quantile(g["x"].to_numpy(), _EXPOSURE_Q) for _, g in grouped])
-    rate = grouped["y"].mean().to_numpy()
-    events = grouped["y"].sum().to_numpy().astype(np.int64)
-    rows = grouped.size().to_numpy()
-    tz = grouped[trait_names].first().to_numpy()
+    rows = np.bincount(inv, minlength=present.size)
+    q = group_quantiles(data["x"].to_numpy()[sel], inv, rows, _EXPOSURE_Q)
+    events_f = np.bincount(inv, y_all[sel], present.size)  # 0/1 sums: exact
+    rate = events_f / rows
+    events = events_f.astype(np.int64)
+    tz = z_c[present]
     gap = pairwise_mean_distance(q, "abs")  # (C, C), in row blocks
     i, j = np.triu_indices(len(counties), k=1)
     g_ij = gap[i, j]

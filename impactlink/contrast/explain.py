@@ -83,6 +83,7 @@ def contrast_counties(
     max_distance: float = MAX_DISTANCE,
     n_pairs: int = 10,
     level_at_least: int = 1,
+    jobs: int = 1,
 ) -> ContrastDecomposition:
     """Explain why two counties (or a county and its region) had different impacts.
 
@@ -111,6 +112,9 @@ def contrast_counties(
         Options of the look-alike finder.
     level_at_least : int, default 1
         The modelled event is level >= this (ordinal targets).
+    jobs : int, default 1
+        Threads for the look-alike distances and the bootstrap refits
+        (:func:`impactlink.execution.thread_map`); the numbers do not depend on ``jobs``.
 
     Returns
     -------
@@ -140,7 +144,8 @@ def contrast_counties(
     impacts, unit = county_year_impacts(target, level_at_least=model.provenance[
         "level_at_least"])
     looks = lookalike_pairs(keys, traj, impacts, traits, counties, max_distance=max_distance,
-                            n_pairs=n_pairs, dry_side="low" if model.b1 < 0 else "high")
+                            n_pairs=n_pairs, dry_side="low" if model.b1 < 0 else "high",
+                            jobs=jobs)
     if pair is None:
         if looks.empty:
             raise ContrastError(
@@ -165,7 +170,7 @@ def contrast_counties(
             raise ContrastError(f"pair names the same county twice ({a_id}); name two counties.")
         b = county_side(model, b_id, period, names.get(b_id, b_id))
     table, point = decomposition_table(model, a, b, period=period, n_boot=n_boot, ci=ci,
-                                       seed=seed)
+                                       seed=seed, jobs=jobs)
     meta = {"target": target.name, "impact": target.impact, "index": index,
             "scale_weeks": int(scale), "lag_weeks": int(lag), "county_a": a.county_id,
             "county_name_a": a.label, "county_b": b.county_id, "county_name_b": b.label,

@@ -101,7 +101,7 @@ def lookalike_pairs(keys: pd.DataFrame, values: np.ndarray, impacts: pd.DataFram
                     traits: pd.DataFrame, counties: pd.DataFrame | None = None, *,
                     max_distance: float = MAX_DISTANCE, n_pairs: int = 10,
                     dry_side: Literal["low", "high"] = "low",
-                    drought_quantile: float = DROUGHT_QUANTILE) -> pd.DataFrame:
+                    drought_quantile: float = DROUGHT_QUANTILE, jobs: int = 1) -> pd.DataFrame:
     """Rank county pairs that looked alike in one drought year but fared differently.
 
     Parameters
@@ -126,6 +126,10 @@ def lookalike_pairs(keys: pd.DataFrame, values: np.ndarray, impacts: pd.DataFram
         A pair-year is "the same drought" when the mean of the two counties' values at the
         reference week (the trajectory's last week) lies in this driest share of all
         county-years' reference-week values.
+    jobs : int, default 1
+        Threads for the row blocks of each year's distance matrix
+        (:func:`impactlink.contrast.pairwise.pairwise_mean_distance`); the numbers do not
+        depend on ``jobs``.
 
     Returns
     -------
@@ -168,7 +172,7 @@ def lookalike_pairs(keys: pd.DataFrame, values: np.ndarray, impacts: pd.DataFram
         val = here["impact"].to_numpy(float)
         hit = here["hit"].fillna(0).to_numpy(float)
         traj = values[idx]
-        dist = pairwise_mean_distance(traj, "rms")  # (n, n), in row blocks
+        dist = pairwise_mean_distance(traj, "rms", jobs=jobs)  # (n, n), in row blocks
         i, j = np.triu_indices(len(idx), k=1)
         keep = (dist[i, j] <= max_distance) & np.isfinite(val[i]) & np.isfinite(val[j])
         keep &= (hit[i] + hit[j]) > 0

@@ -25,7 +25,8 @@ from impactlink.link.target import Target
 from impactlink.models.pooling import estimate_county_deviations
 from impactlink.schema import COUNTY, LEVEL, REGION, YEAR
 
-__all__ = ["TraitModel", "fit_trait_model", "refit", "model_rows", "penalised_fit"]
+__all__ = ["TraitModel", "RefitRows", "fit_trait_model", "refit", "refit_rows", "model_rows",
+           "penalised_fit"]
 
 #: Alternations between the fixed part and the spread tau of the county effects.
 _TAU_ROUNDS = 3
@@ -172,26 +173,66 @@ def fit_trait_model(target: Target, x: np.ndarray, traits: pd.DataFrame,
         rows=rows, county_traits=ct, provenance=prov)
 
 
-def refit(model: TraitModel, row_weights: np.ndarray) -> TraitModel:
-    """The same model refitted with row weights (a bootstrap replicate), tau held fixed."""
+@dataclass(frozen=True)
+class RefitRows:
+    """A model's rows sorted by county, built once for many refits (:func:`refit_rows`).
+
+    Attributes
+    ----------
+    order : ndarray (n,)
+        Position in ``model.rows`` of each sorted row (row weights are taken in this order).
+    design, codes, y : ndarrays
+        Fixed-effect design, county code 0..J-1 (sorted) and outcome of the sorted rows.
+    ids : ndarray (J,)
+        County id of each code.
+    start : ndarray (p + J,)
+        The model's estimate, the start of every refit.
+    """
+
+    order: np.ndarray
+    design: np.ndarray
+    codes: np.ndarray
+    y: np.ndarray
+    ids: np.ndarray
+    start: np.ndarray
+
+
+def refit_rows(model: TraitModel) -> RefitRows:
+    """The rows of ``model`` sorted by county: each county's rows contiguous, so the Newton
+    step's county sums are one segment sum (``np.add.reduceat``) instead of one
+    ``bincount`` per design column."""
     rows = model.rows
     codes, ids = pd.factorize(rows[COUNTY].to_numpy(), sort=True)
+    order = np.argsort(codes, kind="stable")
+    codes = codes[order]
     z_c = model.standardize(model.county_traits.set_index(COUNTY).loc[ids, list(model.traits)]
                             .to_numpy(float))
-    design = _design(rows["x"].to_numpy() - model.x_center, z_c[codes])
+    design = _design(rows["x"].to_numpy()[order] - model.x_center, z_c[codes])
     start = np.concatenate([[model.b0, model.b1], model.gamma, model.delta,
                             model.county_effect.loc[ids].to_numpy()])
-    theta = penalised_fit(design, codes, rows["y"].to_numpy(), row_weights, model.tau,
-                          start=start)
+    return RefitRows(order=order, design=design, codes=codes, y=rows["y"].to_numpy()[order],
+                     ids=np.asarray(ids, dtype=object), start=start)
+
+
+def refit(model: TraitModel, row_weights: np.ndarray, *,
+          prepared: RefitRows | None = None) -> TraitModel:
+    """The same model refitted with row weights (a bootstrap replicate), tau held fixed.
+
+    ``row_weights`` follow the order of ``model.rows``; ``prepared`` (from
+    :func:`refit_rows`) saves rebuilding the sorted design for every replicate.
+    """
+    prep = prepared if prepared is not None else refit_rows(model)
+    theta = penalised_fit(prep.design, prep.codes, prep.y,
+                          np.asarray(row_weights, dtype=float)[prep.order], model.tau,
+                          start=prep.start)
     K = len(model.traits)
-    p = design.shape[1]
+    p = prep.design.shape[1]
     return TraitModel(
         traits=model.traits, b0=float(theta[0]), b1=float(theta[1]),
         gamma=theta[2:2 + K].copy(), delta=theta[2 + K:p].copy(), x_center=model.x_center,
         trait_mean=model.trait_mean, trait_sd=model.trait_sd, tau=model.tau,
-        county_effect=pd.Series(theta[p:], index=pd.Index(np.asarray(ids, dtype=object),
-                                                           name=COUNTY)),
-        rows=rows, county_traits=model.county_traits, provenance=model.provenance)
+        county_effect=pd.Series(theta[p:], index=pd.Index(prep.ids, name=COUNTY)),
+        rows=model.rows, county_traits=model.county_traits, provenance=model.provenance)
 
 
 def penalised_fit(design: np.ndarray, codes: np.ndarray, y: np.ndarray, w: np.ndarray,
@@ -214,9 +255,16 @@ def penalised_fit(design: np.ndarray, codes: np.ndarray, y: np.ndarray, w: np.nd
     -------
     ndarray (p + J,)
         ``beta`` followed by ``u``.
+
+    Notes
+    -----
+    When ``codes`` are sorted with every county present (:func:`refit_rows`), the county
+    sums of the weighted design are segment sums (``np.add.reduceat``, the same additions in
+    the same order as ``bincount``); otherwise one ``bincount`` per column.
     """
     n, p = design.shape
     J = int(codes.max()) + 1
+    seg = _segments(codes, J)
     theta = np.zeros(p + J) if start is None else np.asarray(start, dtype=float).copy()
     prec = 1.0 / tau**2
     for _ in range(max_iter):
@@ -228,8 +276,11 @@ def penalised_fit(design: np.ndarray, codes: np.ndarray, y: np.ndarray, w: np.nd
         g_u = np.bincount(codes, weights=r, minlength=J) - prec * theta[p:]
         dv = design * v[:, None]
         a = dv.T @ design  # (p, p); p is small (2 + 2K columns)
-        cross = np.column_stack([np.bincount(codes, weights=dv[:, c], minlength=J)
-                                 for c in range(p)])  # (J, p)
+        if seg is not None:
+            cross = np.add.reduceat(dv, seg, axis=0)  # (J, p)
+        else:
+            cross = np.column_stack([np.bincount(codes, weights=dv[:, c], minlength=J)
+                                     for c in range(p)])
         d = np.bincount(codes, weights=v, minlength=J) + prec  # diagonal county block
         try:
             step = _arrow_solve(a, cross, d, g_beta, g_u)
@@ -246,6 +297,16 @@ def penalised_fit(design: np.ndarray, codes: np.ndarray, y: np.ndarray, w: np.nd
             "the trait-aware impact model did not converge (the impact is nearly separated by "
             "the index or the traits); use fewer traits or a longer record.")
     return theta
+
+
+def _segments(codes: np.ndarray, J: int) -> np.ndarray | None:
+    """Start of each county's rows when ``codes`` are sorted and all J present, else None."""
+    if codes.size == 0 or np.any(codes[1:] < codes[:-1]):
+        return None
+    starts = np.searchsorted(codes, np.arange(J))
+    if np.any(np.diff(np.r_[starts, codes.size]) <= 0):
+        return None
+    return starts
 
 
 def _arrow_solve(a: np.ndarray, cross: np.ndarray, d: np.ndarray, g_beta: np.ndarray,

@@ -387,7 +387,11 @@ def triggers(project: Project, inputs: InputsResult, ind: IndicesResult, lk: Lin
 
 def contrast(project: Project, inputs: InputsResult, ind: IndicesResult, lk: LinkStageResult,
              rk: RankResult, progress: Progress, *, jobs: int = 1) -> ContrastResult:
-    """County contrasts for each target with a county grain, on its best candidate."""
+    """County contrasts for each target with a county grain, on its best candidate.
+
+    ``jobs`` threads run the leave-one-year-out folds, the look-alike distances and the
+    bootstrap refits; the numbers do not depend on ``jobs``.
+    """
     from impactlink.contrast import county_contrast
     from impactlink.link import feature_values
 
@@ -408,7 +412,9 @@ def contrast(project: Project, inputs: InputsResult, ind: IndicesResult, lk: Lin
         cand = rk.best[target.name][1]
         progress(f"contrast {target.name}: {cand[0]} {cand[1]} weeks, lag {cand[2]}")
         x = feature_values(target, ind.cube, *cand)
-        res = county_contrast(target, x, traits, ci=project.models.curve_ci, seed=project.seed)
+        res = county_contrast(target, x, traits, ci=project.models.curve_ci, seed=project.seed,
+                              jobs=jobs)
+        del x
         meta = _meta(target, cand)
         for frame, bucket in ((res.to_frame(), rows), (res.county_excess, excess),
                               (res.pairs, pairs)):
@@ -418,13 +424,13 @@ def contrast(project: Project, inputs: InputsResult, ind: IndicesResult, lk: Lin
             for i, (k, v) in enumerate(meta.items()):
                 frame.insert(i, k, v)
             bucket.append(frame)
-    explained = _explain_pairs(project, inputs, ind, lk, rk, traits, progress)
+    explained = _explain_pairs(project, inputs, ind, lk, rk, traits, progress, jobs=jobs)
     return ContrastResult(_concat(rows), _concat(excess), _concat(pairs), explained=explained)
 
 
 def _explain_pairs(project: Project, inputs: InputsResult, ind: IndicesResult,
                    lk: LinkStageResult, rk: RankResult, traits: pd.DataFrame,
-                   progress: Progress) -> dict[str, pd.DataFrame]:
+                   progress: Progress, *, jobs: int = 1) -> dict[str, pd.DataFrame]:
     """Exposure / sensitivity / unexplained split of two counties per annual target.
 
     The pair is ``[contrast] counties`` when given, else the most striking look-alike pair.
@@ -455,7 +461,7 @@ def _explain_pairs(project: Project, inputs: InputsResult, ind: IndicesResult,
             res = contrast_counties(
                 target, ind.cube, cand, traits, names, pair=pair, period=period,
                 n_boot=cs.n_boot, ci=project.models.curve_ci, seed=project.seed,
-                level_at_least=max(1, target.n_levels - 1))
+                level_at_least=max(1, target.n_levels - 1), jobs=jobs)
         except ContrastError as exc:
             if pair is not None:
                 raise

@@ -460,14 +460,8 @@ def auc_replicates(q: np.ndarray, n1: np.ndarray, n0: np.ndarray, block: np.ndar
         return np.where(den > 0, num / den, np.nan)
 
 
-_CONTROLLER = None
-
-
 def _one_blas_thread():
-    """Context limiting BLAS to one thread (threadpoolctl, a scikit-learn dependency)."""
-    global _CONTROLLER
-    if _CONTROLLER is None:
-        from threadpoolctl import ThreadpoolController
+    """Context limiting BLAS to one thread (:func:`impactlink.execution.blas_threads`)."""
+    from impactlink.execution import blas_threads
 
-        _CONTROLLER = ThreadpoolController()
-    return _CONTROLLER.limit(limits=1, user_api="blas")
+    return blas_threads(1)
