@@ -22,9 +22,10 @@ __all__ = ["walk_stages", "stage_walk", "col_percentiles", "ColumnPercentiles", 
 _MIN_BLOCK = 512
 
 
-def column_blocks(n: int, jobs: int, min_block: int = _MIN_BLOCK) -> list[slice]:
+def column_blocks(n: int, jobs: int, min_block: int | None = None) -> list[slice]:
     """``jobs`` (or fewer) contiguous slices covering 0..n, none smaller than ``min_block``
-    unless there is only one."""
+    (default :data:`_MIN_BLOCK`) unless there is only one."""
+    min_block = _MIN_BLOCK if min_block is None else min_block
     k = max(1, min(int(jobs), n // max(1, min_block)))
     edges = np.linspace(0, n, k + 1).round().astype(np.int64)
     return [slice(int(a), int(b)) for a, b in zip(edges[:-1], edges[1:]) if b > a]
