@@ -15,7 +15,7 @@ import numpy as np
 from impactlink.execution import thread_map
 
 __all__ = ["walk_stages", "stage_walk", "col_percentiles", "ColumnPercentiles", "year_sums",
-           "column_blocks", "cumsum_rows", "window_count"]
+           "column_blocks", "trailing_sum", "window_count"]
 
 #: Fewest columns worth a thread of their own in the week loops (below it the Python overhead
 #: of every step, run under the GIL, outweighs the arithmetic).
@@ -180,14 +180,27 @@ class ColumnPercentiles:
         self.sorted = np.sort(np.asarray(x, dtype=np.float64), axis=0)  # NaN last
         n = (~np.isnan(self.sorted)).sum(axis=0)  # nanpercentile keeps +-inf
         self.groups = [(int(k), np.flatnonzero(n == k)) for k in np.unique(n) if k > 0]
+        self._cache: dict[float, np.ndarray] = {}
 
     def __call__(self, q) -> np.ndarray:
         q = np.atleast_1d(np.asarray(q, dtype=np.float64))
+        cache = self._cache
+        if cache and all(float(v) in cache for v in q):
+            return np.stack([cache[float(v)] for v in q])
         out = np.full((len(q), self.sorted.shape[1]), np.nan)
         with np.errstate(invalid="ignore"):  # inf - inf between two infinite order statistics
             for k, cols in self.groups:
-                out[:, cols] = np.percentile(self.sorted[:k, cols], q, axis=0).reshape(len(q), -1)
+                part = self.sorted[:k] if len(cols) == self.sorted.shape[1] else (
+                    self.sorted[:k, cols])
+                out[:, cols] = np.percentile(part, q, axis=0).reshape(len(q), -1)
         return out
+
+    def prepare(self, q) -> None:
+        """Compute the percentiles ``q`` in one pass and keep them for later calls (numpy
+        computes each percentile on its own, so the values are the same either way)."""
+        q = np.unique(np.asarray(q, dtype=np.float64))
+        rows = self(q)
+        self._cache = {float(v): rows[i] for i, v in enumerate(q)}
 
 
 def year_sums(x: np.ndarray, starts: np.ndarray, lengths: np.ndarray) -> np.ndarray:
@@ -205,33 +218,36 @@ def year_sums(x: np.ndarray, starts: np.ndarray, lengths: np.ndarray) -> np.ndar
     return np.add.reduceat(x, starts, axis=0, dtype=acc).astype(np.int64)
 
 
-def cumsum_rows(x: np.ndarray) -> np.ndarray:
-    """``np.cumsum(x, axis=0)`` as int32 (counts of at most 2**31 rows), one row at a time.
+def trailing_sum(x: np.ndarray, length: int) -> np.ndarray:
+    """Count of True in the ``length`` rows ending at each row (rows before the first count as
+    False), along axis 0.
 
-    For arrays with many cells per row, adding whole rows is several times faster than numpy's
-    accumulate along axis 0 (which walks each cell's column with a long stride).
+    Built from sums over windows of 1, 2, 4, ... rows (each the sum of two shifted halves) and
+    the binary digits of ``length``: O(log length) whole-array additions, no loop over rows
+    (numpy's cumsum along axis 0 is slow on wide rows, and a row loop holds the GIL). The
+    counts are exact, in the smallest unsigned type that holds ``length``.
     """
     x = np.asarray(x)
-    if x.ndim < 2 or x[:1].size < 256:
-        return np.cumsum(x, axis=0, dtype=np.int32)
-    out = np.empty(x.shape, dtype=np.int32)
-    if len(x):
-        out[0] = x[0]
-    for t in range(1, x.shape[0]):
-        np.add(out[t - 1], x[t], out=out[t])
+    n = x.shape[0]
+    length = max(0, min(int(length), n))
+    dt = np.uint8 if length <= 255 else np.uint16 if length <= 65535 else np.int64
+    out = np.zeros(x.shape, dtype=dt)
+    power = x.astype(dt)  # sums over windows of `span` rows
+    span, offset = 1, 0  # rows already covered by `out`, counted back from each row
+    while span <= length:
+        if length & span:
+            np.add(out[offset:], power[:n - offset], out=out[offset:])
+            offset += span
+        if span * 2 <= length:
+            np.add(power[span:], power[:-span].copy(), out=power[span:])  # 2 * span rows
+        span *= 2
     return out
 
 
 def window_count(x: np.ndarray, *, back: int, ahead: int) -> np.ndarray:
-    """Count of True in rows t-back .. t+ahead (clipped to the rows) for every row t (int32)."""
+    """Count of True in rows t-back .. t+ahead (clipped to the rows) for every row t."""
+    x = np.asarray(x)
     n = x.shape[0]
-    cs = cumsum_rows(x)
-    if n == 0:
-        return cs
-    out = np.empty_like(cs)
-    k = max(n - ahead, 0)
-    out[:k] = cs[ahead:ahead + k]  # rows whose window ends inside the record
-    out[k:] = cs[n - 1]
-    if back + 1 < n:
-        out[back + 1:] -= cs[:n - back - 1]
-    return out
+    if ahead > 0:  # rows after the record count as False: pad, then read each window's end
+        x = np.concatenate([x, np.zeros((ahead,) + x.shape[1:], dtype=x.dtype)])
+    return trailing_sum(x, back + ahead + 1)[ahead:ahead + n]

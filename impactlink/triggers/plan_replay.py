@@ -16,7 +16,7 @@ import pandas as pd
 
 from impactlink.errors import TriggerError
 from impactlink.schema import COUNTY, REGION, WEEK
-from impactlink.triggers.kernels import ColumnPercentiles, cumsum_rows, stage_walk, walk_stages
+from impactlink.triggers.kernels import ColumnPercentiles, stage_walk, trailing_sum, walk_stages
 from impactlink.triggers.plan import PlanRule, PlanStage, TriggerPlan
 
 __all__ = [
@@ -261,22 +261,23 @@ def combine_rules(beyond: np.ndarray, stage: PlanStage) -> np.ndarray:
         return np.asarray(beyond.all(axis=0))
     if stage.combine == "any":
         return np.asarray(beyond.any(axis=0))
-    if stage.combine == "k_of_n":
-        return beyond.sum(axis=0) >= stage.k
+    if stage.combine == "k_of_n":  # rules held, added as bytes (a stage has few rules)
+        held = np.zeros(beyond.shape[1:], dtype=np.uint8 if len(beyond) < 256 else np.int64)
+        for b in beyond:
+            held += b.view(np.uint8) if held.dtype == np.uint8 else b
+        return held >= stage.k
+    # weights of the rules that hold, added rule by rule in rule order (as a sum over axis 0)
     w = np.array([r.weight for r in stage.rules], dtype=float)
-    w = w.reshape((-1,) + (1,) * (beyond.ndim - 1))
-    return (beyond * w).sum(axis=0) >= stage.min_weight - 1e-12
+    total = beyond[0] * w[0]
+    for b, wr in zip(beyond[1:], w[1:], strict=True):
+        total += b * wr
+    return total >= stage.min_weight - 1e-12
 
 
 def persistence_met(cond: np.ndarray, n: int, m: int) -> np.ndarray:
     """True where ``cond`` held in at least ``n`` of the last ``m`` weeks (axis 0), this week
     included; ``n == m`` = n consecutive weeks. Weeks before the record count as not held."""
-    cs = cumsum_rows(cond)  # weeks held up to and including each row
-    out = np.empty(cs.shape, dtype=bool)
-    np.greater_equal(cs[:m], n, out=out[:m])
-    if cs.shape[0] > m:
-        np.greater_equal(cs[m:] - cs[:-m], n, out=out[m:])
-    return out
+    return trailing_sum(cond, m) >= n
 
 
 # --------------------------------------------------------------------------- private steps

@@ -318,27 +318,37 @@ def _candidate_on(replay, s, j, cand_rules, persist_of_k, n_persist, *, jobs=1) 
     month = replay.weeks.month.to_numpy() - 1
     woy = np.minimum(replay.weeks.isocalendar().week.to_numpy(dtype=np.int64), 52) - 1
     reg = replay.unit_regions
-    pct = ColumnPercentiles(x) if cand_rules[0].kind == "percentile" else None  # sorted once
+    pct = None
+    if cand_rules[0].kind == "percentile":  # sorted once; every candidate's values at once
+        pct = ColumnPercentiles(x)
+        pct.prepare([v for r in cand_rules for v in (r.enter, r.exit)])
     e = np.stack([rule_thresholds(r, "enter", x, reg, month, woy, percentiles=pct)
                   for r in cand_rules], axis=1)
     x_ = np.stack([rule_thresholds(r, "exit", x, reg, month, woy, percentiles=pct)
                    for r in cand_rules], axis=1)
-    # candidates are threshold-major: repeat each threshold for every persistence value
-    e, x_ = np.repeat(e, n_persist, axis=1), np.repeat(x_, n_persist, axis=1)
+    # candidates are threshold-major: each threshold's rule tests are repeated for every
+    # persistence value (as booleans, after the comparisons)
     return _ladder_on(replay, s, j, e, x_, np.array(persist_of_k), n_persist, jobs=jobs)
 
 
 def _ladder_on(replay, s, j, enter, exit_, persist, n_persist, *, jobs=1) -> np.ndarray:
+    """(weeks, candidates, units) at stage s+1 or higher; ``enter``/``exit_`` hold one
+    threshold per candidate threshold, each repeated ``n_persist`` times in ``persist``."""
     plan = replay.plan
     values = {k: v[:, None, :] for k, v in replay.values.items()}
     e_thr = {k: v[:, None, :] for k, v in replay.enter_thresholds.items()}
     x_thr = {k: v[:, None, :] for k, v in replay.exit_thresholds.items()}
     e_thr[(s, j)], x_thr[(s, j)] = enter, exit_
     be, bx, known = ladder_tests(plan, values, e_thr, x_thr)
+    if n_persist > 1:
+        bx[s] = np.repeat(bx[s], n_persist, axis=2)
+        known[s] = np.repeat(known[s], n_persist, axis=1)
     ready = None
+    if persist is None and n_persist > 1:
+        be[s] = np.repeat(be[s], n_persist, axis=2)
     if persist is not None:
         st = plan.stages[s]
-        cond = combine_rules(be[s], st)
+        cond = np.repeat(combine_rules(be[s], st), n_persist, axis=1)
         slack = st.enter_window - st.enter_weeks
         ready_s = np.zeros(cond.shape, dtype=bool)
         for p in np.unique(persist):  # a few entry-week values, each one array operation
@@ -357,7 +367,10 @@ def _year_counts(on, impact, counted, years):
     prev = np.zeros_like(on)
     prev[1:] = on[:-1]
     cells = {"hits": on & imp, "false_alarms": on & nimp, "entries": on & ~prev, "weeks_on": on}
-    per_week = {k: v.sum(axis=2, dtype=np.int64) for k, v in cells.items()}  # (weeks, cands)
+    n_u = on.shape[2]  # sums over a block's units in the smallest type that holds them (exact)
+    acc = np.uint8 if n_u <= 255 else np.uint16 if n_u <= 65535 else np.int64
+    per_week = {k: v.view(np.uint8).sum(axis=2, dtype=acc).astype(np.int64)
+                for k, v in cells.items()}  # (weeks, cands)
     per_week["misses"] = impact.sum(axis=1, dtype=np.int64)[:, None] - per_week["hits"]
     per_week["correct_negatives"] = (nimp[:, 0].sum(axis=1, dtype=np.int64)[:, None]
                                      - per_week["false_alarms"])

@@ -98,7 +98,10 @@ def test_window_count_and_persistence_match_direct_counts():
             ref = np.array([x[max(0, t - back):min(n, t + ahead + 1)].sum(axis=0)
                             for t in range(n)]).reshape(x.shape)
             np.testing.assert_array_equal(kernels.window_count(x, back=back, ahead=ahead), ref)
-        np.testing.assert_array_equal(kernels.cumsum_rows(x), np.cumsum(x, axis=0))
+        for length in (1, 2, 7, 9, 64, 1000):
+            ref = np.array([x[max(0, t - length + 1):t + 1].sum(axis=0)
+                            for t in range(n)]).reshape(x.shape)
+            np.testing.assert_array_equal(kernels.trailing_sum(x, length), ref)
         if n:
             # persistence_met docstring: held in at least n of the last m weeks, this one included
             for k, m in [(1, 1), (2, 2), (3, 4), (2, 9)]:
@@ -171,3 +174,22 @@ def test_trigger_plan_does_not_depend_on_jobs(monkeypatch):
     assert set(runs[0]) == set(runs[1])
     for name in runs[0]:
         pd.testing.assert_frame_equal(runs[0][name], runs[1][name], check_exact=True)
+
+
+def test_combinations_match_a_cell_by_cell_reading_of_the_rules():
+    from types import SimpleNamespace
+
+    from impactlink.triggers.plan_replay import combine_rules
+
+    rng = np.random.default_rng(7)
+    beyond = rng.random((4, 30, 5)) < 0.5
+    w = [0.7, 1.1, 0.3, 2.0]
+    rules = [SimpleNamespace(weight=x) for x in w]
+    # combine_rules docstring: "all", "any", at least k rules, or weights summing to min_weight
+    cases = {"all": lambda h: all(h), "any": lambda h: any(h), "k_of_n": lambda h: sum(h) >= 3,
+             "weights": lambda h: sum(x for x, on in zip(w, h) if on) >= 1.8 - 1e-12}
+    for combine, rule in cases.items():
+        stage = SimpleNamespace(combine=combine, rules=rules, k=3, min_weight=1.8)
+        got = combine_rules(beyond, stage)
+        ref = np.array([[rule(beyond[:, t, u].tolist()) for u in range(5)] for t in range(30)])
+        np.testing.assert_array_equal(got, ref)
