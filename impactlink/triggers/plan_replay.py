@@ -330,8 +330,9 @@ def rule_thresholds(rule: PlanRule, which: str, x: np.ndarray, regions, month, w
         return table[month]
     if rule.kind == "percentile":
         uniq, inv = np.unique(table, return_inverse=True)
-        with np.errstate(invalid="ignore"), _quiet():
-            q = (percentiles or ColumnPercentiles(x))(uniq)  # (values, units)
+        # no warnings filter here: catch_warnings is process-wide and this runs on threads;
+        # ColumnPercentiles leaves all-NaN units NaN without numpy's all-NaN warning
+        q = (percentiles or ColumnPercentiles(x))(uniq)  # (values, units)
         q = q.reshape(len(uniq), -1)
         conv = q[inv.reshape(table.shape), np.arange(x.shape[1])[None, :]]
         return conv[month]
@@ -354,20 +355,6 @@ def _weekly_normal(x: np.ndarray, woy: np.ndarray) -> np.ndarray:
     den = onehot @ finite.astype(float)
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(den > 0, num / np.where(den > 0, den, 1.0), np.nan)
-
-
-class _quiet:
-    """Silence numpy's all-NaN-slice warning (a unit without values keeps NaN thresholds)."""
-
-    def __enter__(self):
-        import warnings
-
-        self._cm = warnings.catch_warnings()
-        self._cm.__enter__()
-        warnings.simplefilter("ignore", RuntimeWarning)
-
-    def __exit__(self, *exc):
-        return self._cm.__exit__(*exc)
 
 
 def _beyond(x: np.ndarray, thr: np.ndarray, low: bool) -> np.ndarray:
