@@ -2,10 +2,11 @@
 running counts over weeks.
 
 Each kernel is exact (integer counts, order statistics and numpy's own interpolation), so a
-faster form gives the same numbers as the plain one, and each splits its independent columns
-into blocks that :func:`impactlink.execution.thread_map` runs on ``jobs`` threads (numpy's
-arithmetic releases the GIL). Blocks are combined in column order, so results never depend on
-``jobs``.
+faster form gives the same numbers as the plain one. The stage walk and the column percentiles
+split their independent columns into blocks that :func:`impactlink.execution.thread_map` runs
+on ``jobs`` threads (numpy's arithmetic releases the GIL; the walk's Python steps do not, so
+its threads overlap only partly); each block writes its own columns, so results never depend
+on ``jobs``.
 """
 
 from __future__ import annotations
