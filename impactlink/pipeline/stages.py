@@ -335,6 +335,8 @@ def triggers(project: Project, inputs: InputsResult, ind: IndicesResult, lk: Lin
 
     The index and time scale come from the best candidate of the same impact's onset
     target (a trigger should warn of new impacts), else from the state target itself.
+    ``jobs`` threads share the numpy work (threshold search, replays, plan tuning); the
+    tables are the same for any ``jobs``.
     """
     from impactlink.triggers import audit_triggers, impact_grid
 
@@ -364,7 +366,7 @@ def triggers(project: Project, inputs: InputsResult, ind: IndicesResult, lk: Lin
             weeks=cube.weeks, county_ids=cube.county_ids, regions=regions,
             index=idx, scale_weeks=scale,
             entry_weeks=project.triggers.entry_weeks, exit_weeks=project.triggers.exit_weeks,
-            seed=project.seed,
+            seed=project.seed, jobs=jobs,
         )
         f = res.to_frame().drop(columns=["impact", "target"], errors="ignore")
         f.insert(0, "target", target.name)
@@ -381,7 +383,8 @@ def triggers(project: Project, inputs: InputsResult, ind: IndicesResult, lk: Lin
         tables = inputs.bundle.tables
         plan = run_trigger_plan(project.triggers.plan, cube=cube, targets=lk.targets,
                                 counties=tables["counties"],
-                                water_systems=tables.get("water_systems"), seed=project.seed)
+                                water_systems=tables.get("water_systems"), seed=project.seed,
+                                jobs=jobs)
     return TriggersResult(_concat(frames), _concat(timelines), plan)
 
 

@@ -10,6 +10,7 @@ import pandas as pd
 from scipy.special import ndtr
 
 from impactlink.errors import TriggerError
+from impactlink.execution import thread_map
 from impactlink.indices.timegrid import week_monday
 from impactlink.link.target import Target
 from impactlink.schema import COUNTY
@@ -21,7 +22,7 @@ from impactlink.triggers.tune import (
     Objective,
     TuningResult,
     _check_choice,
-    tune_thresholds,
+    _tune_scopes,
 )
 
 __all__ = ["TriggerResult", "audit_triggers", "firing_rate_audit", "impact_grid", "TRIGGER_COLUMNS"]
@@ -147,6 +148,7 @@ def audit_triggers(
     index_scale: IndexScale = "normal",
     timeline_counties: int | list[str] = 3,
     seed: int = 0,
+    jobs: int = 1,
 ) -> TriggerResult:
     """Tune, replay and audit a uniform and a local trigger plan for one index and scale.
 
@@ -174,6 +176,9 @@ def audit_triggers(
         Counties for the timeline frame; an integer n picks the county with the most impact
         episodes, then the ones where the uniform threshold is reached most and least often.
     seed : int
+    jobs : int, default 1
+        Threads for the threshold search (blocks of counties) and for the two plans' replays;
+        every number is the same for any ``jobs``.
 
     Returns
     -------
@@ -209,10 +214,12 @@ def audit_triggers(
         min_level=min_level,
         shrink_events=shrink_events, county_ids=ids, seed=seed,
     )
-    uniform = tune_thresholds(values, impact_level, scope="uniform", **common)
-    local = tune_thresholds(values, impact_level, scope=local_scope, **common)
-    plans = {}
-    for scope, tuned in [("uniform", uniform), ("local", local)]:
+    # the candidates are replayed and counted once for both scopes
+    uniform, local = _tune_scopes(values, impact_level, ("uniform", local_scope), jobs=jobs,
+                                  **common)
+
+    def plan(item):
+        scope, tuned = item
         on = _replay(
             values, tuned.thresholds, tuned.thresholds + exit_offset, entry_weeks, exit_weeks
         )
@@ -222,7 +229,11 @@ def audit_triggers(
         )
         fire = firing_rate_audit(values, tuned.thresholds, index_scale=index_scale, county_ids=ids)
         fire.insert(0, "scope", scope)
-        plans[scope] = (tuned, on, scores, fire)
+        return tuned, on, scores, fire
+
+    # the two plans are independent: one thread each (results kept in this order)
+    items = [("uniform", uniform), ("local", local)]
+    plans = dict(zip(("uniform", "local"), thread_map(plan, items, jobs), strict=True))
     firing = pd.concat([plans["uniform"][3], plans["local"][3]], ignore_index=True)
     chosen = _timeline_counties(timeline_counties, ids, plans["uniform"][2], plans["uniform"][3])
     timeline = _timeline(values, impact_level, weeks, ids, chosen, plans)

@@ -16,6 +16,7 @@ import pandas as pd
 
 from impactlink.errors import TriggerError
 from impactlink.schema import COUNTY, REGION, WEEK
+from impactlink.triggers.kernels import ColumnPercentiles, stage_walk, trailing_sum, walk_stages
 from impactlink.triggers.plan import PlanRule, PlanStage, TriggerPlan
 
 __all__ = [
@@ -94,7 +95,7 @@ class PlanReplay:
         return frame[list(REPLAY_COLUMNS)]
 
 
-def replay_plan(plan: TriggerPlan, *, cube, counties: pd.DataFrame) -> PlanReplay:
+def replay_plan(plan: TriggerPlan, *, cube, counties: pd.DataFrame, jobs: int = 1) -> PlanReplay:
     """Replay a trigger plan over the whole record of an :class:`~impactlink.indices.IndexCube`.
 
     Parameters
@@ -105,6 +106,9 @@ def replay_plan(plan: TriggerPlan, *, cube, counties: pd.DataFrame) -> PlanRepla
     counties : pandas.DataFrame
         ``county_id`` and ``region`` of every county (regions set region units and region
         overrides).
+    jobs : int, default 1
+        Threads for the stage walk (blocks of units; the stages are the same for any
+        ``jobs``).
 
     Returns
     -------
@@ -158,13 +162,17 @@ def replay_plan(plan: TriggerPlan, *, cube, counties: pd.DataFrame) -> PlanRepla
     woy = np.minimum(weeks.isocalendar().week.to_numpy(dtype=np.int64), 52) - 1
     enter_thr: dict[tuple[int, int], np.ndarray] = {}
     exit_thr: dict[tuple[int, int], np.ndarray] = {}
+    pct: dict = {}  # one column sort per indicator serves all its percentile rules
     for s, st in enumerate(plan.stages):
         for j, rule in enumerate(st.rules):
+            if rule.kind == "percentile" and rule.indicator not in pct:
+                pct[rule.indicator] = ColumnPercentiles(values[rule.indicator])
             for which, store in (("enter", enter_thr), ("exit", exit_thr)):
                 store[(s, j)] = rule_thresholds(rule, which, values[rule.indicator], regions,
-                                                month, woy, source=plan.source, where=(s, j))
+                                                month, woy, source=plan.source, where=(s, j),
+                                                percentiles=pct.get(rule.indicator))
     beyond_enter, beyond_exit, known = ladder_tests(plan, values, enter_thr, exit_thr)
-    stage = ladder_walk(plan, beyond_enter, beyond_exit, known)
+    stage = ladder_walk(plan, beyond_enter, beyond_exit, known, jobs=jobs)
     changes = _changes(stage, beyond_enter, beyond_exit, plan, weeks, ids)
     return PlanReplay(
         plan=plan, weeks=weeks, unit_ids=ids, unit_regions=regions, members=members,
@@ -197,27 +205,22 @@ def ladder_tests(plan: TriggerPlan, values: dict, enter_thr: dict, exit_thr: dic
     return be_all, bx_all, known
 
 
-def ladder_walk(plan: TriggerPlan, beyond_enter, beyond_exit, known, *, entry_ready=None):
+def ladder_walk(plan: TriggerPlan, beyond_enter, beyond_exit, known, *, entry_ready=None,
+                jobs: int = 1):
     """Stages (weeks, ...) from the rule tests of :func:`ladder_tests`.
 
     ``entry_ready`` (stage position -> (weeks, ...) bool) replaces the entry persistence of
-    some stages (used by tuning to try several entry rules at once).
+    some stages (used by tuning to try several entry rules at once). ``jobs`` threads walk
+    blocks of the trailing cells (:func:`walk_stages`).
     """
     entry_ready = entry_ready or {}
-    shape = np.broadcast_shapes(*(b.shape[1:] for b in beyond_enter),
-                                *(np.shape(v) for v in entry_ready.values()))
-    ready = np.stack([
-        np.broadcast_to(entry_ready[s] if s in entry_ready else persistence_met(
-            combine_rules(beyond_enter[s], st), st.enter_weeks, st.enter_window), shape)
-        for s, st in enumerate(plan.stages)
-    ])
-    exit_cond = np.stack([
-        np.broadcast_to(~combine_rules(beyond_exit[s], st) & known[s], shape)
-        for s, st in enumerate(plan.stages)
-    ])
+    ready = [entry_ready[s] if s in entry_ready else persistence_met(
+        combine_rules(beyond_enter[s], st), st.enter_weeks, st.enter_window)
+        for s, st in enumerate(plan.stages)]
+    exit_cond = [~combine_rules(beyond_exit[s], st) & known[s] for s, st in enumerate(plan.stages)]
     exit_weeks = np.array([st.exit_weeks for st in plan.stages])
     min_weeks = np.array([st.min_weeks for st in plan.stages])
-    return walk_stages(ready, exit_cond, exit_weeks, min_weeks)
+    return stage_walk(ready, exit_cond, exit_weeks, min_weeks, jobs=jobs)
 
 
 def plan_units(
@@ -258,55 +261,23 @@ def combine_rules(beyond: np.ndarray, stage: PlanStage) -> np.ndarray:
         return np.asarray(beyond.all(axis=0))
     if stage.combine == "any":
         return np.asarray(beyond.any(axis=0))
-    if stage.combine == "k_of_n":
-        return beyond.sum(axis=0) >= stage.k
+    if stage.combine == "k_of_n":  # rules held, added as bytes (a stage has few rules)
+        held = np.zeros(beyond.shape[1:], dtype=np.uint8 if len(beyond) < 256 else np.int64)
+        for b in beyond:
+            held += b.view(np.uint8) if held.dtype == np.uint8 else b
+        return held >= stage.k
+    # weights of the rules that hold, added rule by rule in rule order (as a sum over axis 0)
     w = np.array([r.weight for r in stage.rules], dtype=float)
-    w = w.reshape((-1,) + (1,) * (beyond.ndim - 1))
-    return (beyond * w).sum(axis=0) >= stage.min_weight - 1e-12
+    total = beyond[0] * w[0]
+    for b, wr in zip(beyond[1:], w[1:], strict=True):
+        total += b * wr
+    return total >= stage.min_weight - 1e-12
 
 
 def persistence_met(cond: np.ndarray, n: int, m: int) -> np.ndarray:
     """True where ``cond`` held in at least ``n`` of the last ``m`` weeks (axis 0), this week
     included; ``n == m`` = n consecutive weeks. Weeks before the record count as not held."""
-    cs = np.concatenate([np.zeros((1,) + cond.shape[1:], dtype=np.int64),
-                         np.cumsum(cond, axis=0, dtype=np.int64)])
-    t = np.arange(cond.shape[0])
-    return (cs[t + 1] - cs[np.maximum(t + 1 - m, 0)]) >= n
-
-
-def walk_stages(
-    entry_ready: np.ndarray, exit_cond: np.ndarray, exit_weeks: np.ndarray, min_weeks: np.ndarray
-) -> np.ndarray:
-    """The stage walk: (stages, weeks, ...) entry readiness and exit conditions -> (weeks, ...)
-    stage.
-
-    The loop runs over weeks because the exit rules depend on the stage and on when it was
-    entered; every step is vectorised over all stages and trailing axes (units, candidates).
-    The run of weeks meeting each stage's exit condition is counted inside the loop (one small
-    array per step instead of a (stages, weeks, ...) array of run lengths).
-    """
-    n_s, n_t = entry_ready.shape[:2]
-    shape = entry_ready.shape[2:]
-    level = np.arange(1, n_s + 1).reshape((-1, 1) + (1,) * len(shape))
-    highest_ready = np.where(entry_ready, level, 0).max(axis=0)  # (weeks, ...)
-    out = np.zeros((n_t,) + shape, dtype=np.int8)
-    state = np.zeros(shape, dtype=np.int64)
-    entered = np.zeros(shape, dtype=np.int64)
-    ew = np.append(exit_weeks, 0).astype(np.int64)  # index -1 (state 0) is never used
-    mw = np.append(min_weeks, 0).astype(np.int64)
-    runs = np.zeros((n_s,) + shape, dtype=np.int64)
-    for t in range(n_t):
-        runs = np.where(exit_cond[:, t], runs + 1, 0)
-        hi = highest_ready[t]
-        since = t - entered
-        cur = state - 1
-        run = np.take_along_axis(runs, np.maximum(cur, 0)[None], axis=0)[0]
-        down = (state > 0) & (np.minimum(run, since) >= ew[cur]) & (since >= mw[cur])
-        new = np.where(hi > state, hi, np.where(down, state - 1, state))
-        entered = np.where(new != state, t, entered)
-        state = new
-        out[t] = state
-    return out
+    return trailing_sum(cond, m) >= n
 
 
 # --------------------------------------------------------------------------- private steps
@@ -334,11 +305,15 @@ def _unit_mean(x: np.ndarray, members: np.ndarray) -> np.ndarray:
 
 
 def rule_thresholds(rule: PlanRule, which: str, x: np.ndarray, regions, month, woy, *,
-                    source: str = "<plan>", where: tuple[int, int] = (0, 0)) -> np.ndarray:
+                    source: str = "<plan>", where: tuple[int, int] = (0, 0),
+                    percentiles=None) -> np.ndarray:
     """(weeks, units) threshold of one rule in index units (see :func:`replay_plan`, Notes).
 
     ``which`` is "enter" or "exit"; ``month`` (0-11) and ``woy`` (ISO week of year 0-51) are
-    per row; ``regions`` per unit.
+    per row; ``regions`` per unit. ``percentiles`` (q -> (len(q), units)), when given, stands
+    for ``np.nanpercentile(x, q, axis=0)`` (e.g. a
+    :class:`~impactlink.triggers.kernels.ColumnPercentiles` of ``x``, sorted once for many
+    rules).
     """
     s, j = where
     base = rule.enter if which == "enter" else rule.exit
@@ -355,8 +330,9 @@ def rule_thresholds(rule: PlanRule, which: str, x: np.ndarray, regions, month, w
         return table[month]
     if rule.kind == "percentile":
         uniq, inv = np.unique(table, return_inverse=True)
-        with np.errstate(invalid="ignore"), _quiet():
-            q = np.nanpercentile(x, uniq, axis=0)  # (values, units)
+        # no warnings filter here: catch_warnings is process-wide and this runs on threads;
+        # ColumnPercentiles leaves all-NaN units NaN without numpy's all-NaN warning
+        q = (percentiles or ColumnPercentiles(x))(uniq)  # (values, units)
         q = q.reshape(len(uniq), -1)
         conv = q[inv.reshape(table.shape), np.arange(x.shape[1])[None, :]]
         return conv[month]
@@ -379,20 +355,6 @@ def _weekly_normal(x: np.ndarray, woy: np.ndarray) -> np.ndarray:
     den = onehot @ finite.astype(float)
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(den > 0, num / np.where(den > 0, den, 1.0), np.nan)
-
-
-class _quiet:
-    """Silence numpy's all-NaN-slice warning (a unit without values keeps NaN thresholds)."""
-
-    def __enter__(self):
-        import warnings
-
-        self._cm = warnings.catch_warnings()
-        self._cm.__enter__()
-        warnings.simplefilter("ignore", RuntimeWarning)
-
-    def __exit__(self, *exc):
-        return self._cm.__exit__(*exc)
 
 
 def _beyond(x: np.ndarray, thr: np.ndarray, low: bool) -> np.ndarray:

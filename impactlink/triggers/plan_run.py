@@ -91,6 +91,7 @@ def run_trigger_plan(
     counties: pd.DataFrame,
     water_systems: pd.DataFrame | None = None,
     seed: int = 0,
+    jobs: int = 1,
 ) -> TriggerPlanResult:
     """Replay a trigger plan, score it against its impact, tune it and compare thresholds.
 
@@ -111,6 +112,9 @@ def run_trigger_plan(
         "water_systems"`` (a county without one is not exposed to restrictions).
     seed : int, default 0
         Seed of the year-block bootstrap.
+    jobs : int, default 1
+        Threads for the replay's stage walk and the tuning's blocks of units (the same numbers
+        for any ``jobs``).
 
     Returns
     -------
@@ -128,7 +132,7 @@ def run_trigger_plan(
     """
     if not isinstance(plan, TriggerPlan):
         plan = load_trigger_plan(plan)
-    replay = replay_plan(plan, cube=cube, counties=counties)
+    replay = replay_plan(plan, cube=cube, counties=counties, jobs=jobs)
     sc = plan.scoring
     if sc.impact is None:
         empty = pd.DataFrame(columns=list(MEMO_COLUMNS))
@@ -143,9 +147,9 @@ def run_trigger_plan(
     tuning = ul = None
     if plan.tuning is not None:
         tuning = tune_stage(replay, level, plan.tuning, exposed=exposed,
-                            min_level=sc.min_level, seed=seed)
+                            min_level=sc.min_level, seed=seed, jobs=jobs)
         ul = uniform_vs_local(replay, level, plan.tuning, exposed=exposed,
-                              min_level=sc.min_level)
+                              min_level=sc.min_level, jobs=jobs)
     memo = memo_numbers(replay, scores, level, exposed=exposed, impact=sc.impact,
                         min_level=sc.min_level)
     t_stage = (plan.stage_names.index(plan.tuning.stage) + 1 if plan.tuning is not None

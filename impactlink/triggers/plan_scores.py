@@ -16,6 +16,7 @@ import pandas as pd
 from impactlink.errors import TriggerError
 from impactlink.schema import REGION
 from impactlink.skill.scores import ContingencyScores
+from impactlink.triggers.kernels import window_count
 from impactlink.triggers.plan import SEASON_MONTHS
 from impactlink.triggers.plan_replay import PlanReplay
 
@@ -132,8 +133,8 @@ def score_plan(
     # integer group codes per cell (names, codes): seasons vary by row, regions by column
     s_names, s_code = np.unique(season.astype(str), return_inverse=True)
     r_names, r_code = np.unique(np.array(replay.unit_regions, dtype=str), return_inverse=True)
-    season_groups = (s_names, np.broadcast_to(s_code[:, None], (n_t, n_u)))
-    region_groups = (r_names, np.broadcast_to(r_code[None, :], (n_t, n_u)))
+    season_groups = (s_names, s_code, 0)  # a code per week
+    region_groups = (r_names, r_code, 1)  # a code per unit
     rows, leads = [], []
     for s, name in enumerate(replay.plan.stage_names, start=1):
         on = replay.stage >= s
@@ -231,9 +232,9 @@ def _cells(on, in_stage, impact, known, window_weeks, flip_weeks) -> dict[str, n
     prev_nimp[1:] = nimp[:-1]
     entry = on & ~prev_on
     exit_ = ~on & prev_on
-    recent_exit = _window_count(exit_, back=flip_weeks, ahead=0) > 0
+    recent_exit = window_count(exit_, back=flip_weeks, ahead=0) > 0
     n = on.shape[0]
-    judged = (_window_count(known, back=0, ahead=window_weeks) == window_weeks + 1) & (
+    judged = (window_count(known, back=0, ahead=window_weeks) == window_weeks + 1) & (
         (np.arange(n) + window_weeks < n)[:, None]
     )
     return {
@@ -242,14 +243,6 @@ def _cells(on, in_stage, impact, known, window_weeks, flip_weeks) -> dict[str, n
         "entry": entry, "judged": judged, "flip_flops": entry & recent_exit,
         "unit_weeks": np.ones_like(on), "weeks_in_stage": in_stage,
     }
-
-
-def _window_count(x: np.ndarray, *, back: int, ahead: int) -> np.ndarray:
-    n = x.shape[0]
-    cs = np.concatenate([np.zeros((1,) + x.shape[1:], dtype=np.int64),
-                         np.cumsum(x, axis=0, dtype=np.int64)])
-    t = np.arange(n)
-    return cs[np.minimum(t + ahead + 1, n)] - cs[np.maximum(t - back, 0)]
 
 
 def _first_at_or_after(mask: np.ndarray) -> np.ndarray:
@@ -278,13 +271,15 @@ def _leads(m, on, impact, known, tt, uu, replay, seasons, regions, s) -> pd.Data
 
 
 def _grouped(cells, lead, by, grouping, s, name) -> pd.DataFrame:
+    names = ("hits", "false_alarms", "misses", "correct_negatives") + _EPISODE_COUNTS
+    counts: dict[str, np.ndarray]
     if grouping is None:
-        codes, groups = np.zeros(cells["hits"].size, dtype=np.int64), np.array(["all"])
-    else:
-        groups, codes = grouping[0], grouping[1].ravel()
-    k = len(groups)
-    counts = {c: np.bincount(codes, weights=cells[c].ravel(), minlength=k) for c in
-              ("hits", "false_alarms", "misses", "correct_negatives") + _EPISODE_COUNTS}
+        groups = np.array(["all"])
+        counts = {c: np.array([cells[c].sum()], dtype=np.float64) for c in names}
+    else:  # codes along one axis: integer sums along the other, then per group (exact)
+        groups, codes, axis = grouping
+        counts = {c: np.bincount(codes, weights=cells[c].sum(axis=1 - axis),
+                                 minlength=len(groups)) for c in names}
     frame = ContingencyScores.frame_from_counts(
         counts["hits"], counts["false_alarms"], counts["misses"], counts["correct_negatives"]
     )

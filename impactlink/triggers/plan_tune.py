@@ -14,9 +14,11 @@ import numpy as np
 import pandas as pd
 
 from impactlink.errors import TriggerError
+from impactlink.execution import thread_map
 from impactlink.schema import COUNTY, REGION
 from impactlink.skill.folds import leave_one_year_out, year_bootstrap_weights
 from impactlink.skill.scores import ContingencyScores
+from impactlink.triggers.kernels import ColumnPercentiles, col_percentiles
 from impactlink.triggers.plan import PlanTuning
 from impactlink.triggers.plan_replay import (
     PlanReplay,
@@ -118,6 +120,7 @@ def tune_stage(
     exposed: np.ndarray | None = None,
     min_level: int = 1,
     seed: int = 0,
+    jobs: int = 1,
 ) -> StageTuning:
     """Search the entry threshold of one rule and the entry weeks of one stage.
 
@@ -135,6 +138,8 @@ def tune_stage(
     min_level : int, default 1
     seed : int, default 0
         Seed of the year-block bootstrap.
+    jobs : int, default 1
+        Threads for the blocks of units (the counts are the same for any ``jobs``).
 
     Returns
     -------
@@ -192,14 +197,18 @@ def tune_stage(
     # billions of cells; every unit's ladder is walked on its own, so the counts of the
     # blocks add up to those of all units at once
     step = max(1, _MAX_CELLS // max(1, n_weeks * len(grid)))
-    per_year: dict[str, np.ndarray] = {}
-    for lo in range(0, n_units, step):
-        sl = slice(lo, min(n_units, lo + step))
+    blocks = [slice(lo, min(n_units, lo + step)) for lo in range(0, n_units, step)]
+    # blocks run on `jobs` threads (one block: its walk does); counts are added in block order
+    walk_jobs = jobs if len(blocks) == 1 else 1
+
+    def block_counts(sl: slice) -> dict[str, np.ndarray]:
         on = _candidate_on(_unit_block(replay, sl), s, j, cand_rules, [g[1] for g in grid],
-                           len(persist))
-        part, uniq_years = _year_counts(on, impact[:, sl], counted[:, sl], years)
-        per_year = part if not per_year else {k: per_year[k] + part[k] for k in per_year}
-        del on
+                           len(persist), jobs=walk_jobs)
+        return _year_counts(on, impact[:, sl], counted[:, sl], years)[0]
+
+    parts = thread_map(block_counts, blocks, jobs)
+    per_year = {k: sum(p[k] for p in parts[1:]) + parts[0][k] for k in parts[0]}
+    uniq_years = np.unique(years)
     choose = _Objective(tuning, n_units)
     total = {k: v.sum(axis=0) for k, v in per_year.items()}
     score_all = choose(total, len(uniq_years))
@@ -223,6 +232,7 @@ def uniform_vs_local(
     *,
     exposed: np.ndarray | None = None,
     min_level: int = 1,
+    jobs: int = 1,
 ) -> pd.DataFrame:
     """One statewide threshold against per-unit thresholds at the same local percentile.
 
@@ -251,12 +261,13 @@ def uniform_vs_local(
     gap = rule.exit - rule.enter if rule.kind == "percentile" else (10.0 if low else -10.0)
     p_exit = float(np.clip(p + gap, 0, 100))
     with np.errstate(invalid="ignore"):
-        local = np.nanpercentile(x, [p, p_exit], axis=0)  # (2, units)
+        local = col_percentiles(x, [p, p_exit], jobs=jobs)  # (2, units): nanpercentile
         pooled = np.nanpercentile(x[np.isfinite(x)], [p, p_exit])
     enter = np.stack([np.broadcast_to(pooled[0], local[0].shape), local[0]])  # (2, units)
     exit_ = np.stack([np.broadcast_to(pooled[1], local[1].shape), local[1]])
     on = _ladder_on(replay, s, j, np.broadcast_to(enter[None], (len(replay.weeks),) + enter.shape),
-                    np.broadcast_to(exit_[None], (len(replay.weeks),) + exit_.shape), None, 1)
+                    np.broadcast_to(exit_[None], (len(replay.weeks),) + exit_.shape), None, 1,
+                    jobs=jobs)
     impact, counted = unit_impacts(replay, impact_level, exposed=exposed, min_level=min_level)
     imp, cnt = impact[:, None, :], counted[:, None, :]
     prev = np.zeros_like(on)
@@ -301,51 +312,69 @@ def _unit_block(replay: PlanReplay, sl: slice) -> PlanReplay:
                    exit_thresholds={k: v[..., sl] for k, v in replay.exit_thresholds.items()})
 
 
-def _candidate_on(replay, s, j, cand_rules, persist_of_k, n_persist) -> np.ndarray:
+def _candidate_on(replay, s, j, cand_rules, persist_of_k, n_persist, *, jobs=1) -> np.ndarray:
     """(weeks, candidates, units): unit at stage s+1 or higher, for every candidate."""
     x = replay.values[cand_rules[0].indicator]
     month = replay.weeks.month.to_numpy() - 1
     woy = np.minimum(replay.weeks.isocalendar().week.to_numpy(dtype=np.int64), 52) - 1
     reg = replay.unit_regions
-    e = np.stack([rule_thresholds(r, "enter", x, reg, month, woy) for r in cand_rules], axis=1)
-    x_ = np.stack([rule_thresholds(r, "exit", x, reg, month, woy) for r in cand_rules], axis=1)
-    # candidates are threshold-major: repeat each threshold for every persistence value
-    e, x_ = np.repeat(e, n_persist, axis=1), np.repeat(x_, n_persist, axis=1)
-    return _ladder_on(replay, s, j, e, x_, np.array(persist_of_k), n_persist)
+    pct = None
+    if cand_rules[0].kind == "percentile":  # sorted once; every candidate's values at once
+        pct = ColumnPercentiles(x)
+        pct.prepare([v for r in cand_rules for v in (r.enter, r.exit)])
+    e = np.stack([rule_thresholds(r, "enter", x, reg, month, woy, percentiles=pct)
+                  for r in cand_rules], axis=1)
+    x_ = np.stack([rule_thresholds(r, "exit", x, reg, month, woy, percentiles=pct)
+                   for r in cand_rules], axis=1)
+    # candidates are threshold-major: each threshold's rule tests are repeated for every
+    # persistence value (as booleans, after the comparisons)
+    return _ladder_on(replay, s, j, e, x_, np.array(persist_of_k), n_persist, jobs=jobs)
 
 
-def _ladder_on(replay, s, j, enter, exit_, persist, n_persist) -> np.ndarray:
+def _ladder_on(replay, s, j, enter, exit_, persist, n_persist, *, jobs=1) -> np.ndarray:
+    """(weeks, candidates, units) at stage s+1 or higher; ``enter``/``exit_`` hold one
+    threshold per candidate threshold, each repeated ``n_persist`` times in ``persist``."""
     plan = replay.plan
     values = {k: v[:, None, :] for k, v in replay.values.items()}
     e_thr = {k: v[:, None, :] for k, v in replay.enter_thresholds.items()}
     x_thr = {k: v[:, None, :] for k, v in replay.exit_thresholds.items()}
     e_thr[(s, j)], x_thr[(s, j)] = enter, exit_
     be, bx, known = ladder_tests(plan, values, e_thr, x_thr)
+    if n_persist > 1:
+        bx[s] = np.repeat(bx[s], n_persist, axis=2)
+        known[s] = np.repeat(known[s], n_persist, axis=1)
     ready = None
+    if persist is None and n_persist > 1:
+        be[s] = np.repeat(be[s], n_persist, axis=2)
     if persist is not None:
         st = plan.stages[s]
-        cond = combine_rules(be[s], st)
+        cond = np.repeat(combine_rules(be[s], st), n_persist, axis=1)
         slack = st.enter_window - st.enter_weeks
         ready_s = np.zeros(cond.shape, dtype=bool)
         for p in np.unique(persist):  # a few entry-week values, each one array operation
             sel = persist == p
             ready_s[:, sel] = persistence_met(cond[:, sel], int(p), int(p) + slack)
         ready = {s: ready_s}
-    return ladder_walk(plan, be, bx, known, entry_ready=ready) >= s + 1
+    return ladder_walk(plan, be, bx, known, entry_ready=ready, jobs=jobs) >= s + 1
 
 
 def _year_counts(on, impact, counted, years):
+    """Counts per (year, candidate) summed over units. Misses and correct negatives follow
+    from the impact and no-impact weeks (per week) less the hits and false alarms."""
     uniq, code = np.unique(years, return_inverse=True)
     starts = np.searchsorted(code, np.arange(len(uniq)))
-    imp, cnt = impact[:, None, :], counted[:, None, :]
+    imp, nimp = impact[:, None, :], (counted & ~impact)[:, None, :]
     prev = np.zeros_like(on)
     prev[1:] = on[:-1]
-    cells = {
-        "hits": on & imp, "false_alarms": on & cnt & ~imp, "misses": ~on & imp,
-        "correct_negatives": ~on & cnt & ~imp, "entries": on & ~prev, "weeks_on": on,
-    }
-    out = {k: np.add.reduceat(v.sum(axis=2, dtype=np.int64), starts, axis=0)
-           for k, v in cells.items()}  # (years, candidates)
+    cells = {"hits": on & imp, "false_alarms": on & nimp, "entries": on & ~prev, "weeks_on": on}
+    n_u = on.shape[2]  # sums over a block's units in the smallest type that holds them (exact)
+    acc = np.uint8 if n_u <= 255 else np.uint16 if n_u <= 65535 else np.int64
+    per_week = {k: v.view(np.uint8).sum(axis=2, dtype=acc).astype(np.int64)
+                for k, v in cells.items()}  # (weeks, cands)
+    per_week["misses"] = impact.sum(axis=1, dtype=np.int64)[:, None] - per_week["hits"]
+    per_week["correct_negatives"] = (nimp[:, 0].sum(axis=1, dtype=np.int64)[:, None]
+                                     - per_week["false_alarms"])
+    out = {k: np.add.reduceat(per_week[k], starts, axis=0) for k in _COUNTS}  # (years, cands)
     return out, uniq
 
 

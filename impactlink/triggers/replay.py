@@ -107,14 +107,19 @@ def _replay(
     below = np.broadcast_to(below, shape)
     above = np.broadcast_to(above, shape)
     on = np.zeros(shape, dtype=bool)
-    state = np.zeros(shape[1:], dtype=bool)
     run_below = np.zeros(shape[1:], dtype=np.int32)
     run_above = np.zeros(shape[1:], dtype=np.int32)
-    for t in range(shape[0]):
-        run_below = np.where(below[t], run_below + 1, 0)
-        run_above = np.where(above[t], run_above + 1, 0)
-        state = np.where(state, run_above < exit_weeks, run_below >= entry_weeks)
-        on[t] = state
+    stay = np.zeros(shape[1:], dtype=bool)
+    state = np.zeros(shape[1:], dtype=bool)  # off before the record
+    for t in range(shape[0]):  # in place: a few small array operations per week
+        run_below += 1
+        run_below *= below[t]
+        run_above += 1
+        run_above *= above[t]
+        np.less(run_above, exit_weeks, out=stay)  # an "on" unit stays on
+        np.greater_equal(run_below, entry_weeks, out=on[t])  # an "off" unit turns on
+        np.copyto(on[t], stay, where=state)
+        state = on[t]
     return on
 
 

@@ -9,6 +9,7 @@ import pandas as pd
 
 from impactlink.errors import TriggerError
 from impactlink.skill.scores import ContingencyScores
+from impactlink.triggers.kernels import window_count
 
 __all__ = ["TriggerScores", "evaluate_trigger"]
 
@@ -151,11 +152,12 @@ def week_indicators(
     on = np.broadcast_to(on, shape)
     imp_known = impact & known
     nimp_known = ~impact & known
+    off = ~on
     out = {
         "hits": on & imp_known,
         "false_alarms": on & nimp_known,
-        "misses": ~on & imp_known,
-        "correct_negatives": ~on & nimp_known,
+        "misses": off & imp_known,
+        "correct_negatives": off & nimp_known,
     }
     prev_nimp = np.zeros_like(nimp_known)
     prev_nimp[1:] = nimp_known[:-1]
@@ -165,9 +167,8 @@ def week_indicators(
     hit = onset & on_recent
     out["episodes_hit"] = hit
 
-    prev_on = np.zeros_like(on)
-    prev_on[1:] = on[:-1]
-    start = on & ~prev_on
+    start = on.copy()
+    start[1:] &= off[:-1]  # on this week, off the week before (off before the record)
     out["activations"] = start
     imp_ahead = np.broadcast_to(_window_any(imp_known, back=0, ahead=window_weeks), shape)
     all_known_ahead = np.broadcast_to(_window_all(known, ahead=window_weeks), shape)
@@ -188,26 +189,15 @@ def week_indicators(
 
 def _window_any(x: np.ndarray, *, back: int, ahead: int) -> np.ndarray:
     """True where x is True anywhere in weeks t-back .. t+ahead (clipped to the grid)."""
-    return _window_count(x, back=back, ahead=ahead) > 0
+    return window_count(x, back=back, ahead=ahead) > 0
 
 
 def _window_all(x: np.ndarray, *, ahead: int) -> np.ndarray:
     """True where x holds in every week t .. t+ahead and that span fits in the grid."""
     n = x.shape[0]
-    count = _window_count(x, back=0, ahead=ahead)
+    count = window_count(x, back=0, ahead=ahead)
     fits = (np.arange(n) + ahead < n).reshape((-1,) + (1,) * (x.ndim - 1))
     return (count == ahead + 1) & fits
-
-
-def _window_count(x: np.ndarray, *, back: int, ahead: int) -> np.ndarray:
-    n = x.shape[0]
-    cs = np.concatenate(
-        [np.zeros((1,) + x.shape[1:], dtype=np.int64), np.cumsum(x, axis=0, dtype=np.int64)]
-    )
-    t = np.arange(n)
-    hi = np.minimum(t + ahead + 1, n)
-    lo = np.maximum(t - back, 0)
-    return cs[hi] - cs[lo]
 
 
 def _score_table(counts: dict[str, np.ndarray], labels: list[str]) -> pd.DataFrame:

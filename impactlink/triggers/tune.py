@@ -9,6 +9,8 @@ import numpy as np
 import pandas as pd
 
 from impactlink.errors import TriggerError
+from impactlink.execution import thread_map
+from impactlink.triggers.kernels import year_sums
 from impactlink.triggers.replay import _check_persistence, _check_values, _replay
 from impactlink.triggers.scores import (
     COUNT_NAMES,
@@ -93,6 +95,7 @@ def tune_thresholds(
     shrink_events: float = 5.0,
     county_ids: list[str] | tuple[str, ...] | None = None,
     seed: int = 0,
+    jobs: int = 1,
 ) -> TuningResult:
     """Choose trigger thresholds by grid search and score them on years they never saw.
 
@@ -141,6 +144,9 @@ def tune_thresholds(
     seed : int, default 0
         Accepted for a uniform stage signature; the grid search and leave-one-year-out folds are
         deterministic (ties go to the lowest, i.e. most conservative, threshold).
+    jobs : int, default 1
+        Threads for the replay and counting of every candidate (blocks of counties); the counts,
+        and so every result, are the same for any ``jobs``.
 
     Returns
     -------
@@ -178,6 +184,23 @@ def tune_thresholds(
     Buhlmann, H. (1967). Experience rating and credibility. ASTIN Bulletin, 4(3), 199-207.
     https://doi.org/10.1017/S0515036100008989
     """
+    return _tune_scopes(
+        index_values, impact_level, (scope,), weeks=weeks, candidates=candidates,
+        objective=objective, max_false_alarm_ratio=max_false_alarm_ratio, regions=regions,
+        years=years, cv=cv, entry_weeks=entry_weeks, exit_weeks=exit_weeks,
+        exit_offset=exit_offset, window_weeks=window_weeks, min_level=min_level,
+        shrink_events=shrink_events, county_ids=county_ids, jobs=jobs,
+    )[0]
+
+
+def _tune_scopes(
+    index_values, impact_level, scopes, *, weeks=None, candidates=DEFAULT_CANDIDATES,
+    objective="peirce", max_false_alarm_ratio=0.5, regions=None, years=None,
+    cv="leave_one_year_out", entry_weeks=2, exit_weeks=4, exit_offset=0.0, window_weeks=8,
+    min_level=1, shrink_events=5.0, county_ids=None, seed=0, jobs=1,
+) -> list[TuningResult]:
+    """:func:`tune_thresholds` for several scopes at once: the candidates are replayed and
+    counted once (the counts do not depend on the scope), then each scope is searched."""
     values = _check_values(index_values, "index_values")
     n_weeks, n_counties = values.shape
     lev = np.asarray(impact_level)
@@ -188,7 +211,8 @@ def tune_thresholds(
         )
     cands = _check_candidates(candidates)
     _check_choice(objective, ("peirce", "csi", "target_far"), "objective")
-    _check_choice(scope, ("uniform", "county", "region"), "scope")
+    for scope in scopes:
+        _check_choice(scope, ("uniform", "county", "region"), "scope")
     _check_choice(cv, ("leave_one_year_out", "none"), "cv")
     entry_weeks = _check_persistence(entry_weeks, "entry_weeks")
     exit_weeks = _check_persistence(exit_weeks, "exit_weeks")
@@ -204,7 +228,8 @@ def tune_thresholds(
         )
     if not np.isfinite(shrink_events) or shrink_events < 0:
         raise TriggerError(f"shrink_events must be >= 0; got {shrink_events!r}.")
-    group_of = _region_codes(regions, n_counties, required=scope == "region")
+    group_codes = [_region_codes(regions, n_counties, required=scope == "region")
+                   for scope in scopes]
     year_labels = _year_labels(years, weeks, n_weeks, needed=cv != "none")
     labels = _labels(county_ids, n_counties)
 
@@ -221,9 +246,23 @@ def tune_thresholds(
         )
     counts = _year_counts(
         values, impact, known, cands, year_code, len(uniq_years),
-        entry_weeks, exit_weeks, float(exit_offset), int(window_weeks),
+        entry_weeks, exit_weeks, float(exit_offset), int(window_weeks), jobs=jobs,
     )
     total = {k: v.sum(axis=0) for k, v in counts.items()}
+    curve = _curve(total, cands, values)
+    return [_tune_one(counts, total, curve.copy(), cands, uniq_years, labels, scope, group_of,
+                      objective=objective, max_false_alarm_ratio=max_false_alarm_ratio, cv=cv,
+                      entry_weeks=entry_weeks, exit_weeks=exit_weeks, exit_offset=exit_offset,
+                      window_weeks=window_weeks, min_level=min_level,
+                      shrink_events=shrink_events)
+            for scope, group_of in zip(scopes, group_codes, strict=True)]
+
+
+def _tune_one(counts, total, curve, cands, uniq_years, labels, scope, group_of, *, objective,
+              max_false_alarm_ratio, cv, entry_weeks, exit_weeks, exit_offset, window_weeks,
+              min_level, shrink_events) -> TuningResult:
+    """The search of one scope from the year counts of every candidate."""
+    n_counties = len(labels)
     choose = _Chooser(cands, objective, float(max_false_alarm_ratio), scope, group_of, shrink_events)
 
     k_all = choose(total)
@@ -245,7 +284,6 @@ def tune_thresholds(
         cv_scores = _score_table(held, labels)
         fold_thr = pd.concat(rows, ignore_index=True)
 
-    curve = _curve(total, cands, values)
     settings = {
         "entry_weeks": entry_weeks,
         "exit_weeks": exit_weeks,
@@ -273,21 +311,25 @@ def tune_thresholds(
 # --------------------------------------------------------------------------- private steps
 def _year_counts(
     values, impact, known, cands, year_code, n_years, entry_weeks, exit_weeks, exit_offset,
-    window_weeks,
+    window_weeks, jobs=1,
 ) -> dict[str, np.ndarray]:
-    """Counts per (year, candidate, county) for every name in COUNT_NAMES."""
+    """Counts per (year, candidate, county) for every name in COUNT_NAMES.
+
+    Counties are processed in chunks only to bound memory (weeks x candidates x chunk cells);
+    within a chunk everything is vectorised, and ``jobs`` threads take chunks (each writes its
+    own counties, so the counts do not depend on ``jobs``).
+    """
     n_weeks, n_counties = values.shape
     n_k = len(cands)
-    # rows grouped by year: a stable sort of the weeks by year code, then one reduceat per count
+    # rows grouped by year: a stable sort of the weeks by year code, then one sum per year
     order = np.argsort(year_code, kind="stable")
     in_order = bool(np.all(order == np.arange(n_weeks)))
     starts = np.searchsorted(year_code[order], np.arange(n_years))
+    lengths = np.diff(np.append(starts, n_weeks))
     out = {k: np.zeros((n_years, n_k, n_counties), dtype=np.int64) for k in COUNT_NAMES}
     chunk = max(1, _MAX_CELLS // max(1, n_weeks * n_k))
-    # counties are processed in chunks only to bound memory (weeks x candidates x chunk cells);
-    # within a chunk everything is vectorised
-    for lo in range(0, n_counties, chunk):
-        sl = slice(lo, min(n_counties, lo + chunk))
+
+    def count(sl: slice) -> None:
         on = _replay(
             values[:, None, sl], cands[:, None], cands[:, None] + exit_offset, entry_weeks,
             exit_weeks,
@@ -296,9 +338,14 @@ def _year_counts(
             on, impact[:, None, sl], known[:, None, sl], window_weeks, with_lead=False
         )
         for k in COUNT_NAMES:
-            full = np.broadcast_to(ind[k], on.shape)
-            full = full if in_order else full[order]
-            out[k][:, :, sl] = np.add.reduceat(full, starts, axis=0, dtype=np.int64)
+            v = ind[k]
+            if v.shape[1] == n_k and v.strides[1] == 0:
+                v = v[:, :1]  # the same for every candidate (e.g. episodes): sum it once
+            v = v if in_order else v[order]
+            out[k][:, :, sl] = year_sums(v, starts, lengths)
+
+    chunks = [slice(lo, min(n_counties, lo + chunk)) for lo in range(0, n_counties, chunk)]
+    thread_map(count, chunks, jobs)
     return out
 
 
@@ -311,11 +358,11 @@ class _Chooser:
         self.max_far = max_far
         self.scope = scope
         self.group_of = group_of
-        n_groups = int(group_of.max()) + 1
-        # float membership: group sums by BLAS (integer matrix products have none); counts
-        # are whole numbers far below 2**53, so the float sums are exact
-        self.member = np.zeros((len(group_of), n_groups), dtype=np.float64)
-        self.member[np.arange(len(group_of)), group_of] = 1.0
+        # group sums as integer sums over the counties sorted by group (every group has a
+        # county: the codes come from np.unique); exact, and cheaper than a product with a
+        # (counties x groups) membership matrix
+        self.order = np.argsort(group_of, kind="stable")
+        self.starts = np.searchsorted(group_of[self.order], np.arange(int(group_of.max()) + 1))
         self.shrink_events = shrink_events
 
     def __call__(self, train: dict[str, np.ndarray]) -> np.ndarray:
@@ -324,7 +371,7 @@ class _Chooser:
         k_all = _best(self._score(pooled))  # (1,); all-NaN (no events) -> lowest candidate
         if self.scope == "uniform":
             return np.full(n_counties, k_all[0])
-        group = {k: np.rint(v @ self.member).astype(np.int64)  # (K, G)
+        group = {k: np.add.reduceat(v[:, self.order], self.starts, axis=1)  # (K, G)
                  for k, v in train.items()}
         k_group = _best(self._score(group), fallback=k_all[0])
         if self.scope == "region":
