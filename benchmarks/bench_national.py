@@ -43,15 +43,16 @@ TEMPLATE = ROOT / "scenario_data" / "impactlink.toml"
 SEED = 20261202
 
 
-def _rss_bytes() -> int:
+def _rss_bytes(kids=None) -> int:
     """Memory of this process and its worker processes (``--jobs``): the proportional set
     size (PSS: pages shared by forked workers counted once, split between them) where psutil
-    can read it, else this process's resident set size."""
+    can read it, else this process's resident set size. ``kids``: the live workers, when the
+    caller has listed them."""
     try:
         import psutil
 
         me = psutil.Process()
-        kids = me.children(recursive=True)
+        kids = me.children(recursive=True) if kids is None else kids
         if not kids:
             return int(me.memory_info().rss)
         total = 0
@@ -69,14 +70,14 @@ def _rss_bytes() -> int:
     return 0
 
 
-def _cpu_seconds() -> float:
+def _cpu_seconds(kids=None) -> float:
     """User + system CPU seconds of this process, its finished workers and its live ones."""
     t = os.times()
     total = t.user + t.system + t.children_user + t.children_system
     try:
         import psutil
 
-        for p in psutil.Process().children(recursive=True):
+        for p in psutil.Process().children(recursive=True) if kids is None else kids:
             try:
                 c = p.cpu_times()
                 total += c.user + c.system
@@ -87,19 +88,35 @@ def _cpu_seconds() -> float:
     return total
 
 
-class _Sampler(threading.Thread):
-    """Samples this process's resident set size and CPU time every ``every`` seconds."""
+def _children() -> list:
+    try:
+        import psutil
 
-    def __init__(self, every: float = 0.1) -> None:
+        return psutil.Process().children(recursive=True)
+    except ImportError:
+        return []
+
+
+class _Sampler(threading.Thread):
+    """Samples this process's memory and CPU time every ``every`` seconds.
+
+    The sampler's own cost is kept small, since it shares the cores with the run: the
+    workers are listed once per sample, and while workers are alive (their PSS needs the
+    kernel to walk every page table) samples are taken every ``every_with_workers`` seconds.
+    """
+
+    def __init__(self, every: float = 0.1, every_with_workers: float = 0.5) -> None:
         super().__init__(daemon=True)
         self.every = every
+        self.every_with_workers = every_with_workers
         self.samples: list[tuple[float, int, float]] = []
         self._stop_event = threading.Event()
 
     def run(self) -> None:
         while not self._stop_event.is_set():
-            self.samples.append((time.perf_counter(), _rss_bytes(), _cpu_seconds()))
-            self._stop_event.wait(self.every)
+            kids = _children()
+            self.samples.append((time.perf_counter(), _rss_bytes(kids), _cpu_seconds(kids)))
+            self._stop_event.wait(self.every_with_workers if kids else self.every)
 
     def stop(self) -> None:
         self._stop_event.set()

@@ -11,7 +11,13 @@ from impactlink.skill._shared import _feature
 from impactlink.skill.scores import reliability_table, rps_per_row
 
 
-def _local_and_predictions(ctx, features, units, records, base, table, *, n_local, keep):
+def _local_and_predictions(ctx, features, units, records, base, table, *, n_local, keep,
+                           threads: int = 1):
+    """Per-region and per-unit best of the leading ``n_local`` candidates, the reliability
+    table and the row-level predictions; the leading candidates' row losses are computed on
+    ``threads`` threads (kept in rank order, so the result does not depend on it)."""
+    from impactlink.execution import thread_map
+
     fr = ctx.target.frame.iloc[ctx.rows]
     recs = base + records
     idx = np.flatnonzero(table["model"].to_numpy() == "index")
@@ -21,14 +27,13 @@ def _local_and_predictions(ctx, features, units, records, base, table, *, n_loca
     lvl = ctx.level
     clim_P = base[0]["P_oof"][ctx.block, 0]
     clim_loss = rps_per_row(clim_P, lvl)
-    losses = []
-    best_P = best_eta = None
-    for j, row in enumerate(order):
-        P, eta = _row_probs(ctx, features, units, recs[row])
-        if j == 0:
-            best_P, best_eta = P, eta
-        losses.append(rps_per_row(P, lvl))
-    losses = np.array(losses)
+    best_P, best_eta = _row_probs(ctx, features, units, recs[order[0]])
+
+    def loss(j):
+        P = best_P if j == 0 else _row_probs(ctx, features, units, recs[order[j]])[0]
+        return rps_per_row(P, lvl)
+
+    losses = np.array(thread_map(loss, list(range(order.size)), threads))
     event = (lvl >= 1).astype(float)
     parts = []
     for level_name, col in (("region", "region"), ("unit", "unit_id")):

@@ -213,7 +213,8 @@ def rank_candidates(
     nested = _nested(ctx, records, base)
     pers = _persistence_gain(ctx, table, reps)
     local, preds, rel = _local_and_predictions(ctx, features, units, records, base, table,
-                                               n_local=n_local, keep=keep_predictions)
+                                               n_local=n_local, keep=keep_predictions,
+                                               threads=max(1, int(jobs)))
     summary = _summary(ctx, table, nested, pers, reps)
     prov = {
         "method": "histogram fast path, batched cumulative-logit fits",

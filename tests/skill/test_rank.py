@@ -144,6 +144,9 @@ def test_deterministic_and_same_result_in_a_process_pool():
     a = _rank(tgt, feats, n_boot=30, pairs=True, challenger=False, seed=5)
     b = _rank(tgt, feats, n_boot=30, pairs=True, challenger=False, seed=5, jobs=2)
     pd.testing.assert_frame_equal(a.table, b.table)
+    # the leading candidates' row losses are also computed on two threads
+    pd.testing.assert_frame_equal(a.local, b.local)
+    pd.testing.assert_frame_equal(a.predictions, b.predictions)
 
 
 @pytest.mark.parametrize("cv", ["blocked_k_fold", "leave_one_region_out"])
