@@ -16,7 +16,8 @@ is a least-squares line through ``(log N, log time)`` over the sizes run (two si
 
 Run:  .venv/bin/python benchmarks/bench_national.py                  # quick: 500 counties
       .venv/bin/python benchmarks/bench_national.py --sizes 500 1500 3143 --jobs 2
-      .venv/bin/python benchmarks/bench_national.py --grid-speedup 200  # 1 vs 2 Dask workers
+      .venv/bin/python benchmarks/bench_national.py --grid-speedup 500 --jobs 2  # 1 vs 2 Dask
+      workers (--jobs: the client's histogram threads, the same for both)
       [--out-json result.json] [--workdir /tmp/bench_national]
 Results go to stdout and to the JSON file; copy them into benchmarks/README_national.md.
 The data are invented (the fictional state of Vellmora); nothing here is a test.
@@ -193,13 +194,15 @@ def run_one(n: int, workdir: Path, jobs: int) -> dict:
 
 
 def grid_speedup(n: int, workdir: Path, workers: tuple[int, ...] = (1, 2),
-                 targets: int = 0) -> dict:
+                 targets: int = 0, jobs: int = 1) -> dict:
     """The rank stage (the candidate grid of every target) on local Dask clusters.
 
     One world of ``n`` counties, the stages up to ``link`` in this process, then
     :func:`impactlink.pipeline.stages.rank` once per cluster size: a real
     ``distributed.LocalCluster`` of that many single-threaded worker processes on loopback.
-    ``targets`` > 0 keeps only the first ``targets`` targets. Returns the wall time of each
+    ``targets`` > 0 keeps only the first ``targets`` targets; ``jobs`` is the client's threads
+    for the candidates' histograms (as ``impactlink run --dask ADDRESS --jobs N``; the same for
+    every cluster size, so only the workers differ). Returns the wall time of each
     size, the speed-up of the largest over one worker, and whether the skill tables agree.
     """
     import dataclasses
@@ -218,7 +221,8 @@ def grid_speedup(n: int, workdir: Path, workers: tuple[int, ...] = (1, 2),
     lk = state.link
     if targets > 0:
         lk = dataclasses.replace(lk, targets=lk.targets[:targets])
-    out: dict = {"counties": n, "targets": [t.name for t in lk.targets], "wall_s": {}}
+    out: dict = {"counties": n, "targets": [t.name for t in lk.targets], "client_threads": jobs,
+                 "wall_s": {}}
     tables = {}
     for k in workers:
         with distributed.LocalCluster(n_workers=k, threads_per_worker=1, processes=True,
@@ -228,7 +232,8 @@ def grid_speedup(n: int, workdir: Path, workers: tuple[int, ...] = (1, 2),
                 client.wait_for_workers(k)
                 t0 = time.perf_counter()
                 res = stages.rank(state.project, state.inputs, state.indices, lk,
-                                  lambda _line: None, dask_address=cluster.scheduler_address)
+                                  lambda _line: None, jobs=jobs,
+                                  dask_address=cluster.scheduler_address)
                 out["wall_s"][k] = round(time.perf_counter() - t0, 2)
         tables[k] = res.skill
     first, last = workers[0], workers[-1]
@@ -269,7 +274,8 @@ def main(argv: list[str] | None = None) -> dict:
     workdir = args.workdir or Path(tempfile.mkdtemp(prefix="bench_national_"))
     workdir.mkdir(parents=True, exist_ok=True)
     if args.grid_speedup is not None:
-        res = grid_speedup(args.grid_speedup, workdir, targets=args.grid_targets)
+        res = grid_speedup(args.grid_speedup, workdir, targets=args.grid_targets,
+                           jobs=args.jobs)
         print(json.dumps(res))
         out_json = args.out_json or workdir / "bench_grid_speedup.json"
         out_json.write_text(json.dumps(res, indent=2) + "\n", encoding="utf-8")
