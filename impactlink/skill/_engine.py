@@ -17,6 +17,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from impactlink.execution import blas_threads
 from impactlink.models.batch import fit_cumlogit_batch, fit_logistic_batch
 from impactlink.skill.folds import year_bootstrap_weights
 
@@ -452,16 +453,9 @@ def auc_replicates(q: np.ndarray, n1: np.ndarray, n0: np.ndarray, block: np.ndar
     Pg = np.bincount(key, weights=n1[order], minlength=ng * G).reshape(ng, G)
     Ng = np.bincount(key, weights=n0[order], minlength=ng * G).reshape(ng, G)
     below = np.cumsum(Ng, 0) - Ng
-    with _one_blas_thread():  # a small product: BLAS threads only contend here
+    with blas_threads(1):  # a small product: BLAS threads only contend here
         A = Pg.T @ (below + 0.5 * Ng)  # (G, G)
     num = np.einsum("rg,gh,rh->r", W, A, W)
     den = (W @ Pg.sum(0)) * (W @ Ng.sum(0))
     with np.errstate(invalid="ignore", divide="ignore"):
         return np.where(den > 0, num / den, np.nan)
-
-
-def _one_blas_thread():
-    """Context limiting BLAS to one thread (:func:`impactlink.execution.blas_threads`)."""
-    from impactlink.execution import blas_threads
-
-    return blas_threads(1)

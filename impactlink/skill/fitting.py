@@ -12,6 +12,7 @@ import warnings
 import numpy as np
 
 from impactlink.errors import SkillWarning
+from impactlink.execution import blas_threads
 from impactlink.skill import _engine as E
 from impactlink.skill._shared import _score_oof
 
@@ -65,7 +66,7 @@ def _score_chunk(task) -> list[list[dict]]:
     """Worker: fit and score every CV job of a chunk of same-shaped candidates."""
     hists, layout, variants, W, parallel = task
     if parallel:  # one BLAS thread per worker process: workers already fill the cores
-        with E._one_blas_thread():
+        with blas_threads(1):
             return _score_chunk((hists, layout, variants, W, False))
     out: list[list[dict]] = [[] for _ in hists]
     for model, use_cells, nested in variants:
