@@ -8,13 +8,15 @@ state.
 
 from __future__ import annotations
 
-from collections.abc import Callable, Iterable, Sequence
-from contextlib import AbstractContextManager, nullcontext
+import functools
+from collections import OrderedDict
+from collections.abc import Callable, Iterable, Iterator, Sequence
+from contextlib import AbstractContextManager, contextmanager, nullcontext
 from typing import Any, TypeVar
 
 from impactlink.errors import ExecutionError
 
-__all__ = ["map_tasks", "thread_map", "blas_threads", "ExecutionError"]
+__all__ = ["map_tasks", "thread_map", "blas_threads", "dask_session", "ExecutionError"]
 
 T = TypeVar("T")
 
@@ -27,6 +29,7 @@ def map_tasks(
     dask_address: str | None = None,
     progress: Callable[[str], None] | None = None,
     label: str = "tasks",
+    shared: tuple = (),
 ) -> list[T]:
     """Apply ``fn`` to every task and return the results in task order.
 
@@ -45,11 +48,18 @@ def map_tasks(
         Receives one line of text per ~10 % of tasks done.
     label : str
         Name of the work, for progress lines.
+    shared : tuple, optional
+        Objects every task reads (an index cube, a target's rows): ``fn(task, *shared)`` is
+        called instead of ``fn(task)``, and each object travels to a worker once, not once
+        per task: a process pool's workers receive them when they start (inherited, not
+        pickled, where processes fork); on Dask each is scattered to every worker
+        (``Client.scatter(broadcast=True)``) and remembered by identity while the client
+        lives, so an object shared by several calls (the cube, by every target) is sent once.
 
     Returns
     -------
     list
-        ``[fn(t) for t in tasks]``, in order.
+        ``[fn(t, *shared) for t in tasks]``, in order.
     """
     items: Sequence[Any] = list(tasks)
     n = len(items)
@@ -61,22 +71,42 @@ def map_tasks(
         if progress is not None and (done % step == 0 or done == n):
             progress(f"{label}: {done}/{n}")
 
+    shared = tuple(shared)
     if dask_address:
-        return _run_dask(fn, items, dask_address, tick)
+        return _run_dask(fn, items, dask_address, tick, shared)
     if jobs > 1 and n > 1:
         from concurrent.futures import ProcessPoolExecutor
 
         out: list[T] = []
-        with ProcessPoolExecutor(max_workers=jobs) as pool:
-            for i, res in enumerate(pool.map(fn, items, chunksize=max(1, n // (4 * jobs))), 1):
+        call = functools.partial(_call_shared, fn) if shared else fn
+        with ProcessPoolExecutor(max_workers=jobs, initializer=_set_shared,
+                                 initargs=shared) as pool:
+            for i, res in enumerate(pool.map(call, items, chunksize=max(1, n // (4 * jobs))),
+                                    1):
                 out.append(res)
                 tick(i)
         return out
     out = []
     for i, t in enumerate(items, 1):
-        out.append(fn(t))
+        out.append(fn(t, *shared))
         tick(i)
     return out
+
+
+_SHARED: dict[str, tuple] = {}  # a pool worker's shared objects (set when it starts)
+
+
+def _set_shared(*shared: Any) -> None:
+    _SHARED["objects"] = shared
+
+
+def _call_shared(fn: Callable[..., T], task: Any) -> T:
+    return fn(task, *_SHARED["objects"])
+
+
+def _call_with(fn: Callable[..., T], task: Any, *shared: Any) -> T:
+    """Dask task: ``fn(task, *shared)`` (Dask resolves the scattered objects' futures)."""
+    return fn(task, *shared)
 
 
 def thread_map(fn: Callable[[Any], T], items: Sequence[Any], threads: int) -> list[T]:
@@ -114,7 +144,7 @@ def blas_threads(limit: int | None) -> AbstractContextManager[Any]:
     return _BLAS["controller"].limit(limits=int(limit), user_api="blas")
 
 
-def _run_dask(fn, items, address, tick):
+def _run_dask(fn, items, address, tick, shared=()):
     try:
         from distributed import Client, LocalCluster
     except ImportError:  # pragma: no cover - depends on the optional extra
@@ -123,20 +153,87 @@ def _run_dask(fn, items, address, tick):
             "install the extra: pip install 'impactlink[dask]'"
         ) from None
     local = address == "local"
-    client = _local_client(LocalCluster, Client) if local else Client(address)
+    own = not local and address not in _CLIENTS  # no session: a client for this call only
+    if local:
+        client = _local_client(LocalCluster, Client)
+    elif own:
+        client = _CLIENTS[address] = Client(address)
+    else:
+        client = _CLIENTS[address]
     try:
-        futures = client.map(fn, items, pure=False)
+        if shared:
+            futures = client.map(_call_with, [fn] * len(items), items,
+                                 *[[f] * len(items) for f in _scattered(address, shared)],
+                                 pure=False)
+        else:
+            futures = client.map(fn, items, pure=False)
         results = []
         for i, fut in enumerate(futures, 1):
             try:
                 results.append(fut.result())
             except Exception as exc:  # re-raised with the task position
-                raise ExecutionError(f"task {i - 1} failed on the Dask cluster: {exc}") from exc
+                raise ExecutionError(
+                    f"task {i - 1} failed on the Dask cluster: {exc}") from exc
             tick(i)
         return results
     finally:
-        if not local:  # the local cluster serves every call of this process
-            client.close()
+        if own:
+            _close_client(address)
+
+
+_CLIENTS: dict[str, Any] = {}  # scheduler address -> the client of an open session
+_MEMOS: dict[str, OrderedDict] = {}  # address -> id(object) -> (object, its future)
+_SCATTER_KEPT = 8  # scattered objects remembered per client (least recently used dropped)
+
+
+@contextmanager
+def dask_session(address: str | None) -> Iterator[None]:
+    """Keep one client of the scheduler at ``address`` for every :func:`map_tasks` call in
+    the block, so the objects they share (``shared=``) are scattered once, not per call.
+
+    A no-op for ``None`` and ``"local"`` (the process's local cluster already persists).
+    Without a session each call opens and closes its own client.
+    """
+    if not address or address == "local" or address in _CLIENTS:
+        yield
+        return
+    try:
+        from distributed import Client
+    except ImportError:  # pragma: no cover - depends on the optional extra
+        raise ExecutionError(
+            "a Dask address was given but dask.distributed is not installed; "
+            "install the extra: pip install 'impactlink[dask]'"
+        ) from None
+    _CLIENTS[address] = Client(address)
+    try:
+        yield
+    finally:
+        _close_client(address)
+
+
+def _close_client(address: str) -> None:
+    _MEMOS.pop(address, None)
+    client = _CLIENTS.pop(address, None)
+    if client is not None:
+        client.close()
+
+
+def _scattered(address: str, shared: tuple) -> list[Any]:
+    """Futures of ``shared`` on every worker of the address's client: each object scattered
+    once, found again by identity (the memo keeps the object, so its id is not reused)."""
+    client = _LOCAL["client"] if address == "local" else _CLIENTS[address]
+    memo = _MEMOS.setdefault(address, OrderedDict())
+    out = []
+    for obj in shared:
+        hit = memo.get(id(obj))
+        if hit is None or hit[0] is not obj:
+            hit = (obj, client.scatter(obj, broadcast=True, hash=False))
+            memo[id(obj)] = hit
+            while len(memo) > _SCATTER_KEPT:
+                memo.popitem(last=False)
+        memo.move_to_end(id(obj))
+        out.append(hit[1])
+    return out
 
 
 _LOCAL: dict[str, Any] = {}
@@ -159,6 +256,7 @@ def _local_client(local_cluster: Any, client_cls: Any) -> Any:
 
 def close_local_cluster() -> None:
     """Close the process's local cluster, if one was started."""
+    _MEMOS.pop("local", None)
     client, cluster = _LOCAL.pop("client", None), _LOCAL.pop("cluster", None)
     if client is not None:
         client.close()

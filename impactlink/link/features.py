@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import dataclasses
 import weakref
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -18,9 +19,9 @@ from impactlink.link._common import LinkError
 from impactlink.link.target import Target
 from impactlink.schema import COUNTY
 
-__all__ = ["feature_values", "feature_matrix", "reference_weeks", "candidate_lags",
-           "season_end_weeks", "end_week", "end_month", "with_end_week",
-           "season_in_months"]
+__all__ = ["feature_values", "feature_reader", "FeatureReader", "RowPositions",
+           "feature_matrix", "reference_weeks", "candidate_lags", "season_end_weeks",
+           "end_week", "end_month", "with_end_week", "season_in_months"]
 
 #: A region value needs index values for at least this share of the region's weight.
 MIN_REGION_WEIGHT = 0.5
@@ -68,28 +69,79 @@ def feature_values(target: Target, cube, index: str, scale_weeks: int, lag_weeks
     Region rows combine county values with the rule's weights, renormalised over counties
     with a value; NaN when those hold less than half the region's weight.
     """
+    return _read(cube.get(index, scale_weeks), _row_positions(target, cube), lag_weeks)
+
+
+@dataclass(frozen=True, eq=False)
+class RowPositions:
+    """Where the rows of one target read an index cube: all that :func:`feature_values`
+    needs of the target, without its frame (a few integer arrays, cheap to send to workers).
+
+    ``ref_pos`` (rows,) the reference week's position on the cube's week grid; ``cp``
+    (rows,) the county's column (-1: not in the cube; 0 for region rows); ``window`` and
+    ``stat`` the window rule; ``region`` the (regions, counties) weights, each row's region
+    position and its region's total weight, for region targets (else None).
+    """
+
+    name: str
+    ref_pos: np.ndarray
+    cp: np.ndarray
+    window: int
+    stat: str
+    region: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
+
+    @property
+    def n_rows(self) -> int:
+        return int(self.ref_pos.size)
+
+
+@dataclass(frozen=True, eq=False)
+class FeatureReader:
+    """``reader(index, scale_weeks, lag_weeks)``: :func:`feature_values` of one target.
+
+    The candidate grid's ``features`` argument in a form that pickles without the target
+    frame: ``arrays`` is the cube's ``{(index, scale): (weeks, counties)}`` dict (the same
+    object for every target of a run, so an engine can send it once) and ``rows`` the
+    target's :class:`RowPositions`. Made by :func:`feature_reader`.
+    """
+
+    arrays: dict
+    rows: RowPositions
+
+    def __call__(self, index: str, scale_weeks: int, lag_weeks: int) -> np.ndarray:
+        try:
+            arr = self.arrays[(index, int(scale_weeks))]
+        except KeyError:
+            raise KeyError(f"no index {index!r} at scale {scale_weeks} weeks; available: "
+                           f"{sorted(self.arrays)}") from None
+        return _read(arr, self.rows, lag_weeks)
+
+
+def feature_reader(target: Target, cube) -> FeatureReader:
+    """The :class:`FeatureReader` of ``target`` on ``cube`` (same values as
+    :func:`feature_values`)."""
+    return FeatureReader(cube.arrays, _row_positions(target, cube))
+
+
+def _read(arr: np.ndarray, rp: RowPositions, lag_weeks: int) -> np.ndarray:
+    """The values of one (weeks, counties) array at every row, ``lag_weeks`` back."""
     lag = int(lag_weeks)
     if lag < 0:
         raise LinkError(f"feature_values: lag_weeks must be >= 0, got {lag_weeks}")
-    arr = cube.get(index, scale_weeks)
-    rule = target.rule
-    ref_pos, cp = _positions(target, cube)
-    pos = ref_pos - lag
-    w = max(int(rule.window_weeks), 1)
-    stat = rule.window_stat if w > 1 else "value"
-    if stat not in ("value", "min", "mean"):
-        raise LinkError(f"feature_values: window_stat must be value, min or mean, got {stat!r}")
-    if w == 1 and target.grain != "region_month":  # one week per row: one gather, no window
-        flat, bad = _cells_of_rows(ref_pos, cp, lag, arr.shape)
+    w, stat = rp.window, rp.stat
+    if w == 1 and rp.region is None:  # one week per row: one gather, no window
+        flat, bad = _cells_of_rows(rp.ref_pos, rp.cp, lag, arr.shape)
         vals = np.take(arr, flat)
         if bad is not None:
             vals[bad] = np.nan
         return vals
+    pos = rp.ref_pos - lag
     win = pos[:, None] - (w - 1) + np.arange(w)[None, :]
     ok = (win >= 0) & (win < arr.shape[0])
     winc = np.clip(win, 0, arr.shape[0] - 1)
-    if target.grain == "region_month":
-        return _region_values(target, cube, arr, winc, ok, stat)
+    if rp.region is not None:
+        return _region_values(rp.region, arr, winc, ok, stat)
+    cp = rp.cp
     vals = arr[winc, np.maximum(cp, 0)[:, None]]
     vals = np.where(ok & (cp >= 0)[:, None], vals, np.nan)
     return _reduce(vals, stat, axis=1)
@@ -241,39 +293,46 @@ def _season_start(years, week: int, name: str) -> pd.DatetimeIndex:
     return iso_week_start(years, week)
 
 
-#: (id of a target frame, cube grid) -> (reference week positions, county positions), and
-#: for region targets -> (region weights, row regions, region totals). Target frames are
-#: results and are not modified after construction; an entry is dropped when its frame is
-#: garbage-collected. Saves the date and id lookups when hundreds of candidates are read for
-#: one target.
+#: (id of a target frame, its rule, cube grid) -> (the rule's weights, the target's
+#: :class:`RowPositions`). Target frames are results and are not modified after
+#: construction; an entry is dropped when its frame is garbage-collected. Saves the date
+#: and id lookups when hundreds of candidates are read for one target.
 _POSITIONS: dict[tuple, Any] = {}
 
 
-def _positions(target: Target, cube) -> tuple[np.ndarray, np.ndarray]:
-    fr = target.frame
-    key = (id(fr), len(fr), target.rule.reference, target.rule.season_week,
+def _row_positions(target: Target, cube) -> RowPositions:
+    fr, rule = target.frame, target.rule
+    w = max(int(rule.window_weeks), 1)
+    stat = rule.window_stat if w > 1 else "value"
+    if stat not in ("value", "min", "mean"):
+        raise LinkError(f"feature_values: window_stat must be value, min or mean, got {stat!r}")
+    key = (id(fr), len(fr), rule.reference, rule.season_week, w, stat, id(rule.weights),
            cube.weeks[0], len(cube.weeks), hash(tuple(cube.county_ids)))
     hit = _POSITIONS.get(key)
-    if hit is not None:
-        return hit
+    if hit is not None and hit[0] is rule.weights:  # held, so the weights' id is not reused
+        return hit[1]
     ref = reference_weeks(target)
     ref_pos = ((ref - cube.weeks[0]).days // 7).to_numpy().astype(np.int64)
+    region = None
     if target.grain == "region_month":
         cp = np.zeros(len(fr), dtype=np.int64)
+        region = _region_weights(target, cube)
     else:
         if COUNTY not in fr.columns:
             raise LinkError(f"feature_values: target {target.name!r} has no county_id column")
         cp = pd.Index(cube.county_ids).get_indexer(fr[COUNTY].astype(str))
+    rp = RowPositions(target.name, ref_pos, cp.astype(np.int64), w, stat, region)
     if len(_POSITIONS) > 256:
         _POSITIONS.clear()
-    _POSITIONS[key] = (ref_pos, cp)
+    _POSITIONS[key] = (rule.weights, rp)
     weakref.finalize(fr, _POSITIONS.pop, key, None)
-    return ref_pos, cp
+    return rp
 
 
 #: (reference positions, county positions, lag, grid) -> (those two arrays, the cube cell
-#: of every row, rows outside the grid or None): the last few only, since candidates are read lag by lag (every index and scale at
-#: one lag shares the cells) and each entry is one integer per row.
+#: of every row, rows outside the grid or None): the last few only, since candidates are
+#: read lag by lag (every index and scale at one lag shares the cells) and each entry is
+#: one integer per row.
 _CELLS: dict[tuple, tuple] = {}
 _CELLS_KEPT = 4
 
@@ -304,8 +363,8 @@ def _reduce(vals: np.ndarray, stat: str, axis: int) -> np.ndarray:
     return vals.take(-1, axis=axis)
 
 
-def _region_values(target, cube, arr, winc, ok, stat) -> np.ndarray:
-    W, rows_r, need = _region_weights(target, cube)
+def _region_values(region, arr, winc, ok, stat) -> np.ndarray:
+    W, rows_r, need = region
     # the county values of each distinct window (rows of all regions share a month), then
     # region sums as matrix products: no (rows x window x counties) array
     # a window is fixed by its last week (``winc`` and ``ok`` are functions of it; windows
@@ -333,7 +392,7 @@ def _region_values(target, cube, arr, winc, ok, stat) -> np.ndarray:
     have = np.isfinite(v)
     num_u = np.where(have, v, 0.0) @ W.T               # (windows, regions)
     den_u = have.astype(float) @ W.T
-    out = np.full(len(target.frame), np.nan)
+    out = np.full(rows_r.size, np.nan)
     r = np.maximum(rows_r, 0)
     num = np.where(rows_r >= 0, num_u[inv, r], 0.0)
     den = np.where(rows_r >= 0, den_u[inv, r], 0.0)
@@ -344,15 +403,11 @@ def _region_values(target, cube, arr, winc, ok, stat) -> np.ndarray:
 
 def _region_weights(target, cube) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """(regions, counties) weights, each row's region position (-1: none) and the total
-    weight of its region; kept per target frame and rule weights, as :func:`_positions`."""
+    weight of its region (kept in the target's :class:`RowPositions`)."""
     wts = target.rule.weights
     if wts is None:
         raise LinkError(f"feature_values: region target {target.name!r} has no rule.weights")
     fr = target.frame
-    key = ("regions", id(fr), len(fr), id(wts), len(wts), hash(tuple(cube.county_ids)))
-    hit = _POSITIONS.get(key)
-    if hit is not None and hit[0] is wts:  # the weights are held, so their id is not reused
-        return hit[1:]
     regions = pd.Index(sorted(wts["region"].astype(str).unique()))
     W = np.zeros((len(regions), len(cube.county_ids)))
     cp = pd.Index(cube.county_ids).get_indexer(wts[COUNTY].astype(str))
@@ -362,8 +417,4 @@ def _region_weights(target, cube) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     rcol = "region" if "region" in fr.columns else "unit_id"
     rows_r = regions.get_indexer(fr[rcol].astype(str))
     need = np.where(rows_r >= 0, W.sum(axis=1)[np.maximum(rows_r, 0)], 0.0)
-    if len(_POSITIONS) > 256:
-        _POSITIONS.clear()
-    _POSITIONS[key] = (wts, W, rows_r, need)
-    weakref.finalize(fr, _POSITIONS.pop, key, None)
     return W, rows_r, need

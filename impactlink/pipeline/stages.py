@@ -7,6 +7,7 @@ frames. Progress messages go through the ``progress`` callback.
 from __future__ import annotations
 
 import dataclasses
+import functools
 import warnings as _warnings
 from collections.abc import Callable
 from pathlib import Path
@@ -211,9 +212,14 @@ def link(project: Project, inputs: InputsResult, ind: IndicesResult,
 
 def rank(project: Project, inputs: InputsResult, ind: IndicesResult, lk: LinkStageResult,
          progress: Progress, *, jobs: int = 1, dask_address: str | None = None) -> RankResult:
-    """Rank every candidate out of sample; fit each target's best candidate on all data."""
-    from impactlink.link import feature_values
-    from impactlink.link.features import candidate_lags
+    """Rank every candidate out of sample; fit each target's best candidate on all data.
+
+    With ``dask_address`` one client serves every target
+    (:func:`impactlink.execution.dask_session`), so the index cube travels to the workers
+    once for the whole stage.
+    """
+    from impactlink.execution import dask_session
+    from impactlink.link.features import candidate_lags, feature_reader
     from impactlink.models import crossings, fit_impact_model, impact_curves
     from impactlink.skill import rank_candidates
 
@@ -222,49 +228,50 @@ def rank(project: Project, inputs: InputsResult, ind: IndicesResult, lk: LinkSta
         "skill", "summary", "reliability", "local", "persistence", "curves", "crossings")}
     best: dict[str, tuple[Any, Candidate]] = {}
     skill_tables: dict[str, pd.DataFrame] = {}
-    for target in lk.targets:
-        # a seasonal target searches the end of its accumulation window (as lags from the
-        # latest end week); every other target the modelled lags
-        lags = candidate_lags(target, project.link.lags_weeks)
-        candidates = [(idx, scale, lag) for (idx, scale) in cube.keys for lag in lags]
-        progress(f"rank {target.name}: {len(candidates)} candidates, {target.events} events")
+    with dask_session(dask_address):
+        for target in lk.targets:
+            # a seasonal target searches the end of its accumulation window (as lags from the
+            # latest end week); every other target the modelled lags
+            lags = candidate_lags(target, project.link.lags_weeks)
+            candidates = [(idx, scale, lag) for (idx, scale) in cube.keys for lag in lags]
+            progress(f"rank {target.name}: {len(candidates)} candidates, {target.events} events")
 
-        def features(index, scale, lag, _t=target):  # noqa: ANN001, ANN202
-            return feature_values(_t, cube, index, scale, lag)
-
-        res = rank_candidates(
-            target, features, candidates,
-            cv=sk.cv, k_folds=sk.k_folds, n_boot=sk.n_boot, ci=sk.ci, n_bins=sk.n_bins,
-            pairs=sk.pairs, challenger=sk.challenger, seasonal=project.models.seasonal,
-            seed=project.seed, jobs=jobs, dask_address=dask_address, progress=progress,
-        )
-        monthly = bool(cube.provenance.get("scale_months_of_key"))
-        res = dataclasses.replace(  # every table that names a candidate says its window end
-            res, table=link_features.with_end_week(res.table, target, "lag_weeks", monthly),
-            summary=link_features.with_end_week(res.summary, target, "best_lag_weeks", monthly),
-            local=link_features.with_end_week(res.local, target, "lag_weeks", monthly))
-        for key, frame in (("skill", res.table), ("summary", res.summary),
-                           ("reliability", res.reliability), ("local", res.local),
-                           ("persistence", res.persistence)):
-            parts[key].append(frame)
-        cand = _best_candidate(res.table, target)
-        if cand is None:
-            continue
-        meta = _meta(target, cand)
-        model = fit_impact_model(target, features(*cand), link=project.models.link,
-                                 **_model_options(project, inputs, target), meta=meta)
-        best[target.name] = (model, cand)
-        skill_tables[target.name] = res.table
-        if model.ok:
-            parts["curves"].append(link_features.with_end_week(
-                impact_curves(model, ci=project.models.curve_ci, meta=meta), target,
-                "lag_weeks", monthly))
-            cr = crossings(model, ci=project.models.curve_ci)
-            for k, v in meta.items():
-                if k not in cr.columns:
-                    cr.insert(0, k, v)
-            parts["crossings"].append(link_features.with_end_week(cr, target, "lag_weeks",
-                                                                  monthly))
+            features = feature_reader(target, cube)  # picklable: workers read the cube too
+            res = rank_candidates(
+                target, features, candidates,
+                cv=sk.cv, k_folds=sk.k_folds, n_boot=sk.n_boot, ci=sk.ci, n_bins=sk.n_bins,
+                pairs=sk.pairs, challenger=sk.challenger, seasonal=project.models.seasonal,
+                seed=project.seed, jobs=jobs, dask_address=dask_address, progress=progress,
+            )
+            monthly = bool(cube.provenance.get("scale_months_of_key"))
+            ends = functools.partial(link_features.with_end_week, target=target,
+                                     monthly=monthly)
+            res = dataclasses.replace(  # every table that names a candidate says its window end
+                res, table=ends(res.table, lag_col="lag_weeks"),
+                summary=ends(res.summary, lag_col="best_lag_weeks"),
+                local=ends(res.local, lag_col="lag_weeks"))
+            for key, frame in (("skill", res.table), ("summary", res.summary),
+                               ("reliability", res.reliability), ("local", res.local),
+                               ("persistence", res.persistence)):
+                parts[key].append(frame)
+            cand = _best_candidate(res.table, target)
+            if cand is None:
+                continue
+            meta = _meta(target, cand)
+            model = fit_impact_model(target, features(*cand), link=project.models.link,
+                                     **_model_options(project, inputs, target), meta=meta)
+            best[target.name] = (model, cand)
+            skill_tables[target.name] = res.table
+            if model.ok:
+                parts["curves"].append(link_features.with_end_week(
+                    impact_curves(model, ci=project.models.curve_ci, meta=meta), target,
+                    "lag_weeks", monthly))
+                cr = crossings(model, ci=project.models.curve_ci)
+                for k, v in meta.items():
+                    if k not in cr.columns:
+                        cr.insert(0, k, v)
+                parts["crossings"].append(link_features.with_end_week(cr, target, "lag_weeks",
+                                                                      monthly))
     c = {k: _concat(v) for k, v in parts.items()}
     return RankResult(skill=c["skill"], summary=c["summary"], reliability=c["reliability"],
                       local=c["local"], persistence=c["persistence"], curves=c["curves"],

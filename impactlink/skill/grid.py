@@ -58,6 +58,46 @@ def _check_options(target, candidates, *, cv, ci, n_boot, n_bins, seasonal=False
 
 
 # --------------------------------------------------------------------------- context
+@dataclass(eq=False)
+class _RowsIn:
+    """What the candidates' histograms need of one target's scored rows, without its frame
+    (sent once to each worker when the histograms are built there).
+
+    ``rows`` are the scored positions of the frame (None: every row, in order); ``n_full``
+    the frame's length; ``block`` and ``level`` per scored row; ``pers_cells`` and
+    ``seasons`` as in :class:`_Context`.
+    """
+
+    rows: np.ndarray | None
+    n_full: int
+    block: np.ndarray
+    level: np.ndarray
+    n_blocks: int
+    n_levels: int
+    pers_cells: dict
+    seasons: E.SeasonClasses | None
+    _bases: dict = field(default_factory=dict)  # cached per process: bases, harmonics
+
+    def bases(self, n_bins_total: int) -> tuple[np.ndarray, np.ndarray]:
+        """The rows' :func:`impactlink.skill._engine.hist_bases` without cells (shared by
+        every candidate of the target with ``n_bins_total`` bins)."""
+        hit = self._bases.get(n_bins_total)
+        if hit is None:
+            hit = E.hist_bases(self.block, self.level, None, n_bins_total=n_bins_total,
+                               n_cells=1, n_levels=self.n_levels)
+            self._bases[n_bins_total] = hit
+        return hit
+
+    def harmonics(self) -> tuple[np.ndarray, ...]:
+        """The rows' seasonal terms (sin, cos at their class midpoints), () without seasons."""
+        if self.seasons is None:
+            return ()
+        if "harm" not in self._bases:
+            sea = self.seasons
+            self._bases["harm"] = (sea.harmonics[sea.code, 0], sea.harmonics[sea.code, 1])
+        return self._bases["harm"]
+
+
 @dataclass
 class _Context:
     target: Target
@@ -71,17 +111,19 @@ class _Context:
     season: np.ndarray
     boot_w: np.ndarray  # (1 + R, G): point weights then replicates
     seasons: E.SeasonClasses | None = None  # season classes of the seasonal terms, if used
-    _bases: dict = field(default_factory=dict)  # bins per row -> E.hist_bases without cells
+    rows_in: _RowsIn | None = None  # the rows as the histograms read them
+
+    def __post_init__(self) -> None:
+        if self.rows_in is None:
+            all_rows = self.rows.size == len(self.target.frame)  # distinct positions: all
+            self.rows_in = _RowsIn(None if all_rows else self.rows, len(self.target.frame),
+                                   self.block, self.level, self.layout.n_blocks,
+                                   self.layout.n_levels, self.pers_cells, self.seasons)
 
     def bases(self, n_bins_total: int) -> tuple[np.ndarray, np.ndarray]:
-        """The rows' :func:`impactlink.skill._engine.hist_bases` without cells (shared by
-        every candidate of the target with ``n_bins_total`` bins)."""
-        hit = self._bases.get(n_bins_total)
-        if hit is None:
-            hit = E.hist_bases(self.block, self.level, None, n_bins_total=n_bins_total,
-                               n_cells=1, n_levels=self.layout.n_levels)
-            self._bases[n_bins_total] = hit
-        return hit
+        """:meth:`_RowsIn.bases` of the target's rows."""
+        assert self.rows_in is not None
+        return self.rows_in.bases(n_bins_total)
 
     @classmethod
     def build(cls, target, rows, *, cv, k_folds, n_boot, ci, seed, k_inner, seasonal=False):
@@ -146,42 +188,49 @@ class _Unit:
     plain: E.Hist | None = None  # the index-only histogram without seasons (challenger)
 
 
-def _histograms(ctx, features, cands, *, n_bins, pairs, pair_bins, threads: int = 1
-                ) -> list[_Unit] | None:
+def _histograms(ctx, features, cands, *, n_bins, pairs, pair_bins, threads: int = 1,
+                dask_address: str | None = None, progress=None) -> list[_Unit] | None:
     """One histogram per candidate (and pair); None as soon as a candidate has a gap.
 
-    ``threads`` > 1 builds the (index, lag) groups on that many threads
-    (:func:`impactlink.execution.thread_map`; numpy's arithmetic on the rows releases the GIL,
-    its gathers and ``bincount`` do not, so the gain is partial); the units come back in group
-    order, so the result does not depend on it. The groups are built longest lag first: the
-    spin-up gaps of long scales and lags show there, and a gap stops every group (the caller
-    then finds the rows all candidates can score and starts again).
+    With ``dask_address`` the (index, lag) groups are built on the cluster's workers, one
+    task per group (:func:`_group_task`): the target's rows (:class:`_RowsIn`) and the
+    features travel once per worker (``shared`` of :func:`impactlink.execution.map_tasks`;
+    a :class:`~impactlink.link.features.FeatureReader` as its cube arrays, which every
+    target shares, and its row positions). Otherwise ``threads`` > 1 builds the groups on
+    that many threads (:func:`impactlink.execution.thread_map`; numpy's arithmetic on the
+    rows releases the GIL, its gathers and ``bincount`` do not, so the gain is partial).
+    The units come back in group order and are the same numbers whichever way they were
+    built. The groups are built longest lag first: the spin-up gaps of long scales and lags
+    show there, and a gap stops every group (the caller then finds the rows all candidates
+    can score and starts again).
     """
     import threading
 
     by_group: dict[tuple[str, int], list[int]] = {}
     for ix, sc, lg in cands:
         by_group.setdefault((ix, lg), []).append(sc)
-    sea = ctx.seasons
-    harm = ((sea.harmonics[sea.code, 0], sea.harmonics[sea.code, 1]) if sea is not None
-            else ())  # the rows' seasonal terms, the same for every candidate
     gap = threading.Event()
-
-    def group(item):
-        (ix, lg), scales = item
-        return _group_units(ctx, features, ix, lg, scales, harm, n_bins=n_bins, pairs=pairs,
-                            pair_bins=pair_bins, gap=gap)
-
+    opts = dict(n_bins=n_bins, pairs=pairs, pair_bins=pair_bins)
     items = list(by_group.items())
     order = sorted(range(len(items)), key=lambda i: -items[i][0][1])  # stable: ties in order
-    if threads > 1:
+    if dask_address:
+        from impactlink.execution import map_tasks
+        from impactlink.link.features import FeatureReader
+
+        shared = ((features.arrays, features.rows) if isinstance(features, FeatureReader)
+                  else (features, None))
+        done = map_tasks(_group_task, [(items[i], opts) for i in order],
+                         dask_address=dask_address, shared=(*shared, ctx.rows_in),
+                         progress=progress, label=f"histograms {ctx.target.name}")
+    elif threads > 1:
         from impactlink.execution import thread_map
 
-        done = thread_map(group, [items[i] for i in order], threads)
+        done = thread_map(lambda it: _group_units(ctx.rows_in, features, it, gap=gap, **opts),
+                          [items[i] for i in order], threads)
     else:  # one by one, stopping at the first gap
         done = []
         for i in order:
-            done.append(group(items[i]))
+            done.append(_group_units(ctx.rows_in, features, items[i], **opts))
             if done[-1] is None:
                 break
     if len(done) < len(items) or any(p is None for p in done):
@@ -190,6 +239,18 @@ def _histograms(ctx, features, cands, *, n_bins, pairs, pair_bins, threads: int 
     for i, p in zip(order, done, strict=True):
         parts[i] = p
     return [u for p in parts for u in p]
+
+
+def _group_task(task, features, row_positions, rows_in: _RowsIn) -> list[_Unit] | None:
+    """Worker: the units of one (index, lag) group; ``features`` is the cube's arrays when
+    ``row_positions`` is given (the two parts of a
+    :class:`~impactlink.link.features.FeatureReader`), else the callable itself."""
+    if row_positions is not None:
+        from impactlink.link.features import FeatureReader
+
+        features = FeatureReader(features, row_positions)
+    item, opts = task
+    return _group_units(rows_in, features, item, **opts)
 
 
 def _mean_sd(x: np.ndarray) -> tuple[float, float]:
@@ -209,7 +270,7 @@ def _mean_sd(x: np.ndarray) -> tuple[float, float]:
     return mu, sd if sd > 0 else 1.0
 
 
-def _group_units(ctx, features, ix, lg, scales, harm, *, n_bins, pairs, pair_bins, gap=None
+def _group_units(ri: _RowsIn, features, item, *, n_bins, pairs, pair_bins, gap=None
                  ) -> list[_Unit] | None:
     """The units of one (index, lag) group: every scale, its persistence variant, pairs.
 
@@ -218,14 +279,13 @@ def _group_units(ctx, features, ix, lg, scales, harm, *, n_bins, pairs, pair_bin
     histograms hold sums of the standardized values, made from sums of the raw values
     (:func:`impactlink.skill._engine.build_hist`, ``affine``).
     """
-    n_full = len(ctx.target.frame)
-    all_rows = ctx.rows.size == n_full  # the rows are distinct positions: all of them
+    (ix, lg), scales = item
     xs = {}
     for sc in sorted(set(scales)):
         if gap is not None and gap.is_set():
             return None
-        x = _feature(features, (ix, sc, lg), n_full)
-        x = x if all_rows else x[ctx.rows]
+        x = _feature(features, (ix, sc, lg), ri.n_full)
+        x = x if ri.rows is None else x[ri.rows]
         lo, hi = float(x.min()), float(x.max())  # NaN when any value is
         if not (np.isfinite(lo) and np.isfinite(hi)):
             if gap is not None:
@@ -233,13 +293,14 @@ def _group_units(ctx, features, ix, lg, scales, harm, *, n_bins, pairs, pair_bin
             return None  # a gap: the caller finds the common rows first
         xs[sc] = (x, lo, hi, *_mean_sd(x))
     units = []
-    K = ctx.layout.n_levels
-    sea = ctx.seasons
+    K = ri.n_levels
+    sea = ri.seasons
     n_sea = sea.n_classes if sea is not None else 1
-    cell = ctx.pers_cells.get(lg)
-    base = ctx.bases(n_bins * n_sea)
+    harm = ri.harmonics()  # the same for every candidate
+    cell = ri.pers_cells.get(lg)
+    base = ri.bases(n_bins * n_sea)
     base_cell = (None if cell is None else E.hist_bases(
-        ctx.block, ctx.level, cell, n_bins_total=n_bins * n_sea, n_cells=K + 1, n_levels=K))
+        ri.block, ri.level, cell, n_bins_total=n_bins * n_sea, n_cells=K + 1, n_levels=K))
     codes = {}
     for sc, (x, lo, hi, mu, sd) in xs.items():
         b = E.bin_codes(x, n_bins, lo, hi)
@@ -252,14 +313,14 @@ def _group_units(ctx, features, ix, lg, scales, harm, *, n_bins, pairs, pair_bin
             cols, bs = [x], b
         else:  # seasonal terms: rows by bin x season class, harmonics at class midpoints
             cols = [x, *harm]
-            plain = _hist(ctx, [x], b, None, n_bins, 1, bases=ctx.bases(n_bins),
+            plain = _hist(ri, [x], b, None, n_bins, 1, bases=ri.bases(n_bins),
                           affine=aff[:1])
             bs = b * n_sea
             bs += sea.code
         if cell is None:
-            h = _hist(ctx, cols, bs, None, n_bins * n_sea, 1, bases=base, affine=aff)
+            h = _hist(ri, cols, bs, None, n_bins * n_sea, 1, bases=base, affine=aff)
         else:  # the index-plus-persistence variant: rows by bin x level known
-            hc, h = _hist(ctx, cols, bs, cell, n_bins * n_sea, K + 1, marginal=True,
+            hc, h = _hist(ri, cols, bs, cell, n_bins * n_sea, K + 1, marginal=True,
                           bases=base_cell, affine=aff)
             units.append(_Unit("single_pers", (ix, sc, lg), hc, lg, True, tr,
                                _row_map(hc), n_bins, n_sea))
@@ -268,13 +329,13 @@ def _group_units(ctx, features, ix, lg, scales, harm, *, n_bins, pairs, pair_bin
     if pairs:
         shorts = [s for s in xs if s <= SHORT_MAX_WEEKS]
         longs = [s for s in xs if s >= LONG_MIN_WEEKS]
-        pbase = ctx.bases(pair_bins**2)
+        pbase = ri.bases(pair_bins**2)
         for s1 in shorts:
             for s2 in longs:
                 b = codes[s1].astype(np.int64)
                 b *= pair_bins
                 b += codes[s2]
-                h = _hist(ctx, [xs[s1][0], xs[s2][0]], b, None, pair_bins**2, 1, bases=pbase,
+                h = _hist(ri, [xs[s1][0], xs[s2][0]], b, None, pair_bins**2, 1, bases=pbase,
                           affine=[xs[s1][3:5], xs[s2][3:5]])
                 tr = tuple((xs[s][3], xs[s][4], xs[s][1], xs[s][2]) for s in (s1, s2))
                 units.append(_Unit("pair", (ix, s1, s2, lg), h, lg, False, tr, _row_map(h),
@@ -282,9 +343,9 @@ def _group_units(ctx, features, ix, lg, scales, harm, *, n_bins, pairs, pair_bin
     return units
 
 
-def _hist(ctx, xs, bins, cell, n_bins_total, C, *, marginal=False, bases=None, affine=None):
-    return E.build_hist(ctx.block, ctx.level, xs, bins, cell, n_blocks=ctx.layout.n_blocks,
-                        n_bins_total=n_bins_total, n_cells=C, n_levels=ctx.layout.n_levels,
+def _hist(ri, xs, bins, cell, n_bins_total, C, *, marginal=False, bases=None, affine=None):
+    return E.build_hist(ri.block, ri.level, xs, bins, cell, n_blocks=ri.n_blocks,
+                        n_bins_total=n_bins_total, n_cells=C, n_levels=ri.n_levels,
                         marginal=marginal, bases=bases, affine=affine)
 
 

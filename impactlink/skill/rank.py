@@ -89,8 +89,11 @@ def rank_candidates(
     seed : int, default 0
         Seeds the bootstrap and the challenger.
     jobs, dask_address, progress
-        Passed to :func:`impactlink.execution.map_tasks` for the batched fits; ``jobs`` > 1
-        also builds the candidates' histograms on that many threads (same result).
+        Passed to :func:`impactlink.execution.map_tasks` for the batched fits. With
+        ``dask_address`` the candidates' histograms are built on the cluster too (one task
+        per index and lag; a :class:`~impactlink.link.features.FeatureReader` as
+        ``features`` sends the cube once for every target); otherwise ``jobs`` > 1 builds
+        them on that many threads. The same result either way.
     k_inner : int, default 5
         Inner folds of the nested (selection-aware) estimate.
     pair_bins : int, default 16
@@ -190,7 +193,8 @@ def rank_candidates(
         ctx = _Context.build(target, rows, cv=cv, k_folds=k_folds, n_boot=n_boot, ci=ci,
                              seed=seed, k_inner=k_inner, seasonal=seasonal)
         units = _histograms(ctx, features, cands, n_bins=n_bins, pairs=pairs,
-                            pair_bins=pair_bins, threads=max(1, int(jobs)))
+                            pair_bins=pair_bins, threads=max(1, int(jobs)),
+                            dask_address=dask_address, progress=progress)
         if units is not None or attempt == 1:
             break
         for c in cands:  # pass 1: the rows every candidate can score
