@@ -116,6 +116,61 @@ class FeatureReader:
                            f"{sorted(self.arrays)}") from None
         return _read(arr, self.rows, lag_weeks)
 
+    def defined_rows(self, candidates) -> np.ndarray | None:
+        """Rows where every (index, scale_weeks, lag_weeks) candidate is defined, or None.
+
+        Found from each array's defined span per county (first and last week with a value)
+        without reading the candidates: exact when every county's values run without a
+        gap between those weeks. None where that does not hold or for region rows (whose
+        values renormalise over the counties that have one); then read the candidates.
+        """
+        rp = self.rows
+        if rp.region is not None:
+            return None
+        by_key: dict[tuple[str, int], list[int]] = {}
+        for ix, sc, lg in candidates:
+            by_key.setdefault((ix, int(sc)), []).append(int(lg))
+        low = high = None
+        for key, lags in by_key.items():
+            span = _defined_span(self.arrays, key)
+            if span is None:
+                return None
+            # defined at lag l: first <= ref - l - (w - 1) and ref - l <= last; the largest
+            # lag binds the first condition and the smallest the second
+            lo_k = span[0] + (max(lags) + rp.window - 1)
+            hi_k = span[1] + min(lags)
+            low = lo_k if low is None else np.maximum(low, lo_k)
+            high = hi_k if high is None else np.minimum(high, hi_k)
+        if low is None or high is None:
+            return None
+        cp = np.maximum(rp.cp, 0)
+        return (rp.cp >= 0) & (rp.ref_pos >= low[cp]) & (rp.ref_pos <= high[cp])
+
+
+#: id of a cube's arrays dict -> (the dict, {key: (first, last) weeks per county or None}):
+#: the defined spans of :meth:`FeatureReader.defined_rows`, for the last two cubes.
+_SPANS: dict[int, tuple[dict, dict]] = {}
+
+
+def _defined_span(arrays: dict, key) -> tuple[np.ndarray, np.ndarray] | None:
+    """First and last week position with a value, per county (first > last: none), of one
+    array; None when some county has a missing week between the two."""
+    hit = _SPANS.get(id(arrays))
+    if hit is None or hit[0] is not arrays:
+        while len(_SPANS) >= 2:
+            _SPANS.pop(next(iter(_SPANS)))
+        hit = _SPANS[id(arrays)] = (arrays, {})
+    spans = hit[1]
+    if key not in spans:
+        have = np.isfinite(arrays[key])
+        nt = have.shape[0]
+        anyv = have.any(axis=0)
+        first = np.where(anyv, have.argmax(axis=0), nt)
+        last = np.where(anyv, nt - 1 - have[::-1].argmax(axis=0), -1)
+        dense = have.sum(axis=0) == np.maximum(last - first + 1, 0)
+        spans[key] = (first, last) if dense.all() else None
+    return spans[key]
+
 
 def feature_reader(target: Target, cube) -> FeatureReader:
     """The :class:`FeatureReader` of ``target`` on ``cube`` (same values as

@@ -68,8 +68,10 @@ def rank_candidates(
     features : callable
         ``features(index, scale_weeks, lag_weeks)`` returns the candidate's value for every
         row of ``target.frame`` (ndarray (n_rows,), NaN where undefined), index convention
-        negative = dry. Usually ``functools.partial(impactlink.link.feature_values, target,
-        cube)`` reordered to this signature.
+        negative = dry. Usually :func:`impactlink.link.features.feature_reader` of the
+        target and the cube: it pickles without the target frame (for Dask), and its
+        ``defined_rows(candidates)`` finds the rows every candidate can score from the
+        cube's spin-ups without reading the candidates.
     candidates : list of (index, scale_weeks, lag_weeks)
     cv : {"leave_one_year_out", "blocked_k_fold", "leave_one_region_out"}
         Fold scheme (see :func:`impactlink.skill.year_folds`).
@@ -179,6 +181,9 @@ def rank_candidates(
     frame = target.frame
     level_all = _as_float(frame["level"])
     ok = np.isfinite(level_all)
+    defined = getattr(features, "defined_rows", None)  # a FeatureReader knows the spin-ups
+    if defined is not None and (known := defined(cands)) is not None:
+        ok &= known
     # one pass in the usual case: assume every candidate is defined wherever the level is;
     # the histogram pass stops at the first candidate with a gap, and then a first pass
     # finds the rows every candidate can score

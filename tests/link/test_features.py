@@ -6,6 +6,7 @@ Reference for ISO weeks: ISO 8601-1:2019, via Python's ``datetime.date.fromisoca
 from __future__ import annotations
 
 import datetime as dt
+import pickle
 
 import numpy as np
 import pandas as pd
@@ -21,6 +22,7 @@ from impactlink.link import (
     feature_matrix,
     feature_values,
 )
+from impactlink.link.features import feature_reader
 
 
 def _week_target(times, counties, *, rule=None, role="state") -> Target:
@@ -255,3 +257,55 @@ def test_region_values_match_the_broadcast_form(window, stat):
         assert np.isfinite(want).sum() > len(fr) // 3         # the case is not all missing
         np.testing.assert_array_equal(np.isnan(got), np.isnan(want))
         np.testing.assert_allclose(got, want, rtol=1e-13, atol=0)
+        # the picklable reader the candidate grid sends to workers reads the same values
+        reader = pickle.loads(pickle.dumps(feature_reader(t, cube)))
+        np.testing.assert_array_equal(reader("spi", 4, lag), got)
+
+
+def test_feature_reader_pickles_without_the_frame():
+    # a week target: the reader holds the rows' week and county positions, not the frame
+    weeks = mondays("2030-01-07", 30)
+    ids = tuple(f"c{i}" for i in range(5))
+    cube = _grid_cube(weeks, ids)
+    times = np.repeat(pd.date_range("2030-02-04", periods=20, freq="7D"), 5)
+    t = _week_target(times, list(ids) * 20)
+    t.frame["note"] = "a long free-text field the workers never need " * 4
+    rd = feature_reader(t, cube)
+    assert len(pickle.dumps(rd.rows)) < len(pickle.dumps(t.frame)) / 4
+    for lag in (0, 3, 9):
+        np.testing.assert_array_equal(pickle.loads(pickle.dumps(rd))("spi", 4, lag),
+                                      feature_values(t, cube, "spi", 4, lag))
+    with pytest.raises(KeyError, match="no index 'spei' at scale 4"):
+        rd("spei", 4, 0)
+
+
+def test_defined_rows_from_spans_equal_reading_every_candidate():
+    # spin-ups of different lengths per county and array, lags and windows: the rows the
+    # spans call defined are exactly those where every candidate reads a value
+    rng = np.random.default_rng(3)
+    weeks = mondays("2029-01-01", 80)
+    ids = tuple(f"c{i}" for i in range(6))
+    arrays = {}
+    for k, (ix, sc) in enumerate([("spi", 4), ("spi", 26), ("spei", 13)]):
+        a = rng.normal(size=(80, 6))
+        for c in range(6):
+            a[: rng.integers(0, 30), c] = np.nan         # spin-up
+            a[80 - rng.integers(0, 5 + k):, c] = np.nan  # record ends early
+        arrays[(ix, sc)] = a
+    arrays[("spei", 13)][:, 5] = np.nan                  # a county with no value at all
+    from impactlink.indices.cube import IndexCube
+
+    cube = IndexCube(weeks, ids, arrays)
+    times = np.repeat(weeks[10:75], 7)
+    counties = list(ids + ("zz",)) * 65                  # a county the cube lacks
+    cands = [(ix, sc, lg) for (ix, sc) in arrays for lg in (0, 3, 8)]
+    for rule in (FeatureRule(), FeatureRule(window_weeks=3, window_stat="min")):
+        t = _week_target(times, counties, rule=rule)
+        rd = feature_reader(t, cube)
+        want = np.all([np.isfinite(rd(*c)) for c in cands], axis=0)
+        assert 0 < want.sum() < want.size
+        np.testing.assert_array_equal(rd.defined_rows(cands), want)
+    gapped = dict(arrays)
+    gapped[("spi", 4)] = arrays[("spi", 4)].copy()
+    gapped[("spi", 4)][50, 2] = np.nan                   # a gap inside a record: no shortcut
+    assert feature_reader(t, IndexCube(weeks, ids, gapped)).defined_rows(cands) is None

@@ -63,3 +63,53 @@ def test_same_table_when_a_worker_is_killed_mid_grid():
     assert killed and victim not in after
     pd.testing.assert_frame_equal(a.table, b.table)
     pd.testing.assert_frame_equal(a.summary, b.summary)
+
+
+def _reader(tgt, seed):
+    """The synthetic world as an index cube, read through the pipeline's FeatureReader."""
+    from impactlink.indices.cube import IndexCube
+    from impactlink.link.features import feature_reader
+
+    arrays, n_weeks, spin = synth.world(seed)
+    weeks = pd.date_range(pd.Timestamp("2001-01-01") - pd.Timedelta(weeks=spin),
+                          periods=n_weeks, freq="7D")
+    cube = IndexCube(weeks, tuple(f"c{c:02d}" for c in range(12)), arrays)
+    return cube, feature_reader(tgt, cube)
+
+
+def test_feature_reader_on_a_cluster_sends_the_cube_once_per_session():
+    """The pipeline's path: a FeatureReader (cube arrays + row positions) as features, the
+    histograms built on a real two-worker cluster, two targets in one session. The reader
+    reads what the synthetic world's own gather reads; the tables equal the in-process ones
+    made with that gather; the cube is scattered once for both targets."""
+    distributed = pytest.importorskip("distributed")
+    import numpy as np
+
+    from impactlink import execution
+
+    kw = dict(n_boot=20, pairs=True, challenger=False, seed=5)
+    binary, feats = synth.planted_target(3)
+    ordinal, _ = synth.planted_target(3, kind="ordinal")
+    cube, rd_bin = _reader(binary, 3)
+    from impactlink.link.features import feature_reader
+
+    rd_ord = feature_reader(ordinal, cube)
+    for c in synth.candidates():
+        np.testing.assert_array_equal(rd_bin(*c), feats(*c))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", SkillWarning)
+        ref = [rank_candidates(t, feats, synth.candidates(), **kw) for t in (binary, ordinal)]
+        with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True,
+                                      host="127.0.0.1", dashboard_address="127.0.0.1:0"
+                                      ) as cluster:
+            addr = cluster.scheduler_address
+            with execution.dask_session(addr):
+                a = rank_candidates(binary, rd_bin, synth.candidates(), dask_address=addr,
+                                    **kw)
+                sent = execution._MEMOS[addr][id(cube.arrays)][1]
+                b = rank_candidates(ordinal, rd_ord, synth.candidates(), dask_address=addr,
+                                    **kw)
+                assert execution._MEMOS[addr][id(cube.arrays)][1] is sent
+    for r, got in zip(ref, (a, b), strict=True):
+        pd.testing.assert_frame_equal(r.table, got.table)
+        pd.testing.assert_frame_equal(r.summary, got.summary)
