@@ -131,7 +131,7 @@ def hist_bases(block, level, cell, *, n_bins_total, n_cells, n_levels
     ``row_base = block * NB * C + cell`` and ``rk_base = row_base * K + level``; every
     candidate of a target shares them (the persistence variant per lag).
     """
-    row_base = block * (n_bins_total * n_cells)
+    row_base = np.multiply(block, n_bins_total * n_cells, dtype=np.int64)  # widened
     if n_cells > 1:
         row_base += cell
     rk_base = row_base * n_levels

@@ -1,8 +1,8 @@
 """Batched cross-validated fits of every candidate histogram.
 
-:func:`_fit_all` groups same-shaped units into chunks and runs :func:`_score_chunk` on each
-through :func:`impactlink.execution.map_tasks` (process pool or Dask: the task stays a
-top-level, picklable function).
+:func:`_score_units` fits the units of one (index, lag) group, same-shaped units together
+(:func:`_score_chunk`); it runs inside the group's task of
+:func:`impactlink.skill.grid._grid`, wherever that runs. :func:`_records` names the results.
 """
 
 from __future__ import annotations
@@ -16,45 +16,52 @@ from impactlink.execution import blas_threads
 from impactlink.skill import _engine as E
 from impactlink.skill._shared import _score_oof
 
+CHUNK = 12  # units per batched fit (a group's scales, or its short x long pairs, in one)
+VARIANTS = {  # unit kind -> (model, use cells, nested estimate)
+    "single": [("index", False, True)],
+    "single_pers": [("index_persistence", True, False)],
+    "pair": [("index_pair", False, False)],
+}
 
-def _fit_all(ctx, units, *, jobs, dask_address, progress, chunk=8) -> list[dict]:
-    from impactlink.execution import map_tasks
 
-    groups: dict[tuple, list[int]] = {}
+def _score_units(units, layout, W, *, parallel: bool, chunk: int = CHUNK
+                 ) -> list[list[dict]]:
+    """Fit and score every CV job of the units of one (index, lag) group.
+
+    Units of the same kind and shape are fitted together, ``chunk`` at a time; returns the
+    records of each unit (one per model variant), in unit order.
+    """
+    by_shape: dict[tuple, list[int]] = {}
     for i, u in enumerate(units):
-        groups.setdefault((u.kind, u.hist.n_cells, u.use_cells), []).append(i)
-    tasks, where = [], []
-    for (kind, _, _use_cells), idx in groups.items():
+        by_shape.setdefault((u.kind, u.hist.n_cells, u.use_cells), []).append(i)
+    out: list[list[dict]] = [[] for _ in units]
+    for (kind, _, _), idx in by_shape.items():
         for s in range(0, len(idx), chunk):
             part = idx[s: s + chunk]
-            if kind == "single":
-                variants = [("index", False, True)]
-            elif kind == "single_pers":
-                variants = [("index_persistence", True, False)]
-            else:
-                variants = [("index_pair", False, False)]
-            tasks.append(([units[i].hist for i in part], ctx.layout, variants, ctx.boot_w,
-                          jobs > 1 or dask_address is not None))
-            where.append(part)
-    results = map_tasks(_score_chunk, tasks, jobs=jobs, dask_address=dask_address,
-                        progress=progress, label=f"skill {ctx.target.name}")
+            res = _score_chunk(([units[i].hist for i in part], layout, VARIANTS[kind], W,
+                                parallel))
+            for i, r in zip(part, res, strict=True):
+                out[i] = r
+    return out
+
+
+def _records(ctx, units, scored) -> list[dict]:
+    """The candidate records of every unit: its scores named by index, scales and lag."""
     records = []
     n_bad = 0
-    for part, res in zip(where, results, strict=True):
-        for i, per_unit in zip(part, res, strict=True):
-            u = units[i]
-            for rec in per_unit:
-                n_bad += rec.pop("n_unconverged")
-                if u.kind in ("single", "single_pers"):
-                    ix, sc, lg = u.key
-                    rec.update(index=ix, scale_weeks=sc, lag_weeks=lg, index2=None,
-                               scale2_weeks=None)
-                else:
-                    ix, s1, s2, lg = u.key
-                    rec.update(index=ix, scale_weeks=s1, lag_weeks=lg, index2=ix,
-                               scale2_weeks=s2)
-                rec["unit"] = i
-                records.append(rec)
+    for i, (u, per_unit) in enumerate(zip(units, scored, strict=True)):
+        for rec in per_unit:
+            n_bad += rec.pop("n_unconverged")
+            if u.kind in ("single", "single_pers"):
+                ix, sc, lg = u.key
+                rec.update(index=ix, scale_weeks=sc, lag_weeks=lg, index2=None,
+                           scale2_weeks=None)
+            else:
+                ix, s1, s2, lg = u.key
+                rec.update(index=ix, scale_weeks=s1, lag_weeks=lg, index2=ix,
+                           scale2_weeks=s2)
+            rec["unit"] = i
+            records.append(rec)
     if n_bad:
         warnings.warn(f"target {ctx.target.name!r}: {n_bad} cross-validation fits stopped "
                       "before converging (their last iterate is used)", SkillWarning,

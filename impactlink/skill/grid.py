@@ -1,14 +1,15 @@
-"""The candidate grid: input checks, the context one target shares, one histogram per candidate.
+"""The candidate grid: input checks, the context one target shares, one task per group.
 
 :func:`_check_options` checks the inputs; :class:`_Context` holds what every candidate of one
 target shares (scored rows, levels, the year-blocked fold layout, persistence cells, season
-classes, bootstrap weights); :func:`_histograms` builds the :class:`_Unit` of every single
+classes, bootstrap weights); :func:`_grid` builds the :class:`_Unit` of every single
 candidate, index-plus-persistence variant and two-scale pair (the histogram fast path of
-:mod:`impactlink.skill._engine`).
+:mod:`impactlink.skill._engine`) and scores it, one (index, lag) group per task.
 """
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -125,6 +126,20 @@ class _Context:
         assert self.rows_in is not None
         return self.rows_in.bases(n_bins_total)
 
+    def compact_rows(self) -> _RowsIn:
+        """:attr:`rows_in` in the smallest integer types that hold them, to send to workers
+        (:func:`impactlink.skill._engine.hist_bases` widens them; the histograms are the
+        same)."""
+        ri = self.rows_in
+        assert ri is not None
+        seasons = ri.seasons
+        if seasons is not None:
+            seasons = dataclasses.replace(seasons, code=_small(seasons.code))
+        return _RowsIn(ri.rows, ri.n_full, _small(ri.block),
+                       _small(ri.level), ri.n_blocks, ri.n_levels,
+                       {lag: _small(c) for lag, c in ri.pers_cells.items()}, seasons)
+
+
     @classmethod
     def build(cls, target, rows, *, cv, k_folds, n_boot, ci, seed, k_inner, seasonal=False):
         fr = target.frame
@@ -173,6 +188,12 @@ class _Context:
                    season, boot_w, seasons)
 
 
+def _small(a: np.ndarray) -> np.ndarray:
+    """Non-negative integers in the smallest unsigned type that holds their maximum."""
+    top = int(a.max()) if a.size else 0
+    return a.astype(np.min_scalar_type(max(top, 0)), copy=False) if a.min(initial=0) >= 0 else a
+
+
 # --------------------------------------------------------------------------- histograms
 @dataclass
 class _Unit:
@@ -188,69 +209,89 @@ class _Unit:
     plain: E.Hist | None = None  # the index-only histogram without seasons (challenger)
 
 
-def _histograms(ctx, features, cands, *, n_bins, pairs, pair_bins, threads: int = 1,
-                dask_address: str | None = None, progress=None) -> list[_Unit] | None:
-    """One histogram per candidate (and pair); None as soon as a candidate has a gap.
+def _grid(ctx, features, cands, *, n_bins, pairs, pair_bins, jobs: int = 1,
+          dask_address: str | None = None, progress=None
+          ) -> tuple[list[_Unit], list[list[dict]]] | None:
+    """Every candidate's histogram (and pair's), fitted and scored: the units and the
+    records of each; None at the first candidate with a gap.
 
-    With ``dask_address`` the (index, lag) groups are built on the cluster's workers, one
-    task per group (:func:`_group_task`): the target's rows (:class:`_RowsIn`) and the
-    features travel once per worker (``shared`` of :func:`impactlink.execution.map_tasks`;
-    a :class:`~impactlink.link.features.FeatureReader` as its cube arrays, which every
-    target shares, and its row positions). Otherwise ``threads`` > 1 builds the groups on
-    that many threads (:func:`impactlink.execution.thread_map`; numpy's arithmetic on the
-    rows releases the GIL, its gathers and ``bincount`` do not, so the gain is partial).
-    The units come back in group order and are the same numbers whichever way they were
-    built. The groups are built longest lag first: the spin-up gaps of long scales and lags
-    show there, and a gap stops every group (the caller then finds the rows all candidates
-    can score and starts again).
+    One task per (index, lag) group (:func:`_group_task`): read the group's scales, build
+    its histograms, fit and score them (:func:`impactlink.skill.fitting._score_units`).
+    In-process the groups run one by one, longest lag first (the spin-up gaps of long
+    scales and lags show there) and stop at the first gap; the caller then finds the rows
+    all candidates can score and starts again. With ``jobs`` > 1 (a local process pool) or
+    ``dask_address`` the tasks run on the workers (:func:`impactlink.execution.map_tasks`),
+    which cannot stop one another, so the caller finds the common rows first. There the
+    target's rows (:class:`_RowsIn`, in compact integer types), the fold layout and the
+    features travel once per worker (``shared``; a
+    :class:`~impactlink.link.features.FeatureReader` as its cube arrays, which every target
+    shares, and its row positions). The units come back in group order; the numbers do not
+    depend on where they were made.
     """
-    import threading
+    from impactlink.execution import map_tasks
 
     by_group: dict[tuple[str, int], list[int]] = {}
     for ix, sc, lg in cands:
         by_group.setdefault((ix, lg), []).append(sc)
-    gap = threading.Event()
-    opts = dict(n_bins=n_bins, pairs=pairs, pair_bins=pair_bins)
     items = list(by_group.items())
     order = sorted(range(len(items)), key=lambda i: -items[i][0][1])  # stable: ties in order
-    if dask_address:
-        from impactlink.execution import map_tasks
-        from impactlink.link.features import FeatureReader
-
-        shared = ((features.arrays, features.rows) if isinstance(features, FeatureReader)
-                  else (features, None))
-        done = map_tasks(_group_task, [(items[i], opts) for i in order],
-                         dask_address=dask_address, shared=(*shared, ctx.rows_in),
-                         progress=progress, label=f"histograms {ctx.target.name}")
-    elif threads > 1:
-        from impactlink.execution import thread_map
-
-        done = thread_map(lambda it: _group_units(ctx.rows_in, features, it, gap=gap, **opts),
-                          [items[i] for i in order], threads)
+    opts = dict(n_bins=n_bins, pairs=pairs, pair_bins=pair_bins)
+    tasks = [(items[i], opts) for i in order]
+    parallel = jobs > 1 or bool(dask_address)
+    rows_in = ctx.compact_rows() if parallel else ctx.rows_in
+    shared = (*_feature_parts(features), rows_in, ctx.layout, ctx.boot_w, parallel)
+    label = f"skill {ctx.target.name}"
+    if parallel:
+        done = map_tasks(_group_task, tasks, jobs=jobs, dask_address=dask_address,
+                         shared=shared, progress=progress, label=label)
     else:  # one by one, stopping at the first gap
         done = []
-        for i in order:
-            done.append(_group_units(ctx.rows_in, features, items[i], **opts))
+        step = max(1, len(tasks) // 10)
+        for i, t in enumerate(tasks, 1):
+            done.append(_group_task(t, *shared))
             if done[-1] is None:
                 break
+            if progress is not None and (i % step == 0 or i == len(tasks)):
+                progress(f"{label}: {i}/{len(tasks)}")
     if len(done) < len(items) or any(p is None for p in done):
         return None
-    parts: list[list[_Unit]] = [[] for _ in items]
+    parts: list[tuple] = [()] * len(items)
     for i, p in zip(order, done, strict=True):
         parts[i] = p
-    return [u for p in parts for u in p]
+    units = [u for p in parts for u in p[0]]
+    scored = [r for p in parts for r in p[1]]
+    return units, scored
 
 
-def _group_task(task, features, row_positions, rows_in: _RowsIn) -> list[_Unit] | None:
-    """Worker: the units of one (index, lag) group; ``features`` is the cube's arrays when
-    ``row_positions`` is given (the two parts of a
-    :class:`~impactlink.link.features.FeatureReader`), else the callable itself."""
+def _feature_parts(features) -> tuple:
+    """``features`` as the two objects a task receives: a FeatureReader's cube arrays and
+    row positions (so the arrays, shared by every target, travel once), or the callable
+    and None."""
+    from impactlink.link.features import FeatureReader
+
+    if isinstance(features, FeatureReader):
+        return features.arrays, features.rows
+    return features, None
+
+
+def _group_task(task, features, row_positions, rows_in: _RowsIn, layout, boot_w, parallel
+                ) -> tuple[list[_Unit], list[list[dict]]] | None:
+    """Worker: the units of one (index, lag) group and their scores (None at a gap).
+
+    ``features`` is the cube's arrays when ``row_positions`` is given (the two parts of a
+    :class:`~impactlink.link.features.FeatureReader`), else the callable itself.
+    """
+    from impactlink.skill.fitting import _score_units
+
     if row_positions is not None:
         from impactlink.link.features import FeatureReader
 
         features = FeatureReader(features, row_positions)
     item, opts = task
-    return _group_units(rows_in, features, item, **opts)
+    units = _group_units(rows_in, features, item, **opts)
+    if units is None:
+        return None
+    return units, _score_units(units, layout, boot_w, parallel=parallel)
 
 
 def _mean_sd(x: np.ndarray) -> tuple[float, float]:

@@ -25,8 +25,8 @@ from impactlink.link.target import Target
 from impactlink.skill._shared import _as_float, _best_single, _feature
 from impactlink.skill.baselines import _baselines
 from impactlink.skill.challenger import _challenger
-from impactlink.skill.fitting import _fit_all
-from impactlink.skill.grid import _check_options, _Context, _histograms
+from impactlink.skill.fitting import _records
+from impactlink.skill.grid import _check_options, _Context, _grid
 from impactlink.skill.local import _local_and_predictions
 from impactlink.skill.nested import _nested
 from impactlink.skill.persistence import _persistence_gain
@@ -91,11 +91,12 @@ def rank_candidates(
     seed : int, default 0
         Seeds the bootstrap and the challenger.
     jobs, dask_address, progress
-        Passed to :func:`impactlink.execution.map_tasks` for the batched fits. With
-        ``dask_address`` the candidates' histograms are built on the cluster too (one task
-        per index and lag; a :class:`~impactlink.link.features.FeatureReader` as
-        ``features`` sends the cube once for every target); otherwise ``jobs`` > 1 builds
-        them on that many threads. The same result either way.
+        Passed to :func:`impactlink.execution.map_tasks`: one task per (index, lag) group
+        reads its candidates, builds their histograms and fits them, in-process, on a
+        local pool of ``jobs`` processes or on the Dask cluster (a
+        :class:`~impactlink.link.features.FeatureReader` as ``features`` sends the cube
+        once for every target). The same result on every engine. ``jobs`` also sets the
+        threads of the row-level predictions of the leading candidates.
     k_inner : int, default 5
         Inner folds of the nested (selection-aware) estimate.
     pair_bins : int, default 16
@@ -182,12 +183,14 @@ def rank_candidates(
     level_all = _as_float(frame["level"])
     ok = np.isfinite(level_all)
     defined = getattr(features, "defined_rows", None)  # a FeatureReader knows the spin-ups
-    if defined is not None and (known := defined(cands)) is not None:
+    known = defined(cands) if defined is not None else None
+    if known is not None:
         ok &= known
-    # one pass in the usual case: assume every candidate is defined wherever the level is;
-    # the histogram pass stops at the first candidate with a gap, and then a first pass
-    # finds the rows every candidate can score
-    units = None
+    elif jobs > 1 or dask_address:  # parallel tasks cannot stop at a gap: common rows first
+        ok &= _all_defined(features, cands, len(frame))
+    # in-process, assume every candidate is defined wherever the level is: the groups stop at
+    # the first candidate with a gap, and then a first pass finds the rows all can score
+    grid = None
     for attempt in range(2):
         rows = np.flatnonzero(ok)
         if rows.size == 0:
@@ -197,13 +200,14 @@ def rank_candidates(
             )
         ctx = _Context.build(target, rows, cv=cv, k_folds=k_folds, n_boot=n_boot, ci=ci,
                              seed=seed, k_inner=k_inner, seasonal=seasonal)
-        units = _histograms(ctx, features, cands, n_bins=n_bins, pairs=pairs,
-                            pair_bins=pair_bins, threads=max(1, int(jobs)),
-                            dask_address=dask_address, progress=progress)
-        if units is not None or attempt == 1:
+        grid = _grid(ctx, features, cands, n_bins=n_bins, pairs=pairs, pair_bins=pair_bins,
+                     jobs=jobs, dask_address=dask_address, progress=progress)
+        if grid is not None or attempt == 1:
             break
-        for c in cands:  # pass 1: the rows every candidate can score
-            ok &= np.isfinite(_feature(features, c, len(frame)))
+        ok &= _all_defined(features, cands, len(frame))
+    if grid is None:  # pragma: no cover - the common rows have no gap by construction
+        raise AssertionError("the candidate grid met a gap on the rows every candidate scores")
+    units, scored = grid
     if rows.size < len(frame):
         warnings.warn(
             f"target {target.name!r}: {len(frame) - rows.size} of {len(frame)} rows dropped "
@@ -212,7 +216,7 @@ def rank_candidates(
             SkillWarning, stacklevel=2,
         )
     base = _baselines(ctx, cands)
-    records = _fit_all(ctx, units, jobs=jobs, dask_address=dask_address, progress=progress)
+    records = _records(ctx, units, scored)
     table, reps = _table(ctx, base, records)
     best = _best_single(table)
     if challenger and best is not None:
@@ -242,3 +246,11 @@ def rank_candidates(
         )
     return SkillResult(table=table, summary=summary, persistence=pers, reliability=rel,
                        predictions=preds, local=local, provenance=prov)
+
+
+def _all_defined(features, cands, n_rows) -> np.ndarray:
+    """Rows where every candidate has a value (reads each candidate once)."""
+    ok = np.ones(n_rows, dtype=bool)
+    for c in cands:
+        ok &= np.isfinite(_feature(features, c, n_rows))
+    return ok
