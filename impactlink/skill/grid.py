@@ -221,7 +221,8 @@ def _grid(ctx, features, cands, *, n_bins, pairs, pair_bins, jobs: int = 1,
     scales and lags show there) and stop at the first gap; the caller then finds the rows
     all candidates can score and starts again. With ``jobs`` > 1 (a local process pool) or
     ``dask_address`` the tasks run on the workers (:func:`impactlink.execution.map_tasks`),
-    which cannot stop one another, so the caller finds the common rows first. There the
+    which cannot stop one another, so the caller finds the common rows first; the groups
+    with most scales go first, so the last task to finish is a short one. There the
     target's rows (:class:`_RowsIn`, in compact integer types), the fold layout and the
     features travel once per worker (``shared``; a
     :class:`~impactlink.link.features.FeatureReader` as its cube arrays, which every target
@@ -234,10 +235,13 @@ def _grid(ctx, features, cands, *, n_bins, pairs, pair_bins, jobs: int = 1,
     for ix, sc, lg in cands:
         by_group.setdefault((ix, lg), []).append(sc)
     items = list(by_group.items())
-    order = sorted(range(len(items)), key=lambda i: -items[i][0][1])  # stable: ties in order
+    parallel = jobs > 1 or bool(dask_address)
+    if parallel:  # largest groups first, so no worker is left with a long task at the end
+        order = sorted(range(len(items)), key=lambda i: (-len(items[i][1]), -items[i][0][1]))
+    else:  # longest lag first (stable: ties in order)
+        order = sorted(range(len(items)), key=lambda i: -items[i][0][1])
     opts = dict(n_bins=n_bins, pairs=pairs, pair_bins=pair_bins)
     tasks = [(items[i], opts) for i in order]
-    parallel = jobs > 1 or bool(dask_address)
     rows_in = ctx.compact_rows() if parallel else ctx.rows_in
     shared = (*_feature_parts(features), rows_in, ctx.layout, ctx.boot_w, parallel)
     label = f"skill {ctx.target.name}"
