@@ -78,7 +78,7 @@ def map_tasks(
         from concurrent.futures import ProcessPoolExecutor
 
         out: list[T] = []
-        call = functools.partial(_call_shared, fn) if shared else fn
+        call = functools.partial(_call_shared, fn)
         with ProcessPoolExecutor(max_workers=jobs, initializer=_set_shared,
                                  initargs=shared) as pool:
             for i, res in enumerate(pool.map(call, items, chunksize=max(1, n // (4 * jobs))),
@@ -93,11 +93,13 @@ def map_tasks(
     return out
 
 
-_SHARED: dict[str, tuple] = {}  # a pool worker's shared objects (set when it starts)
+_SHARED: dict[str, Any] = {}  # a worker's shared objects and whether its malloc is set
 
 
 def _set_shared(*shared: Any) -> None:
+    """A pool worker starts: keep its shared objects; keep freed blocks for reuse."""
     _SHARED["objects"] = shared
+    _worker_memory()
 
 
 def _call_shared(fn: Callable[..., T], task: Any) -> T:
@@ -106,7 +108,19 @@ def _call_shared(fn: Callable[..., T], task: Any) -> T:
 
 def _call_with(fn: Callable[..., T], task: Any, *shared: Any) -> T:
     """Dask task: ``fn(task, *shared)`` (Dask resolves the scattered objects' futures)."""
+    _worker_memory()
     return fn(task, *shared)
+
+
+def _worker_memory() -> None:
+    """Once per worker process: freed blocks stay for the next task
+    (:func:`impactlink._malloc.reuse_freed_blocks`), so its temporary arrays do not fault
+    their pages in again, task after task."""
+    if not _SHARED.get("memory"):
+        from impactlink._malloc import reuse_freed_blocks
+
+        reuse_freed_blocks()
+        _SHARED["memory"] = True
 
 
 def thread_map(fn: Callable[[Any], T], items: Sequence[Any], threads: int) -> list[T]:

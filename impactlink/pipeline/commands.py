@@ -15,12 +15,13 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
+from impactlink import _malloc
 from impactlink.errors import ProjectError
 from impactlink.progress import Reporter
 from impactlink.project import Project, load_project
 from impactlink.project_template import render_project_file
 
-from . import _memory, publish, stages
+from . import publish, stages
 from .state import CheckSummary, Run, RunResult
 
 __all__ = ["run_project", "run_demo", "check_project", "init_project", "rebuild_report", "ORDER", "NEEDS"]
@@ -171,7 +172,7 @@ def run_project(
         _check_plan(project)  # a plan's mistakes are found before any computation
     out_dir = publish.guard_output(Path(out) if out else project.output_dir, project, force=force)
     names = NEEDS[until]
-    _memory.large_blocks_by_mmap()  # freed arrays go back to the system (glibc; else no-op)
+    _malloc.large_blocks_by_mmap()  # freed arrays go back to the system (glibc; else no-op)
     run = Run(project=project, jobs=jobs if jobs is not None else project.jobs,
               dask_address=dask_address)
     reporter = Reporter(quiet=quiet, n_stages=len(names))
@@ -211,7 +212,7 @@ def _timed(name: str, run: Run, tmp: Path, reporter: Reporter, result: RunResult
         if msg not in result.warnings:
             result.warnings.append(msg)
             reporter(f"warning: {msg}")
-    _memory.trim()  # what the stage freed leaves the process before the next one
+    _malloc.trim()  # what the stage freed leaves the process before the next one
     result.timings_s[name] = round(time.perf_counter() - t0, 3)
     # a file rewritten by a later stage (rejected_rows.csv: inputs, then link) is listed once
     result.written.extend(p for p in written if p not in result.written)

@@ -140,7 +140,8 @@ def test_scores_in_table_match_scores_module_on_predictions():
 
 def test_deterministic_and_same_result_in_a_process_pool():
     tgt, feats = synth.planted_target(2)
-    # jobs=2 also builds the histograms on two threads (pairs included)
+    # jobs=2: the (index, lag) groups are read, binned and fitted in two worker
+    # processes (pairs included)
     a = _rank(tgt, feats, n_boot=30, pairs=True, challenger=False, seed=5)
     b = _rank(tgt, feats, n_boot=30, pairs=True, challenger=False, seed=5, jobs=2)
     pd.testing.assert_frame_equal(a.table, b.table)
@@ -172,9 +173,10 @@ def test_dropped_rows_warn_with_count():
                         pairs=False, challenger=False)
 
 
-def test_a_gap_gives_the_same_table_on_one_or_two_threads():
-    # the gap (a long lag's spin-up) is met first, stops every group, and the rows every
-    # candidate can score are found before the histograms are built again
+def test_a_gap_gives_the_same_table_in_process_and_in_a_pool():
+    # in-process the gap (a long lag's spin-up) is met first, stops every group, and the rows
+    # every candidate can score are found before the histograms are built again; a pool's
+    # tasks cannot stop one another, so there the common rows are found first
     tgt, feats = synth.planted_target(1)
     calls = []
 
