@@ -292,10 +292,17 @@ def _group_task(task, features, row_positions, rows_in: _RowsIn, layout, boot_w,
 
         features = FeatureReader(features, row_positions)
     item, opts = task
+    if parallel:  # one BLAS thread per worker: the workers fill the cores, and idle BLAS
+        from impactlink.execution import blas_threads  # threads spin on them
+
+        with blas_threads(1):
+            units = _group_units(rows_in, features, item, **opts)
+            return None if units is None else (units, _score_units(units, layout, boot_w,
+                                                                   parallel=False))
     units = _group_units(rows_in, features, item, **opts)
     if units is None:
         return None
-    return units, _score_units(units, layout, boot_w, parallel=parallel)
+    return units, _score_units(units, layout, boot_w, parallel=False)
 
 
 def _mean_sd(x: np.ndarray) -> tuple[float, float]:
