@@ -10,14 +10,16 @@ is the largest memory sampled every 100 ms inside that stage's time window (the 
 size; with ``--jobs`` worker processes, the proportional set size of the process and its
 workers, so pages the forked workers share are counted once; psutil when installed, else
 ``/proc/self/status``), and CPU seconds (user + system, all threads of the process and of
-its workers) over the same window: on a busy machine CPU time is the
-steadier measure of the work, wall time the honest measure of the wait. The growth exponent ``b`` of ``time ~ a * N**b``
-is a least-squares line through ``(log N, log time)`` over the sizes run (two sizes or more).
+its workers) over the same window: on a busy machine CPU time is the steadier measure of
+the work, wall time the honest measure of the wait. The growth exponent ``b`` of
+``time ~ a * N**b`` is a least-squares line through ``(log N, log time)`` over the sizes run
+(two sizes or more).
 
 Run:  .venv/bin/python benchmarks/bench_national.py                  # quick: 500 counties
       .venv/bin/python benchmarks/bench_national.py --sizes 500 1500 3143 --jobs 2
-      .venv/bin/python benchmarks/bench_national.py --grid-speedup 500 --jobs 2  # 1 vs 2 Dask
-      workers (--jobs: the client's histogram threads, the same for both)
+      .venv/bin/python benchmarks/bench_national.py --grid-speedup 500  # 1 vs 2 Dask workers
+      (--jobs: the client's threads for the leading candidates' row predictions, the same for
+      both)
       [--out-json result.json] [--workdir /tmp/bench_national]
 Results go to stdout and to the JSON file; copy them into benchmarks/README_national.md.
 The data are invented (the fictional state of Vellmora); nothing here is a test.
@@ -201,9 +203,9 @@ def grid_speedup(n: int, workdir: Path, workers: tuple[int, ...] = (1, 2),
     :func:`impactlink.pipeline.stages.rank` once per cluster size: a real
     ``distributed.LocalCluster`` of that many single-threaded worker processes on loopback.
     ``targets`` > 0 keeps only the first ``targets`` targets; ``jobs`` is the client's threads
-    for the candidates' histograms (as ``impactlink run --dask ADDRESS --jobs N``; the same for
-    every cluster size, so only the workers differ). Returns the wall time of each
-    size, the speed-up of the largest over one worker, and whether the skill tables agree.
+    for the leading candidates' row predictions (as ``impactlink run --dask ADDRESS --jobs
+    N``; the same for every cluster size, so only the workers differ). Returns the wall time
+    of each size, the speed-up of the largest over one worker, and whether the skill tables agree.
     """
     import dataclasses
 

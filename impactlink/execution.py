@@ -158,14 +158,21 @@ def blas_threads(limit: int | None) -> AbstractContextManager[Any]:
     return _BLAS["controller"].limit(limits=int(limit), user_api="blas")
 
 
-def _run_dask(fn, items, address, tick, shared=()):
+def _distributed() -> Any:
+    """The ``distributed`` package, or the one-line error that says how to install it."""
     try:
-        from distributed import Client, LocalCluster
+        import distributed
     except ImportError:  # pragma: no cover - depends on the optional extra
         raise ExecutionError(
             "a Dask address was given but dask.distributed is not installed; "
             "install the extra: pip install 'impactlink[dask]'"
         ) from None
+    return distributed
+
+
+def _run_dask(fn, items, address, tick, shared=()):
+    dd = _distributed()
+    Client, LocalCluster = dd.Client, dd.LocalCluster
     local = address == "local"
     own = not local and address not in _CLIENTS  # no session: a client for this call only
     if local:
@@ -211,14 +218,7 @@ def dask_session(address: str | None) -> Iterator[None]:
     if not address or address == "local" or address in _CLIENTS:
         yield
         return
-    try:
-        from distributed import Client
-    except ImportError:  # pragma: no cover - depends on the optional extra
-        raise ExecutionError(
-            "a Dask address was given but dask.distributed is not installed; "
-            "install the extra: pip install 'impactlink[dask]'"
-        ) from None
-    _CLIENTS[address] = Client(address)
+    _CLIENTS[address] = _distributed().Client(address)
     try:
         yield
     finally:
