@@ -22,7 +22,7 @@ T = TypeVar("T")
 
 
 def map_tasks(
-    fn: Callable[[Any], T],
+    fn: Callable[..., T],
     tasks: Iterable[Any],
     *,
     jobs: int = 1,

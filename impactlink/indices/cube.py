@@ -16,7 +16,7 @@ from impactlink.schema import COUNTY
 
 from .timegrid import week_monday
 
-__all__ = ["IndexCube"]
+__all__ = ["IndexCube", "array_of"]
 
 
 @dataclass(frozen=True)
@@ -66,12 +66,7 @@ class IndexCube:
 
     def get(self, index: str, scale_weeks: int) -> np.ndarray:
         """The (weeks, counties) array of one index at one scale."""
-        try:
-            return self.arrays[(index, int(scale_weeks))]
-        except KeyError:
-            raise KeyError(
-                f"no index {index!r} at scale {scale_weeks} weeks; available: {self.keys}"
-            ) from None
+        return array_of(self.arrays, index, scale_weeks)
 
     def week_position(self, dates: pd.Series | pd.DatetimeIndex | np.ndarray) -> np.ndarray:
         """Row position of the ISO week that contains each date (-1 if outside the grid)."""
@@ -148,3 +143,14 @@ class IndexCube:
             arr[wp, cp] = g["value"].to_numpy(dtype=float)
             arrays[(str(idx), int(scale))] = arr
         return cls(weeks=weeks, county_ids=counties, arrays=arrays, provenance=provenance or {})
+
+
+def array_of(arrays: dict, index: str, scale_weeks: int) -> np.ndarray:
+    """``arrays[(index, scale_weeks)]`` of a cube's arrays dict; a KeyError that lists the
+    available keys otherwise (a lookup of a key the caller should have taken from them)."""
+    try:
+        return arrays[(index, int(scale_weeks))]
+    except KeyError:
+        raise KeyError(
+            f"no index {index!r} at scale {scale_weeks} weeks; available: {sorted(arrays)}"
+        ) from None

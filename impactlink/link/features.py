@@ -14,6 +14,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from impactlink.indices.cube import array_of
 from impactlink.indices.timegrid import iso_week_start, week_monday
 from impactlink.link._common import LinkError
 from impactlink.link.target import Target
@@ -109,12 +110,7 @@ class FeatureReader:
     rows: RowPositions
 
     def __call__(self, index: str, scale_weeks: int, lag_weeks: int) -> np.ndarray:
-        try:
-            arr = self.arrays[(index, int(scale_weeks))]
-        except KeyError:
-            raise KeyError(f"no index {index!r} at scale {scale_weeks} weeks; available: "
-                           f"{sorted(self.arrays)}") from None
-        return _read(arr, self.rows, lag_weeks)
+        return _read(array_of(self.arrays, index, scale_weeks), self.rows, lag_weeks)
 
     def defined_rows(self, candidates) -> np.ndarray | None:
         """Rows where every (index, scale_weeks, lag_weeks) candidate is defined, or None.

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import dataclasses
 from dataclasses import dataclass, field
+from typing import Any
 
 import numpy as np
 
@@ -259,7 +260,7 @@ def _grid(ctx, features, cands, *, n_bins, pairs, pair_bins, jobs: int = 1,
                 progress(f"{label}: {i}/{len(tasks)}")
     if len(done) < len(items) or any(p is None for p in done):
         return None
-    parts: list[tuple] = [()] * len(items)
+    parts: list[Any] = [None] * len(items)
     for i, p in zip(order, done, strict=True):
         parts[i] = p
     units = [u for p in parts for u in p[0]]
