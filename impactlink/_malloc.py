@@ -27,15 +27,18 @@ from __future__ import annotations
 import ctypes
 import ctypes.util
 import platform
+from collections.abc import Iterator
+from contextlib import contextmanager
 from functools import lru_cache
 
-__all__ = ["large_blocks_by_mmap", "trim", "reuse_freed_blocks"]
+__all__ = ["large_blocks_by_mmap", "trim", "reuse_freed_blocks", "reusing_freed_blocks"]
 
 _M_TRIM_THRESHOLD = -1  # glibc malloc.h
 _M_MMAP_THRESHOLD = -3
 _THRESHOLD_BYTES = 4 * 1024 * 1024
 _MMAP_MAX_THRESHOLD = 32 * 1024 * 1024  # mallopt(3): the largest M_MMAP_THRESHOLD (64-bit)
 _KEEP_BYTES = 1 << 30
+_DEFAULT_TRIM_BYTES = 128 * 1024  # mallopt(3)
 
 
 @lru_cache(maxsize=1)
@@ -50,10 +53,12 @@ def _libc() -> ctypes.CDLL | None:
 
 
 def large_blocks_by_mmap() -> None:
-    """Serve blocks of 4 MiB and more by their own mapping (glibc ``M_MMAP_THRESHOLD``)."""
+    """Serve blocks of 4 MiB and more by their own mapping (glibc ``M_MMAP_THRESHOLD``), and
+    give a free heap top back at glibc's default ``M_TRIM_THRESHOLD`` (128 KiB)."""
     libc = _libc()
     if libc is not None:
         libc.mallopt(_M_MMAP_THRESHOLD, _THRESHOLD_BYTES)
+        libc.mallopt(_M_TRIM_THRESHOLD, _DEFAULT_TRIM_BYTES)
 
 
 def trim() -> None:
@@ -70,3 +75,17 @@ def reuse_freed_blocks() -> None:
     if libc is not None:
         libc.mallopt(_M_MMAP_THRESHOLD, _MMAP_MAX_THRESHOLD)
         libc.mallopt(_M_TRIM_THRESHOLD, _KEEP_BYTES)
+
+
+@contextmanager
+def reusing_freed_blocks() -> Iterator[None]:
+    """:func:`reuse_freed_blocks` for the block, then back to :func:`large_blocks_by_mmap`
+    and :func:`trim`: for a stage whose in-process tasks repeat the same allocations (the
+    candidate grid with ``jobs=1``: 37.8 -> 18.2 s for the 500-county scenario's weekly
+    restriction target, 9.1 M -> 0.1 M page faults, peak resident size +35 MB)."""
+    reuse_freed_blocks()
+    try:
+        yield
+    finally:
+        large_blocks_by_mmap()
+        trim()

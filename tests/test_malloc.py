@@ -41,14 +41,25 @@ ctypes.CDLL("libc.so.6").prctl(41, 1, 0, 0, 0)  # PR_SET_THP_DISABLE: 4 KiB page
 import numpy as np
 from impactlink import _malloc
 _malloc.large_blocks_by_mmap()  # as in a run's process (and a pool worker forked from it)
+np.ones(1)
+
+
+def churn():
+    before = resource.getrusage(resource.RUSAGE_SELF).ru_minflt
+    for _ in range(100):
+        a = np.ones(2**20)  # 8 MiB, touched, freed: a task's temporary array
+        del a
+    return resource.getrusage(resource.RUSAGE_SELF).ru_minflt - before
+
+
 if sys.argv[1] == "reuse":
     _malloc.reuse_freed_blocks()
-np.ones(1)
-before = resource.getrusage(resource.RUSAGE_SELF).ru_minflt
-for _ in range(100):
-    a = np.ones(2**20)  # 8 MiB, touched, freed: a task's temporary array
-    del a
-print(resource.getrusage(resource.RUSAGE_SELF).ru_minflt - before)
+if sys.argv[1] == "stage":  # inside the stage's block, then after it
+    with _malloc.reusing_freed_blocks():
+        inside = churn()
+    print(inside, churn())
+else:
+    print(churn())
 """
 
 
@@ -69,3 +80,14 @@ def test_a_worker_reuses_freed_blocks_instead_of_faulting_them_in_again():
 
     assert faults("unmapped") > 100 * 2048 * 0.9
     assert faults("reuse") < 10 * 2048
+
+
+@glibc
+def test_a_stage_block_reuses_freed_blocks_and_then_gives_them_back():
+    import subprocess
+    import sys
+
+    out = subprocess.run([sys.executable, "-c", _CHURN, "stage"], check=True,
+                         capture_output=True, text=True)
+    inside, after = (int(v) for v in out.stdout.split())
+    assert inside < 10 * 2048 and after > 100 * 2048 * 0.9

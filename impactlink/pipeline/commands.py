@@ -8,6 +8,7 @@ progress lines go through :class:`impactlink.progress.Reporter`.
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import time
 import warnings as _warnings
@@ -203,7 +204,10 @@ def _timed(name: str, run: Run, tmp: Path, reporter: Reporter, result: RunResult
     """Run one stage, publish its tables into ``tmp``, record time and warnings."""
     reporter.stage(name)
     t0 = time.perf_counter()
-    with _warnings.catch_warnings(record=True) as caught:
+    in_process_grid = name == "rank" and run.jobs <= 1 and not run.dask_address
+    with _warnings.catch_warnings(record=True) as caught, (
+            _malloc.reusing_freed_blocks() if in_process_grid else contextlib.nullcontext()):
+        # the in-process grid repeats its allocations: freed blocks stay for the next task
         _warnings.simplefilter("always")
         run, written = _STEPS[name](run, tmp, reporter)
     messages = [str(m) for m in getattr(getattr(run, name, None), "warnings", ())]
