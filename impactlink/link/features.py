@@ -91,10 +91,6 @@ class RowPositions:
     stat: str
     region: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None
 
-    @property
-    def n_rows(self) -> int:
-        return int(self.ref_pos.size)
-
 
 @dataclass(frozen=True, eq=False)
 class FeatureReader:

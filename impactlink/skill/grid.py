@@ -122,11 +122,6 @@ class _Context:
                                    self.block, self.level, self.layout.n_blocks,
                                    self.layout.n_levels, self.pers_cells, self.seasons)
 
-    def bases(self, n_bins_total: int) -> tuple[np.ndarray, np.ndarray]:
-        """:meth:`_RowsIn.bases` of the target's rows."""
-        assert self.rows_in is not None
-        return self.rows_in.bases(n_bins_total)
-
     def compact_rows(self) -> _RowsIn:
         """:attr:`rows_in` in the smallest integer types that hold them, to send to workers
         (:func:`impactlink.skill._engine.hist_bases` widens them; the histograms are the
