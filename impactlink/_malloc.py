@@ -19,7 +19,7 @@ Workers that run the same task shape again and again want the opposite.
 candidate grid is a new mapping whose pages fault in again (Dask's nanny also starts workers
 with ``MALLOC_TRIM_THRESHOLD_=65536``). Measured on the 500-county scenario's rank stage on
 two Dask workers: 19.6 M minor page faults and 48 s of system time per worker, then 0.9 M and
-6 s; the stage 131 -> 70 s. Elsewhere (macOS, Windows, musl) all three are no-ops.
+6 s; the stage 131 -> 70 s. Elsewhere (macOS, Windows, musl) every control here is a no-op.
 """
 
 from __future__ import annotations

@@ -12,7 +12,6 @@ import warnings
 import numpy as np
 
 from impactlink.errors import SkillWarning
-from impactlink.execution import blas_threads
 from impactlink.skill import _engine as E
 from impactlink.skill._shared import _score_oof
 
@@ -24,8 +23,7 @@ VARIANTS = {  # unit kind -> (model, use cells, nested estimate)
 }
 
 
-def _score_units(units, layout, W, *, parallel: bool, chunk: int = CHUNK
-                 ) -> list[list[dict]]:
+def _score_units(units, layout, W, *, chunk: int = CHUNK) -> list[list[dict]]:
     """Fit and score every CV job of the units of one (index, lag) group.
 
     Units of the same kind and shape are fitted together, ``chunk`` at a time; returns the
@@ -38,8 +36,7 @@ def _score_units(units, layout, W, *, parallel: bool, chunk: int = CHUNK
     for (kind, _, _), idx in by_shape.items():
         for s in range(0, len(idx), chunk):
             part = idx[s: s + chunk]
-            res = _score_chunk(([units[i].hist for i in part], layout, VARIANTS[kind], W,
-                                parallel))
+            res = _score_chunk([units[i].hist for i in part], layout, VARIANTS[kind], W)
             for i, r in zip(part, res, strict=True):
                 out[i] = r
     return out
@@ -69,12 +66,8 @@ def _records(ctx, units, scored) -> list[dict]:
     return records
 
 
-def _score_chunk(task) -> list[list[dict]]:
-    """Worker: fit and score every CV job of a chunk of same-shaped candidates."""
-    hists, layout, variants, W, parallel = task
-    if parallel:  # one BLAS thread per worker process: workers already fill the cores
-        with blas_threads(1):
-            return _score_chunk((hists, layout, variants, W, False))
+def _score_chunk(hists, layout, variants, W) -> list[list[dict]]:
+    """Fit and score every CV job of a chunk of same-shaped candidates."""
     out: list[list[dict]] = [[] for _ in hists]
     for model, use_cells, nested in variants:
         coef, conv = E.fit_chunk(hists, layout, use_cells=use_cells,

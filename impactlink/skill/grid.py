@@ -186,8 +186,9 @@ class _Context:
 
 def _small(a: np.ndarray) -> np.ndarray:
     """Non-negative integers in the smallest unsigned type that holds their maximum."""
-    top = int(a.max()) if a.size else 0
-    return a.astype(np.min_scalar_type(max(top, 0)), copy=False) if a.min(initial=0) >= 0 else a
+    if a.size == 0 or a.min() < 0:
+        return a
+    return a.astype(np.min_scalar_type(int(a.max())), copy=False)
 
 
 # --------------------------------------------------------------------------- histograms
@@ -281,6 +282,7 @@ def _group_task(task, features, row_positions, rows_in: _RowsIn, layout, boot_w,
     ``features`` is the cube's arrays when ``row_positions`` is given (the two parts of a
     :class:`~impactlink.link.features.FeatureReader`), else the callable itself.
     """
+    from impactlink.execution import blas_threads
     from impactlink.skill.fitting import _score_units
 
     if row_positions is not None:
@@ -288,17 +290,11 @@ def _group_task(task, features, row_positions, rows_in: _RowsIn, layout, boot_w,
 
         features = FeatureReader(features, row_positions)
     item, opts = task
-    if parallel:  # one BLAS thread per worker: the workers fill the cores, and idle BLAS
-        from impactlink.execution import blas_threads  # threads spin on them
-
-        with blas_threads(1):
-            units = _group_units(rows_in, features, item, **opts)
-            return None if units is None else (units, _score_units(units, layout, boot_w,
-                                                                   parallel=False))
-    units = _group_units(rows_in, features, item, **opts)
-    if units is None:
-        return None
-    return units, _score_units(units, layout, boot_w, parallel=False)
+    # on workers, one BLAS thread each: the workers fill the cores, and idle BLAS threads
+    # would spin on them
+    with blas_threads(1 if parallel else None):
+        units = _group_units(rows_in, features, item, **opts)
+        return None if units is None else (units, _score_units(units, layout, boot_w))
 
 
 def _mean_sd(x: np.ndarray) -> tuple[float, float]:
@@ -318,26 +314,21 @@ def _mean_sd(x: np.ndarray) -> tuple[float, float]:
     return mu, sd if sd > 0 else 1.0
 
 
-def _group_units(ri: _RowsIn, features, item, *, n_bins, pairs, pair_bins, gap=None
+def _group_units(ri: _RowsIn, features, item, *, n_bins, pairs, pair_bins
                  ) -> list[_Unit] | None:
     """The units of one (index, lag) group: every scale, its persistence variant, pairs.
 
-    Every scale's values are read first, so a gap stops the group before any histogram
-    (and ``gap``, shared by the groups, stops the others at their next scale). The
-    histograms hold sums of the standardized values, made from sums of the raw values
+    Every scale's values are read first, so a gap stops the group before any histogram.
+    The histograms hold sums of the standardized values, made from sums of the raw values
     (:func:`impactlink.skill._engine.build_hist`, ``affine``).
     """
     (ix, lg), scales = item
     xs = {}
     for sc in sorted(set(scales)):
-        if gap is not None and gap.is_set():
-            return None
         x = _feature(features, (ix, sc, lg), ri.n_full)
         x = x if ri.rows is None else x[ri.rows]
         lo, hi = float(x.min()), float(x.max())  # NaN when any value is
         if not (np.isfinite(lo) and np.isfinite(hi)):
-            if gap is not None:
-                gap.set()
             return None  # a gap: the caller finds the common rows first
         xs[sc] = (x, lo, hi, *_mean_sd(x))
     units = []
